@@ -1,0 +1,57 @@
+//! The command line: clap definitions and dispatch, thin over the library.
+//!
+//! Each subcommand lives in its own module with its arguments and a `run` function that
+//! returns an [`Outcome`] or an error for the user (exit 1). Usage errors are clap's (exit 2).
+
+use clap::{Parser, Subcommand};
+
+use crate::error::Outcome;
+
+pub mod curve;
+pub mod demo;
+pub mod fit;
+pub mod import;
+pub mod init;
+pub mod list;
+
+/// porewise: soil-water retention campaigns in one SQLite file.
+#[derive(Debug, Parser)]
+#[command(name = "porewise", version, about, long_about = None, propagate_version = true)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Build the invented demo campaign and show it.
+    Demo(demo::DemoArgs),
+    /// Create an empty campaign file.
+    Init(init::InitArgs),
+    /// Import sites, layers or lab retention readings from CSV files.
+    #[command(subcommand)]
+    Import(import::ImportCommand),
+    /// List what a campaign file holds.
+    List(list::ListArgs),
+    /// Fit retention models to samples (from a plain CSV file with --input).
+    Fit(fit::FitArgs),
+    /// Tabulate a retention curve for given parameters.
+    Curve(curve::CurveArgs),
+}
+
+/// Run a parsed command line.
+///
+/// # Errors
+/// Any error meant for the user (bad input, missing file); `main` prints it and exits 1.
+pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
+    match cli.command {
+        Command::Demo(args) => demo::run(&args),
+        Command::Init(args) => init::run(&args),
+        Command::Import(cmd) => import::run(&cmd),
+        Command::List(args) => list::run(&args),
+        Command::Fit(args) => fit::run(&args),
+        Command::Curve(args) => curve::run(&args),
+    }
+}

@@ -1,0 +1,1 @@
+//! The invented demo campaign: a seeded generator of its source files.

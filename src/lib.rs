@@ -1,0 +1,28 @@
+//! porewise: soil-water retention campaigns in one SQLite file.
+//!
+//! A hydrologist's campaign (sites, the layers of each profile, the samples taken from them and
+//! their retention readings) is imported from CSV, stored in SQLite, fitted with the published
+//! retention models, reviewed for outliers and exported as a summary.
+//!
+//! # Layer map
+//!
+//! Dependencies point one way; nothing imports `tui` or `cli`.
+//!
+//! - [`model`]: units, domain values and the retention models with analytic derivatives.
+//!   Pure: no files, no SQLite, no terminal.
+//! - [`fit`]: the bounded least-squares driver, statistics and model choice. Pure.
+//! - [`import`]: CSV files to validated batches of model values, with `FILE:LINE:COLUMN`
+//!   diagnostics. Reads files, writes nothing.
+//! - [`store`]: the SQLite campaign file: migrations, pragmas, one module per aggregate.
+//! - [`report`]: tables and exports built from model and store values.
+//! - [`demo`]: the seeded generator of the invented demo campaign.
+//! - [`cli`]: the command line, thin over the library.
+
+pub mod cli;
+pub mod demo;
+pub mod error;
+pub mod fit;
+pub mod import;
+pub mod model;
+pub mod report;
+pub mod store;

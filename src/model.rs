@@ -1,0 +1,5 @@
+//! Domain values, units and the parametric retention models.
+//!
+//! Nothing here touches files, SQLite or the terminal.
+
+pub mod units;

@@ -1,0 +1,1 @@
+//! Tables and exports built from model and store values.

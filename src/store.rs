@@ -1,0 +1,1 @@
+//! The campaign file: SQLite with numbered migrations, one module per aggregate.
