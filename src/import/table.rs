@@ -67,13 +67,13 @@ impl Newlines {
     /// decrease between calls.
     fn line_of(&mut self, mut offset: u64) -> u64 {
         while let Some(&(pos, is_newline)) = self.pending.front() {
-            if pos < offset {
-                self.passed += u64::from(is_newline);
-            } else if pos == offset {
-                self.passed += u64::from(is_newline);
-                offset += 1;
-            } else {
-                break;
+            match pos.cmp(&offset) {
+                std::cmp::Ordering::Less => self.passed += u64::from(is_newline),
+                std::cmp::Ordering::Equal => {
+                    self.passed += u64::from(is_newline);
+                    offset += 1;
+                }
+                std::cmp::Ordering::Greater => break,
             }
             self.pending.pop_front();
         }
@@ -102,11 +102,14 @@ impl<R: Read> Read for LineCounting<R> {
     }
 }
 
+/// The byte stream under the CSV reader: the header line read ahead, then the rest.
+type Counted<R> = LineCounting<std::io::Chain<Cursor<Vec<u8>>, BufReader<R>>>;
+
 /// An open delimited file: header read, records to come with their physical line numbers.
 pub struct Table<R: Read> {
     file: String,
     header: Header,
-    reader: csv::Reader<LineCounting<std::io::Chain<Cursor<Vec<u8>>, BufReader<R>>>>,
+    reader: csv::Reader<Counted<R>>,
     newlines: Rc<RefCell<Newlines>>,
     record: csv::StringRecord,
     decimal_comma: bool,
