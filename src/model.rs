@@ -2,4 +2,5 @@
 //!
 //! Nothing here touches files, SQLite or the terminal.
 
+pub mod curve;
 pub mod units;
