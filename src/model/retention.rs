@@ -238,6 +238,79 @@ impl FromStr for ModelKind {
     }
 }
 
+/// A model with a checked parameter set: the value a report, the CLI or the UI passes around.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RetentionCurve {
+    kind: ModelKind,
+    params: Vec<f64>,
+}
+
+impl RetentionCurve {
+    /// A curve from a full parameter vector in the model's order.
+    ///
+    /// # Errors
+    /// Any failure of [`ModelKind::check_params`].
+    pub fn new(kind: ModelKind, params: Vec<f64>) -> Result<RetentionCurve, ParamError> {
+        kind.check_params(&params)?;
+        Ok(RetentionCurve { kind, params })
+    }
+
+    /// A curve from `name = value` pairs in any order.
+    ///
+    /// # Errors
+    /// Any failure of [`ModelKind::parameter_vector`].
+    pub fn from_pairs(
+        kind: ModelKind,
+        pairs: &[(String, f64)],
+    ) -> Result<RetentionCurve, ParamError> {
+        let params = kind.parameter_vector(pairs)?;
+        Ok(RetentionCurve { kind, params })
+    }
+
+    /// The model.
+    pub fn kind(&self) -> ModelKind {
+        self.kind
+    }
+
+    /// The parameters, in the model's order.
+    pub fn params(&self) -> &[f64] {
+        &self.params
+    }
+
+    /// The value of a parameter by name.
+    pub fn param(&self, name: &str) -> Option<f64> {
+        self.kind.param_index(name).ok().map(|i| self.params[i])
+    }
+
+    /// theta_r (0 for models without one) and theta_s.
+    pub fn theta_range(&self) -> (f64, f64) {
+        let model = self.kind.retention();
+        (model.theta_r(&self.params), model.theta_s(&self.params))
+    }
+
+    /// Volumetric water content at suction `h_cm` (>= 0, finite).
+    pub fn theta(&self, h_cm: f64) -> f64 {
+        self.kind.retention().value(h_cm, &self.params)
+    }
+
+    /// Effective saturation at suction `h_cm`, in [0, 1].
+    pub fn effective_saturation(&self, h_cm: f64) -> f64 {
+        self.kind
+            .retention()
+            .effective_saturation(h_cm, &self.params)
+    }
+
+    /// Specific water capacity C(h) = -d theta / dh per cm; `None` at a break point.
+    pub fn capacity(&self, h_cm: f64) -> Option<f64> {
+        self.kind.retention().capacity(h_cm, &self.params)
+    }
+
+    /// The smallest suction (cm) holding `theta`; `None` where the curve never falls so low.
+    pub fn suction_at(&self, theta: f64) -> Option<f64> {
+        self.kind.retention().suction_at(theta, &self.params)
+    }
+}
+
 /// Parse one `NAME=VALUE` assignment (as given to `--set` or `--fix`).
 ///
 /// # Errors
@@ -422,7 +495,6 @@ pub(crate) fn sigmoid(t: f64) -> f64 {
 
 /// ln(1 / (1 + e^-t)) = -softplus(-t), accurate at both ends.
 #[inline]
-#[allow(dead_code)] // used by the conductivity module
 pub(crate) fn ln_sigmoid(t: f64) -> f64 {
     -softplus(-t)
 }

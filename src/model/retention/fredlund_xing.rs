@@ -58,6 +58,15 @@ pub(crate) const PARAMS: [ParamSpec; 5] = [THETA_S, A, N, M, H_R];
 /// The residual suction used by the first starting guess: 1500 kPa (common practice).
 const H_R_GUESS_CM: f64 = 1500.0 * CM_PER_KPA;
 
+/// The correction term C(h) = 1 - ln(1 + h / h_r) / ln(1 + h_dry / h_r), 0 beyond h_dry.
+pub fn correction(h_cm: f64, h_r_cm: f64) -> f64 {
+    if h_cm >= H_DRY_CM {
+        0.0
+    } else {
+        1.0 - (h_cm / h_r_cm).ln_1p() / (H_DRY_CM / h_r_cm).ln_1p()
+    }
+}
+
 /// The pieces shared by theta, its gradient and C(h), at 0 < h < h_dry.
 struct Terms {
     /// The correction C(h).
