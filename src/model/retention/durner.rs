@@ -2,7 +2,7 @@
 //! m_i = 1 - 1/n_i.
 //!
 //! Mode 1 is the large-pore (wet-end) mode: the two orders of the modes describe the same curve,
-//! so [`canonicalize`] swaps them when alpha1 < alpha2, and every starting guess has
+//! so [`ModelKind::canonicalize`](super::ModelKind::canonicalize) swaps them when alpha1 < alpha2, and every starting guess has
 //! alpha1 > alpha2. That keeps a fitted parameter set identifiable and comparable.
 
 use crate::model::curve::{CurveModel, ParamSpec};
