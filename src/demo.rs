@@ -14,6 +14,7 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
 
+use crate::model::retention::ModelKind;
 use crate::model::units::{CM_PER_HPA, CM_PER_KPA, PARTICLE_DENSITY_G_CM3};
 
 /// The seed of the demo generator; change it and every demo file changes.
@@ -256,8 +257,9 @@ const PF_STEPS: [f64; 11] = [0.0, 0.4, 1.0, 1.5, 1.8, 2.0, 2.5, 3.0, 3.4, 3.7, 4
 
 /// van Genuchten (1980) water content with m = 1 - 1/n (suction h in cm).
 fn vg_theta(h: f64, theta_r: f64, theta_s: f64, alpha: f64, n: f64) -> f64 {
-    let m = 1.0 - 1.0 / n;
-    theta_r + (theta_s - theta_r) * (1.0 + (alpha * h).powf(n)).powf(-m)
+    ModelKind::VanGenuchten
+        .curve()
+        .value(h, &[theta_r, theta_s, alpha, n])
 }
 
 /// A spoiled reading planted for the review: which core and step, and what went wrong.
