@@ -3,4 +3,6 @@
 //! Nothing here touches files, SQLite or the terminal.
 
 pub mod curve;
+pub mod domain;
+pub mod number;
 pub mod units;

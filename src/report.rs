@@ -1,1 +1,6 @@
 //! Tables and exports built from model and store values.
+
+pub mod campaign;
+pub mod table;
+
+pub use table::{Cell, Column, Listing};
