@@ -6,7 +6,7 @@
 //! campaign and writes it, all in one transaction: any problem in any file and nothing is
 //! written.
 
-use std::fmt;
+use std::fmt::{self, Write as _};
 use std::path::{Path, PathBuf};
 
 use sha2::{Digest, Sha256};
@@ -62,11 +62,12 @@ impl Source {
     /// SHA-256 of the content, lower-case hex.
     pub fn sha256(&self) -> String {
         let digest = Sha256::digest(&self.bytes);
-        let mut hex = String::with_capacity(64);
-        for byte in digest {
-            hex.push_str(&format!("{byte:02x}"));
-        }
-        hex
+        digest
+            .iter()
+            .fold(String::with_capacity(64), |mut hex, byte| {
+                let _ = write!(hex, "{byte:02x}");
+                hex
+            })
     }
 }
 
@@ -105,14 +106,15 @@ pub enum ImportError {
 fn already_imported(list: &[EarlierImport]) -> String {
     let mut out = String::new();
     for e in list {
-        out.push_str(&format!(
+        let _ = writeln!(
+            out,
             "{}: this content was already imported on {} as {:?} (import #{}); use --force to \
-             import it again\n",
+             import it again",
             e.file,
             e.earlier.imported_at.format("%Y-%m-%d %H:%M UTC"),
             e.earlier.file_name,
             e.earlier.id
-        ));
+        );
     }
     out.push_str("nothing was written");
     out
@@ -186,7 +188,11 @@ impl fmt::Display for ImportSummary {
             }
         }
         if !updated.is_empty() {
-            let verb = if self.dry_run { "would update" } else { "updated" };
+            let verb = if self.dry_run {
+                "would update"
+            } else {
+                "updated"
+            };
             write!(f, "; {verb} {}", updated.join(", "))?;
         }
         if self.dry_run {

@@ -11,7 +11,9 @@ use crate::store::campaign::{DEFAULT_FC_KPA, DEFAULT_PWP_KPA};
 
 /// Arguments of `porewise init`.
 #[derive(Debug, Args)]
-#[command(after_help = "Example:\n  porewise init spring.sqlite --name \"Spring survey\" --fc-kpa 10")]
+#[command(
+    after_help = "Example:\n  porewise init spring.sqlite --name \"Spring survey\" --fc-kpa 10"
+)]
 pub struct InitArgs {
     /// The campaign file to create (an existing file is never overwritten).
     pub file: PathBuf,
@@ -32,9 +34,10 @@ pub struct InitArgs {
 /// The file exists, the settings are out of range, or it cannot be created.
 pub fn run(args: &InitArgs) -> anyhow::Result<Outcome> {
     let name = args.name.clone().unwrap_or_else(|| {
-        args.file
-            .file_stem()
-            .map_or_else(|| "campaign".to_string(), |s| s.to_string_lossy().into_owned())
+        args.file.file_stem().map_or_else(
+            || "campaign".to_string(),
+            |s| s.to_string_lossy().into_owned(),
+        )
     });
     let campaign = Campaign::create(&args.file, &name, args.fc_kpa, args.pwp_kpa)
         .with_context(|| format!("cannot create {}", args.file.display()))?;

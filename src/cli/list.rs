@@ -39,7 +39,9 @@ pub enum Format {
 
 /// Arguments of `porewise list`.
 #[derive(Debug, Args)]
-#[command(after_help = "Examples:\n  porewise list spring.sqlite\n  porewise list spring.sqlite readings --site LV --units kpa\n  porewise list spring.sqlite samples --format csv > samples.csv")]
+#[command(
+    after_help = "Examples:\n  porewise list spring.sqlite\n  porewise list spring.sqlite readings --site LV --units kpa\n  porewise list spring.sqlite samples --format csv > samples.csv"
+)]
 pub struct ListArgs {
     /// The campaign file.
     pub db: PathBuf,
@@ -72,14 +74,17 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
     let campaign = Campaign::open(&args.db)
         .with_context(|| format!("cannot open campaign {}", args.db.display()))?;
     let conn = campaign.connection();
-    if let Some(code) = &args.site {
-        if sites::find(conn, code)?.is_none() {
-            bail!("no site {code:?} in {}; `porewise list {0}` shows the codes", args.db.display());
-        }
+    if let Some(code) = &args.site
+        && sites::find(conn, code)?.is_none()
+    {
+        bail!(
+            "no site {code:?} in {}; `porewise list {0}` shows the codes",
+            args.db.display()
+        );
     }
     if let Some(code) = &args.sample {
         if matches!(args.what, What::Sites | What::Layers) {
-            bail!("--sample filters samples and readings, not {:?}", args.what);
+            bail!("--sample filters samples and readings, not sites or layers");
         }
         if samples::find(conn, code)?.is_none() {
             bail!(

@@ -149,7 +149,11 @@ pub(crate) fn resolve(
             );
         }
         let mut fill_in = false;
-        match (old.sample.bulk_density_g_cm3, here, draft.bulk_density_origin) {
+        match (
+            old.sample.bulk_density_g_cm3,
+            here,
+            draft.bulk_density_origin,
+        ) {
             (Some(b0), Some(b), Some(origin)) if (b - b0).abs() > 1e-9 => diags.push(
                 batch.file_name(origin),
                 origin.line,
@@ -421,7 +425,10 @@ pub(crate) fn write(
         let id = match *action {
             Action::New => {
                 let layer_id = layer_ids.get(&sample.layer.key()).copied().ok_or_else(|| {
-                    StoreError::Corrupt(format!("layer {} of sample {} not planned", sample.layer, sample.code))
+                    StoreError::Corrupt(format!(
+                        "layer {} of sample {} not planned",
+                        sample.layer, sample.code
+                    ))
                 })?;
                 samples::insert(conn, layer_id, sample, Some(batch_ids[located.origin.file]))?
             }
@@ -438,7 +445,9 @@ pub(crate) fn write(
         let sample_id = sample_ids
             .get(located.value.sample.as_str())
             .copied()
-            .ok_or_else(|| StoreError::Corrupt(format!("sample {} not planned", located.value.sample)))?;
+            .ok_or_else(|| {
+                StoreError::Corrupt(format!("sample {} not planned", located.value.sample))
+            })?;
         located.value.provenance.batch = Some(batch_ids[located.origin.file]);
         readings::insert(conn, sample_id, &located.value)?;
     }

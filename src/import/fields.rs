@@ -39,7 +39,10 @@ impl<'a> HeaderCheck<'a> {
                 check.fail(
                     diags,
                     header.name(i),
-                    format!("found the column {:?} twice, expected each column once", header.name(i)),
+                    format!(
+                        "found the column {:?} twice, expected each column once",
+                        header.name(i)
+                    ),
                 );
             }
         }
@@ -177,7 +180,14 @@ impl<'a> Cells<'a> {
     }
 
     /// Check that a number lies in `lo..=hi`; `expected` describes the range for the message.
-    pub(crate) fn in_range(&mut self, col: usize, v: f64, lo: f64, hi: f64, expected: &str) -> bool {
+    pub(crate) fn in_range(
+        &mut self,
+        col: usize,
+        v: f64,
+        lo: f64,
+        hi: f64,
+        expected: &str,
+    ) -> bool {
         if (lo..=hi).contains(&v) {
             return true;
         }
@@ -218,14 +228,15 @@ impl<'a> Cells<'a> {
         if t.is_empty() {
             return None;
         }
-        match NaiveDate::parse_from_str(t, "%Y-%m-%d") {
-            Ok(d) => Some(d),
-            Err(_) => {
-                let found = t.to_string();
-                self.fail(col, format!("found {found:?}, expected a date as YYYY-MM-DD"));
-                None
-            }
+        if let Ok(d) = NaiveDate::parse_from_str(t, "%Y-%m-%d") {
+            return Some(d);
         }
+        let found = t.to_string();
+        self.fail(
+            col,
+            format!("found {found:?}, expected a date as YYYY-MM-DD"),
+        );
+        None
     }
 
     /// An optional word of a fixed set, parsed with its `FromStr` (whose error lists the set).
@@ -257,7 +268,15 @@ impl<'a> Cells<'a> {
 pub(crate) fn depths(cells: &mut Cells<'_>, top: usize, bottom: usize) -> Option<(f64, f64)> {
     let t = cells.number(top);
     let b = cells.number(bottom);
-    let t = t.filter(|&t| cells.in_range(top, t, 0.0, f64::MAX, "a depth of 0 cm or more below the surface"))?;
+    let t = t.filter(|&t| {
+        cells.in_range(
+            top,
+            t,
+            0.0,
+            f64::MAX,
+            "a depth of 0 cm or more below the surface",
+        )
+    })?;
     let b = b?;
     if b <= t {
         let found = cells.found(bottom);

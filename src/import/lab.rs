@@ -53,7 +53,9 @@ fn unit_column<U: Copy>(
                 check.fail(
                     diags,
                     name,
-                    format!("found the unit {suffix:?} in column {name:?}, expected one of {expected}"),
+                    format!(
+                        "found the unit {suffix:?} in column {name:?}, expected one of {expected}"
+                    ),
                 );
             }
             Some(Ok(unit)) => {
@@ -189,18 +191,17 @@ impl LabReader {
                 }
                 if let (Some(b), Some(b0), Some(col)) =
                     (bd, first.value.sample.bulk_density_g_cm3, c_bd)
+                    && (b - b0).abs() > 1e-9
                 {
-                    if (b - b0).abs() > 1e-9 {
-                        let place = first.value.bulk_density_origin.map(|o| batch.place(o));
-                        cells.fail(
-                            col,
-                            format!(
-                                "found {b}, but {} gives sample {code:?} a bulk density of {b0} \
-                                 g/cm3; expected one bulk density per sample",
-                                place.unwrap_or_default()
-                            ),
-                        );
-                    }
+                    let place = first.value.bulk_density_origin.map(|o| batch.place(o));
+                    cells.fail(
+                        col,
+                        format!(
+                            "found {b}, but {} gives sample {code:?} a bulk density of {b0} \
+                             g/cm3; expected one bulk density per sample",
+                            place.unwrap_or_default()
+                        ),
+                    );
                 }
             }
             let (Some(h_cm), Some(water), true) = (h_cm, water, cells.is_ok()) else {
@@ -213,32 +214,29 @@ impl LabReader {
                     value: Layer::bare(at.clone()),
                 });
             }
-            match known {
-                Some(idx) => {
-                    let draft = &mut batch.samples[idx].value;
-                    if draft.sample.bulk_density_g_cm3.is_none() && bd.is_some() {
-                        draft.sample.bulk_density_g_cm3 = bd;
-                        draft.bulk_density_origin = Some(origin);
-                    }
+            if let Some(idx) = known {
+                let draft = &mut batch.samples[idx].value;
+                if draft.sample.bulk_density_g_cm3.is_none() && bd.is_some() {
+                    draft.sample.bulk_density_g_cm3 = bd;
+                    draft.bulk_density_origin = Some(origin);
                 }
-                None => {
-                    self.samples.insert(code.clone(), batch.samples.len());
-                    batch.samples.push(Located {
-                        origin,
-                        value: SampleDraft {
-                            sample: Sample {
-                                layer: at,
-                                code: code.clone(),
-                                kind: SampleKind::LabCore,
-                                collected_on: None,
-                                bulk_density_g_cm3: bd,
-                                notes: None,
-                                uid: Uid::random(),
-                            },
-                            bulk_density_origin: bd.map(|_| origin),
+            } else {
+                self.samples.insert(code.clone(), batch.samples.len());
+                batch.samples.push(Located {
+                    origin,
+                    value: SampleDraft {
+                        sample: Sample {
+                            layer: at,
+                            code: code.clone(),
+                            kind: SampleKind::LabCore,
+                            collected_on: None,
+                            bulk_density_g_cm3: bd,
+                            notes: None,
+                            uid: Uid::random(),
                         },
-                    });
-                }
+                        bulk_density_origin: bd.map(|_| origin),
+                    },
+                });
             }
             batch.readings.push(Located {
                 origin,
@@ -265,7 +263,9 @@ fn read_suction(cells: &mut Cells<'_>, col: usize, unit: SuctionUnit) -> Option<
         let found = cells.found(col);
         cells.fail(
             col,
-            format!("found {found}, expected a suction of 0 or more (suction is positive when drier)"),
+            format!(
+                "found {found}, expected a suction of 0 or more (suction is positive when drier)"
+            ),
         );
         return None;
     }
@@ -286,13 +286,31 @@ fn read_water(cells: &mut Cells<'_>, col: usize, unit: WaterUnit) -> Option<Wate
     let v = cells.number(col)?;
     match unit {
         WaterUnit::Fraction => cells
-            .in_range(col, v, 0.0, 1.0, "a volumetric water content from 0 to 1 m3/m3")
+            .in_range(
+                col,
+                v,
+                0.0,
+                1.0,
+                "a volumetric water content from 0 to 1 m3/m3",
+            )
             .then_some(Water::Theta(v)),
         WaterUnit::Percent => cells
-            .in_range(col, v, 0.0, 100.0, "a volumetric water content from 0 to 100 %")
+            .in_range(
+                col,
+                v,
+                0.0,
+                100.0,
+                "a volumetric water content from 0 to 100 %",
+            )
             .then(|| Water::Theta(v / 100.0)),
         WaterUnit::Gravimetric => cells
-            .in_range(col, v, 0.0, f64::MAX, "a gravimetric water content of 0 g/g or more")
+            .in_range(
+                col,
+                v,
+                0.0,
+                f64::MAX,
+                "a gravimetric water content of 0 g/g or more",
+            )
             .then_some(Water::Gravimetric(v)),
     }
 }

@@ -61,7 +61,13 @@ impl SitesReader {
             let code = cells.required_text(c_site, "a site code");
             let lat = cells.number(c_lat);
             let lat = lat.filter(|&v| {
-                cells.in_range(c_lat, v, -90.0, 90.0, "a latitude from -90 to 90 degrees (WGS 84)")
+                cells.in_range(
+                    c_lat,
+                    v,
+                    -90.0,
+                    90.0,
+                    "a latitude from -90 to 90 degrees (WGS 84)",
+                )
             });
             let lon = cells.number(c_lon);
             let lon = lon.filter(|&v| {
@@ -81,14 +87,16 @@ impl SitesReader {
                 "an elevation in m from -500 to 9000 above sea level",
             );
             let origin = Origin { file, line };
-            if let Some(code) = &code {
-                if let Some(&first) = self.seen.get(code) {
-                    let place = batch.place(first);
-                    cells.fail(
-                        c_site,
-                        format!("found site {code:?} again (first at {place}), expected each site once"),
-                    );
-                }
+            if let Some(code) = &code
+                && let Some(&first) = self.seen.get(code)
+            {
+                let place = batch.place(first);
+                cells.fail(
+                    c_site,
+                    format!(
+                        "found site {code:?} again (first at {place}), expected each site once"
+                    ),
+                );
             }
             if !cells.is_ok() {
                 continue;

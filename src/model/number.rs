@@ -26,7 +26,10 @@ mod tests {
     #[test]
     fn rounds_and_trims() {
         assert_eq!(significant(336.504_183_9, 6).as_deref(), Some("336.504"));
-        assert_eq!(significant(33.000_000_000_000_01, 10).as_deref(), Some("33"));
+        assert_eq!(
+            significant(33.000_000_000_000_01, 10).as_deref(),
+            Some("33")
+        );
         assert_eq!(significant(0.000_123_456_7, 3).as_deref(), Some("0.000123"));
         assert_eq!(significant(15_295.74, 4).as_deref(), Some("15300"));
         assert_eq!(significant(-0.0, 4).as_deref(), Some("0"));

@@ -169,7 +169,10 @@ impl Listing {
             })
             .collect();
         let mut out = String::new();
-        let header: Vec<String> = shown.iter().map(|&i| self.columns[i].name.clone()).collect();
+        let header: Vec<String> = shown
+            .iter()
+            .map(|&i| self.columns[i].name.clone())
+            .collect();
         for line in std::iter::once(&header).chain(&cells) {
             let mut text = String::new();
             for (k, cell) in line.iter().enumerate() {
@@ -199,9 +202,14 @@ impl Listing {
         let mut w = csv::Writer::from_writer(Vec::new());
         w.write_record(self.column_names())?;
         for row in &self.rows {
-            w.write_record(row.iter().map(|c| c.render(EXPORT_DIGITS).unwrap_or_default()))?;
+            w.write_record(
+                row.iter()
+                    .map(|c| c.render(EXPORT_DIGITS).unwrap_or_default()),
+            )?;
         }
-        let bytes = w.into_inner().map_err(|e| csv::Error::from(e.into_error()))?;
+        let bytes = w
+            .into_inner()
+            .map_err(|e| csv::Error::from(e.into_error()))?;
         Ok(String::from_utf8_lossy(&bytes).into_owned())
     }
 
@@ -219,7 +227,11 @@ impl Listing {
                     (Cell::Text(_), Some(t)) => serde_json::Value::String(t).to_string(),
                     (_, Some(t)) => t,
                 };
-                let _ = write!(out, "{}: {value}", serde_json::Value::String(col.name.clone()));
+                let _ = write!(
+                    out,
+                    "{}: {value}",
+                    serde_json::Value::String(col.name.clone())
+                );
             }
             out.push('}');
         }
@@ -238,24 +250,32 @@ mod tests {
             Column::new("suction_kpa"),
             Column::export_only("uid"),
         ]);
-        l.push(vec![Cell::text("A1"), 33.000_000_000_01.into(), Cell::text("u1")]);
-        l.push(vec![Cell::text("B, \"2\""), Cell::Real(Some(f64::NEG_INFINITY)), Cell::Text(None)]);
+        l.push(vec![
+            Cell::text("A1"),
+            33.000_000_000_01.into(),
+            Cell::text("u1"),
+        ]);
+        l.push(vec![
+            Cell::text("B, \"2\""),
+            Cell::Real(Some(f64::NEG_INFINITY)),
+            Cell::Text(None),
+        ]);
         l
     }
 
     #[test]
     fn table_aligns_and_hides_export_columns() {
         let text = sample().to_table();
-        assert_eq!(
-            text,
-            "sample    suction_kpa\nA1                 33\nB, \"2\"\n"
-        );
+        assert_eq!(text, "sample  suction_kpa\nA1               33\nB, \"2\"\n");
     }
 
     #[test]
     fn csv_and_json_never_write_nan_or_infinity() {
         let csv = sample().to_csv().expect("csv");
-        assert_eq!(csv, "sample,suction_kpa,uid\nA1,33,u1\n\"B, \"\"2\"\"\",,\n");
+        assert_eq!(
+            csv,
+            "sample,suction_kpa,uid\nA1,33,u1\n\"B, \"\"2\"\"\",,\n"
+        );
         let json: serde_json::Value = serde_json::from_str(&sample().to_json()).expect("json");
         assert_eq!(json[0]["suction_kpa"], serde_json::json!(33));
         assert!(json[1]["suction_kpa"].is_null());

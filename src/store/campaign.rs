@@ -169,7 +169,10 @@ impl Campaign {
     /// # Errors
     /// The file is locked by another writer beyond the busy timeout.
     pub fn transaction(&mut self) -> Result<Transaction<'_>> {
-        Ok(Transaction::new(&mut self.conn, TransactionBehavior::Immediate)?)
+        Ok(Transaction::new(
+            &mut self.conn,
+            TransactionBehavior::Immediate,
+        )?)
     }
 
     /// A read-only transaction (DEFERRED: no write lock), for validating without writing.
@@ -177,7 +180,10 @@ impl Campaign {
     /// # Errors
     /// An SQLite error.
     pub fn read_transaction(&mut self) -> Result<Transaction<'_>> {
-        Ok(Transaction::new(&mut self.conn, TransactionBehavior::Deferred)?)
+        Ok(Transaction::new(
+            &mut self.conn,
+            TransactionBehavior::Deferred,
+        )?)
     }
 
     /// The settings row.
@@ -234,6 +240,8 @@ fn remove_with_journal(path: &Path) {
 
 #[cfg(test)]
 mod tests {
+    #![allow(clippy::float_cmp)]
+
     use super::*;
 
     #[test]
@@ -244,7 +252,10 @@ mod tests {
         assert!(Campaign::in_memory("x", f64::NAN, 1500.0).is_err());
         let c = Campaign::in_memory("Test plots", 10.0, 1500.0).expect("valid");
         let s = c.settings().expect("row");
-        assert_eq!((s.name.as_str(), s.fc_kpa, s.pwp_kpa), ("Test plots", 10.0, 1500.0));
+        assert_eq!(
+            (s.name.as_str(), s.fc_kpa, s.pwp_kpa),
+            ("Test plots", 10.0, 1500.0)
+        );
         set_suctions(c.connection(), 33.0, 1500.0).expect("update");
         assert!(set_suctions(c.connection(), 1500.0, 33.0).is_err());
         assert_eq!(c.settings().expect("row").fc_kpa, 33.0);

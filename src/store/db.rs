@@ -33,8 +33,7 @@ pub fn open_existing(path: &Path) -> Result<Connection> {
 pub fn configure(conn: &Connection) -> Result<()> {
     conn.busy_timeout(BUSY_TIMEOUT)?;
     conn.pragma_update(None, "foreign_keys", true)?;
-    let mode: String =
-        conn.pragma_update_and_check(None, "journal_mode", "WAL", |r| r.get(0))?;
+    let mode: String = conn.pragma_update_and_check(None, "journal_mode", "WAL", |r| r.get(0))?;
     if mode != "wal" && mode != "memory" {
         return Err(StoreError::Corrupt(format!(
             "journal mode {mode:?} instead of WAL"

@@ -3,8 +3,8 @@
 use rusqlite::{Connection, OptionalExtension, Row, params};
 
 use super::Result;
-use super::sql_types::count;
 use super::sites::changes;
+use super::sql_types::count;
 use crate::model::domain::{Layer, LayerRef};
 
 /// A layer as stored, with its database ids.
@@ -169,14 +169,24 @@ mod tests {
         fill_in(conn, id, &layer).expect("fill in");
         let found = find(conn, &at).expect("query").expect("found");
         assert_eq!(found.layer, layer);
-        assert!(find(conn, &"LV:0-21".parse().expect("ref")).expect("query").is_none());
+        assert!(
+            find(conn, &"LV:0-21".parse().expect("ref"))
+                .expect("query")
+                .is_none()
+        );
         let mut bad = Layer::bare("LV:30-20".parse().expect("ref"));
-        assert!(insert(conn, site_id, &bad, None).is_err(), "bottom above top");
+        assert!(
+            insert(conn, site_id, &bad, None).is_err(),
+            "bottom above top"
+        );
         bad.at.bottom_cm = 40.0;
         bad.sand_pct = Some(50.0);
         bad.silt_pct = Some(30.0);
         bad.clay_pct = Some(30.0);
-        assert!(insert(conn, site_id, &bad, None).is_err(), "texture sums to 110 %");
+        assert!(
+            insert(conn, site_id, &bad, None).is_err(),
+            "texture sums to 110 %"
+        );
         assert_eq!(list(conn, Some("LV")).expect("list").len(), 1);
     }
 }

@@ -96,7 +96,13 @@ mod tests {
             .expect("set");
         let err = migrate(&mut conn).expect_err("too new");
         let text = err.to_string();
-        assert!(text.contains(&format!("schema version {}", latest_version() + 1)), "{text}");
-        assert!(text.contains(&format!("up to {}", latest_version())), "{text}");
+        assert!(
+            text.contains(&format!("schema version {}", latest_version() + 1)),
+            "{text}"
+        );
+        assert!(
+            text.contains(&format!("up to {}", latest_version())),
+            "{text}"
+        );
     }
 }

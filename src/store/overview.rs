@@ -77,7 +77,11 @@ pub struct Overview {
 /// An SQLite error.
 pub fn counts(conn: &Connection) -> Result<Counts> {
     let count = |table: &str| -> Result<u64> {
-        Ok(conn.query_row(&format!("SELECT count(*) FROM {table}"), [], |r| count(r, 0))?)
+        Ok(
+            conn.query_row(&format!("SELECT count(*) FROM {table}"), [], |r| {
+                count(r, 0)
+            })?,
+        )
     };
     Ok(Counts {
         sites: count("site")?,

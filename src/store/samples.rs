@@ -68,7 +68,12 @@ pub fn find(conn: &Connection, code: &str) -> Result<Option<StoredSample>> {
 ///
 /// # Errors
 /// A duplicate code or uid, a value outside the schema's ranges, or another SQLite error.
-pub fn insert(conn: &Connection, layer_id: i64, sample: &Sample, batch: Option<i64>) -> Result<i64> {
+pub fn insert(
+    conn: &Connection,
+    layer_id: i64,
+    sample: &Sample,
+    batch: Option<i64>,
+) -> Result<i64> {
     let mut stmt = conn.prepare_cached(
         "INSERT INTO sample (uid, layer_id, code, kind, collected_on, bulk_density_g_cm3, notes,
              batch_id)

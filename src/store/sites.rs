@@ -28,7 +28,8 @@ pub struct SiteRow {
     pub readings: u64,
 }
 
-const COLUMNS: &str = "s.id, s.code, s.name, s.latitude, s.longitude, s.elevation_m, s.notes, s.uid";
+const COLUMNS: &str =
+    "s.id, s.code, s.name, s.latitude, s.longitude, s.elevation_m, s.notes, s.uid";
 
 fn from_row(r: &Row<'_>) -> rusqlite::Result<StoredSite> {
     Ok(StoredSite {
@@ -50,7 +51,8 @@ fn from_row(r: &Row<'_>) -> rusqlite::Result<StoredSite> {
 /// # Errors
 /// An SQLite error.
 pub fn find(conn: &Connection, code: &str) -> Result<Option<StoredSite>> {
-    let mut stmt = conn.prepare_cached(&format!("SELECT {COLUMNS} FROM site s WHERE s.code = ?1"))?;
+    let mut stmt =
+        conn.prepare_cached(&format!("SELECT {COLUMNS} FROM site s WHERE s.code = ?1"))?;
     Ok(stmt.query_row([code], from_row).optional()?)
 }
 
@@ -110,6 +112,7 @@ pub fn would_change(old: &Site, new: &Site) -> bool {
 }
 
 /// Whether a given (`Some`) new value differs from the old one.
+#[allow(clippy::ref_option)] // called with the fields as they are
 pub(crate) fn changes<T: PartialEq>(old: &Option<T>, new: &Option<T>) -> bool {
     new.is_some() && new != old
 }
@@ -149,7 +152,10 @@ mod tests {
         let conn = c.connection();
         let mut site = Site::with_code("LV");
         let id = insert(conn, &site, None).expect("insert");
-        assert!(insert(conn, &Site::with_code("LV"), None).is_err(), "codes are unique");
+        assert!(
+            insert(conn, &Site::with_code("LV"), None).is_err(),
+            "codes are unique"
+        );
         site.name = Some("Levee".into());
         site.latitude = Some(45.5);
         let before = find(conn, "LV").expect("query").expect("found");

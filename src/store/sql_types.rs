@@ -129,7 +129,10 @@ mod tests {
                 |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)),
             )
             .expect("round trip");
-        assert_eq!((b, &u, d.0, k), (Branch::Wetting, &uid, day, SampleKind::LabCore));
+        assert_eq!(
+            (b, &u, d.0, k),
+            (Branch::Wetting, &uid, day, SampleKind::LabCore)
+        );
         let bad: rusqlite::Result<Branch> = conn.query_row("SELECT 'sideways'", [], |r| r.get(0));
         assert!(bad.is_err());
     }
