@@ -274,7 +274,8 @@ pub fn import_sources(
     options: ImportOptions,
 ) -> Result<ImportSummary, ImportError> {
     let mut diags = Diagnostics::new();
-    let batch = read_batch(kind, sources, &mut diags);
+    let mut batch = read_batch(kind, sources, &mut diags);
+    let drafts = std::mem::take(&mut batch.readings);
     let tx = if options.dry_run {
         campaign.read_transaction()?
     } else {
@@ -291,7 +292,7 @@ pub fn import_sources(
             ));
         }
     }
-    let plan = apply::resolve(&tx, &batch, &mut diags)?;
+    let plan = apply::resolve(&tx, &batch, drafts, &mut diags)?;
     if !diags.is_empty() {
         return Err(ImportError::Invalid(diags));
     }

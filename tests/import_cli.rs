@@ -324,6 +324,47 @@ fn a_lab_file_creates_the_sites_and_layers_it_names_and_a_sites_file_fills_them_
 }
 
 #[test]
+fn a_later_file_adds_readings_to_a_stored_sample() {
+    let s = Scratch::new();
+    s.import_ok("lab", &["valid/lab_kpa.csv"]);
+    let more = s.write(
+        "more.csv",
+        "site,top_cm,bottom_cm,sample,method,suction_kpa,theta,bulk_density_g_cm3\n\
+         LV,0,20,LV-A1,pressure plate,300,0.055,1.44\n\
+         LV,20,40,LV-B1,pressure plate,100,0.071,1.5\n",
+    );
+    let out = stdout(&s.import("lab", &[&more], &[]).success());
+    assert_eq!(
+        out.trim(),
+        "added 0 sites, 0 layers, 0 samples, 2 readings from 1 file; updated 1 sample"
+    );
+    assert_eq!((s.count("sample"), s.count("reading")), (2, 11));
+    let bd: f64 = s
+        .connect()
+        .query_row(
+            "SELECT bulk_density_g_cm3 FROM sample WHERE code = 'LV-B1'",
+            [],
+            |r| r.get(0),
+        )
+        .expect("bulk density recorded");
+    assert!((bd - 1.5).abs() < 1e-12);
+    // A bulk density that contradicts the stored one is refused.
+    let contradicting = s.write(
+        "contradicting.csv",
+        "site,top_cm,bottom_cm,sample,method,suction_kpa,theta,bulk_density_g_cm3\n\
+         LV,0,20,LV-A1,pressure plate,700,0.05,1.3\n",
+    );
+    let err = stderr(&s.import("lab", &[&contradicting], &[]).code(1));
+    assert!(
+        err.contains(&format!(
+            "{contradicting}:2:bulk_density_g_cm3: found 1.3, but the campaign holds a bulk \
+             density of 1.44 g/cm3 for sample \"LV-A1\""
+        )),
+        "{err}"
+    );
+}
+
+#[test]
 fn a_file_imported_before_is_refused_with_the_date_unless_forced() {
     let s = Scratch::new();
     s.import_ok("sites", &["valid/sites.csv"]);

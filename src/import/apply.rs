@@ -85,13 +85,14 @@ struct Densities {
 pub(crate) fn resolve(
     conn: &Connection,
     batch: &ImportBatch,
+    drafts: Vec<Located<ReadingDraft>>,
     diags: &mut Diagnostics,
 ) -> Result<Plan, StoreError> {
     let mut plan = Plan {
         sites: Vec::with_capacity(batch.sites.len()),
         layers: Vec::with_capacity(batch.layers.len()),
         samples: Vec::with_capacity(batch.samples.len()),
-        readings: Vec::with_capacity(batch.readings.len()),
+        readings: Vec::with_capacity(drafts.len()),
     };
     for site in &batch.sites {
         plan.sites.push(match sites::find(conn, &site.value.code)? {
@@ -121,11 +122,17 @@ pub(crate) fn resolve(
     // Per sample: densities for gravimetric water, and stored readings for the duplicate check.
     let mut densities: HashMap<&str, Densities> = HashMap::new();
     let mut stored: HashMap<&str, Vec<readings::StoredReading>> = HashMap::new();
+    let known = samples::codes(conn)?;
     for located in &batch.samples {
         let draft = &located.value;
         let sample = &draft.sample;
         let here = sample.bulk_density_g_cm3;
-        let Some(old) = samples::find(conn, &sample.code)? else {
+        let old = if known.contains(&sample.code) {
+            samples::find(conn, &sample.code)?
+        } else {
+            None
+        };
+        let Some(old) = old else {
             plan.samples.push(Action::New);
             densities.insert(
                 &sample.code,
@@ -180,15 +187,15 @@ pub(crate) fn resolve(
         );
         stored.insert(&sample.code, readings::of_sample(conn, old.id)?);
     }
-    for located in &batch.readings {
+    for located in drafts {
         let density = densities
             .get(located.value.sample.as_str())
             .copied()
             .unwrap_or_default();
-        if let Some(theta) = water_content(batch, located, density, diags) {
+        if let Some(theta) = water_content(batch, &located, density, diags) {
             plan.readings.push(Located {
                 origin: located.origin,
-                value: to_reading(&located.value, theta, located.origin.line),
+                value: to_reading(located.value, theta, located.origin.line),
             });
         }
     }
@@ -244,16 +251,16 @@ fn water_content(
 }
 
 /// The domain reading of a draft, with its water content resolved.
-fn to_reading(draft: &ReadingDraft, theta: f64, line: u64) -> Reading {
+fn to_reading(draft: ReadingDraft, theta: f64, line: u64) -> Reading {
     Reading {
-        sample: draft.sample.clone(),
+        sample: draft.sample,
         h_cm: draft.h_cm,
         theta,
-        method: draft.method.clone(),
+        method: draft.method,
         measured_on: draft.measured_on,
         branch: draft.branch,
         weight: draft.weight,
-        notes: draft.notes.clone(),
+        notes: draft.notes,
         provenance: Provenance { batch: None, line },
         uid: Uid::random(),
     }
@@ -441,6 +448,7 @@ pub(crate) fn write(
         };
         sample_ids.insert(&sample.code, id);
     }
+    let mut inserter = readings::ReadingInserter::new(conn)?;
     for mut located in plan.readings {
         let sample_id = sample_ids
             .get(located.value.sample.as_str())
@@ -449,7 +457,7 @@ pub(crate) fn write(
                 StoreError::Corrupt(format!("sample {} not planned", located.value.sample))
             })?;
         located.value.provenance.batch = Some(batch_ids[located.origin.file]);
-        readings::insert(conn, sample_id, &located.value)?;
+        inserter.insert(sample_id, &located.value)?;
     }
     Ok(batch_ids)
 }

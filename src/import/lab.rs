@@ -91,6 +91,8 @@ fn unit_column<U: Copy>(
 pub struct LabReader {
     sites: HashSet<String>,
     layers: HashSet<(String, u64, u64)>,
+    /// The layer of the previous row: rows of one layer usually come together.
+    last_layer: Option<LayerRef>,
     samples: HashMap<String, usize>,
 }
 
@@ -208,11 +210,14 @@ impl LabReader {
                 continue;
             };
             name_site(&mut self.sites, batch, &at.site, origin);
-            if self.layers.insert(at.key()) {
-                batch.layers.push(Located {
-                    origin,
-                    value: Layer::bare(at.clone()),
-                });
+            if self.last_layer.as_ref().is_none_or(|l| !l.same_as(&at)) {
+                if self.layers.insert(at.key()) {
+                    batch.layers.push(Located {
+                        origin,
+                        value: Layer::bare(at.clone()),
+                    });
+                }
+                self.last_layer = Some(at.clone());
             }
             if let Some(idx) = known {
                 let draft = &mut batch.samples[idx].value;

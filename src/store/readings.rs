@@ -1,6 +1,6 @@
 //! Retention readings: insert, load a sample's readings, list with their provenance.
 
-use rusqlite::{Connection, Row, params};
+use rusqlite::{CachedStatement, Connection, Row, params};
 
 use super::sql_types::{SqlDate, opt_date};
 use super::{Filter, Result};
@@ -67,32 +67,56 @@ fn from_row(r: &Row<'_>) -> rusqlite::Result<ReadingRow> {
     })
 }
 
-/// Insert a reading of sample `sample_id` (batch and line from its provenance); returns its id.
+/// Inserts many readings through one prepared statement (bulk imports).
+pub struct ReadingInserter<'conn> {
+    stmt: CachedStatement<'conn>,
+}
+
+impl<'conn> ReadingInserter<'conn> {
+    /// Prepare the insert on `conn` (a transaction, for a bulk import).
+    ///
+    /// # Errors
+    /// An SQLite error.
+    pub fn new(conn: &'conn Connection) -> Result<Self> {
+        Ok(Self {
+            stmt: conn.prepare_cached(
+                "INSERT INTO reading (uid, sample_id, h_cm, theta, method, measured_at, branch,
+                     weight, notes, batch_id, source_line)
+                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11)",
+            )?,
+        })
+    }
+
+    /// Insert a reading of sample `sample_id` (batch and line from its provenance); returns
+    /// its id.
+    ///
+    /// # Errors
+    /// A value outside the schema's ranges (negative suction, theta outside 0-1), or another
+    /// SQLite error.
+    pub fn insert(&mut self, sample_id: i64, reading: &Reading) -> Result<i64> {
+        let line = (reading.provenance.line > 0).then_some(reading.provenance.line as i64);
+        Ok(self.stmt.insert(params![
+            reading.uid,
+            sample_id,
+            reading.h_cm,
+            reading.theta,
+            reading.method,
+            opt_date(reading.measured_on),
+            reading.branch,
+            reading.weight,
+            reading.notes,
+            reading.provenance.batch,
+            line
+        ])?)
+    }
+}
+
+/// Insert one reading of sample `sample_id`; returns its id.
 ///
 /// # Errors
-/// A value outside the schema's ranges (negative suction, theta outside 0-1), or another
-/// SQLite error.
+/// As [`ReadingInserter::insert`].
 pub fn insert(conn: &Connection, sample_id: i64, reading: &Reading) -> Result<i64> {
-    let line = (reading.provenance.line > 0).then_some(reading.provenance.line as i64);
-    let mut stmt = conn.prepare_cached(
-        "INSERT INTO reading (uid, sample_id, h_cm, theta, method, measured_at, branch, weight,
-             notes, batch_id, source_line)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11)",
-    )?;
-    stmt.execute(params![
-        reading.uid,
-        sample_id,
-        reading.h_cm,
-        reading.theta,
-        reading.method,
-        opt_date(reading.measured_on),
-        reading.branch,
-        reading.weight,
-        reading.notes,
-        reading.provenance.batch,
-        line
-    ])?;
-    Ok(conn.last_insert_rowid())
+    ReadingInserter::new(conn)?.insert(sample_id, reading)
 }
 
 /// Every reading of sample `sample_id`, driest last (by suction).

@@ -1,5 +1,7 @@
 //! Samples: insert, find by code (with the layer's bulk density), list.
 
+use std::collections::HashSet;
+
 use rusqlite::{Connection, OptionalExtension, Row, params};
 
 use super::sql_types::{SqlDate, count, opt_date};
@@ -62,6 +64,16 @@ pub fn find(conn: &Connection, code: &str) -> Result<Option<StoredSample>> {
     let mut stmt =
         conn.prepare_cached(&format!("SELECT {COLUMNS} FROM {FROM} WHERE m.code = ?1"))?;
     Ok(stmt.query_row([code], from_row).optional()?)
+}
+
+/// Every sample code in the campaign (to look up only the codes that exist).
+///
+/// # Errors
+/// An SQLite error.
+pub fn codes(conn: &Connection) -> Result<HashSet<String>> {
+    let mut stmt = conn.prepare("SELECT code FROM sample")?;
+    let rows = stmt.query_map([], |r| r.get(0))?;
+    Ok(rows.collect::<rusqlite::Result<_>>()?)
 }
 
 /// Insert a sample of layer `layer_id`; returns its id.
