@@ -112,7 +112,7 @@ fn run_import(dir: &Path, file: &Path, round: usize) -> Duration {
     )
     .expect("the generated file imports");
     let elapsed = start.elapsed();
-    assert_eq!(summary.readings_added as usize, rows_total());
+    assert_eq!(summary.counts.readings_added as usize, rows_total());
     elapsed
 }
 

@@ -11,6 +11,7 @@ use std::path::{Path, PathBuf};
 
 use sha2::{Digest, Sha256};
 
+use crate::model::number::plural;
 use crate::store::{Campaign, StoreError};
 
 mod apply;
@@ -142,6 +143,13 @@ pub struct ImportSummary {
     pub dry_run: bool,
     /// The files read.
     pub files: Vec<FileSummary>,
+    /// Rows added and updated.
+    pub counts: ImportCounts,
+}
+
+/// How many rows an import adds and updates.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct ImportCounts {
     /// New sites.
     pub sites_added: u64,
     /// Stored sites whose details were filled in or changed.
@@ -158,18 +166,15 @@ pub struct ImportSummary {
     pub readings_added: u64,
 }
 
-fn plural(n: u64, word: &str) -> String {
-    format!("{n} {word}{}", if n == 1 { "" } else { "s" })
-}
-
 impl fmt::Display for ImportSummary {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let c = &self.counts;
         let added = format!(
             "{}, {}, {}, {}",
-            plural(self.sites_added, "site"),
-            plural(self.layers_added, "layer"),
-            plural(self.samples_added, "sample"),
-            plural(self.readings_added, "reading")
+            plural(c.sites_added, "site"),
+            plural(c.layers_added, "layer"),
+            plural(c.samples_added, "sample"),
+            plural(c.readings_added, "reading")
         );
         let files = plural(self.files.len() as u64, "file");
         if self.dry_run {
@@ -179,9 +184,9 @@ impl fmt::Display for ImportSummary {
         }
         let mut updated = Vec::new();
         for (n, word) in [
-            (self.sites_updated, "site"),
-            (self.layers_updated, "layer"),
-            (self.samples_updated, "sample"),
+            (c.sites_updated, "site"),
+            (c.layers_updated, "layer"),
+            (c.samples_updated, "sample"),
         ] {
             if n > 0 {
                 updated.push(plural(n, word));
@@ -318,12 +323,6 @@ pub fn import_sources(
                 batch_id: batch_ids.get(i).copied(),
             })
             .collect(),
-        sites_added: counts.sites_added,
-        sites_updated: counts.sites_updated,
-        layers_added: counts.layers_added,
-        layers_updated: counts.layers_updated,
-        samples_added: counts.samples_added,
-        samples_updated: counts.samples_updated,
-        readings_added: counts.readings_added,
+        counts,
     })
 }

@@ -204,9 +204,9 @@ fn the_overview_shows_sites_layers_samples_and_reading_counts() {
     let summary = import::import_sources(&mut c, ImportKind::Lab, &[lab], options).expect("lab");
     assert_eq!(
         (
-            summary.samples_added,
-            summary.readings_added,
-            summary.layers_added
+            summary.counts.samples_added,
+            summary.counts.readings_added,
+            summary.counts.layers_added
         ),
         (2, 3, 2)
     );

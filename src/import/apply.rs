@@ -5,6 +5,7 @@ use std::collections::HashMap;
 
 use rusqlite::Connection;
 
+use super::ImportCounts;
 use super::batch::{ImportBatch, Located, Origin, ReadingDraft, Water};
 use super::diagnostic::Diagnostics;
 use crate::model::domain::{Provenance, Reading, Uid};
@@ -33,18 +34,6 @@ pub(crate) struct Plan {
     readings: Vec<Located<Reading>>,
 }
 
-/// How many rows a plan adds and updates.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
-pub(crate) struct PlanCounts {
-    pub sites_added: u64,
-    pub sites_updated: u64,
-    pub layers_added: u64,
-    pub layers_updated: u64,
-    pub samples_added: u64,
-    pub samples_updated: u64,
-    pub readings_added: u64,
-}
-
 fn tally(actions: &[Action]) -> (u64, u64) {
     let added = actions.iter().filter(|a| **a == Action::New).count() as u64;
     let updated = actions
@@ -56,11 +45,11 @@ fn tally(actions: &[Action]) -> (u64, u64) {
 
 impl Plan {
     /// Rows added and updated.
-    pub(crate) fn counts(&self) -> PlanCounts {
+    pub(crate) fn counts(&self) -> ImportCounts {
         let (sites_added, sites_updated) = tally(&self.sites);
         let (layers_added, layers_updated) = tally(&self.layers);
         let (samples_added, samples_updated) = tally(&self.samples);
-        PlanCounts {
+        ImportCounts {
             sites_added,
             sites_updated,
             layers_added,

@@ -138,6 +138,11 @@ impl<'a> Cells<'a> {
         self.ok
     }
 
+    /// The physical line of this row.
+    pub(crate) fn line(&self) -> u64 {
+        self.line
+    }
+
     fn raw(&self, col: usize) -> &str {
         self.record.get(col).map_or("", str::trim)
     }
@@ -262,6 +267,34 @@ impl<'a> Cells<'a> {
     pub(crate) fn found(&self, col: usize) -> String {
         format!("{:?}", self.raw(col))
     }
+}
+
+/// Call `each` with the cells of every data row of `table` that has one field per header
+/// column, reporting unreadable rows and rows of the wrong width. Returns the number of data
+/// rows (good or bad).
+pub(crate) fn read_rows<R: std::io::Read>(
+    table: &mut super::table::Table<R>,
+    header: &Header,
+    diags: &mut Diagnostics,
+    mut each: impl FnMut(&mut Cells<'_>),
+) -> u64 {
+    let name = table.file().to_string();
+    let decimal_comma = table.decimal_comma();
+    let mut rows = 0;
+    while let Some(next) = table.next_record() {
+        rows += 1;
+        match next {
+            Err((line, message)) => diags.push(&name, line, "-", message),
+            Ok((line, record)) => {
+                if let Some(mut cells) =
+                    Cells::new(&name, line, header, record, decimal_comma, diags)
+                {
+                    each(&mut cells);
+                }
+            }
+        }
+    }
+    rows
 }
 
 /// Read the depth pair of a layer: `top_cm` 0 or more, `bottom_cm` below it.

@@ -10,7 +10,7 @@ use std::io::Read;
 
 use super::batch::{ImportBatch, Located, Origin, ReadingDraft, SampleDraft, Water};
 use super::diagnostic::Diagnostics;
-use super::fields::{Cells, HeaderCheck, depths, finish_file};
+use super::fields::{Cells, HeaderCheck, depths, finish_file, read_rows};
 use super::layers::{BULK_DENSITY_EXPECTED, BULK_DENSITY_RANGE, name_site};
 use super::table::{Header, Table};
 use crate::model::domain::{Branch, Layer, LayerRef, Method, Sample, SampleKind, Uid};
@@ -143,33 +143,20 @@ impl LabReader {
         };
         batch.files[file].suction = Some((header.name(c_suction).to_string(), s_unit));
         batch.files[file].water = Some((header.name(c_water).to_string(), w_unit));
-        let decimal_comma = table.decimal_comma();
-        let mut rows = 0;
-        while let Some(next) = table.next_record() {
-            rows += 1;
-            let (line, record) = match next {
-                Ok(r) => r,
-                Err((line, message)) => {
-                    diags.push(&name, line, "-", message);
-                    continue;
-                }
-            };
-            let Some(mut cells) = Cells::new(&name, line, &header, record, decimal_comma, diags)
-            else {
-                continue;
-            };
+        let rows = read_rows(&mut table, &header, diags, |cells| {
+            let line = cells.line();
             let site = cells.required_text(c_site, "a site code");
-            let depth = depths(&mut cells, c_top, c_bottom);
+            let depth = depths(cells, c_top, c_bottom);
             let code = cells.required_text(c_sample, "a sample code");
-            let h_cm = read_suction(&mut cells, c_suction, s_unit);
-            let water = read_water(&mut cells, c_water, w_unit);
+            let h_cm = read_suction(cells, c_suction, s_unit);
+            let water = read_water(cells, c_water, w_unit);
             let measured_on = cells.optional_date(c_measured);
             let (lo, hi) = BULK_DENSITY_RANGE;
             let bd = cells.optional_in_range(c_bd, lo, hi, BULK_DENSITY_EXPECTED);
             let weight = cells.optional_positive(c_weight, "a positive fit weight");
             let branch = cells.optional_word::<Branch>(c_branch);
             let (Some(site), Some((top_cm, bottom_cm)), Some(code)) = (site, depth, code) else {
-                continue;
+                return;
             };
             let at = LayerRef {
                 site,
@@ -207,7 +194,7 @@ impl LabReader {
                 }
             }
             let (Some(h_cm), Some(water), true) = (h_cm, water, cells.is_ok()) else {
-                continue;
+                return;
             };
             name_site(&mut self.sites, batch, &at.site, origin);
             if self.last_layer.as_ref().is_none_or(|l| !l.same_as(&at)) {
@@ -256,7 +243,7 @@ impl LabReader {
                     notes: cells.text(c_notes),
                 },
             });
-        }
+        });
         finish_file(batch, file, rows, diags);
     }
 }

@@ -6,7 +6,7 @@ use std::io::Read;
 
 use super::batch::{ImportBatch, Located, Origin};
 use super::diagnostic::Diagnostics;
-use super::fields::{Cells, HeaderCheck, depths, finish_file};
+use super::fields::{HeaderCheck, depths, finish_file, read_rows};
 use super::table::Table;
 use crate::model::domain::{Layer, LayerRef, Site, Uid};
 use crate::model::number::significant;
@@ -73,23 +73,10 @@ impl LayersReader {
         if !check.is_ok() {
             return;
         }
-        let decimal_comma = table.decimal_comma();
-        let mut rows = 0;
-        while let Some(next) = table.next_record() {
-            rows += 1;
-            let (line, record) = match next {
-                Ok(r) => r,
-                Err((line, message)) => {
-                    diags.push(&name, line, "-", message);
-                    continue;
-                }
-            };
-            let Some(mut cells) = Cells::new(&name, line, &header, record, decimal_comma, diags)
-            else {
-                continue;
-            };
+        let rows = read_rows(&mut table, &header, diags, |cells| {
+            let line = cells.line();
             let site = cells.required_text(c_site, "a site code");
-            let depth = depths(&mut cells, c_top, c_bottom);
+            let depth = depths(cells, c_top, c_bottom);
             let pct = "a mass percentage from 0 to 100";
             let sand = cells.optional_in_range(c_sand, 0.0, 100.0, pct);
             let silt = cells.optional_in_range(c_silt, 0.0, 100.0, pct);
@@ -113,7 +100,7 @@ impl LayersReader {
             let ks = cells.optional_positive(c_ks, "a positive conductivity in cm/day");
             let origin = Origin { file, line };
             let (Some(site), Some((top_cm, bottom_cm))) = (site, depth) else {
-                continue;
+                return;
             };
             let at = LayerRef {
                 site,
@@ -128,7 +115,7 @@ impl LayersReader {
                 );
             }
             if !cells.is_ok() {
-                continue;
+                return;
             }
             self.seen.insert(at.key(), origin);
             name_site(&mut self.sites, batch, &at.site, origin);
@@ -146,7 +133,7 @@ impl LayersReader {
                     uid: Uid::random(),
                 },
             });
-        }
+        });
         finish_file(batch, file, rows, diags);
     }
 }

@@ -5,7 +5,7 @@ use std::io::Read;
 
 use super::batch::{ImportBatch, Located, Origin};
 use super::diagnostic::Diagnostics;
-use super::fields::{Cells, HeaderCheck, finish_file};
+use super::fields::{HeaderCheck, finish_file, read_rows};
 use super::table::Table;
 use crate::model::domain::{Site, Uid};
 
@@ -43,21 +43,8 @@ impl SitesReader {
         if !check.is_ok() {
             return;
         }
-        let decimal_comma = table.decimal_comma();
-        let mut rows = 0;
-        while let Some(next) = table.next_record() {
-            rows += 1;
-            let (line, record) = match next {
-                Ok(r) => r,
-                Err((line, message)) => {
-                    diags.push(&name, line, "-", message);
-                    continue;
-                }
-            };
-            let Some(mut cells) = Cells::new(&name, line, &header, record, decimal_comma, diags)
-            else {
-                continue;
-            };
+        let rows = read_rows(&mut table, &header, diags, |cells| {
+            let line = cells.line();
             let code = cells.required_text(c_site, "a site code");
             let lat = cells.number(c_lat);
             let lat = lat.filter(|&v| {
@@ -99,9 +86,9 @@ impl SitesReader {
                 );
             }
             if !cells.is_ok() {
-                continue;
+                return;
             }
-            let Some(code) = code else { continue };
+            let Some(code) = code else { return };
             self.seen.insert(code.clone(), origin);
             batch.sites.push(Located {
                 origin,
@@ -115,7 +102,7 @@ impl SitesReader {
                     uid: Uid::random(),
                 },
             });
-        }
+        });
         finish_file(batch, file, rows, diags);
     }
 }

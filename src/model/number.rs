@@ -19,6 +19,11 @@ pub fn significant(v: f64, digits: usize) -> Option<String> {
     })
 }
 
+/// `n` and the word, with an `s` unless `n` is 1 (`1 site`, `3 readings`).
+pub fn plural(n: u64, word: &str) -> String {
+    format!("{n} {word}{}", if n == 1 { "" } else { "s" })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -35,5 +40,7 @@ mod tests {
         assert_eq!(significant(-0.0, 4).as_deref(), Some("0"));
         assert_eq!(significant(f64::NAN, 4), None);
         assert_eq!(significant(f64::NEG_INFINITY, 4), None);
+        assert_eq!(plural(1, "site"), "1 site");
+        assert_eq!(plural(0, "reading"), "0 readings");
     }
 }

@@ -3,7 +3,7 @@
 use std::fmt;
 
 use super::table::{Cell, Column, Listing};
-use crate::model::number::significant;
+use crate::model::number::{plural, significant};
 use crate::model::units::SuctionUnit;
 use crate::store::layers::LayerRow;
 use crate::store::readings::ReadingRow;
@@ -174,10 +174,6 @@ pub fn readings_listing(rows: &[ReadingRow], unit: SuctionUnit) -> Listing {
         ]);
     }
     l
-}
-
-fn plural(n: u64, word: &str) -> String {
-    format!("{n} {word}{}", if n == 1 { "" } else { "s" })
 }
 
 impl fmt::Display for Counts {
