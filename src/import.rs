@@ -1,9 +1,328 @@
 //! Input files to validated values, with every problem placed at `FILE:LINE:COLUMN`.
 //!
-//! Importers read and validate; they never write to the campaign file. The store takes a
-//! validated batch and writes it in one transaction.
+//! The readers ([`sites`], [`layers`], [`lab`]) turn CSV into an [`ImportBatch`] of domain
+//! values and never touch the campaign file. [`import_files`] (used by the command line and
+//! the demo builder alike) reads the files, runs the readers, checks the batch against the
+//! campaign and writes it, all in one transaction: any problem in any file and nothing is
+//! written.
 
+use std::fmt::{self, Write as _};
+use std::path::{Path, PathBuf};
+
+use sha2::{Digest, Sha256};
+
+use crate::model::number::plural;
+use crate::store::{Campaign, StoreError};
+
+mod apply;
+pub mod batch;
 pub mod diagnostic;
+mod fields;
+pub mod lab;
+pub mod layers;
+pub mod sites;
 pub mod table;
 
+pub use batch::{ImportBatch, ImportKind};
 pub use diagnostic::{Diagnostic, Diagnostics};
+
+/// How an import runs.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct ImportOptions {
+    /// Validate everything (against the campaign too) and report, but write nothing.
+    pub dry_run: bool,
+    /// Import files whose content was imported before.
+    pub force: bool,
+}
+
+/// One input: a name for messages and its bytes.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Source {
+    /// The file as the user named it (used in `FILE:LINE:COLUMN` and in provenance).
+    pub name: String,
+    /// The file's content.
+    pub bytes: Vec<u8>,
+}
+
+impl Source {
+    /// Read a file, naming it as the path was given.
+    ///
+    /// # Errors
+    /// [`ImportError::Read`] when the file cannot be read.
+    pub fn read(path: &Path) -> Result<Self, ImportError> {
+        let bytes = std::fs::read(path).map_err(|source| ImportError::Read {
+            path: path.to_path_buf(),
+            source,
+        })?;
+        Ok(Self {
+            name: path.display().to_string(),
+            bytes,
+        })
+    }
+
+    /// SHA-256 of the content, lower-case hex.
+    pub fn sha256(&self) -> String {
+        let digest = Sha256::digest(&self.bytes);
+        digest
+            .iter()
+            .fold(String::with_capacity(64), |mut hex, byte| {
+                let _ = write!(hex, "{byte:02x}");
+                hex
+            })
+    }
+}
+
+/// A file refused because the same content was imported before.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EarlierImport {
+    /// The file as named now.
+    pub file: String,
+    /// The earlier import of the same content.
+    pub earlier: crate::store::batches::ImportBatchRecord,
+}
+
+/// Why an import did not happen. In every case nothing was written.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum ImportError {
+    /// Bad input: every problem found, as `FILE:LINE:COLUMN: message`.
+    #[error("{0}")]
+    Invalid(Diagnostics),
+    /// Files whose content was already imported (pass `force` to import them again).
+    #[error("{}", already_imported(.0))]
+    AlreadyImported(Vec<EarlierImport>),
+    /// A file could not be read.
+    #[error("cannot read {}: {source}", path.display())]
+    Read {
+        /// The file.
+        path: PathBuf,
+        /// The operating system's error.
+        source: std::io::Error,
+    },
+    /// The campaign file refused a read or write.
+    #[error(transparent)]
+    Store(#[from] StoreError),
+}
+
+fn already_imported(list: &[EarlierImport]) -> String {
+    let mut out = String::new();
+    for e in list {
+        let _ = writeln!(
+            out,
+            "{}: this content was already imported on {} as {:?} (import #{}); use --force to \
+             import it again",
+            e.file,
+            e.earlier.imported_at.format("%Y-%m-%d %H:%M UTC"),
+            e.earlier.file_name,
+            e.earlier.id
+        );
+    }
+    out.push_str("nothing was written");
+    out
+}
+
+/// One imported file in a summary.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct FileSummary {
+    /// The file as named.
+    pub name: String,
+    /// SHA-256 of its content.
+    pub sha256: String,
+    /// Data rows.
+    pub rows: u64,
+    /// Its import batch id (`None` in a dry run).
+    pub batch_id: Option<i64>,
+}
+
+/// What an import added (or, in a dry run, would add).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct ImportSummary {
+    /// The kind of files.
+    pub kind: ImportKind,
+    /// True when nothing was written.
+    pub dry_run: bool,
+    /// The files read.
+    pub files: Vec<FileSummary>,
+    /// Rows added and updated.
+    pub counts: ImportCounts,
+}
+
+/// How many rows an import adds and updates.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct ImportCounts {
+    /// New sites.
+    pub sites_added: u64,
+    /// Stored sites whose details were filled in or changed.
+    pub sites_updated: u64,
+    /// New layers.
+    pub layers_added: u64,
+    /// Stored layers whose properties were filled in or changed.
+    pub layers_updated: u64,
+    /// New samples.
+    pub samples_added: u64,
+    /// Stored samples that got a bulk density.
+    pub samples_updated: u64,
+    /// New readings.
+    pub readings_added: u64,
+}
+
+impl fmt::Display for ImportSummary {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let c = &self.counts;
+        let added = format!(
+            "{}, {}, {}, {}",
+            plural(c.sites_added, "site"),
+            plural(c.layers_added, "layer"),
+            plural(c.samples_added, "sample"),
+            plural(c.readings_added, "reading")
+        );
+        let files = plural(self.files.len() as u64, "file");
+        if self.dry_run {
+            write!(f, "dry run: {files} valid; would add {added}")?;
+        } else {
+            write!(f, "added {added} from {files}")?;
+        }
+        let mut updated = Vec::new();
+        for (n, word) in [
+            (c.sites_updated, "site"),
+            (c.layers_updated, "layer"),
+            (c.samples_updated, "sample"),
+        ] {
+            if n > 0 {
+                updated.push(plural(n, word));
+            }
+        }
+        if !updated.is_empty() {
+            let verb = if self.dry_run {
+                "would update"
+            } else {
+                "updated"
+            };
+            write!(f, "; {verb} {}", updated.join(", "))?;
+        }
+        if self.dry_run {
+            write!(f, "; nothing was written")?;
+        }
+        Ok(())
+    }
+}
+
+/// Read `sources` of one kind into a batch, collecting every problem (no campaign needed).
+///
+/// # Errors
+/// The problems found, when there are any.
+pub fn parse(kind: ImportKind, sources: &[Source]) -> Result<ImportBatch, Diagnostics> {
+    let mut diags = Diagnostics::new();
+    let batch = read_batch(kind, sources, &mut diags);
+    if diags.is_empty() {
+        Ok(batch)
+    } else {
+        Err(diags)
+    }
+}
+
+fn read_batch(kind: ImportKind, sources: &[Source], diags: &mut Diagnostics) -> ImportBatch {
+    let mut batch = ImportBatch::new(kind);
+    let mut sites_reader = sites::SitesReader::default();
+    let mut layers_reader = layers::LayersReader::default();
+    let mut lab_reader = lab::LabReader::default();
+    for (index, source) in sources.iter().enumerate() {
+        batch
+            .files
+            .push(batch::SourceFile::new(&source.name, source.sha256()));
+        let table = match table::Table::open(&source.name, source.bytes.as_slice()) {
+            Ok(t) => t,
+            Err(problems) => {
+                diags.extend(problems);
+                continue;
+            }
+        };
+        match kind {
+            ImportKind::Sites => sites_reader.read(index, table, &mut batch, diags),
+            ImportKind::Layers => layers_reader.read(index, table, &mut batch, diags),
+            ImportKind::Lab => lab_reader.read(index, table, &mut batch, diags),
+        }
+    }
+    batch
+}
+
+/// Import files of one kind into the campaign, all or nothing.
+///
+/// Every file is read and validated, then checked against the campaign (a sample code
+/// already under another layer, a suction already stored, a file already imported), then
+/// written in one transaction with one `import_batch` row per file.
+///
+/// # Errors
+/// [`ImportError::Invalid`] with every problem found, [`ImportError::AlreadyImported`],
+/// [`ImportError::Read`] or [`ImportError::Store`]; in every case nothing was written.
+pub fn import_files(
+    campaign: &mut Campaign,
+    kind: ImportKind,
+    files: &[PathBuf],
+    options: ImportOptions,
+) -> Result<ImportSummary, ImportError> {
+    let sources = files
+        .iter()
+        .map(|p| Source::read(p))
+        .collect::<Result<Vec<_>, _>>()?;
+    import_sources(campaign, kind, &sources, options)
+}
+
+/// [`import_files`] for content already in memory.
+///
+/// # Errors
+/// As [`import_files`], except reading.
+pub fn import_sources(
+    campaign: &mut Campaign,
+    kind: ImportKind,
+    sources: &[Source],
+    options: ImportOptions,
+) -> Result<ImportSummary, ImportError> {
+    let mut diags = Diagnostics::new();
+    let mut batch = read_batch(kind, sources, &mut diags);
+    let drafts = std::mem::take(&mut batch.readings);
+    let tx = if options.dry_run {
+        campaign.read_transaction()?
+    } else {
+        campaign.transaction()?
+    };
+    if !options.force {
+        let earlier = apply::earlier_imports(&tx, &batch)?;
+        if !earlier.is_empty() {
+            return Err(ImportError::AlreadyImported(
+                earlier
+                    .into_iter()
+                    .map(|(file, earlier)| EarlierImport { file, earlier })
+                    .collect(),
+            ));
+        }
+    }
+    let plan = apply::resolve(&tx, &batch, drafts, &mut diags)?;
+    if !diags.is_empty() {
+        return Err(ImportError::Invalid(diags));
+    }
+    let counts = plan.counts();
+    let batch_ids = if options.dry_run {
+        Vec::new()
+    } else {
+        let ids = apply::write(&tx, &batch, plan, options.force)?;
+        tx.commit().map_err(StoreError::from)?;
+        ids
+    };
+    Ok(ImportSummary {
+        kind,
+        dry_run: options.dry_run,
+        files: batch
+            .files
+            .iter()
+            .enumerate()
+            .map(|(i, f)| FileSummary {
+                name: f.name.clone(),
+                sha256: f.sha256.clone(),
+                rows: f.rows,
+                batch_id: batch_ids.get(i).copied(),
+            })
+            .collect(),
+        counts,
+    })
+}

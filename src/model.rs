@@ -5,5 +5,7 @@
 pub mod conductivity;
 pub mod curve;
 pub mod derived;
+pub mod domain;
+pub mod number;
 pub mod retention;
 pub mod units;

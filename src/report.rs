@@ -1,6 +1,10 @@
 //! Tables and exports built from model and store values.
 
+pub mod campaign;
 pub mod curve_table;
+pub mod table;
+
+pub use table::{Cell, Column, Listing};
 
 /// Format a number for a CSV cell: the shortest text that reads back to the same f64, in
 /// exponent notation below 1e-4 and from 1e15 on (so 1e-300 is not written with 300 zeros).

@@ -1,1 +1,77 @@
 //! The campaign file: SQLite with numbered migrations, one module per aggregate.
+//!
+//! [`Campaign`] owns the connection. Repository functions take a `&Connection`, so they work
+//! the same on the connection and inside a [`rusqlite::Transaction`] (which derefs to one);
+//! a command that writes opens one transaction with [`Campaign::transaction`] and commits it
+//! once, so all of its changes land or none do.
+
+use std::path::PathBuf;
+
+pub mod batches;
+pub mod campaign;
+pub mod db;
+pub mod layers;
+pub mod migrate;
+pub mod overview;
+pub mod readings;
+pub mod samples;
+pub mod sites;
+mod sql_types;
+
+pub use campaign::{Campaign, CampaignSettings};
+pub use overview::{Counts, LayerOverview, Overview, SampleOverview, SiteOverview, overview};
+
+/// What can go wrong in the store.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum StoreError {
+    /// SQLite refused an operation.
+    #[error("database error: {0}")]
+    Sqlite(#[from] rusqlite::Error),
+    /// The campaign file could not be created or read.
+    #[error("{path}: {source}")]
+    Io {
+        /// The file.
+        path: PathBuf,
+        /// The operating system's error.
+        source: std::io::Error,
+    },
+    /// `create` was asked to make a file that is already there.
+    #[error("{0} already exists; porewise does not overwrite a file (choose another name)")]
+    Exists(PathBuf),
+    /// `open` was given a file that is not there.
+    #[error("{0} does not exist; create a campaign with `porewise init FILE`")]
+    NotFound(PathBuf),
+    /// The file is not a porewise campaign (another SQLite file, or not SQLite at all).
+    #[error("{0} is not a porewise campaign file")]
+    NotACampaign(PathBuf),
+    /// The file was written by a newer porewise with a schema this one does not know.
+    #[error(
+        "the campaign file has schema version {found}, but this porewise knows versions up to \
+         {known}; open it with a newer porewise"
+    )]
+    TooNew {
+        /// The file's `user_version`.
+        found: i64,
+        /// The newest version this program can migrate to.
+        known: i64,
+    },
+    /// Campaign settings out of range (empty name, field capacity not below wilting point, ...).
+    #[error("invalid campaign settings: {0}")]
+    InvalidSettings(String),
+    /// A value read back from the file is not what the schema promises.
+    #[error("unexpected value in the campaign file: {0}")]
+    Corrupt(String),
+}
+
+/// Shorthand for store results.
+pub type Result<T, E = StoreError> = std::result::Result<T, E>;
+
+/// Which part of a campaign a listing covers: everything, one site, or one sample.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct Filter<'a> {
+    /// Only this site (code).
+    pub site: Option<&'a str>,
+    /// Only this sample (code).
+    pub sample: Option<&'a str>,
+}

@@ -1,17 +1,67 @@
-//! `porewise import` (not built yet).
+//! `porewise import sites|layers|lab`: read CSV files into a campaign, all or nothing.
 
-use clap::Subcommand;
+use std::path::PathBuf;
+
+use anyhow::Context;
+use clap::{Args, Subcommand};
 
 use crate::error::Outcome;
+use crate::import::{self, ImportKind, ImportOptions};
+use crate::store::Campaign;
+
+/// The campaign file, the input files and how to import them.
+#[derive(Debug, Args)]
+pub struct ImportArgs {
+    /// The campaign file (made with `porewise init`).
+    pub db: PathBuf,
+    /// One or more CSV files (comma or semicolon separated, UTF-8, header row first).
+    #[arg(required = true, value_name = "FILE")]
+    pub files: Vec<PathBuf>,
+    /// Check everything and report what would be added, without writing.
+    #[arg(long)]
+    pub dry_run: bool,
+    /// Import a file even though the same content was imported before.
+    #[arg(long)]
+    pub force: bool,
+}
 
 /// What kind of file to import.
 #[derive(Debug, Subcommand)]
-pub enum ImportCommand {}
+pub enum ImportCommand {
+    /// Sites: site,name,latitude,longitude[,elevation_m,notes] (WGS 84 decimal degrees).
+    #[command(after_help = "Example:\n  porewise import sites spring.sqlite sites.csv")]
+    Sites(ImportArgs),
+    /// Layers: site,top_cm,bottom_cm[,horizon,sand_pct,silt_pct,clay_pct,organic_carbon_pct,bulk_density_g_cm3,ks_cm_per_day].
+    #[command(after_help = "Example:\n  porewise import layers spring.sqlite layers.csv --dry-run")]
+    Layers(ImportArgs),
+    /// Lab retention readings: site,top_cm,bottom_cm,sample,method,suction_<unit>|pf,theta|theta_pct|water_g_per_g[,measured_on,bulk_density_g_cm3,weight,notes,branch].
+    ///
+    /// Suction units: suction_cm, suction_hpa, suction_kpa, suction_mpa, suction_bar, pf.
+    /// Sites, layers and samples a file names are created on first sight.
+    #[command(
+        after_help = "Example:\n  porewise import lab spring.sqlite plates-kpa.csv dewpoint-pf.csv"
+    )]
+    Lab(ImportArgs),
+}
 
 /// Run `porewise import`.
 ///
 /// # Errors
-/// Always, until the command is built.
-pub fn run(_cmd: &ImportCommand) -> anyhow::Result<Outcome> {
-    anyhow::bail!("porewise import is not built yet")
+/// The campaign cannot be opened, or the files are refused (every problem listed; nothing
+/// was written).
+pub fn run(cmd: &ImportCommand) -> anyhow::Result<Outcome> {
+    let (kind, args) = match cmd {
+        ImportCommand::Sites(a) => (ImportKind::Sites, a),
+        ImportCommand::Layers(a) => (ImportKind::Layers, a),
+        ImportCommand::Lab(a) => (ImportKind::Lab, a),
+    };
+    let mut campaign = Campaign::open(&args.db)
+        .with_context(|| format!("cannot open campaign {}", args.db.display()))?;
+    let options = ImportOptions {
+        dry_run: args.dry_run,
+        force: args.force,
+    };
+    let summary = import::import_files(&mut campaign, kind, &args.files, options)?;
+    println!("{summary}");
+    Ok(Outcome::Success)
 }

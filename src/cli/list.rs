@@ -1,17 +1,112 @@
-//! `porewise list` (not built yet).
+//! `porewise list`: print what a campaign holds, as a table, CSV or JSON.
 
-use clap::Args;
+use std::path::PathBuf;
+
+use anyhow::{Context, bail};
+use clap::{Args, ValueEnum};
 
 use crate::error::Outcome;
+use crate::model::units::SuctionUnit;
+use crate::report::Listing;
+use crate::report::campaign::{layers_listing, readings_listing, samples_listing, sites_listing};
+use crate::store::{Campaign, Filter, layers, readings, samples, sites};
+
+/// What to list.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum, Default)]
+pub enum What {
+    /// Sites with counts of layers, samples and readings.
+    #[default]
+    Sites,
+    /// Layers by site and depth.
+    Layers,
+    /// Samples with their layer and reading count.
+    Samples,
+    /// Readings; the first column is the reading id.
+    Readings,
+}
+
+/// Output format.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum, Default)]
+pub enum Format {
+    /// Aligned columns for people.
+    #[default]
+    Table,
+    /// CSV with a header row (a readings listing imports as a lab file).
+    Csv,
+    /// A JSON array of objects.
+    Json,
+}
 
 /// Arguments of `porewise list`.
 #[derive(Debug, Args)]
-pub struct ListArgs {}
+#[command(
+    after_help = "Examples:\n  porewise list spring.sqlite\n  porewise list spring.sqlite readings --site LV --units kpa\n  porewise list spring.sqlite samples --format csv > samples.csv"
+)]
+pub struct ListArgs {
+    /// The campaign file.
+    pub db: PathBuf,
+    /// What to list.
+    #[arg(value_enum, default_value_t = What::Sites)]
+    pub what: What,
+    /// Only this site (code).
+    #[arg(long, value_name = "CODE")]
+    pub site: Option<String>,
+    /// Only this sample (code); for samples and readings.
+    #[arg(long, value_name = "CODE")]
+    pub sample: Option<String>,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = Format::Table)]
+    pub format: Format,
+    /// Suction unit for readings: cm, hpa, kpa, mpa, bar or pf.
+    #[arg(long, default_value = "cm", value_parser = parse_unit, value_name = "UNIT")]
+    pub units: SuctionUnit,
+}
+
+fn parse_unit(s: &str) -> Result<SuctionUnit, String> {
+    s.parse()
+}
 
 /// Run `porewise list`.
 ///
 /// # Errors
-/// Always, until the command is built.
-pub fn run(_args: &ListArgs) -> anyhow::Result<Outcome> {
-    anyhow::bail!("porewise list is not built yet")
+/// The campaign cannot be opened, or a filter names a site or sample that is not there.
+pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
+    let campaign = Campaign::open(&args.db)
+        .with_context(|| format!("cannot open campaign {}", args.db.display()))?;
+    let conn = campaign.connection();
+    if let Some(code) = &args.site
+        && sites::find(conn, code)?.is_none()
+    {
+        bail!(
+            "no site {code:?} in {}; `porewise list {0}` shows the codes",
+            args.db.display()
+        );
+    }
+    if let Some(code) = &args.sample {
+        if matches!(args.what, What::Sites | What::Layers) {
+            bail!("--sample filters samples and readings, not sites or layers");
+        }
+        if samples::find(conn, code)?.is_none() {
+            bail!(
+                "no sample {code:?} in {}; `porewise list {0} samples` shows the codes",
+                args.db.display()
+            );
+        }
+    }
+    let filter = Filter {
+        site: args.site.as_deref(),
+        sample: args.sample.as_deref(),
+    };
+    let listing: Listing = match args.what {
+        What::Sites => sites_listing(&sites::list(conn, filter.site)?),
+        What::Layers => layers_listing(&layers::list(conn, filter.site)?),
+        What::Samples => samples_listing(&samples::list(conn, filter)?),
+        What::Readings => readings_listing(&readings::list(conn, filter)?, args.units),
+    };
+    match args.format {
+        Format::Table => print!("{}", listing.to_table()),
+        Format::Csv => print!("{}", listing.to_csv()?),
+        Format::Json => print!("{}", listing.to_json()),
+    }
+    Ok(Outcome::Success)
 }

@@ -203,6 +203,12 @@ impl<R: Read> Table<R> {
         parse_number(text, self.decimal_comma)
     }
 
+    /// Whether number fields may use a decimal comma (semicolon-separated files), for callers
+    /// that parse with [`parse_number`] while a record is borrowed.
+    pub fn decimal_comma(&self) -> bool {
+        self.decimal_comma
+    }
+
     /// The file name used in messages.
     pub fn file(&self) -> &str {
         &self.file

@@ -1,0 +1,236 @@
+//! Listings of what a campaign holds (sites, layers, samples, readings) and its overview text.
+
+use std::fmt;
+
+use super::table::{Cell, Column, Listing};
+use crate::model::number::{plural, significant};
+use crate::model::units::SuctionUnit;
+use crate::store::layers::LayerRow;
+use crate::store::readings::ReadingRow;
+use crate::store::samples::SampleRow;
+use crate::store::sites::SiteRow;
+use crate::store::{Counts, Overview};
+
+fn columns(names: &[&str]) -> Vec<Column> {
+    names
+        .iter()
+        .map(|n| {
+            if *n == "uid" {
+                Column::export_only(*n)
+            } else {
+                Column::new(*n)
+            }
+        })
+        .collect()
+}
+
+/// Sites, first column the site code.
+pub fn sites_listing(rows: &[SiteRow]) -> Listing {
+    let mut l = Listing::new(columns(&[
+        "site",
+        "name",
+        "latitude_deg",
+        "longitude_deg",
+        "elevation_m",
+        "layers",
+        "samples",
+        "readings",
+        "notes",
+        "uid",
+    ]));
+    for r in rows {
+        let s = &r.stored.site;
+        l.push(vec![
+            Cell::text(&s.code),
+            s.name.clone().into(),
+            s.latitude.into(),
+            s.longitude.into(),
+            s.elevation_m.into(),
+            r.layers.into(),
+            r.samples.into(),
+            r.readings.into(),
+            s.notes.clone().into(),
+            Cell::text(s.uid.as_str()),
+        ]);
+    }
+    l
+}
+
+/// Layers, first column the layer as `SITE:TOP-BOTTOM`.
+pub fn layers_listing(rows: &[LayerRow]) -> Listing {
+    let mut l = Listing::new(columns(&[
+        "layer",
+        "site",
+        "top_cm",
+        "bottom_cm",
+        "horizon",
+        "sand_pct",
+        "silt_pct",
+        "clay_pct",
+        "organic_carbon_pct",
+        "bulk_density_g_cm3",
+        "ks_cm_per_day",
+        "samples",
+        "uid",
+    ]));
+    for r in rows {
+        let layer = &r.stored.layer;
+        l.push(vec![
+            Cell::text(layer.at.to_string()),
+            Cell::text(&layer.at.site),
+            layer.at.top_cm.into(),
+            layer.at.bottom_cm.into(),
+            layer.horizon.clone().into(),
+            layer.sand_pct.into(),
+            layer.silt_pct.into(),
+            layer.clay_pct.into(),
+            layer.organic_carbon_pct.into(),
+            layer.bulk_density_g_cm3.into(),
+            layer.ks_cm_per_day.into(),
+            r.samples.into(),
+            Cell::text(layer.uid.as_str()),
+        ]);
+    }
+    l
+}
+
+/// Samples, first column the sample code.
+pub fn samples_listing(rows: &[SampleRow]) -> Listing {
+    let mut l = Listing::new(columns(&[
+        "sample",
+        "layer",
+        "site",
+        "top_cm",
+        "bottom_cm",
+        "kind",
+        "collected_on",
+        "bulk_density_g_cm3",
+        "readings",
+        "notes",
+        "uid",
+    ]));
+    for r in rows {
+        let s = &r.stored.sample;
+        l.push(vec![
+            Cell::text(&s.code),
+            Cell::text(s.layer.to_string()),
+            Cell::text(&s.layer.site),
+            s.layer.top_cm.into(),
+            s.layer.bottom_cm.into(),
+            Cell::text(s.kind.as_str()),
+            s.collected_on.map(|d| d.to_string()).into(),
+            s.bulk_density_g_cm3.into(),
+            r.readings.into(),
+            s.notes.clone().into(),
+            Cell::text(s.uid.as_str()),
+        ]);
+    }
+    l
+}
+
+/// Readings with suction in `unit`, first column the reading id.
+///
+/// The columns include those of a lab file (`site,top_cm,bottom_cm,sample,method,
+/// suction_<unit>,theta_m3_m3,...`), so a CSV listing can be imported into another campaign.
+pub fn readings_listing(rows: &[ReadingRow], unit: SuctionUnit) -> Listing {
+    let mut l = Listing::new(columns(&[
+        "reading",
+        "sample",
+        "site",
+        "top_cm",
+        "bottom_cm",
+        unit.column_name(),
+        "theta_m3_m3",
+        "method",
+        "branch",
+        "measured_on",
+        "weight",
+        "notes",
+        "source",
+        "uid",
+    ]));
+    for r in rows {
+        let x = &r.stored.reading;
+        let source = r
+            .stored
+            .source_file
+            .as_ref()
+            .map(|f| format!("{f}:{}", x.provenance.line));
+        l.push(vec![
+            r.stored.id.into(),
+            Cell::text(&x.sample),
+            Cell::text(&r.layer.site),
+            r.layer.top_cm.into(),
+            r.layer.bottom_cm.into(),
+            unit.from_cm(x.h_cm).into(),
+            x.theta.into(),
+            x.method.as_ref().map(ToString::to_string).into(),
+            Cell::text(x.branch.as_str()),
+            x.measured_on.map(|d| d.to_string()).into(),
+            x.weight.into(),
+            x.notes.clone().into(),
+            source.into(),
+            Cell::text(x.uid.as_str()),
+        ]);
+    }
+    l
+}
+
+impl fmt::Display for Counts {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(
+            f,
+            "{}, {}, {}, {}",
+            plural(self.sites, "site"),
+            plural(self.layers, "layer"),
+            plural(self.samples, "sample"),
+            plural(self.readings, "reading")
+        )
+    }
+}
+
+fn num(v: f64) -> String {
+    significant(v, 6).unwrap_or_default()
+}
+
+impl fmt::Display for Overview {
+    /// The campaign as a tree: sites, their layers top down, each layer's samples with
+    /// their reading counts.
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let s = &self.settings;
+        writeln!(
+            f,
+            "Campaign {:?}: field capacity at {} kPa, wilting point at {} kPa",
+            s.name,
+            num(s.fc_kpa),
+            num(s.pwp_kpa)
+        )?;
+        writeln!(f, "{}", self.counts)?;
+        for site in &self.sites {
+            writeln!(f)?;
+            match &site.name {
+                Some(name) => writeln!(f, "{}  {name}", site.code)?,
+                None => writeln!(f, "{}", site.code)?,
+            }
+            if site.layers.is_empty() {
+                writeln!(f, "  (no layers)")?;
+            }
+            for layer in &site.layers {
+                let depth = format!("{}-{} cm", num(layer.top_cm), num(layer.bottom_cm));
+                let horizon = layer.horizon.as_deref().unwrap_or("");
+                let samples: Vec<String> = layer
+                    .samples
+                    .iter()
+                    .map(|m| format!("{} ({})", m.code, plural(m.readings, "reading")))
+                    .collect();
+                let samples = if samples.is_empty() {
+                    "no samples".to_string()
+                } else {
+                    samples.join(", ")
+                };
+                writeln!(f, "  {depth:<12} {horizon:<6} {samples}")?;
+            }
+        }
+        Ok(())
+    }
+}

@@ -1,0 +1,130 @@
+//! Shared helpers for the integration tests: the real binary, temporary campaigns, row counts.
+
+#![allow(dead_code)] // each test crate uses a different subset
+
+use std::path::{Path, PathBuf};
+
+use assert_cmd::Command;
+use rusqlite::Connection;
+use tempfile::TempDir;
+
+/// The tables whose row counts a failed import must leave unchanged.
+pub const TABLES: [&str; 9] = [
+    "campaign",
+    "import_batch",
+    "site",
+    "layer",
+    "sample",
+    "reading",
+    "logger_record",
+    "flag",
+    "fit",
+];
+
+/// The fixture directory (`tests/data`); commands run there so file names in messages are
+/// short and stable (`invalid/empty.csv`).
+pub fn data_dir() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests")
+        .join("data")
+}
+
+/// The porewise binary, run in the fixture directory.
+pub fn porewise() -> Command {
+    let mut cmd = Command::new(env!("CARGO_BIN_EXE_porewise"));
+    cmd.current_dir(data_dir());
+    cmd
+}
+
+/// A temporary directory with a fresh campaign file made by `porewise init`.
+pub struct Scratch {
+    /// Kept alive for the test's duration.
+    pub dir: TempDir,
+    /// The campaign file.
+    pub db: PathBuf,
+}
+
+impl Scratch {
+    /// Create the directory and run `porewise init` in it.
+    pub fn new() -> Self {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let db = dir.path().join("campaign.sqlite");
+        porewise()
+            .arg("init")
+            .arg(&db)
+            .args(["--name", "Test campaign"])
+            .assert()
+            .success();
+        Self { dir, db }
+    }
+
+    /// Run `porewise import KIND DB FILES... EXTRA...` from the fixture directory.
+    pub fn import(&self, kind: &str, files: &[&str], extra: &[&str]) -> assert_cmd::assert::Assert {
+        porewise()
+            .arg("import")
+            .arg(kind)
+            .arg(&self.db)
+            .args(files)
+            .args(extra)
+            .assert()
+    }
+
+    /// Import and require success.
+    pub fn import_ok(&self, kind: &str, files: &[&str]) {
+        self.import(kind, files, &[]).success();
+    }
+
+    /// Run `porewise list DB ARGS...` and return stdout (requires success).
+    pub fn list(&self, args: &[&str]) -> String {
+        let out = porewise()
+            .arg("list")
+            .arg(&self.db)
+            .args(args)
+            .assert()
+            .success();
+        String::from_utf8(out.get_output().stdout.clone()).expect("utf-8")
+    }
+
+    /// A plain connection to the campaign file (no porewise code involved).
+    pub fn connect(&self) -> Connection {
+        Connection::open(&self.db).expect("open campaign")
+    }
+
+    /// Rows in every table of [`TABLES`].
+    pub fn counts(&self) -> Vec<(String, i64)> {
+        let conn = self.connect();
+        TABLES
+            .iter()
+            .map(|t| {
+                let n: i64 = conn
+                    .query_row(&format!("SELECT count(*) FROM {t}"), [], |r| r.get(0))
+                    .expect("count");
+                ((*t).to_string(), n)
+            })
+            .collect()
+    }
+
+    /// Rows in one table.
+    pub fn count(&self, table: &str) -> i64 {
+        self.connect()
+            .query_row(&format!("SELECT count(*) FROM {table}"), [], |r| r.get(0))
+            .expect("count")
+    }
+
+    /// Write a file into the scratch directory and return its absolute path as text.
+    pub fn write(&self, name: &str, text: &str) -> String {
+        let path = self.dir.path().join(name);
+        std::fs::write(&path, text).expect("write fixture");
+        path.display().to_string()
+    }
+}
+
+/// stderr of a finished command as text.
+pub fn stderr(assert: &assert_cmd::assert::Assert) -> String {
+    String::from_utf8(assert.get_output().stderr.clone()).expect("utf-8")
+}
+
+/// stdout of a finished command as text.
+pub fn stdout(assert: &assert_cmd::assert::Assert) -> String {
+    String::from_utf8(assert.get_output().stdout.clone()).expect("utf-8")
+}

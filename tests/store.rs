@@ -1,0 +1,234 @@
+//! The store through the library: schema and migrations, per-connection PRAGMAs, the import
+//! entry point the demo builder uses, and the overview.
+
+mod common;
+
+use porewise::import::{self, ImportError, ImportKind, ImportOptions, Source};
+use porewise::store::{self, Campaign, StoreError, migrate};
+use rusqlite::Connection;
+
+fn schema(conn: &Connection) -> String {
+    let mut stmt = conn
+        .prepare(
+            "SELECT type, name, sql FROM sqlite_schema WHERE sql IS NOT NULL ORDER BY type, name",
+        )
+        .expect("prepare");
+    let rows = stmt
+        .query_map([], |r| {
+            Ok(format!(
+                "-- {} {}\n{};\n",
+                r.get::<_, String>(0)?,
+                r.get::<_, String>(1)?,
+                r.get::<_, String>(2)?
+            ))
+        })
+        .expect("query");
+    rows.collect::<Result<Vec<_>, _>>()
+        .expect("rows")
+        .join("\n")
+}
+
+#[test]
+fn migrations_build_the_schema_on_an_empty_database() {
+    let mut conn = Connection::open_in_memory().expect("memory");
+    assert_eq!(
+        migrate::migrate(&mut conn).expect("migrate"),
+        migrate::latest_version()
+    );
+    insta::assert_snapshot!("schema_v1", schema(&conn));
+    // Every table is STRICT and every row-holding table of the data model is there.
+    for table in common::TABLES {
+        let sql: String = conn
+            .query_row(
+                "SELECT sql FROM sqlite_schema WHERE type = 'table' AND name = ?1",
+                [table],
+                |r| r.get(0),
+            )
+            .unwrap_or_else(|e| panic!("table {table}: {e}"));
+        assert!(sql.trim_end().ends_with("STRICT"), "{table} is not STRICT");
+    }
+}
+
+#[test]
+fn the_schema_enforces_physical_ranges_and_references() {
+    let c = Campaign::in_memory("t", 33.0, 1500.0).expect("campaign");
+    let conn = c.connection();
+    let fk: i64 = conn
+        .pragma_query_value(None, "foreign_keys", |r| r.get(0))
+        .expect("pragma");
+    assert_eq!(fk, 1, "foreign keys on");
+    let err = conn
+        .execute(
+            "INSERT INTO reading (uid, sample_id, h_cm, theta) VALUES
+             ('00000000-0000-4000-8000-000000000000', 42, 10, 0.3)",
+            [],
+        )
+        .expect_err("no sample 42");
+    assert!(err.to_string().contains("FOREIGN KEY"), "{err}");
+    conn.execute_batch(
+        "INSERT INTO site (uid, code) VALUES ('00000000-0000-4000-8000-000000000001', 'S');
+         INSERT INTO layer (uid, site_id, top_cm, bottom_cm) VALUES
+             ('00000000-0000-4000-8000-000000000002', 1, 0, 10);
+         INSERT INTO sample (uid, layer_id, code, kind) VALUES
+             ('00000000-0000-4000-8000-000000000003', 1, 'M', 'lab_core');",
+    )
+    .expect("rows");
+    for (h, theta) in [(-1.0, 0.3), (10.0, 1.5), (2.0e7, 0.1)] {
+        let r = conn.execute(
+            "INSERT INTO reading (uid, sample_id, h_cm, theta) VALUES
+             ('00000000-0000-4000-8000-000000000009', 1, ?1, ?2)",
+            rusqlite::params![h, theta],
+        );
+        assert!(r.is_err(), "h {h} theta {theta} accepted");
+    }
+    // A flag is on a reading or a logger record, not both and not neither.
+    let r = conn.execute(
+        "INSERT INTO flag (reason, origin, status, created_at)
+         VALUES ('x', 'auto', 'suggested', '2026-01-01T00:00:00Z')",
+        [],
+    );
+    assert!(r.is_err());
+    // At most one current fit per sample.
+    let fit = "INSERT INTO fit (sample_id, model, parameters, statistics, n_points,
+         readings_fingerprint, created_at, is_current)
+         VALUES (1, 'van-genuchten', '{}', '{}', 0, 'f', '2026-01-01T00:00:00Z', 1)";
+    conn.execute(fit, []).expect("first current fit");
+    assert!(conn.execute(fit, []).is_err(), "second current fit");
+}
+
+#[test]
+fn a_campaign_file_gets_wal_full_sync_foreign_keys_and_a_busy_timeout() {
+    let dir = tempfile::tempdir().expect("dir");
+    let path = dir.path().join("c.sqlite");
+    Campaign::create(&path, "Pragmas", 33.0, 1500.0).expect("create");
+    let c = Campaign::open(&path).expect("open");
+    let conn = c.connection();
+    let q = |name: &str| -> String {
+        conn.query_row(&format!("PRAGMA {name}"), [], |r| {
+            r.get::<_, rusqlite::types::Value>(0)
+        })
+        .map(|v| match v {
+            rusqlite::types::Value::Integer(i) => i.to_string(),
+            rusqlite::types::Value::Text(t) => t,
+            other => format!("{other:?}"),
+        })
+        .expect("pragma")
+    };
+    assert_eq!(q("journal_mode"), "wal");
+    assert_eq!(q("foreign_keys"), "1");
+    assert_eq!(q("synchronous"), "2", "FULL");
+    assert_eq!(q("busy_timeout"), "5000");
+    assert_eq!(q("user_version"), migrate::latest_version().to_string());
+    assert!(matches!(
+        Campaign::create(&path, "Again", 33.0, 1500.0),
+        Err(StoreError::Exists(_))
+    ));
+}
+
+#[test]
+fn a_newer_schema_is_refused_naming_both_versions() {
+    let dir = tempfile::tempdir().expect("dir");
+    let path = dir.path().join("c.sqlite");
+    drop(Campaign::create(&path, "Old", 33.0, 1500.0).expect("create"));
+    Connection::open(&path)
+        .expect("open")
+        .pragma_update(None, "user_version", 7)
+        .expect("bump");
+    match Campaign::open(&path) {
+        Err(StoreError::TooNew { found, known }) => {
+            assert_eq!((found, known), (7, migrate::latest_version()));
+        }
+        other => panic!("expected TooNew, got {other:?}"),
+    }
+    let plain = dir.path().join("plain.sqlite");
+    Connection::open(&plain)
+        .expect("open")
+        .execute_batch("CREATE TABLE t (x)")
+        .expect("table");
+    assert!(matches!(
+        Campaign::open(&plain),
+        Err(StoreError::NotACampaign(_))
+    ));
+}
+
+fn source(name: &str, text: &str) -> Source {
+    Source {
+        name: name.to_string(),
+        bytes: text.as_bytes().to_vec(),
+    }
+}
+
+#[test]
+fn the_library_import_returns_every_diagnostic_and_writes_nothing() {
+    let mut c = Campaign::in_memory("t", 33.0, 1500.0).expect("campaign");
+    let bad = source(
+        "mem.csv",
+        "site,top_cm,bottom_cm,sample,method,suction_bar,theta\n\
+         A,0,10,S1,plate,0.1,0.3\n\
+         A,0,10,S1,plate,-0.1,0.3\n\
+         A,10,5,S2,plate,1,0.2\n",
+    );
+    let err = import::import_sources(&mut c, ImportKind::Lab, &[bad], ImportOptions::default())
+        .expect_err("bad input");
+    let ImportError::Invalid(diags) = err else {
+        panic!("expected diagnostics, got {err:?}");
+    };
+    let places: Vec<(u64, &str)> = diags
+        .items()
+        .iter()
+        .map(|d| (d.line, d.column.as_str()))
+        .collect();
+    assert_eq!(places, vec![(3, "suction_bar"), (4, "bottom_cm")]);
+    assert_eq!(
+        store::overview::counts(c.connection())
+            .expect("counts")
+            .readings,
+        0
+    );
+}
+
+#[test]
+fn the_overview_shows_sites_layers_samples_and_reading_counts() {
+    let mut c = Campaign::in_memory("Overview test", 10.0, 1500.0).expect("campaign");
+    let sites = source(
+        "s.csv",
+        "site,name,latitude,longitude\nA,Upper plot,45,8\nB,,45.1,8.1\n",
+    );
+    let lab = source(
+        "l.csv",
+        "site,top_cm,bottom_cm,sample,method,suction_cm,theta\n\
+         A,0,15,A1,sandbox,10,0.40\nA,0,15,A1,plate,330,0.25\nA,15,50,A2,plate,330,0.22\n",
+    );
+    let options = ImportOptions::default();
+    import::import_sources(&mut c, ImportKind::Sites, &[sites], options).expect("sites");
+    let summary = import::import_sources(&mut c, ImportKind::Lab, &[lab], options).expect("lab");
+    assert_eq!(
+        (
+            summary.counts.samples_added,
+            summary.counts.readings_added,
+            summary.counts.layers_added
+        ),
+        (2, 3, 2)
+    );
+    assert!(summary.files[0].batch_id.is_some());
+    let o = store::overview(&c).expect("overview");
+    assert_eq!(o.counts.readings, 3);
+    assert_eq!(o.sites.len(), 2);
+    assert_eq!(o.sites[0].layers.len(), 2);
+    assert_eq!(o.sites[0].layers[1].samples[0].code, "A2");
+    assert!(o.sites[1].layers.is_empty());
+    let text = o.to_string();
+    assert!(
+        text.contains("Campaign \"Overview test\": field capacity at 10 kPa"),
+        "{text}"
+    );
+    assert!(text.contains("A  Upper plot"), "{text}");
+    assert!(
+        text.contains("0-15 cm") && text.contains("A1 (2 readings)"),
+        "{text}"
+    );
+    assert!(
+        text.contains("15-50 cm") && text.contains("A2 (1 reading)"),
+        "{text}"
+    );
+}
