@@ -322,9 +322,9 @@ impl Sheet {
         Self { writer }
     }
 
-    fn row(&mut self, fields: Vec<String>) {
+    fn row(&mut self, fields: &[String]) {
         self.writer
-            .write_record(&fields)
+            .write_record(fields)
             .unwrap_or_else(|_| unreachable!("writing to memory cannot fail"));
     }
 
@@ -391,7 +391,7 @@ pub fn generate() -> Vec<DemoFile> {
     // Metres to degrees near the equator (WGS 84 mean radius, common practice).
     let deg_per_m = 1.0 / 111_195.0;
     for site in &SITES {
-        sites.row(vec![
+        sites.row(&[
             site.code.to_string(),
             site.name.to_string(),
             format!("{:.6}", ORIGIN_LAT + site.north_m * deg_per_m),
@@ -405,7 +405,7 @@ pub fn generate() -> Vec<DemoFile> {
             let bulk_density = PARTICLE_DENSITY_G_CM3 * (1.0 - porosity);
             let organic_carbon = (2.4 * (-(top + bottom) / 2.0 / 25.0).exp()).max(0.1);
             let ks = tex.ks * (0.35 * unit.sample(&mut rng)).exp();
-            layers.row(vec![
+            layers.row(&[
                 site.code.to_string(),
                 format!("{top:.0}"),
                 format!("{bottom:.0}"),
@@ -468,7 +468,7 @@ pub fn generate() -> Vec<DemoFile> {
                                 format!("2026-06-{day:02}"),
                                 String::new(),
                             ]);
-                            lab_a.row(row);
+                            lab_a.row(&row);
                         }
                         LabStyle::HpaPercent => {
                             row.extend([
@@ -476,7 +476,7 @@ pub fn generate() -> Vec<DemoFile> {
                                 num(theta * 100.0, 2, true),
                                 format!("2026-07-{day:02}"),
                             ]);
-                            lab_b.row(row);
+                            lab_b.row(&row);
                         }
                         LabStyle::PfGravimetric => {
                             row.extend([
@@ -485,7 +485,7 @@ pub fn generate() -> Vec<DemoFile> {
                                 format!("{core_density:.3}"),
                                 format!("2026-08-{day:02}"),
                             ]);
-                            lab_c.row(row);
+                            lab_c.row(&row);
                         }
                     }
                 }

@@ -6,6 +6,9 @@ use anyhow::Context;
 use clap::Args;
 
 use crate::error::Outcome;
+use crate::import::{ImportKind, ImportOptions, import_files};
+use crate::store::campaign::{DEFAULT_FC_KPA, DEFAULT_PWP_KPA};
+use crate::store::{Campaign, migrate, overview};
 
 /// Arguments of `porewise demo`.
 #[derive(Debug, Args)]
@@ -47,15 +50,128 @@ fn write_sources(dir: &Path) -> anyhow::Result<()> {
     Ok(())
 }
 
+/// The campaign file built from the sources in `dir`.
+pub fn demo_file(dir: &Path) -> PathBuf {
+    dir.join(DEMO_FILE)
+}
+
+/// File name of the built demo campaign inside the demo folder (ignored by git).
+const DEMO_FILE: &str = "demo.sqlite";
+
+/// The source files in import order: sites, layers, then the lab sheets.
+fn sources(dir: &Path) -> anyhow::Result<Vec<(ImportKind, Vec<PathBuf>)>> {
+    let mut labs = Vec::new();
+    for entry in std::fs::read_dir(dir).with_context(|| format!("cannot read {}", dir.display()))? {
+        let path = entry?.path();
+        let is_lab = path
+            .file_name()
+            .is_some_and(|n| n.to_string_lossy().starts_with("lab-"));
+        let is_csv = path
+            .extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
+        if is_lab && is_csv {
+            labs.push(path);
+        }
+    }
+    labs.sort();
+    Ok(vec![
+        (ImportKind::Sites, vec![dir.join("sites.csv")]),
+        (ImportKind::Layers, vec![dir.join("layers.csv")]),
+        (ImportKind::Lab, labs),
+    ])
+}
+
+/// Why the demo file must be (re)built, or `None` when it is up to date.
+fn rebuild_reason(file: &Path, sources: &[(ImportKind, Vec<PathBuf>)]) -> Option<String> {
+    let Ok(built) = std::fs::metadata(file).and_then(|m| m.modified()) else {
+        return Some("it does not exist yet".to_string());
+    };
+    for path in sources.iter().flat_map(|(_, paths)| paths) {
+        let newer = std::fs::metadata(path)
+            .and_then(|m| m.modified())
+            .is_ok_and(|t| t > built);
+        if newer {
+            return Some(format!("{} is newer", path.display()));
+        }
+    }
+    match Campaign::open(file) {
+        Ok(c) => match migrate::schema_version(c.connection()) {
+            Ok(v) if v == migrate::latest_version() => None,
+            _ => Some("its schema is older than this program".to_string()),
+        },
+        Err(_) => Some("it cannot be opened".to_string()),
+    }
+}
+
+/// Build the demo campaign into `file` from `sources`, through the normal import path.
+///
+/// Builds into a temporary file beside it and renames it into place, so an interrupted build
+/// leaves no half-made campaign.
+fn build(file: &Path, sources: &[(ImportKind, Vec<PathBuf>)]) -> anyhow::Result<()> {
+    let building = file.with_extension("sqlite.building");
+    remove_with_journals(&building)?;
+    {
+        let mut campaign = Campaign::create(
+            &building,
+            "Floodplain demo (invented)",
+            DEFAULT_FC_KPA,
+            DEFAULT_PWP_KPA,
+        )?;
+        for (kind, paths) in sources {
+            import_files(&mut campaign, *kind, paths, ImportOptions::default())
+                .with_context(|| format!("cannot import the demo {} files", kind.as_str()))?;
+        }
+    }
+    remove_with_journals(file)?;
+    std::fs::rename(&building, file)
+        .with_context(|| format!("cannot move the demo campaign into {}", file.display()))?;
+    Ok(())
+}
+
+/// Remove a SQLite file and its `-wal` / `-shm` companions if present.
+fn remove_with_journals(file: &Path) -> anyhow::Result<()> {
+    for suffix in ["", "-wal", "-shm"] {
+        let mut name = file.as_os_str().to_os_string();
+        name.push(suffix);
+        let path = PathBuf::from(name);
+        if path.exists() {
+            std::fs::remove_file(&path)
+                .with_context(|| format!("cannot remove {}", path.display()))?;
+        }
+    }
+    Ok(())
+}
+
+/// Make sure the demo campaign in `dir` is built and current; returns its path.
+///
+/// # Errors
+/// Missing or unreadable sources, or a failed import (which would be a bug in the generator).
+pub fn ensure_built(dir: &Path) -> anyhow::Result<PathBuf> {
+    let file = demo_file(dir);
+    let sources = sources(dir)?;
+    if let Some(reason) = rebuild_reason(&file, &sources) {
+        eprintln!("building {} ({reason})", file.display());
+        build(&file, &sources)?;
+    }
+    Ok(file)
+}
+
 /// Run `porewise demo`.
 ///
 /// # Errors
-/// A demo folder that cannot be read or written.
+/// A demo folder that cannot be read or written, or a failed build.
 pub fn run(args: &DemoArgs) -> anyhow::Result<Outcome> {
     let dir = demo_dir(args);
     if args.write_sources {
         write_sources(&dir)?;
         eprintln!("wrote the demo source files into {}", dir.display());
     }
-    anyhow::bail!("building the demo campaign is not built yet")
+    let file = ensure_built(&dir)?;
+    if args.no_ui {
+        eprintln!("demo campaign ready: {}", file.display());
+        return Ok(Outcome::Success);
+    }
+    let campaign = Campaign::open(&file)?;
+    print!("{}", overview(&campaign)?);
+    Ok(Outcome::Success)
 }
