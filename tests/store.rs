@@ -35,7 +35,7 @@ fn migrations_build_the_schema_on_an_empty_database() {
         migrate::migrate(&mut conn).expect("migrate"),
         migrate::latest_version()
     );
-    insta::assert_snapshot!("schema_v1", schema(&conn));
+    insta::assert_snapshot!("schema_latest", schema(&conn));
     // Every table is STRICT and every row-holding table of the data model is there.
     for table in common::TABLES {
         let sql: String = conn
@@ -231,4 +231,57 @@ fn the_overview_shows_sites_layers_samples_and_reading_counts() {
         text.contains("15-50 cm") && text.contains("A2 (1 reading)"),
         "{text}"
     );
+}
+
+#[test]
+fn a_version_1_file_upgrades_with_its_data_intact() {
+    let tmp = tempfile::tempdir().expect("temp dir");
+    let path = tmp.path().join("v1.sqlite");
+    {
+        // A file as porewise with schema version 1 left it.
+        let conn = Connection::open(&path).expect("create");
+        conn.execute_batch(migrate::MIGRATIONS[0]).expect("v1 schema");
+        conn.pragma_update(None, "user_version", 1).expect("version");
+        conn.execute_batch(
+            "INSERT INTO campaign VALUES (1, 'old', NULL, 33, 1500, '2026-01-05T10:00:00Z');
+             INSERT INTO site (id, uid, code) VALUES (1, '00000000-0000-4000-8000-000000000001', 'S');
+             INSERT INTO layer (id, uid, site_id, top_cm, bottom_cm)
+                 VALUES (1, '00000000-0000-4000-8000-000000000002', 1, 0, 10);
+             INSERT INTO sample (id, uid, layer_id, code, kind)
+                 VALUES (1, '00000000-0000-4000-8000-000000000003', 1, 'S-a', 'lab_core');
+             INSERT INTO reading (id, uid, sample_id, h_cm, theta)
+                 VALUES (1, '00000000-0000-4000-8000-000000000004', 1, 100.0, 0.3125);",
+        )
+        .expect("v1 data");
+    }
+    let campaign = Campaign::open(&path).expect("opens and migrates");
+    let conn = campaign.connection();
+    assert_eq!(
+        migrate::schema_version(conn).expect("version"),
+        migrate::latest_version()
+    );
+    let (code, h, theta): (String, f64, f64) = conn
+        .query_row(
+            "SELECT m.code, r.h_cm, r.theta FROM reading r JOIN sample m ON m.id = r.sample_id",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
+        )
+        .expect("reading survives");
+    assert_eq!((code.as_str(), h, theta), ("S-a", 100.0, 0.3125));
+    assert_eq!(campaign.settings().expect("settings").name, "old");
+    // Version 2: a new reading bumps the sample's revision.
+    let rev = |c: &Connection| -> i64 {
+        c.query_row("SELECT readings_rev FROM sample WHERE id = 1", [], |r| {
+            r.get(0)
+        })
+        .expect("rev")
+    };
+    let before = rev(conn);
+    conn.execute(
+        "INSERT INTO reading (uid, sample_id, h_cm, theta)
+         VALUES ('00000000-0000-4000-8000-000000000005', 1, 1000.0, 0.25)",
+        [],
+    )
+    .expect("insert");
+    assert_eq!(rev(conn), before + 1);
 }

@@ -9,7 +9,10 @@ use rusqlite::{Connection, Transaction};
 use super::{Result, StoreError};
 
 /// The SQL of every migration, oldest first; entry `i` brings a file to version `i + 1`.
-pub const MIGRATIONS: &[&str] = &[include_str!("../../migrations/0001_init.sql")];
+pub const MIGRATIONS: &[&str] = &[
+    include_str!("../../migrations/0001_init.sql"),
+    include_str!("../../migrations/0002_fits.sql"),
+];
 
 /// `application_id` written by the first migration, so a porewise file can be recognised.
 pub const APPLICATION_ID: i64 = 0x504F_5257;
