@@ -1,0 +1,157 @@
+//! Campbell (1974): theta = theta_s (h / h_e)^(-1/b) above the air-entry suction h_e.
+
+use crate::model::curve::{CurveModel, ParamSpec};
+
+use super::{DataShape, ModelKind, RetentionModel, THETA_S, clamp_all, finite};
+
+/// Bounds of the air-entry suction h_e: [0.01, 1e5] cm, as Brooks-Corey's h_b (the two are
+/// the same parameter, Campbell being Brooks-Corey with theta_r = 0).
+pub(crate) const H_E: ParamSpec = ParamSpec {
+    name: "h_e_cm",
+    unit: "cm",
+    lower: 0.01,
+    upper: 1e5,
+};
+
+/// Bounds of the exponent b: [0.05, 100]. Observed values are 2-15 (common practice,
+/// Clapp & Hornberger 1978 table 2 spans 4.05-11.4); b = 1/lambda covers lambda 0.01-20.
+pub(crate) const B: ParamSpec = ParamSpec {
+    name: "b",
+    unit: "-",
+    lower: 0.05,
+    upper: 100.0,
+};
+
+/// `theta_s, h_e_cm, b`.
+pub(crate) const PARAMS: [ParamSpec; 3] = [THETA_S, H_E, B];
+
+/// The Campbell model (no residual water content: Se = theta / theta_s).
+///
+/// At h = h_e exactly the saturated branch is used, as in Brooks-Corey.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct Campbell;
+
+impl CurveModel for Campbell {
+    fn params(&self) -> &[ParamSpec] {
+        &PARAMS
+    }
+
+    fn value(&self, h: f64, p: &[f64]) -> f64 {
+        let (theta_s, h_e, b) = (p[0], p[1], p[2]);
+        if h <= h_e {
+            return theta_s;
+        }
+        theta_s * ((h_e / h).ln() / b).exp()
+    }
+
+    fn value_and_gradient(&self, h: f64, p: &[f64], grad: &mut [f64]) -> f64 {
+        let (theta_s, h_e, b) = (p[0], p[1], p[2]);
+        if h <= h_e {
+            grad[..3].copy_from_slice(&[1.0, 0.0, 0.0]);
+            return theta_s;
+        }
+        let r = (h_e / h).ln();
+        let s = (r / b).exp();
+        let theta = theta_s * s;
+        grad[0] = s;
+        grad[1] = theta / (b * h_e);
+        grad[2] = -theta * r / (b * b);
+        theta
+    }
+
+    /// theta_s just above the wettest reading; b and h_e from a straight line through the
+    /// drier readings in ln theta against ln h (slope -1/b); then a flatter and a steeper one.
+    fn initial_guesses(&self, x: &[f64], y: &[f64]) -> Vec<Vec<f64>> {
+        let Some(shape) = DataShape::of(x, y) else {
+            return vec![vec![0.4, 20.0, 5.0]];
+        };
+        let theta_s = (shape.theta_max * 1.01).max(shape.theta_max + 1e-3);
+        let b = loglog_slope(x, y, 0.95 * shape.theta_max)
+            .map_or(5.0, |slope| -1.0 / slope)
+            .clamp(0.5, 50.0);
+        // The line through the readings' geometric centre, continued up to theta_s.
+        let (lh, lt) = log_centre(x, y, 0.95 * shape.theta_max)
+            .unwrap_or((shape.h_half.ln(), (0.5 * theta_s).ln()));
+        let h_e = (lh - b * (theta_s.ln() - lt)).exp();
+        let mut guesses = vec![
+            vec![theta_s, h_e, b],
+            vec![theta_s, h_e * 0.5, b * 1.3],
+            vec![theta_s, h_e * 2.0, b * 0.7],
+        ];
+        for g in &mut guesses {
+            clamp_all(&PARAMS, g);
+        }
+        guesses
+    }
+}
+
+/// Readings below `theta_cut` with h > 0 and theta > 0, as (ln h, ln theta).
+fn log_points(x: &[f64], y: &[f64], theta_cut: f64) -> impl Iterator<Item = (f64, f64)> {
+    x.iter()
+        .zip(y)
+        .filter(move |(h, t)| **h > 0.0 && **t > 0.0 && **t < theta_cut && h.is_finite())
+        .map(|(h, t)| (h.ln(), t.ln()))
+}
+
+/// Mean of ln h and ln theta over the drier readings.
+fn log_centre(x: &[f64], y: &[f64], theta_cut: f64) -> Option<(f64, f64)> {
+    let (mut n, mut sx, mut sy) = (0.0, 0.0, 0.0);
+    for (lx, ly) in log_points(x, y, theta_cut) {
+        n += 1.0;
+        sx += lx;
+        sy += ly;
+    }
+    (n > 0.0).then(|| (sx / n, sy / n))
+}
+
+/// Least-squares slope of ln theta against ln h over the drier readings (< 0 for a curve).
+fn loglog_slope(x: &[f64], y: &[f64], theta_cut: f64) -> Option<f64> {
+    let (mx, my) = log_centre(x, y, theta_cut)?;
+    let (mut sxy, mut sxx) = (0.0, 0.0);
+    for (lx, ly) in log_points(x, y, theta_cut) {
+        sxy += (lx - mx) * (ly - my);
+        sxx += (lx - mx) * (lx - mx);
+    }
+    let slope = sxy / sxx;
+    (slope.is_finite() && slope < 0.0).then_some(slope)
+}
+
+impl RetentionModel for Campbell {
+    fn kind(&self) -> ModelKind {
+        ModelKind::Campbell
+    }
+
+    fn theta_r(&self, _p: &[f64]) -> f64 {
+        0.0
+    }
+
+    fn theta_s(&self, p: &[f64]) -> f64 {
+        p[0]
+    }
+
+    /// 0 below h_e, theta / (b h) above it, `None` at h = h_e where the one-sided limits differ.
+    #[allow(clippy::float_cmp)] // the break point itself, exactly
+    fn capacity(&self, h: f64, p: &[f64]) -> Option<f64> {
+        let (_, h_e, b) = (p[0], p[1], p[2]);
+        if h < h_e {
+            Some(0.0)
+        } else if h == h_e {
+            None
+        } else {
+            finite(self.value(h, p) / (b * h))
+        }
+    }
+
+    /// h = h_e (theta / theta_s)^(-b); 0 at saturation.
+    fn suction_at(&self, theta: f64, p: &[f64]) -> Option<f64> {
+        let (theta_s, h_e, b) = (p[0], p[1], p[2]);
+        let s = theta / theta_s;
+        if s.is_nan() || s <= 0.0 {
+            None
+        } else if s >= 1.0 {
+            Some(0.0)
+        } else {
+            finite(h_e * (-b * s.ln()).exp())
+        }
+    }
+}

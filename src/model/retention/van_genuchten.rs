@@ -1,0 +1,139 @@
+//! van Genuchten (1980) with the Mualem restriction: Se = [1 + (alpha h)^n]^(-m), m = 1 - 1/n.
+
+use crate::model::curve::{CurveModel, ParamSpec};
+
+use super::van_genuchten_free_m::{
+    VgTerm, alpha_n_through_half, term_neg_d_h, term_se, term_suction_at,
+};
+use super::{
+    DataShape, ModelKind, RetentionModel, THETA_R, THETA_S, alpha_spec, clamp_all, end_guesses,
+    n_spec,
+};
+
+/// `theta_r, theta_s, alpha_per_cm, n`.
+pub(crate) const PARAMS: [ParamSpec; 4] =
+    [THETA_R, THETA_S, alpha_spec("alpha_per_cm"), n_spec("n")];
+
+/// m = 1 - 1/n.
+#[inline]
+pub(crate) fn mualem_m(n: f64) -> f64 {
+    1.0 - 1.0 / n
+}
+
+/// The van Genuchten model with m = 1 - 1/n (the usual four-parameter retention curve).
+#[derive(Debug, Clone, Copy, Default)]
+pub struct VanGenuchten;
+
+impl CurveModel for VanGenuchten {
+    fn params(&self) -> &[ParamSpec] {
+        &PARAMS
+    }
+
+    fn value(&self, h: f64, p: &[f64]) -> f64 {
+        p[0] + (p[1] - p[0]) * term_se(h, p[2], p[3], mualem_m(p[3]))
+    }
+
+    fn value_and_gradient(&self, h: f64, p: &[f64], grad: &mut [f64]) -> f64 {
+        let (theta_r, theta_s, alpha, n) = (p[0], p[1], p[2], p[3]);
+        let m = mualem_m(n);
+        let d = theta_s - theta_r;
+        let Some(t) = VgTerm::at(h, alpha, n, m) else {
+            grad[..4].copy_from_slice(&[0.0, 1.0, 0.0, 0.0]);
+            return theta_s;
+        };
+        grad[0] = 1.0 - t.se;
+        grad[1] = t.se;
+        grad[2] = d * t.d_alpha(alpha, n, m);
+        // dm/dn = 1/n^2.
+        grad[3] = d * (t.d_n(m) + t.d_m() / (n * n));
+        theta_r + d * t.se
+    }
+
+    /// theta_s just above the wettest reading and theta_r half the driest; alpha and n put the
+    /// curve's halfway point where the data cross the middle of their range, with the data's
+    /// slope there. Then theta_r = 0 with the same bend, and a steeper curve bending later.
+    fn initial_guesses(&self, x: &[f64], y: &[f64]) -> Vec<Vec<f64>> {
+        let Some(shape) = DataShape::of(x, y) else {
+            return vec![vec![0.05, 0.4, 0.02, 1.5]];
+        };
+        let (theta_r, theta_s) = end_guesses(&shape, 0.5);
+        let (alpha, n) = alpha_n_through_half(&shape, mualem_m);
+        let mut guesses = vec![
+            vec![theta_r, theta_s, alpha, n],
+            vec![0.0, theta_s, alpha, n],
+            vec![
+                (shape.theta_min * 0.9).max(0.0),
+                theta_s,
+                alpha * 0.5,
+                1.0 + 2.0 * (n - 1.0),
+            ],
+        ];
+        for g in &mut guesses {
+            clamp_all(&PARAMS, g);
+        }
+        guesses
+    }
+}
+
+impl RetentionModel for VanGenuchten {
+    fn kind(&self) -> ModelKind {
+        ModelKind::VanGenuchten
+    }
+
+    fn theta_r(&self, p: &[f64]) -> f64 {
+        p[0]
+    }
+
+    fn theta_s(&self, p: &[f64]) -> f64 {
+        p[1]
+    }
+
+    fn capacity(&self, h: f64, p: &[f64]) -> Option<f64> {
+        term_neg_d_h(h, p[2], p[3], mualem_m(p[3])).map(|c| (p[1] - p[0]) * c)
+    }
+
+    fn suction_at(&self, theta: f64, p: &[f64]) -> Option<f64> {
+        term_suction_at((theta - p[0]) / (p[1] - p[0]), p[2], p[3], mualem_m(p[3]))
+    }
+}
+
+#[cfg(test)]
+#[allow(clippy::float_cmp, clippy::unreadable_literal)]
+mod tests {
+    use super::*;
+
+    /// Carsel & Parrish (1988) loam parameters (from memory, high, per soil-reference.md);
+    /// theta at 100 cm from soil-reference.md table T1 (computed independently).
+    #[test]
+    fn loam_matches_the_reference_table() {
+        let p = [0.078, 0.43, 0.036, 1.56];
+        let theta = VanGenuchten.value(100.0, &p);
+        assert!((theta / 0.2421317847 - 1.0).abs() < 1e-9, "{theta}");
+        assert_eq!(VanGenuchten.value(0.0, &p), 0.43);
+    }
+
+    #[test]
+    fn gradient_at_zero_suction_is_finite() {
+        let mut g = [f64::NAN; 4];
+        let theta = VanGenuchten.value_and_gradient(0.0, &[0.05, 0.4, 0.02, 1.5], &mut g);
+        assert_eq!(theta, 0.4);
+        assert_eq!(g, [0.0, 1.0, 0.0, 0.0]);
+    }
+
+    #[test]
+    fn guesses_are_within_bounds() {
+        let h = [0.0, 10.0, 30.0, 100.0, 330.0, 1000.0, 15000.0];
+        let p = [0.078, 0.43, 0.036, 1.56];
+        let t: Vec<f64> = h.iter().map(|&h| VanGenuchten.value(h, &p)).collect();
+        let guesses = VanGenuchten.initial_guesses(&h, &t);
+        assert!(guesses.len() >= 2);
+        for g in &guesses {
+            for (spec, v) in PARAMS.iter().zip(g) {
+                assert!(*v >= spec.lower && *v <= spec.upper, "{spec:?} {v}");
+            }
+        }
+        let first = &guesses[0];
+        assert!((first[2] / 0.036).ln().abs() < 1.0, "alpha guess {first:?}");
+        assert!((first[3] - 1.56).abs() < 0.5, "n guess {first:?}");
+    }
+}
