@@ -7,6 +7,7 @@
 mod config;
 mod driver;
 mod error;
+mod models;
 mod problem;
 mod report;
 mod stats;
@@ -15,6 +16,7 @@ mod transform;
 pub use config::{Domain, FitOptions};
 pub use driver::{Readings, fit_curve};
 pub use error::FitError;
+pub use models::{AutoFit, RankedFit, SkippedModel, breakpoint_of, fit_auto, fit_model};
 pub use report::{FitReport, ParamEstimate, ParamMatrix, ReadingFit, Side, Termination};
 
 #[cfg(test)]

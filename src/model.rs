@@ -3,4 +3,5 @@
 //! Nothing here touches files, SQLite or the terminal.
 
 pub mod curve;
+pub mod retention;
 pub mod units;

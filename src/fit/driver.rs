@@ -445,6 +445,18 @@ pub fn fit_curve(
     readings: &Readings<'_>,
     options: &FitOptions,
 ) -> Result<FitReport, FitError> {
+    fit_curve_canonical(model, id, readings, options, None)
+}
+
+/// [`fit_curve`] with a map of equivalent parameter sets onto one canonical form, applied to
+/// the kept solution (when nothing is fixed or on a bound) before the statistics.
+pub(crate) fn fit_curve_canonical(
+    model: &dyn CurveModel,
+    id: &str,
+    readings: &Readings<'_>,
+    options: &FitOptions,
+    canonicalize: Option<fn(&mut [f64])>,
+) -> Result<FitReport, FitError> {
     validate(readings, options.domain)?;
     let setup = setup(model, id, options)?;
     let free = setup.fixed.iter().filter(|f| f.is_none()).count();
@@ -512,6 +524,12 @@ pub fn fit_curve(
         return Err(FitError::NoFiniteFit {
             reason: best.termination.to_string(),
         });
+    }
+    if let Some(canon) = canonicalize
+        && setup.fixed.iter().all(Option::is_none)
+        && best.pinned.iter().all(Option::is_none)
+    {
+        canon(&mut best.p);
     }
     Ok(build_report(&ctx, id, &setup, &best, sst))
 }
