@@ -4,6 +4,7 @@
 //! validated batch and writes it in one transaction.
 
 pub mod diagnostic;
+pub mod pairs;
 pub mod table;
 
 pub use diagnostic::{Diagnostic, Diagnostics};
