@@ -100,9 +100,14 @@ impl CurveModel for FromStart {
 
 /// Best SSE over `restarts` random starts (log-uniform alpha, uniform elsewhere).
 fn best_of_restarts(s: &Sample, seed: u64, restarts: usize) -> f64 {
+    best_fit_of_restarts(s, seed, restarts).0
+}
+
+/// Best SSE and parameters over `restarts` random starts.
+fn best_fit_of_restarts(s: &Sample, seed: u64, restarts: usize) -> (f64, Vec<f64>) {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let opts = FitOptions::new().with_max_extra_starts(0);
-    let mut best = f64::INFINITY;
+    let mut best = (f64::INFINITY, Vec::new());
     for _ in 0..restarts {
         let start = vec![
             rng.random_range(0.0..0.25),
@@ -111,7 +116,9 @@ fn best_of_restarts(s: &Sample, seed: u64, restarts: usize) -> f64 {
             rng.random_range(1.05..4.0),
         ];
         if let Ok(r) = fit_curve(&FromStart(start), "vg", &Readings::new(&s.h, &s.theta), &opts) {
-            best = best.min(r.sse);
+            if r.sse < best.0 {
+                best = (r.sse, r.values());
+            }
         }
     }
     best
@@ -127,6 +134,13 @@ fn env_usize(name: &str, default: usize) -> usize {
 fn main() {
     let count = env_usize("POREWISE_BENCH_SAMPLES", 10_000);
     let samples = generate(count);
+    if let Ok(i) = std::env::var("POREWISE_TRACE") {
+        let s = &samples[i.parse::<usize>().expect("index")];
+        let r = fit_model(ModelKind::VanGenuchten, &Readings::new(&s.h, &s.theta), &FitOptions::new());
+        println!("{:?}\n{:?}\n{:?}", s.h, s.theta, r.map(|r| (r.sse, r.values(), r.runs, r.evaluations)));
+        println!("best of restarts: {:?}", best_fit_of_restarts(s, 1, 40));
+        return;
+    }
     let csv_path = std::env::temp_dir().join("porewise-bench-vg-samples.csv");
     {
         let mut f = std::io::BufWriter::new(std::fs::File::create(&csv_path).expect("csv"));
@@ -137,7 +151,17 @@ fn main() {
             }
         }
     }
-    let opts = FitOptions::new();
+    let env_f64 = |name: &str| std::env::var(name).ok().and_then(|v| v.parse::<f64>().ok());
+    let mut opts = FitOptions::new();
+    if let Some(t) = env_f64("POREWISE_BENCH_TOL") {
+        opts = opts.with_tolerance(t);
+    }
+    if let Some(s) = env_f64("POREWISE_BENCH_STEP") {
+        opts = opts.with_step_bound(s);
+    }
+    if let Some(p) = env_f64("POREWISE_BENCH_PATIENCE") {
+        opts = opts.with_patience(p as usize);
+    }
     let fit = |s: &Sample| fit_model(ModelKind::VanGenuchten, &Readings::new(&s.h, &s.theta), &opts);
 
     // Warm up, then one core.

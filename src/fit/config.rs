@@ -25,6 +25,7 @@ pub struct FitOptions {
     pub(crate) tolerance: f64,
     pub(crate) patience: usize,
     pub(crate) max_extra_starts: usize,
+    pub(crate) step_bound: f64,
 }
 
 impl Default for FitOptions {
@@ -38,6 +39,7 @@ impl Default for FitOptions {
             tolerance: 1e-11,
             patience: 100,
             max_extra_starts: 6,
+            step_bound: 100.0,
         }
     }
 }
@@ -113,6 +115,15 @@ impl FitOptions {
     #[must_use]
     pub fn with_max_extra_starts(mut self, starts: usize) -> Self {
         self.max_extra_starts = starts;
+        self
+    }
+
+    /// Factor for the solver's first trust-region radius (MINPACK's `factor`, default 100).
+    #[must_use]
+    pub fn with_step_bound(mut self, step_bound: f64) -> Self {
+        if step_bound.is_finite() && step_bound > 0.0 {
+            self.step_bound = step_bound;
+        }
         self
     }
 

@@ -22,7 +22,9 @@ const DOUBTFUL_R2: f64 = 0.9;
 /// Relative SSE gain needed for a refit held on a bound (or released from it) to be kept.
 const SSE_TIE: f64 = 1e-12;
 /// Extra starts for a result that is fine except for a parameter on a bound.
-const MILD_EXTRA_STARTS: usize = 1;
+const MILD_EXTRA_STARTS: usize = 0;
+/// Extra starts for a converged fit with a low R2.
+const POOR_EXTRA_STARTS: usize = 2;
 
 /// The readings of one fit: x (suction, cm), y (water content) and optional weights.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -311,6 +313,7 @@ impl Context<'_> {
             .with_xtol(tol)
             .with_gtol(tol)
             .with_patience(self.options.patience)
+            .with_stepbound(self.options.step_bound)
             .minimize(problem);
         self.evaluations += report.number_of_evaluations;
         let p = problem.physical(problem.q());
@@ -322,7 +325,14 @@ impl Context<'_> {
             (_, Some(_)) => Termination::Converged,
             (reason, None) => termination_of(reason),
         };
-        let sse = self.sse(&p);
+        // The solver's objective is half the SSE at the point it holds (the last accepted one);
+        // recompute only when that point was a NaN stand-in or the solver stopped at once.
+        let half = report.objective_function;
+        let sse = if half.is_finite() && half < 1e290 && report.number_of_evaluations > 1 {
+            2.0 * half
+        } else {
+            self.sse(&p)
+        };
         Run {
             p,
             sse,
@@ -356,19 +366,27 @@ impl Context<'_> {
             termination: run.termination,
             pinned,
         };
-        // Release a held parameter whose gradient points into the interval (KKT test).
-        let wrong_side: Vec<usize> = (0..n)
-            .filter(|&k| match best.pinned[k] {
-                Some(Side::Lower) => self.sse_gradient(&best.p, k) < 0.0,
-                Some(Side::Upper) => self.sse_gradient(&best.p, k) > 0.0,
-                None => false,
-            })
-            .collect();
-        if !wrong_side.is_empty() {
-            let mut hold = hold.clone();
+        // Release held parameters whose gradient points into the interval (KKT test), and
+        // repeat while the released fit is better and leaves others on the wrong side.
+        for _ in 0..n {
+            let wrong_side: Vec<usize> = (0..n)
+                .filter(|&k| match best.pinned[k] {
+                    Some(Side::Lower) => self.sse_gradient(&best.p, k) < 0.0,
+                    Some(Side::Upper) => self.sse_gradient(&best.p, k) > 0.0,
+                    None => false,
+                })
+                .collect();
+            if wrong_side.is_empty() {
+                break;
+            }
+            let mut hold = fixed.to_vec();
             let mut from = best.p.clone();
+            for k in 0..n {
+                if best.pinned[k].is_some() && !wrong_side.contains(&k) {
+                    hold[k] = Some(best.p[k]);
+                }
+            }
             for &k in &wrong_side {
-                hold[k] = None;
                 let inside = 1e-3 * (hi[k] - lo[k]).min(1.0);
                 from[k] = match best.pinned[k] {
                     Some(Side::Lower) => lo[k] + inside,
@@ -376,32 +394,33 @@ impl Context<'_> {
                 };
             }
             let released = self.run(&from, &hold, lo, hi, false);
-            if released.sse < best.sse * (1.0 - SSE_TIE) {
-                let mut pinned = best.pinned.clone();
-                for &k in &wrong_side {
-                    pinned[k] = None;
-                }
-                best = Candidate {
-                    p: released.p,
-                    sse: released.sse,
-                    termination: released.termination,
-                    pinned,
-                };
+            if released.sse >= best.sse * (1.0 - SSE_TIE) {
+                break;
             }
+            let mut pinned = best.pinned.clone();
+            for &k in &wrong_side {
+                pinned[k] = None;
+            }
+            best = Candidate {
+                p: released.p,
+                sse: released.sse,
+                termination: released.termination,
+                pinned,
+            };
         }
         best
     }
 }
 
-/// Keep the better of two candidates (an optimum beats a non-optimum, then lower SSE).
+/// Keep the better of two candidates: the lower SSE; within a tie, an optimum.
 fn better(a: Candidate, b: Candidate) -> Candidate {
-    let rank = |c: &Candidate| (!c.termination.is_optimum(), c.sse);
-    let (ra, rb) = (rank(&a), rank(&b));
-    if rb.0 < ra.0 || (rb.0 == ra.0 && rb.1 < ra.1) {
-        b
+    let tie = (a.sse - b.sse).abs() <= SSE_TIE * a.sse.abs().max(b.sse.abs());
+    let prefer_b = if tie {
+        b.termination.is_optimum() && !a.termination.is_optimum()
     } else {
-        a
-    }
+        b.sse < a.sse || a.sse.is_nan()
+    };
+    if prefer_b { b } else { a }
 }
 
 /// Starting points beyond the model's own: the best so far, shifted in the solver's space.
@@ -491,23 +510,29 @@ pub(crate) fn fit_curve_canonical(
         guesses.push(default_start(&setup));
     }
     let mut best = solve_start(&mut ctx, &setup, &guesses[0]);
-    let severe = |c: &Candidate| {
-        !c.termination.is_optimum()
-            || !c.sse.is_finite()
-            || (sst > 0.0 && 1.0 - c.sse / sst < DOUBTFUL_R2)
-    };
+    let failed = |c: &Candidate| !c.termination.is_optimum() || !c.sse.is_finite();
+    let poor = |c: &Candidate| sst > 0.0 && 1.0 - c.sse / sst < DOUBTFUL_R2;
     let on_bound = |c: &Candidate| c.pinned.iter().any(Option::is_some);
-    // A result on a bound gets a second opinion; a failed one gets the full budget.
-    let budget = if severe(&best) {
+    // A failed run gets the full budget of extra starts; a poor fit (low R2, often just flat
+    // noisy data) or one on a bound gets a second (and third) opinion.
+    let budget = if failed(&best) {
         options.max_extra_starts
+    } else if poor(&best) {
+        options.max_extra_starts.min(POOR_EXTRA_STARTS)
     } else if on_bound(&best) {
         options.max_extra_starts.min(MILD_EXTRA_STARTS)
     } else {
         0
     };
     let mut perturbation = 0;
+    let mut continued = false;
     for extra in 0..budget {
-        let start = match guesses.get(extra + 1) {
+        // A run that stopped short (evaluation budget) first goes on from where it stopped.
+        let start = match guesses.get(extra + 1 - usize::from(continued)) {
+            _ if !continued && failed(&best) && best.sse.is_finite() => {
+                continued = true;
+                best.p.clone()
+            }
             Some(g) => g.clone(),
             None => {
                 perturbation += 1;
@@ -516,7 +541,7 @@ pub(crate) fn fit_curve_canonical(
         };
         let c = solve_start(&mut ctx, &setup, &start);
         best = better(best, c);
-        if extra + 1 >= MILD_EXTRA_STARTS && !severe(&best) {
+        if extra + 1 >= MILD_EXTRA_STARTS && !failed(&best) && !poor(&best) {
             break;
         }
     }

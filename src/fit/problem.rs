@@ -10,7 +10,7 @@ use std::cell::{Cell, RefCell};
 use levenberg_marquardt::LeastSquaresProblem;
 use nalgebra::{DMatrix, DVector, Dyn, Owned};
 
-use super::transform::{Saturation, Transform};
+use super::transform::{Saturation, Side, Transform};
 use crate::model::curve::CurveModel;
 
 /// Readings of one fit, already validated.
@@ -33,11 +33,16 @@ pub(crate) struct Problem<'a> {
     full: RefCell<Vec<f64>>,
     grad: RefCell<Vec<f64>>,
     q: DVector<f64>,
-    /// Jacobian at `cached_q`, computed along with the residuals.
-    jacobian: RefCell<Option<(DVector<f64>, DMatrix<f64>)>>,
+    /// The Jacobian computed along with the last residuals, tagged with the parameter
+    /// generation it belongs to.
+    jacobian: RefCell<Option<(u64, DMatrix<f64>)>>,
+    /// Bumped by every `set_params`.
+    generation: u64,
     /// Abort at an accepted step where a free parameter saturates (active set).
     watch_saturation: bool,
     saturated: Cell<Option<(usize, Saturation)>>,
+    /// q at the previous accepted point, to tell a parameter heading for a bound.
+    previous: RefCell<Option<DVector<f64>>>,
 }
 
 impl<'a> Problem<'a> {
@@ -60,8 +65,10 @@ impl<'a> Problem<'a> {
             grad: RefCell::new(vec![0.0; n]),
             q,
             jacobian: RefCell::new(None),
+            generation: 0,
             watch_saturation,
             saturated: Cell::new(None),
+            previous: RefCell::new(None),
         }
     }
 
@@ -134,6 +141,7 @@ impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_> {
 
     fn set_params(&mut self, q: &DVector<f64>) {
         self.q.copy_from(q);
+        self.generation += 1;
     }
 
     fn params(&self) -> DVector<f64> {
@@ -143,7 +151,7 @@ impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_> {
     fn residuals(&self) -> Option<DVector<f64>> {
         match self.evaluate(&self.q) {
             Some((r, jac)) => {
-                *self.jacobian.borrow_mut() = Some((self.q.clone(), jac));
+                *self.jacobian.borrow_mut() = Some((self.generation, jac));
                 Some(r)
             }
             None => {
@@ -157,9 +165,23 @@ impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_> {
 
     fn jacobian(&self) -> Option<DMatrix<f64>> {
         // The solver asks for the Jacobian only at accepted points: check saturation here.
+        // A parameter close to a finite bound and still moving towards it is stopped there too
+        // (the driver holds it on the bound and releases it if the gradient says so).
         if self.watch_saturation {
+            let previous = self.previous.borrow_mut().replace(self.q.clone());
             for (j, (t, &qj)) in self.transforms.iter().zip(self.q.iter()).enumerate() {
-                if let Some(s) = t.saturation(qj) {
+                let heading = |side: Side| {
+                    previous.as_ref().is_some_and(|prev| match side {
+                        Side::Lower => qj < prev[j],
+                        Side::Upper => qj > prev[j],
+                    })
+                };
+                let hit = t.saturation(qj).or_else(|| {
+                    t.near_bound(qj)
+                        .filter(|&side| heading(side))
+                        .map(Saturation::Pinned)
+                });
+                if let Some(s) = hit {
                     self.saturated.set(Some((j, s)));
                     return None;
                 }
@@ -167,7 +189,7 @@ impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_> {
         }
         let cached = self.jacobian.borrow_mut().take();
         match cached {
-            Some((q, jac)) if q == self.q => Some(jac),
+            Some((generation, jac)) if generation == self.generation => Some(jac),
             _ => self.evaluate(&self.q).map(|(_, jac)| jac),
         }
     }

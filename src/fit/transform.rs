@@ -4,14 +4,14 @@
 //! an unbounded q: a logistic map onto a finite interval, an exponential for a half-open one,
 //! the identity when the parameter has no bounds at all.
 
-/// |q| beyond which a logistic parameter counts as pinned to its bound (logistic(18) = 1 - 1.5e-8).
-pub(crate) const LOGISTIC_SATURATION: f64 = 18.0;
-/// q below which an exponential parameter counts as pinned to its finite bound (e^-30 = 9e-14 scale).
-pub(crate) const EXP_PINNED: f64 = -30.0;
+/// |q| beyond which a logistic parameter counts as pinned to its bound (logistic(12) = 1 - 6e-6).
+pub(crate) const LOGISTIC_SATURATION: f64 = 12.0;
+/// q below which an exponential parameter counts as pinned to its finite bound (e^-20 = 2e-9).
+pub(crate) const EXP_PINNED: f64 = -20.0;
 /// q above which an exponential parameter counts as running off to infinity (e^40 = 2e17).
 pub(crate) const EXP_RUNAWAY: f64 = 40.0;
 /// Starting points are kept this fraction of the interval inside a finite bound.
-const START_MARGIN: f64 = 1e-6;
+const START_MARGIN: f64 = 1e-4;
 
 /// Which end of its interval a parameter sits on.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
@@ -129,6 +129,32 @@ impl Transform {
                     None
                 }
             }
+        }
+    }
+}
+
+/// Fraction of a parameter's scale within which it counts as near its bound.
+const NEAR_BOUND: f64 = 1e-2;
+
+impl Transform {
+    /// The bound a finite-interval parameter at q is close to, if any.
+    ///
+    /// Close means within 1 % of the interval's width for a bound at 0, and within 1 % of
+    /// min(width, |bound|) otherwise, so a parameter spanning decades (alpha in [1e-5, 10]
+    /// 1/cm) is near its lower bound only below 1.01e-5, and n in [1.001, 15] below 1.011.
+    pub(crate) fn near_bound(self, q: f64) -> Option<Side> {
+        let Transform::Logistic { lo, hi } = self else {
+            return None;
+        };
+        let width = hi - lo;
+        let scale = |b: f64| if b == 0.0 { width } else { width.min(b.abs()) };
+        let p = self.forward(q).0;
+        if p - lo <= NEAR_BOUND * scale(lo) {
+            Some(Side::Lower)
+        } else if hi - p <= NEAR_BOUND * scale(hi) {
+            Some(Side::Upper)
+        } else {
+            None
         }
     }
 }
