@@ -91,7 +91,9 @@ impl CurveModel for FromStart {
         ModelKind::VanGenuchten.curve().value(x, p)
     }
     fn value_and_gradient(&self, x: f64, p: &[f64], grad: &mut [f64]) -> f64 {
-        ModelKind::VanGenuchten.curve().value_and_gradient(x, p, grad)
+        ModelKind::VanGenuchten
+            .curve()
+            .value_and_gradient(x, p, grad)
     }
     fn initial_guesses(&self, _: &[f64], _: &[f64]) -> Vec<Vec<f64>> {
         vec![self.0.clone()]
@@ -115,10 +117,16 @@ fn best_fit_of_restarts(s: &Sample, seed: u64, restarts: usize) -> (f64, Vec<f64
             10f64.powf(rng.random_range(-3.5..0.0)),
             rng.random_range(1.05..4.0),
         ];
-        if let Ok(r) = fit_curve(&FromStart(start), "vg", &Readings::new(&s.h, &s.theta), &opts) {
-            if r.sse < best.0 {
-                best = (r.sse, r.values());
-            }
+        let fit = fit_curve(
+            &FromStart(start),
+            "vg",
+            &Readings::new(&s.h, &s.theta),
+            &opts,
+        );
+        if let Ok(r) = fit
+            && r.sse < best.0
+        {
+            best = (r.sse, r.values());
         }
     }
     best
@@ -136,8 +144,17 @@ fn main() {
     let samples = generate(count);
     if let Ok(i) = std::env::var("POREWISE_TRACE") {
         let s = &samples[i.parse::<usize>().expect("index")];
-        let r = fit_model(ModelKind::VanGenuchten, &Readings::new(&s.h, &s.theta), &FitOptions::new());
-        println!("{:?}\n{:?}\n{:?}", s.h, s.theta, r.map(|r| (r.sse, r.values(), r.runs, r.evaluations)));
+        let r = fit_model(
+            ModelKind::VanGenuchten,
+            &Readings::new(&s.h, &s.theta),
+            &FitOptions::new(),
+        );
+        println!(
+            "{:?}\n{:?}\n{:?}",
+            s.h,
+            s.theta,
+            r.map(|r| (r.sse, r.values(), r.runs, r.evaluations))
+        );
         println!("best of restarts: {:?}", best_fit_of_restarts(s, 1, 40));
         return;
     }
@@ -162,7 +179,13 @@ fn main() {
     if let Some(p) = env_f64("POREWISE_BENCH_PATIENCE") {
         opts = opts.with_patience(p as usize);
     }
-    let fit = |s: &Sample| fit_model(ModelKind::VanGenuchten, &Readings::new(&s.h, &s.theta), &opts);
+    let fit = |s: &Sample| {
+        fit_model(
+            ModelKind::VanGenuchten,
+            &Readings::new(&s.h, &s.theta),
+            &opts,
+        )
+    };
 
     // Warm up, then one core.
     for s in samples.iter().take(200) {
@@ -189,7 +212,10 @@ fn main() {
             Err(_) => failed += 1,
         }
     }
-    println!("samples: {count} (6-14 readings, noise sd 0.005-0.01), CSV: {}", csv_path.display());
+    println!(
+        "samples: {count} (6-14 readings, noise sd 0.005-0.01), CSV: {}",
+        csv_path.display()
+    );
     println!(
         "one core:  {:.0} fits/s, {per_fit_us:.2} us/fit (mean {:.2} solver runs, {:.1} evaluations per fit)",
         count as f64 / one_core,
@@ -268,14 +294,16 @@ fn main() {
             Err(e) => println!("baseline could not run: {e}"),
         }
     } else {
-        println!("baseline: set POREWISE_BASELINE=path/to/vg_baseline.py to time it on the same CSV");
+        println!(
+            "baseline: set POREWISE_BASELINE=path/to/vg_baseline.py to time it on the same CSV"
+        );
     }
 }
 
 /// Where the work goes: solver runs and evaluations by kind of result (printed with --breakdown).
-#[allow(dead_code)]
 fn breakdown(reports: &[Result<porewise::fit::FitReport, porewise::fit::FitError>]) {
-    let mut groups: std::collections::BTreeMap<String, (usize, usize, usize)> = Default::default();
+    let mut groups: std::collections::BTreeMap<String, (usize, usize, usize)> =
+        std::collections::BTreeMap::new();
     for r in reports.iter().flatten() {
         let key = format!(
             "runs={} bound={}",
@@ -288,6 +316,9 @@ fn breakdown(reports: &[Result<porewise::fit::FitReport, porewise::fit::FitError
         e.2 += r.runs;
     }
     for (k, (n, ev, _)) in groups {
-        println!("  {k}: {n} fits, {:.1} evaluations each", ev as f64 / n as f64);
+        println!(
+            "  {k}: {n} fits, {:.1} evaluations each",
+            ev as f64 / n as f64
+        );
     }
 }

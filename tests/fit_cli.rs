@@ -30,7 +30,11 @@ fn every_sample_fitted_exits_0_with_the_design_columns() {
     );
     let rows: Vec<&str> = lines.collect();
     assert_eq!(rows.len(), 2);
-    assert!(rows[0].starts_with("core-01,van-genuchten,0.0"), "{}", rows[0]);
+    assert!(
+        rows[0].starts_with("core-01,van-genuchten,0.0"),
+        "{}",
+        rows[0]
+    );
     assert!(rows.iter().all(|r| r.contains(",9,true,")), "{rows:?}");
     assert!(!text.contains("NaN"));
 }
@@ -42,7 +46,9 @@ fn a_sample_that_cannot_be_fitted_exits_3_and_is_named() {
         .assert()
         .code(3)
         .stdout(predicate::str::contains("short,van-genuchten,,"))
-        .stderr(predicate::str::contains("sample short: not fitted: 3 readings"));
+        .stderr(predicate::str::contains(
+            "sample short: not fitted: 3 readings",
+        ));
 }
 
 #[test]
@@ -78,7 +84,13 @@ fn json_output_file_parses_and_fixed_values_hold() {
     let dir = tempfile::tempdir().expect("tempdir");
     let out = dir.path().join("fits.json");
     porewise()
-        .args(["fit", "--input", &data("valid/pairs_semicolon_kpa_pct.csv"), "--fix", "theta_r=0"])
+        .args([
+            "fit",
+            "--input",
+            &data("valid/pairs_semicolon_kpa_pct.csv"),
+            "--fix",
+            "theta_r=0",
+        ])
         .arg("--output")
         .arg(&out)
         .assert()
@@ -90,7 +102,11 @@ fn json_output_file_parses_and_fixed_values_hold() {
     assert_eq!(row["sample"], "core-03");
     assert_eq!(row["parameters"]["theta_r"]["value"], 0.0);
     assert!(row["parameters"]["theta_r"]["se"].is_null());
-    assert!(row["parameters"]["n"]["se"].as_f64().is_some_and(|s| s > 0.0));
+    assert!(
+        row["parameters"]["n"]["se"]
+            .as_f64()
+            .is_some_and(|s| s > 0.0)
+    );
     assert_eq!(row["converged"], true);
     // Nothing else (no temporary file) is left in the directory.
     assert_eq!(std::fs::read_dir(dir.path()).expect("dir").count(), 1);
@@ -99,7 +115,13 @@ fn json_output_file_parses_and_fixed_values_hold() {
 #[test]
 fn auto_ranks_models_in_a_last_column() {
     porewise()
-        .args(["fit", "--input", &data("valid/pairs_two_samples.csv"), "--model", "auto"])
+        .args([
+            "fit",
+            "--input",
+            &data("valid/pairs_two_samples.csv"),
+            "--model",
+            "auto",
+        ])
         .assert()
         .code(0)
         .stdout(predicate::str::contains(",message,ranking"))

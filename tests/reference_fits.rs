@@ -25,7 +25,11 @@ macro_rules! assert_rel {
 
 /// Relative error of got against want.
 fn rel_err(got: f64, want: f64) -> f64 {
-    if want == 0.0 { got.abs() } else { ((got - want) / want).abs() }
+    if want == 0.0 {
+        got.abs()
+    } else {
+        ((got - want) / want).abs()
+    }
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -126,13 +130,19 @@ impl Div for D {
 impl Add<f64> for D {
     type Output = D;
     fn add(self, o: f64) -> D {
-        D { v: self.v + o, g: self.g }
+        D {
+            v: self.v + o,
+            g: self.g,
+        }
     }
 }
 impl Sub<f64> for D {
     type Output = D;
     fn sub(self, o: f64) -> D {
-        D { v: self.v - o, g: self.g }
+        D {
+            v: self.v - o,
+            g: self.g,
+        }
     }
 }
 impl Mul<f64> for D {
@@ -183,9 +193,9 @@ fn nist_function(name: &str) -> NistFn {
         },
         "DanWood" => |x, _, b, _| b[0] * D::c(x).pow(b[1]),
         "Misra1b" => |x, _, b, _| b[0] * (1.0 - (1.0 + b[1] * x * 0.5).powf(-2.0)),
-        "Kirby2" => |x, _, b, _| {
-            (b[0] + b[1] * x + b[2] * (x * x)) / (1.0 + b[3] * x + b[4] * (x * x))
-        },
+        "Kirby2" => {
+            |x, _, b, _| (b[0] + b[1] * x + b[2] * (x * x)) / (1.0 + b[3] * x + b[4] * (x * x))
+        }
         "Hahn1" | "Thurber" => |x, _, b, _| {
             (b[0] + b[1] * x + b[2] * (x * x) + b[3] * (x * x * x))
                 / (1.0 + b[4] * x + b[5] * (x * x) + b[6] * (x * x * x))
@@ -248,7 +258,10 @@ fn line_range(text: &str, label: &str) -> (usize, usize) {
 }
 
 fn parse_nist(name: &str) -> Nist {
-    let path = format!("{}/tests/data/nist-strd/{name}.dat", env!("CARGO_MANIFEST_DIR"));
+    let path = format!(
+        "{}/tests/data/nist-strd/{name}.dat",
+        env!("CARGO_MANIFEST_DIR")
+    );
     let text = std::fs::read_to_string(&path).expect("NIST file");
     let lines: Vec<&str> = text.lines().collect();
     let (s0, s1) = line_range(&text, "Starting Values");
@@ -257,7 +270,10 @@ fn parse_nist(name: &str) -> Nist {
     let mut certified_sd = Vec::new();
     for l in &lines[s0 - 1..s1] {
         let after = l.split('=').nth(1).expect("b = ...");
-        let v: Vec<f64> = after.split_whitespace().map(|t| t.parse().expect("number")).collect();
+        let v: Vec<f64> = after
+            .split_whitespace()
+            .map(|t| t.parse().expect("number"))
+            .collect();
         starts[0].push(v[0]);
         starts[1].push(v[1]);
         certified.push(v[2]);
@@ -279,7 +295,10 @@ fn parse_nist(name: &str) -> Nist {
     let mut x = Vec::new();
     let mut extra = vec![Vec::new(), Vec::new()];
     for l in &lines[d0 - 1..d1] {
-        let v: Vec<f64> = l.split_whitespace().map(|t| t.parse().expect("number")).collect();
+        let v: Vec<f64> = l
+            .split_whitespace()
+            .map(|t| t.parse().expect("number"))
+            .collect();
         if name == "Nelson" {
             y.push(v[0].ln());
             x.push(x.len() as f64);
@@ -406,7 +425,15 @@ fn nist_strd_certified_values() {
                 r.runs,
                 r.evaluations
             );
-            results.push((p.difficulty.clone(), name, start, r, p.certified.clone(), p.certified_sd.clone(), p.rss));
+            results.push((
+                p.difficulty.clone(),
+                name,
+                start,
+                r,
+                p.certified.clone(),
+                p.certified_sd.clone(),
+                p.rss,
+            ));
         }
     }
     for (difficulty, name, start, r, certified, certified_sd, rss) in &results {
@@ -420,7 +447,13 @@ fn nist_strd_certified_values() {
             // Lanczos1's certified RSS (1.4e-25) is below what double precision reproduces,
             // and its standard deviations scale with it: parameters only.
             if *name != "Lanczos1" {
-                assert_rel!(e.se.unwrap_or(f64::NAN), want_sd, 1e-6, "{ctx} sd of {}", e.name);
+                assert_rel!(
+                    e.se.unwrap_or(f64::NAN),
+                    want_sd,
+                    1e-6,
+                    "{ctx} sd of {}",
+                    e.name
+                );
             }
         }
         if *name != "Lanczos1" {
@@ -457,7 +490,10 @@ fn carsel_parrish_classes_are_recovered_from_noise_free_points() {
     use porewise::model::retention::ModelKind;
     let vg = ModelKind::VanGenuchten.curve();
     for (class, truth) in CARSEL_PARRISH {
-        let y: Vec<f64> = LAB_SUCTIONS_CM.iter().map(|&h| vg.value(h, &truth)).collect();
+        let y: Vec<f64> = LAB_SUCTIONS_CM
+            .iter()
+            .map(|&h| vg.value(h, &truth))
+            .collect();
         let r = fit_model(
             ModelKind::VanGenuchten,
             &Readings::new(&LAB_SUCTIONS_CM, &y),
@@ -469,7 +505,11 @@ fn carsel_parrish_classes_are_recovered_from_noise_free_points() {
             r.runs,
             r.evaluations,
             r.sse,
-            r.values().iter().zip(truth).map(|(&g, w)| rel_err(g, w)).fold(0.0, f64::max)
+            r.values()
+                .iter()
+                .zip(truth)
+                .map(|(&g, w)| rel_err(g, w))
+                .fold(0.0, f64::max)
         );
         assert!(r.converged, "{class}: {:?}", r.message);
         for (e, want) in r.parameters.iter().zip(truth) {
@@ -494,14 +534,30 @@ fn standard_errors_match_an_independent_computation() {
     }
     let json = std::fs::read_to_string(format!("{dir}/se_check.json")).expect("expected values");
     let want: serde_json::Value = serde_json::from_str(&json).expect("json");
-    let r = fit_model(ModelKind::VanGenuchten, &Readings::new(&h, &theta), &FitOptions::new())
-        .expect("fit");
+    let r = fit_model(
+        ModelKind::VanGenuchten,
+        &Readings::new(&h, &theta),
+        &FitOptions::new(),
+    )
+    .expect("fit");
     assert!(r.converged);
     assert_rel!(r.sse, want["sse"].as_f64().expect("sse"), 1e-8, "SSE");
     for (k, e) in r.parameters.iter().enumerate() {
         assert_eq!(e.name, want["names"][k].as_str().expect("name"));
-        assert_rel!(e.value, want["values"][k].as_f64().expect("value"), 1e-6, "{}", e.name);
+        assert_rel!(
+            e.value,
+            want["values"][k].as_f64().expect("value"),
+            1e-6,
+            "{}",
+            e.name
+        );
         let se = e.se.expect("standard error");
-        assert_rel!(se, want["se"][k].as_f64().expect("se"), 1e-6, "se of {}", e.name);
+        assert_rel!(
+            se,
+            want["se"][k].as_f64().expect("se"),
+            1e-6,
+            "se of {}",
+            e.name
+        );
     }
 }

@@ -179,16 +179,15 @@ pub fn run(args: &FitArgs) -> anyhow::Result<Outcome> {
         Format::Csv => to_csv(&rows).context("formatting the results as CSV")?,
         Format::Json => to_json(&rows).context("formatting the results as JSON")?,
     };
-    match &args.output {
-        Some(path) => write_atomic(path, text.as_bytes())
-            .with_context(|| format!("cannot write {}", path.display()))?,
-        None => {
-            use std::io::Write;
-            let mut out = std::io::stdout().lock();
-            out.write_all(text.as_bytes())
-                .and_then(|()| out.flush())
-                .context("cannot write to standard output")?;
-        }
+    if let Some(path) = &args.output {
+        write_atomic(path, text.as_bytes())
+            .with_context(|| format!("cannot write {}", path.display()))?;
+    } else {
+        use std::io::Write;
+        let mut out = std::io::stdout().lock();
+        out.write_all(text.as_bytes())
+            .and_then(|()| out.flush())
+            .context("cannot write to standard output")?;
     }
     let mut partial = false;
     for row in rows.iter().filter(|r| !r.is_fitted()) {

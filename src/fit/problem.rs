@@ -104,7 +104,12 @@ impl<'a> Problem<'a> {
             dpdq_vec = vec![0.0; nf];
             &mut dpdq_vec
         };
-        for (j, ((&k, t), &qk)) in self.free.iter().zip(self.transforms).zip(q.iter()).enumerate()
+        for (j, ((&k, t), &qk)) in self
+            .free
+            .iter()
+            .zip(self.transforms)
+            .zip(q.iter())
+            .enumerate()
         {
             let (p, d) = t.forward(qk);
             full[k] = p;
@@ -149,17 +154,14 @@ impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_> {
     }
 
     fn residuals(&self) -> Option<DVector<f64>> {
-        match self.evaluate(&self.q) {
-            Some((r, jac)) => {
-                *self.jacobian.borrow_mut() = Some((self.generation, jac));
-                Some(r)
-            }
-            None => {
-                // A NaN trial point: report an infinite residual so the step is rejected
-                // rather than the run aborted (the crate aborts on `None`).
-                *self.jacobian.borrow_mut() = None;
-                Some(DVector::from_element(self.data.x.len(), f64::MAX.sqrt()))
-            }
+        if let Some((r, jac)) = self.evaluate(&self.q) {
+            *self.jacobian.borrow_mut() = Some((self.generation, jac));
+            Some(r)
+        } else {
+            // A NaN trial point: report a huge residual so the step is rejected rather than
+            // the run aborted (the crate aborts on `None`).
+            *self.jacobian.borrow_mut() = None;
+            Some(DVector::from_element(self.data.x.len(), f64::MAX.sqrt()))
         }
     }
 

@@ -26,8 +26,11 @@ pub(crate) fn t975(dof: usize) -> Option<f64> {
             .map(|t| t.inverse_cdf(0.975))
     };
     if dof <= T_TABLE {
-        let table =
-            TABLE.get_or_init(|| (1..=T_TABLE).map(|d| quantile(d).unwrap_or(f64::NAN)).collect());
+        let table = TABLE.get_or_init(|| {
+            (1..=T_TABLE)
+                .map(|d| quantile(d).unwrap_or(f64::NAN))
+                .collect()
+        });
         table.get(dof - 1).copied().filter(|v| v.is_finite())
     } else {
         quantile(dof).filter(|v| v.is_finite())
@@ -165,10 +168,7 @@ pub(crate) fn influence(
     let leverage = Some(h);
     let one_minus = 1.0 - h;
     let Some(s2) = s2.filter(|&v| v > 0.0 && one_minus > 1e-12) else {
-        return Influence {
-            leverage,
-            ..none
-        };
+        return Influence { leverage, ..none };
     };
     let t = e / (s2 * one_minus).sqrt();
     let cooks = (p > 0).then(|| t * t * h / (p as f64 * one_minus));

@@ -1,5 +1,7 @@
 //! Unit tests of the driver with a private van Genuchten model (m = 1 - 1/n).
 
+#![allow(clippy::float_cmp)]
+
 use super::*;
 use crate::model::curve::{CurveModel, ParamSpec};
 
@@ -7,10 +9,30 @@ use crate::model::curve::{CurveModel, ParamSpec};
 struct Vg;
 
 const VG: [ParamSpec; 4] = [
-    ParamSpec { name: "theta_r", unit: "m3/m3", lower: 0.0, upper: 0.5 },
-    ParamSpec { name: "theta_s", unit: "m3/m3", lower: 0.2, upper: 0.7 },
-    ParamSpec { name: "alpha_per_cm", unit: "1/cm", lower: 1e-5, upper: 10.0 },
-    ParamSpec { name: "n", unit: "-", lower: 1.01, upper: 15.0 },
+    ParamSpec {
+        name: "theta_r",
+        unit: "m3/m3",
+        lower: 0.0,
+        upper: 0.5,
+    },
+    ParamSpec {
+        name: "theta_s",
+        unit: "m3/m3",
+        lower: 0.2,
+        upper: 0.7,
+    },
+    ParamSpec {
+        name: "alpha_per_cm",
+        unit: "1/cm",
+        lower: 1e-5,
+        upper: 10.0,
+    },
+    ParamSpec {
+        name: "n",
+        unit: "-",
+        lower: 1.01,
+        upper: 15.0,
+    },
 ];
 
 impl CurveModel for Vg {
@@ -102,7 +124,12 @@ fn theta_r_pinned_at_zero_is_held_there() {
     assert_eq!(tr.value, 0.0);
     assert_eq!(tr.at_bound, Some(Side::Lower));
     assert!(r.converged);
-    assert!(r.message.as_deref().unwrap_or("").contains("theta_r on its lower bound"));
+    assert!(
+        r.message
+            .as_deref()
+            .unwrap_or("")
+            .contains("theta_r on its lower bound")
+    );
 }
 
 #[test]
@@ -110,16 +137,32 @@ fn bad_input_is_an_error_not_a_panic() {
     let y = curve(&[0.065, 0.41, 0.075, 1.89]);
     let opts = FitOptions::new();
     let err = |x: &[f64], y: &[f64]| fit_curve(&Vg, "vg", &Readings::new(x, y), &opts).unwrap_err();
-    assert!(matches!(err(&H[..4], &y[..4]), FitError::TooFewPoints { points: 4, free: 4 }));
+    assert!(matches!(
+        err(&H[..4], &y[..4]),
+        FitError::TooFewPoints { points: 4, free: 4 }
+    ));
     assert!(matches!(err(&H, &[0.3; 9]), FitError::FlatData { .. }));
-    assert!(matches!(err(&[5.0; 9], &y), FitError::SuctionsAllEqual { .. }));
+    assert!(matches!(
+        err(&[5.0; 9], &y),
+        FitError::SuctionsAllEqual { .. }
+    ));
     assert!(matches!(err(&H[..8], &y), FitError::LengthMismatch { .. }));
     let mut bad = y.clone();
     bad[2] = f64::NAN;
-    assert!(matches!(err(&H, &bad), FitError::NonFinite { what: "theta", index: 3, .. }));
+    assert!(matches!(
+        err(&H, &bad),
+        FitError::NonFinite {
+            what: "theta",
+            index: 3,
+            ..
+        }
+    ));
     let mut neg = H;
     neg[1] = -1.0;
-    assert!(matches!(err(&neg, &y), FitError::NegativeSuction { index: 2, .. }));
+    assert!(matches!(
+        err(&neg, &y),
+        FitError::NegativeSuction { index: 2, .. }
+    ));
     let unknown = FitOptions::new().with_fixed("beta", 1.0);
     let e = fit_curve(&Vg, "vg", &Readings::new(&H, &y), &unknown).unwrap_err();
     assert!(e.to_string().contains("no parameter \"beta\""), "{e}");
@@ -131,11 +174,119 @@ fn weights_scale_rows() {
     let mut y = curve(&truth);
     y[4] += 0.02;
     let w = [1.0, 1.0, 1.0, 1.0, 1e-6, 1.0, 1.0, 1.0, 1.0];
-    let r = fit_curve(&Vg, "vg", &Readings::new(&H, &y).with_weights(&w), &FitOptions::new())
-        .unwrap();
+    let r = fit_curve(
+        &Vg,
+        "vg",
+        &Readings::new(&H, &y).with_weights(&w),
+        &FitOptions::new(),
+    )
+    .unwrap();
     // The outlier hardly counts, so the other readings are fitted almost exactly.
     assert!((r.parameter("n").unwrap().value - 1.89).abs() < 1e-3);
     let json = serde_json::to_string(&r).unwrap();
     let back: FitReport = serde_json::from_str(&json).unwrap();
     assert_eq!(back, r);
+}
+
+mod retention {
+    use crate::fit::{FitOptions, Readings, fit_auto, fit_curve, fit_model};
+    use crate::model::retention::ModelKind;
+
+    const H: [f64; 10] = [
+        0.0, 5.0, 10.0, 20.0, 50.0, 100.0, 330.0, 1000.0, 3000.0, 15000.0,
+    ];
+
+    fn curve(kind: ModelKind, p: &[f64]) -> Vec<f64> {
+        H.iter().map(|&h| kind.curve().value(h, p)).collect()
+    }
+
+    #[test]
+    fn brooks_corey_breakpoint_is_searched_between_measured_suctions() {
+        // h_b = 30 cm lies between the readings at 20 and 50 cm; start guesses sit elsewhere.
+        let truth = [0.05, 0.42, 30.0, 0.45];
+        let mut y = curve(ModelKind::BrooksCorey, &truth);
+        let wiggle = [
+            0.003, -0.002, 0.001, -0.003, 0.002, -0.001, 0.002, -0.002, 0.001, -0.001,
+        ];
+        for (v, w) in y.iter_mut().zip(wiggle) {
+            *v += w;
+        }
+        let r = fit_model(
+            ModelKind::BrooksCorey,
+            &Readings::new(&H, &y),
+            &FitOptions::new(),
+        )
+        .unwrap();
+        assert!(r.converged, "{:?}", r.message);
+        assert!(r.runs >= 9, "one run per interval expected, got {}", r.runs);
+        // A brute-force scan of h_b (others fitted with h_b held) finds nothing better.
+        let mut best_scan = f64::INFINITY;
+        for k in 0..=400 {
+            let h_b = 10f64.powf(-1.0 + 5.0 * f64::from(k) / 400.0);
+            let opts = FitOptions::new().with_fixed("h_b_cm", h_b);
+            if let Ok(s) = fit_curve(
+                ModelKind::BrooksCorey.curve(),
+                "bc",
+                &Readings::new(&H, &y),
+                &opts,
+            ) {
+                best_scan = best_scan.min(s.sse);
+            }
+        }
+        assert!(
+            r.sse <= best_scan * (1.0 + 1e-9),
+            "interval search {} vs scan {best_scan}",
+            r.sse
+        );
+        // Without the interval search, the fit from the first guess is no better.
+        let plain = fit_curve(
+            ModelKind::BrooksCorey.curve(),
+            "bc",
+            &Readings::new(&H, &y),
+            &FitOptions::new(),
+        )
+        .unwrap();
+        assert!(r.sse <= plain.sse * (1.0 + 1e-12));
+    }
+
+    #[test]
+    fn auto_ranks_by_aicc_with_weights_summing_to_one() {
+        let truth = [0.06, 0.43, 0.03, 1.7];
+        let mut y = curve(ModelKind::VanGenuchten, &truth);
+        for (i, v) in y.iter_mut().enumerate() {
+            *v += if i % 2 == 0 { 0.002 } else { -0.002 };
+        }
+        let auto = fit_auto(&ModelKind::ALL, &Readings::new(&H, &y), &FitOptions::new());
+        assert!(!auto.ranked.is_empty());
+        let total: f64 = auto.ranked.iter().map(|r| r.akaike_weight).sum();
+        assert!((total - 1.0).abs() < 1e-12);
+        assert_eq!(auto.ranked[0].delta_aicc, 0.0);
+        for w in auto.ranked.windows(2) {
+            assert!(w[0].report.aicc <= w[1].report.aicc);
+        }
+        // Durner (7 parameters) needs 9 readings: with 10 it is tried, with 8 it is skipped.
+        let few = fit_auto(
+            &ModelKind::ALL,
+            &Readings::new(&H[..8], &y[..8]),
+            &FitOptions::new(),
+        );
+        let durner = few.skipped.iter().find(|s| s.model == "durner").unwrap();
+        assert!(
+            durner.reason.contains("auto needs at least 9"),
+            "{}",
+            durner.reason
+        );
+        // A fixed theta_r applies to the models that have one.
+        let fixed = fit_auto(
+            &[ModelKind::VanGenuchten, ModelKind::Campbell],
+            &Readings::new(&H, &y),
+            &FitOptions::new().with_fixed("theta_r", 0.0),
+        );
+        let vg = fixed
+            .ranked
+            .iter()
+            .find(|r| r.report.model == "van-genuchten")
+            .unwrap();
+        assert_eq!(vg.report.n_free_params, 3);
+    }
 }

@@ -4,14 +4,17 @@
 //! an unbounded q: a logistic map onto a finite interval, an exponential for a half-open one,
 //! the identity when the parameter has no bounds at all.
 
-/// |q| beyond which a logistic parameter counts as pinned to its bound (logistic(12) = 1 - 6e-6).
-pub(crate) const LOGISTIC_SATURATION: f64 = 12.0;
+/// Distance from a finite bound, as a fraction of the bound's scale, at which a logistic
+/// parameter counts as on it (the map's derivative has all but vanished there).
+const AT_BOUND: f64 = 1e-9;
+/// |q| beyond which a logistic parameter is on its bound whatever the scale (logistic(36) = 1 - 2e-16).
+const LOGISTIC_SATURATION: f64 = 36.0;
 /// q below which an exponential parameter counts as pinned to its finite bound (e^-20 = 2e-9).
 pub(crate) const EXP_PINNED: f64 = -20.0;
 /// q above which an exponential parameter counts as running off to infinity (e^40 = 2e17).
 pub(crate) const EXP_RUNAWAY: f64 = 40.0;
-/// Starting points are kept this fraction of the interval inside a finite bound.
-const START_MARGIN: f64 = 1e-4;
+/// Starting points are kept this fraction of the bound's scale inside a finite bound.
+const START_MARGIN: f64 = 1e-3;
 
 /// Which end of its interval a parameter sits on.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
@@ -94,7 +97,11 @@ impl Transform {
         match self {
             Transform::Identity => p,
             Transform::Logistic { lo, hi } => {
-                let s = ((p - lo) / (hi - lo)).clamp(START_MARGIN, 1.0 - START_MARGIN);
+                let p = p.clamp(
+                    lo + START_MARGIN * self.scale(lo),
+                    hi - START_MARGIN * self.scale(hi),
+                );
+                let s = (p - lo) / (hi - lo);
                 (s / (1.0 - s)).ln()
             }
             Transform::ExpLower { lo } => (p - lo).max(start_gap(lo)).ln(),
@@ -106,10 +113,11 @@ impl Transform {
     pub(crate) fn saturation(self, q: f64) -> Option<Saturation> {
         match self {
             Transform::Identity => None,
-            Transform::Logistic { .. } => {
-                if q <= -LOGISTIC_SATURATION {
+            Transform::Logistic { lo, hi } => {
+                let p = self.forward(q).0;
+                if q <= -LOGISTIC_SATURATION || p - lo <= AT_BOUND * self.scale(lo) {
                     Some(Saturation::Pinned(Side::Lower))
-                } else if q >= LOGISTIC_SATURATION {
+                } else if q >= LOGISTIC_SATURATION || hi - p <= AT_BOUND * self.scale(hi) {
                     Some(Saturation::Pinned(Side::Upper))
                 } else {
                     None
@@ -137,6 +145,17 @@ impl Transform {
 const NEAR_BOUND: f64 = 1e-2;
 
 impl Transform {
+    /// The scale distances from a finite bound are measured in: the interval's width for a
+    /// bound at 0, min(width, |bound|) otherwise (so alpha in [1e-5, 10] 1/cm counts as near
+    /// its lower bound only within a fraction of 1e-5 of it).
+    fn scale(self, bound: f64) -> f64 {
+        match self {
+            Transform::Logistic { lo, hi } if bound == 0.0 => hi - lo,
+            Transform::Logistic { lo, hi } => (hi - lo).min(bound.abs()),
+            _ => bound.abs().max(1.0),
+        }
+    }
+
     /// The bound a finite-interval parameter at q is close to, if any.
     ///
     /// Close means within 1 % of the interval's width for a bound at 0, and within 1 % of
@@ -146,12 +165,10 @@ impl Transform {
         let Transform::Logistic { lo, hi } = self else {
             return None;
         };
-        let width = hi - lo;
-        let scale = |b: f64| if b == 0.0 { width } else { width.min(b.abs()) };
         let p = self.forward(q).0;
-        if p - lo <= NEAR_BOUND * scale(lo) {
+        if p - lo <= NEAR_BOUND * self.scale(lo) {
             Some(Side::Lower)
-        } else if hi - p <= NEAR_BOUND * scale(hi) {
+        } else if hi - p <= NEAR_BOUND * self.scale(hi) {
             Some(Side::Upper)
         } else {
             None
@@ -165,6 +182,7 @@ fn start_gap(bound: f64) -> f64 {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)]
 mod tests {
     use super::*;
 
@@ -182,10 +200,10 @@ mod tests {
         // Far tails stay finite and on the bounds.
         assert_eq!(t.forward(-800.0).0, 1e-5);
         assert_eq!(t.forward(800.0).0, 10.0);
-        assert_eq!(
-            t.saturation(-19.0),
-            Some(Saturation::Pinned(Side::Lower))
-        );
+        assert_eq!(t.saturation(-40.0), Some(Saturation::Pinned(Side::Lower)));
+        assert_eq!(t.saturation(t.inverse_start(2e-5)), None);
+        assert_eq!(t.near_bound(t.inverse_start(1.005e-5)), Some(Side::Lower));
+        assert_eq!(t.near_bound(t.inverse_start(2e-5)), None);
     }
 
     #[test]
@@ -196,7 +214,10 @@ mod tests {
         assert_eq!(lower.saturation(41.0), Some(Saturation::Runaway));
         let upper = Transform::for_bounds(f64::NEG_INFINITY, 0.0);
         assert_eq!(upper.forward(0.0), (-1.0, -1.0));
-        assert_eq!(Transform::for_bounds(f64::NEG_INFINITY, f64::INFINITY), Transform::Identity);
+        assert_eq!(
+            Transform::for_bounds(f64::NEG_INFINITY, f64::INFINITY),
+            Transform::Identity
+        );
         // A start on a half-open bound moves just inside it.
         assert!(lower.forward(lower.inverse_start(1.0)).0 > 1.0);
     }

@@ -130,7 +130,12 @@ fn find_columns(table: &Table<impl Read>) -> Result<Columns, Diagnostics> {
             None => {}
         }
     }
-    if suction.is_none() && !problems.items().iter().any(|d| d.column.starts_with("suction")) {
+    if suction.is_none()
+        && !problems
+            .items()
+            .iter()
+            .any(|d| d.column.starts_with("suction"))
+    {
         problems.push(
             file,
             1,
@@ -138,8 +143,18 @@ fn find_columns(table: &Table<impl Read>) -> Result<Columns, Diagnostics> {
             "no suction column; expected one of suction_cm, suction_hpa, suction_kpa, suction_mpa, suction_bar, pf",
         );
     }
-    if water.is_none() && !problems.items().iter().any(|d| d.column.starts_with("theta")) {
-        problems.push(file, 1, "-", "no water-content column; expected theta or theta_pct");
+    if water.is_none()
+        && !problems
+            .items()
+            .iter()
+            .any(|d| d.column.starts_with("theta"))
+    {
+        problems.push(
+            file,
+            1,
+            "-",
+            "no water-content column; expected theta or theta_pct",
+        );
     }
     match (sample, suction, water) {
         (Some(sample), Some(suction), Some(water)) if problems.is_empty() => Ok(Columns {
@@ -162,8 +177,11 @@ pub fn read_pairs<R: Read>(file: &str, reader: R) -> Result<PairsFile, Diagnosti
     let cols = find_columns(&table)?;
     let header = table.header().clone();
     let col_name = |i: usize| header.name(i).to_string();
-    let (sample_col, suction_col, water_col) =
-        (col_name(cols.sample), col_name(cols.suction.0), col_name(cols.water.0));
+    let (sample_col, suction_col, water_col) = (
+        col_name(cols.sample),
+        col_name(cols.suction.0),
+        col_name(cols.water.0),
+    );
     let mut problems = Diagnostics::new();
     let mut samples: Vec<PairSample> = Vec::new();
     let mut index: HashMap<String, usize> = HashMap::new();
@@ -185,7 +203,12 @@ pub fn read_pairs<R: Read>(file: &str, reader: R) -> Result<PairsFile, Diagnosti
         let name = match field(cols.sample) {
             Some(s) if !s.is_empty() => s.to_string(),
             _ => {
-                problems.push(file, line, &sample_col, "found an empty cell, expected a sample name");
+                problems.push(
+                    file,
+                    line,
+                    &sample_col,
+                    "found an empty cell, expected a sample name",
+                );
                 String::new()
             }
         };
@@ -276,9 +299,17 @@ mod tests {
     #[test]
     fn bad_cells_are_placed() {
         let text = "sample,suction_cm,theta\nA,10,0.3\nA,abc,0.2\nA,-5,1.2\n,3,0.1\n";
-        let err = read_pairs("p.csv", text.as_bytes()).unwrap_err().to_string();
-        assert!(err.contains("p.csv:3:suction_cm: found \"abc\", expected a number"), "{err}");
-        assert!(err.contains("p.csv:4:suction_cm: found -5, a negative suction"), "{err}");
+        let err = read_pairs("p.csv", text.as_bytes())
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("p.csv:3:suction_cm: found \"abc\", expected a number"),
+            "{err}"
+        );
+        assert!(
+            err.contains("p.csv:4:suction_cm: found -5, a negative suction"),
+            "{err}"
+        );
         assert!(err.contains("p.csv:4:theta: found 1.2"), "{err}");
         assert!(err.contains("p.csv:5:sample: found an empty cell"), "{err}");
     }
@@ -288,7 +319,10 @@ mod tests {
         let err = read_pairs("p.csv", "sample,suction_psi,theta\nA,1,0.3\n".as_bytes())
             .unwrap_err()
             .to_string();
-        assert!(err.contains("p.csv:1:suction_psi: unknown suction unit \"psi\""), "{err}");
+        assert!(
+            err.contains("p.csv:1:suction_psi: unknown suction unit \"psi\""),
+            "{err}"
+        );
         let err = read_pairs("p.csv", "sample,theta\nA,0.3\n".as_bytes())
             .unwrap_err()
             .to_string();

@@ -131,12 +131,13 @@ pub fn to_csv(rows: &[FitRow]) -> Result<String, csv::Error> {
         }
         w.write_record(&rec)?;
     }
-    let bytes = w.into_inner().map_err(|e| e.into_error())?;
+    let bytes = w.into_inner().map_err(csv::IntoInnerError::into_error)?;
     Ok(String::from_utf8_lossy(&bytes).into_owned())
 }
 
 fn opt(v: Option<f64>) -> Value {
-    v.filter(|x| x.is_finite()).map_or(Value::Null, |x| json!(x))
+    v.filter(|x| x.is_finite())
+        .map_or(Value::Null, |x| json!(x))
 }
 
 /// One row as a JSON object.
