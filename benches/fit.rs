@@ -156,6 +156,12 @@ fn main() {
             r.map(|r| (r.sse, r.values(), r.runs, r.evaluations))
         );
         println!("best of restarts: {:?}", best_fit_of_restarts(s, 1, 40));
+        println!(
+            "guesses: {:?}",
+            ModelKind::VanGenuchten
+                .curve()
+                .initial_guesses(&s.h, &s.theta)
+        );
         return;
     }
     let csv_path = std::env::temp_dir().join("porewise-bench-vg-samples.csv");

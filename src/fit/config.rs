@@ -36,7 +36,7 @@ impl Default for FitOptions {
             breakpoint: None,
             domain: Domain::Suction,
             lenient_names: false,
-            tolerance: 1e-11,
+            tolerance: 1e-10,
             patience: 100,
             max_extra_starts: 6,
             step_bound: 100.0,
@@ -45,7 +45,7 @@ impl Default for FitOptions {
 }
 
 impl FitOptions {
-    /// Defaults: nothing fixed, the model's bounds, suction domain, tolerances 1e-11.
+    /// Defaults: nothing fixed, the model's bounds, suction domain, tolerances 1e-10.
     pub fn new() -> Self {
         Self::default()
     }
@@ -91,7 +91,7 @@ impl FitOptions {
         self
     }
 
-    /// Relative tolerance on the sum of squares, the step and the gradient (default 1e-11).
+    /// Relative tolerance on the sum of squares, the step and the gradient (default 1e-10).
     ///
     /// Values below about 1e-15 are raised to that, since they cannot be met in double precision.
     #[must_use]
@@ -99,7 +99,7 @@ impl FitOptions {
         self.tolerance = if tolerance.is_finite() {
             tolerance.max(1e-15)
         } else {
-            1e-11
+            1e-10
         };
         self
     }

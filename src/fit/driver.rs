@@ -454,17 +454,71 @@ pub fn fit_curve(
     readings: &Readings<'_>,
     options: &FitOptions,
 ) -> Result<FitReport, FitError> {
-    fit_curve_canonical(model, id, readings, options, None)
+    fit_curve_with(model, id, readings, options, &Hooks::default())
 }
 
-/// [`fit_curve`] with a map of equivalent parameter sets onto one canonical form, applied to
-/// the kept solution (when nothing is fixed or on a bound) before the statistics.
-pub(crate) fn fit_curve_canonical(
+/// Model-specific knowledge a caller may lend the driver.
+#[derive(Debug, Clone, Copy, Default)]
+pub(crate) struct Hooks {
+    /// Map equivalent parameter sets onto one canonical form; applied to the kept solution
+    /// (when nothing is fixed or on a bound) before the statistics.
+    pub canonicalize: Option<fn(&mut [f64])>,
+    /// Positions of parameters that enter the curve as f = a (1 - g) + b g (theta_r, theta_s)
+    /// or f = b g (theta_s alone): each start gets them by linear least squares first.
+    pub linear: Option<(Option<usize>, usize)>,
+}
+
+/// Improve a start: the linear parameters (see [`Hooks::linear`]) by least squares given the
+/// start's shape parameters. Leaves the start alone when the answer is not usable.
+fn refine_linear(ctx: &Context<'_>, setup: &Setup, linear: (Option<usize>, usize), p: &mut [f64]) {
+    let (r, s) = linear;
+    if setup.fixed[s].is_some() || r.is_some_and(|r| setup.fixed[r].is_some()) {
+        return;
+    }
+    let (r0, s0) = (r.map_or(0.0, |r| p[r]), p[s]);
+    if s0 - r0 <= 0.0 {
+        return;
+    }
+    // g_i: the shape term at the start; solve min sum w (a (1 - g) + b g - y)^2.
+    let (mut saa, mut sab, mut sbb, mut say, mut sby) = (0.0, 0.0, 0.0, 0.0, 0.0);
+    for (i, (&x, &y)) in ctx.data.x.iter().zip(ctx.data.y).enumerate() {
+        let w = ctx.data.sqrt_w.map_or(1.0, |w| w[i] * w[i]);
+        let g = (ctx.model.value(x, p) - r0) / (s0 - r0);
+        let a = if r.is_some() { 1.0 - g } else { 0.0 };
+        saa += w * a * a;
+        sab += w * a * g;
+        sbb += w * g * g;
+        say += w * a * y;
+        sby += w * g * y;
+    }
+    let (new_r, new_s) = if r.is_some() {
+        let det = saa * sbb - sab * sab;
+        if det.is_nan() || det.abs() <= 1e-12 * saa * sbb {
+            return;
+        }
+        ((say * sbb - sby * sab) / det, (saa * sby - sab * say) / det)
+    } else if sbb > 0.0 {
+        (0.0, sby / sbb)
+    } else {
+        return;
+    };
+    let inside = |k: usize, v: f64| v.is_finite() && v >= setup.lower[k] && v <= setup.upper[k];
+    if !inside(s, new_s) || r.is_some_and(|r| !inside(r, new_r) || new_r >= new_s) {
+        return;
+    }
+    p[s] = new_s;
+    if let Some(r) = r {
+        p[r] = new_r;
+    }
+}
+
+/// [`fit_curve`] with model-specific [`Hooks`].
+pub(crate) fn fit_curve_with(
     model: &dyn CurveModel,
     id: &str,
     readings: &Readings<'_>,
     options: &FitOptions,
-    canonicalize: Option<fn(&mut [f64])>,
+    hooks: &Hooks,
 ) -> Result<FitReport, FitError> {
     validate(readings, options.domain)?;
     let setup = setup(model, id, options)?;
@@ -499,6 +553,9 @@ pub(crate) fn fit_curve_canonical(
     if guesses.is_empty() {
         guesses.push(default_start(&setup));
     }
+    if let Some(linear) = hooks.linear {
+        refine_linear(&ctx, &setup, linear, &mut guesses[0]);
+    }
     let mut best = solve_start(&mut ctx, &setup, &guesses[0]);
     let failed = |c: &Candidate| !c.termination.is_optimum() || !c.sse.is_finite();
     let poor = |c: &Candidate| sst > 0.0 && 1.0 - c.sse / sst < DOUBTFUL_R2;
@@ -521,7 +578,13 @@ pub(crate) fn fit_curve_canonical(
                 continued = true;
                 best.p.clone()
             }
-            Some(g) => g.clone(),
+            Some(g) => {
+                let mut g = g.clone();
+                if let Some(linear) = hooks.linear {
+                    refine_linear(&ctx, &setup, linear, &mut g);
+                }
+                g
+            }
             None => {
                 perturbation += 1;
                 perturbed_start(
@@ -544,7 +607,7 @@ pub(crate) fn fit_curve_canonical(
             reason: best.termination.to_string(),
         });
     }
-    if let Some(canon) = canonicalize
+    if let Some(canon) = hooks.canonicalize
         && setup.fixed.iter().all(Option::is_none)
         && best.pinned.iter().all(Option::is_none)
     {

@@ -4,7 +4,7 @@
 use serde::{Deserialize, Serialize};
 
 use super::config::FitOptions;
-use super::driver::{Readings, fit_curve_canonical};
+use super::driver::{Hooks, Readings, fit_curve_with};
 use super::error::FitError;
 use super::report::FitReport;
 use crate::model::retention::ModelKind;
@@ -44,7 +44,12 @@ pub fn fit_model(
         ModelKind::Durner => |p| ModelKind::Durner.canonicalize(p),
         _ => |_| {},
     };
-    let mut report = fit_curve_canonical(kind.curve(), kind.id(), readings, &options, Some(canon))?;
+    let index = |name: &str| kind.params().iter().position(|s| s.name == name);
+    let hooks = Hooks {
+        canonicalize: Some(canon),
+        linear: index("theta_s").map(|s| (index("theta_r"), s)),
+    };
+    let mut report = fit_curve_with(kind.curve(), kind.id(), readings, &options, &hooks)?;
     if let Err(e) = kind.check_params(&report.values()) {
         report.converged = false;
         let note = format!("not converged: {e}");
