@@ -2,6 +2,8 @@
 //!
 //! Nothing here touches files, SQLite or the terminal.
 
+pub mod conductivity;
 pub mod curve;
+pub mod derived;
 pub mod retention;
 pub mod units;

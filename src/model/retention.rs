@@ -238,6 +238,79 @@ impl FromStr for ModelKind {
     }
 }
 
+/// A model with a checked parameter set: the value a report, the CLI or the UI passes around.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RetentionCurve {
+    kind: ModelKind,
+    params: Vec<f64>,
+}
+
+impl RetentionCurve {
+    /// A curve from a full parameter vector in the model's order.
+    ///
+    /// # Errors
+    /// Any failure of [`ModelKind::check_params`].
+    pub fn new(kind: ModelKind, params: Vec<f64>) -> Result<RetentionCurve, ParamError> {
+        kind.check_params(&params)?;
+        Ok(RetentionCurve { kind, params })
+    }
+
+    /// A curve from `name = value` pairs in any order.
+    ///
+    /// # Errors
+    /// Any failure of [`ModelKind::parameter_vector`].
+    pub fn from_pairs(
+        kind: ModelKind,
+        pairs: &[(String, f64)],
+    ) -> Result<RetentionCurve, ParamError> {
+        let params = kind.parameter_vector(pairs)?;
+        Ok(RetentionCurve { kind, params })
+    }
+
+    /// The model.
+    pub fn kind(&self) -> ModelKind {
+        self.kind
+    }
+
+    /// The parameters, in the model's order.
+    pub fn params(&self) -> &[f64] {
+        &self.params
+    }
+
+    /// The value of a parameter by name.
+    pub fn param(&self, name: &str) -> Option<f64> {
+        self.kind.param_index(name).ok().map(|i| self.params[i])
+    }
+
+    /// theta_r (0 for models without one) and theta_s.
+    pub fn theta_range(&self) -> (f64, f64) {
+        let model = self.kind.retention();
+        (model.theta_r(&self.params), model.theta_s(&self.params))
+    }
+
+    /// Volumetric water content at suction `h_cm` (>= 0, finite).
+    pub fn theta(&self, h_cm: f64) -> f64 {
+        self.kind.retention().value(h_cm, &self.params)
+    }
+
+    /// Effective saturation at suction `h_cm`, in [0, 1].
+    pub fn effective_saturation(&self, h_cm: f64) -> f64 {
+        self.kind
+            .retention()
+            .effective_saturation(h_cm, &self.params)
+    }
+
+    /// Specific water capacity C(h) = -d theta / dh per cm; `None` at a break point.
+    pub fn capacity(&self, h_cm: f64) -> Option<f64> {
+        self.kind.retention().capacity(h_cm, &self.params)
+    }
+
+    /// The smallest suction (cm) holding `theta`; `None` where the curve never falls so low.
+    pub fn suction_at(&self, theta: f64) -> Option<f64> {
+        self.kind.retention().suction_at(theta, &self.params)
+    }
+}
+
 /// Parse one `NAME=VALUE` assignment (as given to `--set` or `--fix`).
 ///
 /// # Errors
@@ -409,8 +482,8 @@ pub(crate) fn softplus(t: f64) -> f64 {
     }
 }
 
-/// 1 / (1 + e^-t) without overflow.
-#[inline]
+/// 1 / (1 + e^-t) without overflow (the reference for [`softplus_sigmoid`] in tests).
+#[cfg(test)]
 pub(crate) fn sigmoid(t: f64) -> f64 {
     if t >= 0.0 {
         1.0 / (1.0 + (-t).exp())
@@ -420,9 +493,20 @@ pub(crate) fn sigmoid(t: f64) -> f64 {
     }
 }
 
+/// softplus(t) and sigmoid(t) together, with one exponential.
+#[inline]
+pub(crate) fn softplus_sigmoid(t: f64) -> (f64, f64) {
+    let e = (-t.abs()).exp();
+    let inv = 1.0 / (1.0 + e);
+    if t > 0.0 {
+        (t + e.ln_1p(), inv)
+    } else {
+        (e.ln_1p(), e * inv)
+    }
+}
+
 /// ln(1 / (1 + e^-t)) = -softplus(-t), accurate at both ends.
 #[inline]
-#[allow(dead_code)] // used by the conductivity module
 pub(crate) fn ln_sigmoid(t: f64) -> f64 {
     -softplus(-t)
 }
@@ -559,12 +643,131 @@ pub(crate) fn clamp_all(specs: &[ParamSpec], p: &mut [f64]) {
     }
 }
 
-/// theta_s and theta_r guesses from the wet and dry ends: theta_s a little above the wettest
-/// reading, theta_r a fraction of the driest (never above it), theta_r < theta_s.
-pub(crate) fn end_guesses(shape: &DataShape, dry_fraction: f64) -> (f64, f64) {
-    let theta_s = (shape.theta_max * 1.01).max(shape.theta_max + 1e-3);
-    let theta_r = (shape.theta_min * dry_fraction).max(0.0);
-    (theta_r.min(0.9 * theta_s), theta_s)
+/// theta_s guess: just above the wettest reading (theta_s enters linearly; the fit moves it
+/// easily, so the guess only has to keep the wettest reading below saturation).
+pub(crate) fn theta_s_guess(shape: &DataShape) -> f64 {
+    (shape.theta_max * 1.002).max(shape.theta_max + 1e-4)
+}
+
+/// Fractions of the driest reading tried as theta_r by the starting guesses.
+pub(crate) const THETA_R_FRACTIONS: [f64; 3] = [0.0, 0.6, 0.9];
+
+/// The theta_r candidates of the starting guesses (below the driest reading and theta_s).
+pub(crate) fn theta_r_candidates(shape: &DataShape) -> [f64; 3] {
+    let theta_s = theta_s_guess(shape);
+    THETA_R_FRACTIONS.map(|f| (shape.theta_min * f).max(0.0).min(0.9 * theta_s))
+}
+
+/// Weighted least-squares line y = slope x + intercept through (x, y, weight) points;
+/// `None` with fewer than two points or no spread in x.
+///
+/// The linearizations of the starting guesses weight each reading by (d theta / d y)^2, so that
+/// readings where the transform stretches small water-content differences count little.
+pub(crate) fn line_fit(
+    points: impl Iterator<Item = (f64, f64, f64)> + Clone,
+) -> Option<(f64, f64)> {
+    let (mut count, mut sw, mut sx, mut sy) = (0, 0.0, 0.0, 0.0);
+    for (x, y, w) in points.clone() {
+        count += 1;
+        sw += w;
+        sx += w * x;
+        sy += w * y;
+    }
+    if count < 2 || sw.is_nan() || sw <= 0.0 {
+        return None;
+    }
+    let (mx, my) = (sx / sw, sy / sw);
+    let (mut sxx, mut sxy) = (0.0, 0.0);
+    for (x, y, w) in points {
+        sxx += w * (x - mx) * (x - mx);
+        sxy += w * (x - mx) * (y - my);
+    }
+    let slope = sxy / sxx;
+    (sxx > 0.0 && slope.is_finite() && my.is_finite()).then_some((slope, my - slope * mx))
+}
+
+/// Readings as (ln h, Se) for a linearization: h > 0 and Se clearly inside (0, 1).
+pub(crate) fn se_points<'a>(
+    x: &'a [f64],
+    y: &'a [f64],
+    theta_r: f64,
+    theta_s: f64,
+) -> impl Iterator<Item = (f64, f64)> + Clone + 'a {
+    x.iter().zip(y).filter_map(move |(&h, &t)| {
+        let se = (t - theta_r) / (theta_s - theta_r);
+        (h > 0.0 && h.is_finite() && se > 0.005 && se < 0.985).then(|| (h.ln(), se))
+    })
+}
+
+/// theta_r and theta_s by linear least squares for a fixed shape: theta = theta_r (1 - Se) +
+/// theta_s Se, with `se(h)` the shape's effective saturation. The result is kept physical:
+/// 0 <= theta_r <= the driest reading and theta_s >= the wettest. `None` when the shape does not
+/// separate the two (all Se equal).
+pub(crate) fn linear_ends(
+    x: &[f64],
+    y: &[f64],
+    se: impl Fn(f64) -> f64,
+    shape: &DataShape,
+) -> Option<(f64, f64)> {
+    let (mut suu, mut suv, mut svv, mut sut, mut svt) = (0.0, 0.0, 0.0, 0.0, 0.0);
+    for (&h, &t) in x.iter().zip(y) {
+        let v = se(h);
+        let u = 1.0 - v;
+        suu += u * u;
+        suv += u * v;
+        svv += v * v;
+        sut += u * t;
+        svt += v * t;
+    }
+    let det = suu * svv - suv * suv;
+    if det.is_nan() || det <= 1e-12 * (suu * svv).max(f64::MIN_POSITIVE) {
+        return None;
+    }
+    let theta_r = (sut * svv - svt * suv) / det;
+    let theta_s = (svt * suu - sut * suv) / det;
+    let theta_s = theta_s.max(shape.theta_max).min(THETA_S.upper);
+    let theta_r = theta_r.clamp(0.0, shape.theta_min.min(0.95 * theta_s));
+    (theta_r.is_finite() && theta_s.is_finite()).then_some((theta_r, theta_s))
+}
+
+/// Sum of squared residuals of parameters `p` on the readings.
+pub(crate) fn sse(model: &dyn CurveModel, x: &[f64], y: &[f64], p: &[f64]) -> f64 {
+    x.iter()
+        .zip(y)
+        .map(|(&h, &t)| (model.value(h, p) - t).powi(2))
+        .sum()
+}
+
+/// Clamp candidates into the bounds, order them by SSE on the readings (best first), drop
+/// those within 1e-9 of an earlier one in every parameter, and keep at most `keep`.
+pub(crate) fn rank_guesses(
+    model: &dyn CurveModel,
+    x: &[f64],
+    y: &[f64],
+    candidates: Vec<Vec<f64>>,
+    keep: usize,
+) -> Vec<Vec<f64>> {
+    let mut scored: Vec<(f64, Vec<f64>)> = candidates
+        .into_iter()
+        .map(|mut p| {
+            clamp_all(model.params(), &mut p);
+            let score = sse(model, x, y, &p);
+            (if score.is_nan() { f64::INFINITY } else { score }, p)
+        })
+        .collect();
+    scored.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mut out: Vec<Vec<f64>> = Vec::with_capacity(keep);
+    for (_, p) in scored {
+        let duplicate = out.iter().any(|q| {
+            q.iter()
+                .zip(&p)
+                .all(|(a, b)| (a - b).abs() <= 1e-9 * a.abs().max(b.abs()).max(1.0))
+        });
+        if !duplicate && out.len() < keep {
+            out.push(p);
+        }
+    }
+    out
 }
 
 #[cfg(test)]
@@ -706,6 +909,9 @@ mod tests {
         assert!((softplus(0.0) - 2f64.ln()).abs() < 1e-15);
         assert_eq!(sigmoid(1000.0), 1.0);
         assert_eq!(sigmoid(-1000.0), 0.0);
+        for t in [-800.0, -3.0, 0.0, 2.5, 800.0] {
+            assert_eq!(softplus_sigmoid(t), (softplus(t), sigmoid(t)), "{t}");
+        }
         assert!((ln_sigmoid(-50.0) + 50.0).abs() < 1e-12);
     }
 

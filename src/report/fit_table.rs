@@ -70,7 +70,7 @@ fn parameter_columns(rows: &[FitRow]) -> Vec<String> {
 
 fn num(v: Option<f64>) -> String {
     match v {
-        Some(x) if x.is_finite() => format!("{x}"),
+        Some(x) if x.is_finite() => super::format_number(x),
         _ => String::new(),
     }
 }

@@ -3,7 +3,8 @@
 use crate::model::curve::{CurveModel, ParamSpec};
 
 use super::{
-    DataShape, ModelKind, RetentionModel, THETA_R, THETA_S, clamp_all, end_guesses, finite,
+    DataShape, ModelKind, RetentionModel, THETA_R, THETA_S, finite, line_fit, rank_guesses,
+    se_points, theta_r_candidates, theta_s_guess,
 };
 
 /// Bounds of the bubbling (air-entry) suction h_b: [0.01, 1e5] cm. Observed values are
@@ -64,26 +65,30 @@ impl CurveModel for BrooksCorey {
         theta_r + d * se
     }
 
-    /// theta_s and theta_r from the wet and dry ends; at Se = 1/2 the model has
-    /// h = h_b 2^(1/lambda) and |d Se / d ln h| = lambda / 2, so lambda is twice the data's
-    /// slope at their halfway crossing and h_b follows. Then theta_r = 0, and an earlier,
-    /// flatter air entry.
+    /// theta_s just above the wettest reading; for each theta_r candidate (fractions of the
+    /// driest reading) lambda and h_b from the straight line ln Se = lambda (ln h_b - ln h)
+    /// through the readings below saturation. Also the halfway guess: at Se = 1/2 the model has
+    /// h = h_b 2^(1/lambda) and |d Se / d ln h| = lambda / 2. Ranked by SSE, best three kept.
     fn initial_guesses(&self, x: &[f64], y: &[f64]) -> Vec<Vec<f64>> {
         let Some(shape) = DataShape::of(x, y) else {
             return vec![vec![0.05, 0.4, 20.0, 0.5]];
         };
-        let (theta_r, theta_s) = end_guesses(&shape, 0.5);
+        let theta_s = theta_s_guess(&shape);
         let lambda = (2.0 * shape.slope_ln_h).clamp(0.05, 10.0);
         let h_b = shape.h_half * (-std::f64::consts::LN_2 / lambda).exp();
-        let mut guesses = vec![
-            vec![theta_r, theta_s, h_b, lambda],
-            vec![0.0, theta_s, h_b, lambda],
-            vec![theta_r, theta_s, 0.5 * h_b.min(shape.h_half), 0.7 * lambda],
-        ];
-        for g in &mut guesses {
-            clamp_all(&PARAMS, g);
+        let mut candidates = vec![vec![0.5 * shape.theta_min, theta_s, h_b, lambda]];
+        for theta_r in theta_r_candidates(&shape) {
+            // y = ln Se, d Se / dy = Se.
+            let points =
+                se_points(x, y, theta_r, theta_s).map(|(ln_h, se)| (ln_h, se.ln(), se * se));
+            if let Some((slope, intercept)) = line_fit(points)
+                && slope < 0.0
+            {
+                let lambda = -slope;
+                candidates.push(vec![theta_r, theta_s, (intercept / lambda).exp(), lambda]);
+            }
         }
-        guesses
+        rank_guesses(self, x, y, candidates, 3)
     }
 }
 

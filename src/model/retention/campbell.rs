@@ -2,7 +2,9 @@
 
 use crate::model::curve::{CurveModel, ParamSpec};
 
-use super::{DataShape, ModelKind, RetentionModel, THETA_S, clamp_all, finite};
+use super::{
+    DataShape, ModelKind, RetentionModel, THETA_S, finite, line_fit, rank_guesses, theta_s_guess,
+};
 
 /// Bounds of the air-entry suction h_e: [0.01, 1e5] cm, as Brooks-Corey's h_b (the two are
 /// the same parameter, Campbell being Brooks-Corey with theta_r = 0).
@@ -59,61 +61,34 @@ impl CurveModel for Campbell {
         theta
     }
 
-    /// theta_s just above the wettest reading; b and h_e from a straight line through the
-    /// drier readings in ln theta against ln h (slope -1/b); then a flatter and a steeper one.
+    /// theta_s just above the wettest reading (and 5 % above it); b and h_e from a straight
+    /// line through the drier readings in ln theta against ln h (slope -1/b, weighted by
+    /// theta^2), continued up to theta_s; then a flatter and a steeper variant. Ranked by SSE.
     fn initial_guesses(&self, x: &[f64], y: &[f64]) -> Vec<Vec<f64>> {
         let Some(shape) = DataShape::of(x, y) else {
             return vec![vec![0.4, 20.0, 5.0]];
         };
-        let theta_s = (shape.theta_max * 1.01).max(shape.theta_max + 1e-3);
-        let b = loglog_slope(x, y, 0.95 * shape.theta_max)
-            .map_or(5.0, |slope| -1.0 / slope)
-            .clamp(0.5, 50.0);
-        // The line through the readings' geometric centre, continued up to theta_s.
-        let (lh, lt) = log_centre(x, y, 0.95 * shape.theta_max)
-            .unwrap_or((shape.h_half.ln(), (0.5 * theta_s).ln()));
-        let h_e = (lh - b * (theta_s.ln() - lt)).exp();
-        let mut guesses = vec![
-            vec![theta_s, h_e, b],
-            vec![theta_s, h_e * 0.5, b * 1.3],
-            vec![theta_s, h_e * 2.0, b * 0.7],
-        ];
-        for g in &mut guesses {
-            clamp_all(&PARAMS, g);
+        let cut = 0.95 * shape.theta_max;
+        let points = x
+            .iter()
+            .zip(y)
+            .filter(move |&(&h, &t)| h > 0.0 && h.is_finite() && t > 0.0 && t < cut)
+            .map(|(&h, &t)| (h.ln(), t.ln(), t * t));
+        let line = line_fit(points).filter(|(slope, _)| *slope < 0.0);
+        let mut candidates = Vec::new();
+        for theta_s in [theta_s_guess(&shape), 1.05 * shape.theta_max] {
+            let (b, h_e) = match line {
+                Some((slope, intercept)) => {
+                    (-1.0 / slope, ((theta_s.ln() - intercept) / slope).exp())
+                }
+                None => (5.0, shape.h_half * (-5.0 * std::f64::consts::LN_2).exp()),
+            };
+            candidates.push(vec![theta_s, h_e, b]);
+            candidates.push(vec![theta_s, h_e * 0.5, b * 1.3]);
+            candidates.push(vec![theta_s, h_e * 2.0, b * 0.7]);
         }
-        guesses
+        rank_guesses(self, x, y, candidates, 3)
     }
-}
-
-/// Readings below `theta_cut` with h > 0 and theta > 0, as (ln h, ln theta).
-fn log_points(x: &[f64], y: &[f64], theta_cut: f64) -> impl Iterator<Item = (f64, f64)> {
-    x.iter()
-        .zip(y)
-        .filter(move |(h, t)| **h > 0.0 && **t > 0.0 && **t < theta_cut && h.is_finite())
-        .map(|(h, t)| (h.ln(), t.ln()))
-}
-
-/// Mean of ln h and ln theta over the drier readings.
-fn log_centre(x: &[f64], y: &[f64], theta_cut: f64) -> Option<(f64, f64)> {
-    let (mut n, mut sx, mut sy) = (0.0, 0.0, 0.0);
-    for (lx, ly) in log_points(x, y, theta_cut) {
-        n += 1.0;
-        sx += lx;
-        sy += ly;
-    }
-    (n > 0.0).then(|| (sx / n, sy / n))
-}
-
-/// Least-squares slope of ln theta against ln h over the drier readings (< 0 for a curve).
-fn loglog_slope(x: &[f64], y: &[f64], theta_cut: f64) -> Option<f64> {
-    let (mx, my) = log_centre(x, y, theta_cut)?;
-    let (mut sxy, mut sxx) = (0.0, 0.0);
-    for (lx, ly) in log_points(x, y, theta_cut) {
-        sxy += (lx - mx) * (ly - my);
-        sxx += (lx - mx) * (lx - mx);
-    }
-    let slope = sxy / sxx;
-    (slope.is_finite() && slope < 0.0).then_some(slope)
 }
 
 impl RetentionModel for Campbell {

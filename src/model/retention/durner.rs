@@ -2,16 +2,16 @@
 //! m_i = 1 - 1/n_i.
 //!
 //! Mode 1 is the large-pore (wet-end) mode: the two orders of the modes describe the same curve,
-//! so [`canonicalize`] swaps them when alpha1 < alpha2, and every starting guess has
+//! so [`ModelKind::canonicalize`](super::ModelKind::canonicalize) swaps them when alpha1 < alpha2, and every starting guess has
 //! alpha1 > alpha2. That keeps a fitted parameter set identifiable and comparable.
 
 use crate::model::curve::{CurveModel, ParamSpec};
 
-use super::van_genuchten::mualem_m;
-use super::van_genuchten_free_m::{VgTerm, alpha_n_through_half, term_neg_d_h, term_se};
+use super::van_genuchten::{VanGenuchten, mualem_m};
+use super::van_genuchten_free_m::{VgTerm, term_neg_d_h, term_se, vg_candidates};
 use super::{
-    DataShape, ModelKind, RetentionModel, THETA_R, THETA_S, alpha_spec, clamp_all, end_guesses,
-    invert_by_bisection, n_spec,
+    DataShape, ModelKind, RetentionModel, THETA_R, THETA_S, alpha_spec, invert_by_bisection,
+    n_spec, rank_guesses, sse,
 };
 
 /// Bounds of the first mode's weight w1: [0.001, 0.999], just inside the open (0, 1); at
@@ -95,24 +95,55 @@ impl CurveModel for Durner {
         theta_r + d * se
     }
 
-    /// The unimodal van Genuchten guess split into a wet mode (alpha x 4) and a dry mode
-    /// (alpha / 4) of equal weight, then a dominant fine-pore mode and a dominant coarse one.
+    /// The unimodal van Genuchten guesses (through the halfway point, and the best linearized
+    /// one) each split into a wet mode (alpha x 4, steeper) and a dry mode (alpha / 4) of
+    /// equal weight, a dominant fine-pore mode, and a dominant coarse one; alpha1 > alpha2 in
+    /// all. Ranked by SSE on the readings, best three kept.
     fn initial_guesses(&self, x: &[f64], y: &[f64]) -> Vec<Vec<f64>> {
         let Some(shape) = DataShape::of(x, y) else {
             return vec![vec![0.05, 0.45, 0.4, 0.1, 3.0, 0.005, 1.5]];
         };
-        let (theta_r, theta_s) = end_guesses(&shape, 0.5);
-        let (alpha, n) = alpha_n_through_half(&shape, mualem_m);
-        let steep = 1.0 + 2.0 * (n - 1.0);
-        let mut guesses = vec![
-            vec![theta_r, theta_s, 0.5, alpha * 4.0, steep, alpha / 4.0, n],
-            vec![theta_r, theta_s, 0.3, alpha * 10.0, steep, alpha / 2.0, n],
-            vec![0.0, theta_s, 0.7, alpha * 2.0, n, alpha / 10.0, steep],
-        ];
-        for g in &mut guesses {
-            clamp_all(&PARAMS, g);
+        let mut candidates = Vec::new();
+        // The unimodal halfway guess and the unimodal candidate that fits best.
+        let unimodal = vg_candidates(x, y, &shape);
+        let best = unimodal
+            .iter()
+            .skip(1)
+            .min_by(|a, b| {
+                sse(&VanGenuchten, x, y, &a[..]).total_cmp(&sse(&VanGenuchten, x, y, &b[..]))
+            })
+            .copied();
+        for [theta_r, theta_s, alpha, n] in std::iter::once(unimodal[0]).chain(best) {
+            let steep = 1.0 + 2.0 * (n - 1.0);
+            candidates.push(vec![
+                theta_r,
+                theta_s,
+                0.5,
+                alpha * 4.0,
+                steep,
+                alpha / 4.0,
+                n,
+            ]);
+            candidates.push(vec![
+                theta_r,
+                theta_s,
+                0.3,
+                alpha * 10.0,
+                steep,
+                alpha / 2.0,
+                n,
+            ]);
+            candidates.push(vec![
+                theta_r,
+                theta_s,
+                0.7,
+                alpha * 2.0,
+                n,
+                alpha / 10.0,
+                steep,
+            ]);
         }
-        guesses
+        rank_guesses(self, x, y, candidates, 3)
     }
 }
 

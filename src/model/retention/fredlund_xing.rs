@@ -10,8 +10,8 @@ use crate::model::curve::{CurveModel, ParamSpec};
 use crate::model::units::CM_PER_KPA;
 
 use super::{
-    DataShape, ModelKind, RetentionModel, THETA_S, clamp_all, finite, invert_by_bisection, sigmoid,
-    softplus,
+    DataShape, ModelKind, RetentionModel, THETA_S, finite, invert_by_bisection, line_fit,
+    rank_guesses, softplus_sigmoid, theta_s_guess,
 };
 
 /// The oven-dry suction 10^6 kPa in cm, where the corrected curve reaches theta = 0.
@@ -58,6 +58,15 @@ pub(crate) const PARAMS: [ParamSpec; 5] = [THETA_S, A, N, M, H_R];
 /// The residual suction used by the first starting guess: 1500 kPa (common practice).
 const H_R_GUESS_CM: f64 = 1500.0 * CM_PER_KPA;
 
+/// The correction term C(h) = 1 - ln(1 + h / h_r) / ln(1 + h_dry / h_r), 0 beyond h_dry.
+pub fn correction(h_cm: f64, h_r_cm: f64) -> f64 {
+    if h_cm >= H_DRY_CM {
+        0.0
+    } else {
+        1.0 - (h_cm / h_r_cm).ln_1p() / (H_DRY_CM / h_r_cm).ln_1p()
+    }
+}
+
 /// The pieces shared by theta, its gradient and C(h), at 0 < h < h_dry.
 struct Terms {
     /// The correction C(h).
@@ -83,14 +92,15 @@ impl Terms {
         let b_den = (H_DRY_CM / h_r).ln_1p();
         let ln_r = (h / a).ln();
         let t = n * ln_r - 1.0;
-        let l = 1.0 + softplus(t);
+        let (sp, q) = softplus_sigmoid(t);
+        let l = 1.0 + sp;
         Terms {
             corr: 1.0 - a_num / b_den,
             a_num,
             b_den,
             l,
             lm: (-m * l.ln()).exp(),
-            q: sigmoid(t),
+            q,
             ln_r,
         }
     }
@@ -142,27 +152,44 @@ impl CurveModel for FredlundXing {
         theta_s * base
     }
 
-    /// theta_s just above the wettest reading, m = 1 and h_r = 1500 kPa; with m = 1 the
-    /// uncorrected curve is halfway at (h/a)^n = e^2 - e with |d Se / d ln h| = n (e^2 - e) /
-    /// (4 e^2), which gives n from the data's slope and a from their halfway crossing. Then
-    /// h_r = 3000 kPa, and a flatter curve with m = 0.5 bending later.
+    /// theta_s just above the wettest reading; for m in {0.5, 1, 2} and h_r = 1500 kPa (common
+    /// practice; also 3000 kPa with m = 1), a and n from the weighted straight line
+    /// ln(exp(S^(-1/m)) - e) = n (ln h - ln a), S = theta / (theta_s C(h)). Also the halfway
+    /// guess: with m = 1 the uncorrected curve is halfway at (h/a)^n = e^2 - e with
+    /// |d Se / d ln h| = n (e^2 - e) / (4 e^2). Ranked by SSE on the readings, best three kept.
+    #[allow(clippy::float_cmp)] // m is one of the listed constants
     fn initial_guesses(&self, x: &[f64], y: &[f64]) -> Vec<Vec<f64>> {
         let Some(shape) = DataShape::of(x, y) else {
             return vec![vec![0.4, 100.0, 2.0, 1.0, H_R_GUESS_CM]];
         };
-        let theta_s = (shape.theta_max * 1.01).max(shape.theta_max + 1e-3);
+        let theta_s = theta_s_guess(&shape);
         let y_half = E * E - E;
         let n = (shape.slope_ln_h * 4.0 * E * E / y_half).clamp(0.3, 15.0);
         let a = shape.h_half * (-y_half.ln() / n).exp();
-        let mut guesses = vec![
-            vec![theta_s, a, n, 1.0, H_R_GUESS_CM],
-            vec![theta_s, a, n, 1.0, 2.0 * H_R_GUESS_CM],
-            vec![theta_s, a * 2.0, n * 1.5, 0.5, H_R_GUESS_CM],
-        ];
-        for g in &mut guesses {
-            clamp_all(&PARAMS, g);
+        let mut candidates = vec![vec![theta_s, a, n, 1.0, H_R_GUESS_CM]];
+        let h_r = H_R_GUESS_CM;
+        for m in [0.5, 1.0, 2.0] {
+            let points = x.iter().zip(y).filter_map(move |(&h, &t)| {
+                let s = t / (theta_s * correction(h, h_r));
+                // exp(S^(-1/m)) - e = e (exp(S^(-1/m) - 1) - 1), > 0 for 0 < S < 1;
+                // |dS/dv| = m S q / L with L = S^(-1/m), q = 1 - e / e^L.
+                let l = (-s.ln() / m).exp();
+                let v = 1.0 + (l - 1.0).exp_m1().ln();
+                let w = m * s * (-(1.0 - l).exp_m1()) / l;
+                (h > 0.0 && s > 0.005 && s < 0.985 && v.is_finite()).then(|| (h.ln(), v, w * w))
+            });
+            if let Some((slope, intercept)) = line_fit(points)
+                && slope > 0.0
+            {
+                let a = (-intercept / slope).exp();
+                candidates.push(vec![theta_s, a, slope, m, h_r]);
+                if m == 1.0 {
+                    // The same curve with the other common residual suction.
+                    candidates.push(vec![theta_s, a, slope, m, 2.0 * h_r]);
+                }
+            }
         }
-        guesses
+        rank_guesses(self, x, y, candidates, 3)
     }
 }
 

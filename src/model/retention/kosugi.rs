@@ -7,7 +7,8 @@ use statrs::function::erf::{erfc, erfc_inv};
 use crate::model::curve::{CurveModel, ParamSpec};
 
 use super::{
-    DataShape, ModelKind, RetentionModel, THETA_R, THETA_S, clamp_all, end_guesses, finite,
+    DataShape, ModelKind, RetentionModel, THETA_R, THETA_S, finite, line_fit, rank_guesses,
+    se_points, theta_r_candidates, theta_s_guess,
 };
 
 /// 1 / sqrt(2 pi).
@@ -86,24 +87,35 @@ impl CurveModel for Kosugi {
         theta_r + d * se
     }
 
-    /// theta_s and theta_r from the wet and dry ends; h_m where the data cross their middle
-    /// (Se(h_m) = 1/2) and sigma from the slope there (|d Se / d ln h| = 1 / (sigma sqrt(2 pi)));
-    /// then theta_r = 0, and a wider distribution.
+    /// theta_s just above the wettest reading; for each theta_r candidate (fractions of the
+    /// driest reading) sigma and h_m from the straight line Q^-1(Se) = (ln h - ln h_m) / sigma.
+    /// Also the halfway guess: h_m where the data cross their middle and sigma from the slope
+    /// there (|d Se / d ln h| = 1 / (sigma sqrt(2 pi))). Ranked by SSE, best three kept.
     fn initial_guesses(&self, x: &[f64], y: &[f64]) -> Vec<Vec<f64>> {
         let Some(shape) = DataShape::of(x, y) else {
             return vec![vec![0.05, 0.4, 100.0, 1.5]];
         };
-        let (theta_r, theta_s) = end_guesses(&shape, 0.5);
+        let theta_s = theta_s_guess(&shape);
         let sigma = FRAC_1_SQRT_2PI / shape.slope_ln_h;
-        let mut guesses = vec![
-            vec![theta_r, theta_s, shape.h_half, sigma],
-            vec![0.0, theta_s, shape.h_half, sigma],
-            vec![theta_r, theta_s, shape.h_half * 2.0, sigma * 1.5],
-        ];
-        for g in &mut guesses {
-            clamp_all(&PARAMS, g);
+        let mut candidates = vec![vec![0.5 * shape.theta_min, theta_s, shape.h_half, sigma]];
+        for theta_r in theta_r_candidates(&shape) {
+            // y = Q^-1(Se), |d Se / dy| = phi(y).
+            let points = se_points(x, y, theta_r, theta_s).map(|(ln_h, se)| {
+                let z = SQRT_2 * erfc_inv(2.0 * se);
+                (ln_h, z, normal_pdf(z).powi(2))
+            });
+            if let Some((slope, intercept)) = line_fit(points)
+                && slope > 0.0
+            {
+                candidates.push(vec![
+                    theta_r,
+                    theta_s,
+                    (-intercept / slope).exp(),
+                    1.0 / slope,
+                ]);
+            }
         }
-        guesses
+        rank_guesses(self, x, y, candidates, 3)
     }
 }
 

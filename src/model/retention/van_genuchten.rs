@@ -2,12 +2,9 @@
 
 use crate::model::curve::{CurveModel, ParamSpec};
 
-use super::van_genuchten_free_m::{
-    VgTerm, alpha_n_through_half, term_neg_d_h, term_se, term_suction_at,
-};
+use super::van_genuchten_free_m::{VgTerm, term_neg_d_h, term_se, term_suction_at, vg_candidates};
 use super::{
-    DataShape, ModelKind, RetentionModel, THETA_R, THETA_S, alpha_spec, clamp_all, end_guesses,
-    n_spec,
+    DataShape, ModelKind, RetentionModel, THETA_R, THETA_S, alpha_spec, n_spec, rank_guesses,
 };
 
 /// `theta_r, theta_s, alpha_per_cm, n`.
@@ -49,29 +46,19 @@ impl CurveModel for VanGenuchten {
         theta_r + d * t.se
     }
 
-    /// theta_s just above the wettest reading and theta_r half the driest; alpha and n put the
-    /// curve's halfway point where the data cross the middle of their range, with the data's
-    /// slope there. Then theta_r = 0 with the same bend, and a steeper curve bending later.
+    /// theta_s just above the wettest reading; theta_r at fractions of the driest reading, with
+    /// alpha and n from the linearization ln(Se^(-1/m) - 1) = n ln(alpha h), started from the
+    /// n that gives the data's slope at their halfway crossing (see `vg_candidates`). The
+    /// candidates (and the halfway guess itself) are ranked by SSE; the best three kept.
     fn initial_guesses(&self, x: &[f64], y: &[f64]) -> Vec<Vec<f64>> {
         let Some(shape) = DataShape::of(x, y) else {
             return vec![vec![0.05, 0.4, 0.02, 1.5]];
         };
-        let (theta_r, theta_s) = end_guesses(&shape, 0.5);
-        let (alpha, n) = alpha_n_through_half(&shape, mualem_m);
-        let mut guesses = vec![
-            vec![theta_r, theta_s, alpha, n],
-            vec![0.0, theta_s, alpha, n],
-            vec![
-                (shape.theta_min * 0.9).max(0.0),
-                theta_s,
-                alpha * 0.5,
-                1.0 + 2.0 * (n - 1.0),
-            ],
-        ];
-        for g in &mut guesses {
-            clamp_all(&PARAMS, g);
-        }
-        guesses
+        let candidates = vg_candidates(x, y, &shape)
+            .into_iter()
+            .map(|c| c.to_vec())
+            .collect();
+        rank_guesses(self, x, y, candidates, 3)
     }
 }
 
