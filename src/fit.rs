@@ -1,3 +1,23 @@
 //! Fitting retention models to readings: bounded Levenberg-Marquardt, statistics, model choice.
 //!
-//! Pure computation over slices of suction (cm) and water content (m3/m3); no I/O.
+//! Pure computation over slices of suction (cm) and water content (m3/m3); no I/O. Any
+//! [`CurveModel`](crate::model::curve::CurveModel) can be fitted, retention curves and the
+//! NIST reference problems alike.
+
+mod config;
+mod driver;
+mod error;
+mod models;
+mod problem;
+mod report;
+mod stats;
+mod transform;
+
+pub use config::{Domain, FitOptions};
+pub use driver::{Readings, fit_curve};
+pub use error::FitError;
+pub use models::{AutoFit, RankedFit, SkippedModel, breakpoint_of, fit_auto, fit_model};
+pub use report::{FitReport, ParamEstimate, ParamMatrix, ReadingFit, Side, Termination};
+
+#[cfg(test)]
+mod tests;

@@ -20,6 +20,7 @@ pub mod diagnostic;
 mod fields;
 pub mod lab;
 pub mod layers;
+pub mod pairs;
 pub mod sites;
 pub mod table;
 

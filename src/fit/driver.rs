@@ -1,0 +1,873 @@
+//! The bounded multi-start Levenberg-Marquardt driver over any [`CurveModel`].
+//!
+//! One fit: validate the readings, map the free parameters to unbounded ones, run the solver
+//! from the model's best guess; a parameter that reaches a bound is held there and the rest
+//! refitted (an active set, released again when the gradient points inside); more starts only
+//! when the result looks doubtful; breakpoint parameters are searched interval by interval;
+//! then a sanity check and the statistics.
+
+use levenberg_marquardt::{LevenbergMarquardt, TerminationReason};
+use nalgebra::{DMatrix, DVector};
+
+use super::config::{Domain, FitOptions};
+use super::error::FitError;
+use super::problem::{Data, Problem};
+use super::report::{FitReport, ParamEstimate, ParamMatrix, ReadingFit, Termination};
+use super::stats::{self, Inversion};
+use super::transform::{Saturation, Side, Transform};
+use crate::model::curve::CurveModel;
+
+/// R2 below which a first result is doubtful enough to try more starts.
+const DOUBTFUL_R2: f64 = 0.9;
+/// Relative SSE gain needed for a refit held on a bound (or released from it) to be kept.
+const SSE_TIE: f64 = 1e-12;
+/// Extra starts for a converged fit with a low R2.
+const POOR_EXTRA_STARTS: usize = 2;
+
+/// The readings of one fit: x (suction, cm), y (water content) and optional weights.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Readings<'a> {
+    /// x values (suctions in cm for retention models).
+    pub x: &'a [f64],
+    /// y values (volumetric water content for retention models).
+    pub y: &'a [f64],
+    /// Optional weight per reading (each residual is multiplied by sqrt(w)).
+    pub weights: Option<&'a [f64]>,
+}
+
+impl<'a> Readings<'a> {
+    /// Unweighted readings.
+    pub fn new(x: &'a [f64], y: &'a [f64]) -> Self {
+        Self {
+            x,
+            y,
+            weights: None,
+        }
+    }
+
+    /// The same readings with a weight for each.
+    #[must_use]
+    pub fn with_weights(self, weights: &'a [f64]) -> Self {
+        Self {
+            weights: Some(weights),
+            ..self
+        }
+    }
+}
+
+/// Check the readings before any fitting.
+fn validate(readings: &Readings<'_>, domain: Domain) -> Result<(), FitError> {
+    let Readings { x, y, weights } = *readings;
+    if x.len() != y.len() || weights.is_some_and(|w| w.len() != x.len()) {
+        return Err(FitError::LengthMismatch {
+            x: x.len(),
+            y: y.len(),
+            weights: weights.map(<[f64]>::len).filter(|&w| w != x.len()),
+        });
+    }
+    for (i, (&xi, &yi)) in x.iter().zip(y).enumerate() {
+        if !xi.is_finite() {
+            return Err(FitError::NonFinite {
+                what: "suction",
+                index: i + 1,
+                value: xi,
+            });
+        }
+        if !yi.is_finite() {
+            return Err(FitError::NonFinite {
+                what: "theta",
+                index: i + 1,
+                value: yi,
+            });
+        }
+        if domain == Domain::Suction && xi < 0.0 {
+            return Err(FitError::NegativeSuction {
+                index: i + 1,
+                value: xi,
+            });
+        }
+    }
+    if let Some(w) = weights {
+        for (i, &wi) in w.iter().enumerate() {
+            if !wi.is_finite() {
+                return Err(FitError::NonFinite {
+                    what: "weight",
+                    index: i + 1,
+                    value: wi,
+                });
+            }
+            if wi <= 0.0 {
+                return Err(FitError::BadWeight {
+                    index: i + 1,
+                    value: wi,
+                });
+            }
+        }
+    }
+    let spread = |v: &[f64]| {
+        let lo = v.iter().copied().fold(f64::INFINITY, f64::min);
+        let hi = v.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        (lo, hi - lo)
+    };
+    if x.len() > 1 {
+        let (x0, range) = spread(x);
+        if range <= 0.0 {
+            return Err(FitError::SuctionsAllEqual { value: x0 });
+        }
+        let (y0, range) = spread(y);
+        if range <= 0.0 {
+            return Err(FitError::FlatData { value: y0 });
+        }
+    }
+    Ok(())
+}
+
+/// Bounds and fixed values of every parameter after the options are applied.
+#[derive(Debug, Clone)]
+struct Setup {
+    lower: Vec<f64>,
+    upper: Vec<f64>,
+    fixed: Vec<Option<f64>>,
+    breakpoint: Option<usize>,
+}
+
+fn unknown(model: &dyn CurveModel, id: &str, name: &str) -> FitError {
+    FitError::UnknownParameter {
+        model: id.to_string(),
+        name: name.to_string(),
+        known: model
+            .params()
+            .iter()
+            .map(|p| p.name)
+            .collect::<Vec<_>>()
+            .join(", "),
+    }
+}
+
+fn setup(model: &dyn CurveModel, id: &str, options: &FitOptions) -> Result<Setup, FitError> {
+    let specs = model.params();
+    let index = |name: &str| specs.iter().position(|s| s.name == name);
+    let mut lower: Vec<f64> = specs.iter().map(|s| s.lower).collect();
+    let mut upper: Vec<f64> = specs.iter().map(|s| s.upper).collect();
+    for (name, lo, hi) in &options.bounds {
+        match index(name) {
+            Some(k) => {
+                if lo.is_nan() || hi.is_nan() || lo >= hi {
+                    return Err(FitError::BadBounds {
+                        name: name.clone(),
+                        lower: *lo,
+                        upper: *hi,
+                    });
+                }
+                lower[k] = *lo;
+                upper[k] = *hi;
+            }
+            None if options.lenient_names => {}
+            None => return Err(unknown(model, id, name)),
+        }
+    }
+    let mut fixed = vec![None; specs.len()];
+    for (name, value) in &options.fixed {
+        match index(name) {
+            Some(k) => {
+                if !value.is_finite() || *value < lower[k] || *value > upper[k] {
+                    return Err(FitError::FixedOutsideBounds {
+                        name: name.clone(),
+                        value: *value,
+                        lower: lower[k],
+                        upper: upper[k],
+                    });
+                }
+                fixed[k] = Some(*value);
+            }
+            None if options.lenient_names => {}
+            None => return Err(unknown(model, id, name)),
+        }
+    }
+    let breakpoint = match &options.breakpoint {
+        Some(name) => match index(name) {
+            Some(k) => Some(k),
+            None if options.lenient_names => None,
+            None => return Err(unknown(model, id, name)),
+        },
+        None => None,
+    };
+    Ok(Setup {
+        lower,
+        upper,
+        fixed,
+        breakpoint,
+    })
+}
+
+/// The shared context of every solver run of one fit.
+struct Context<'a> {
+    model: &'a dyn CurveModel,
+    data: Data<'a>,
+    options: &'a FitOptions,
+    evaluations: usize,
+    runs: usize,
+}
+
+/// A finished solution: full physical parameters and how it was reached.
+#[derive(Debug, Clone)]
+struct Candidate {
+    p: Vec<f64>,
+    sse: f64,
+    termination: Termination,
+    pinned: Vec<Option<Side>>,
+}
+
+/// One solver run's outcome.
+struct Run {
+    p: Vec<f64>,
+    sse: f64,
+    termination: Termination,
+    saturated: Option<(usize, Saturation)>,
+}
+
+fn termination_of(reason: &TerminationReason) -> Termination {
+    match reason {
+        TerminationReason::Converged { .. } => Termination::Converged,
+        TerminationReason::Orthogonal => Termination::Orthogonal,
+        TerminationReason::ResidualsZero => Termination::ResidualsZero,
+        TerminationReason::NoImprovementPossible(_) => Termination::PrecisionLimit,
+        TerminationReason::LostPatience => Termination::MaxEvaluations,
+        _ => Termination::Numerical,
+    }
+}
+
+impl Context<'_> {
+    /// Weighted SSE at full parameters p (infinite when the model is not finite there).
+    fn sse(&self, p: &[f64]) -> f64 {
+        let mut sse = 0.0;
+        for (i, (&x, &y)) in self.data.x.iter().zip(self.data.y).enumerate() {
+            let sw = self.data.sqrt_w.map_or(1.0, |w| w[i]);
+            let r = sw * (self.model.value(x, p) - y);
+            sse += r * r;
+        }
+        if sse.is_finite() { sse } else { f64::INFINITY }
+    }
+
+    /// d SSE / d p_k at p (for the active-set release test).
+    fn sse_gradient(&self, p: &[f64], k: usize) -> f64 {
+        let mut grad = vec![0.0; p.len()];
+        let mut g = 0.0;
+        for (i, (&x, &y)) in self.data.x.iter().zip(self.data.y).enumerate() {
+            let w = self.data.sqrt_w.map_or(1.0, |w| w[i] * w[i]);
+            let f = self.model.value_and_gradient(x, p, &mut grad);
+            g += 2.0 * w * (f - y) * grad[k];
+        }
+        g
+    }
+
+    /// One Levenberg-Marquardt run from `start`, holding `hold` fixed, within `lo`..`hi`.
+    fn run(
+        &mut self,
+        start: &[f64],
+        hold: &[Option<f64>],
+        lo: &[f64],
+        hi: &[f64],
+        watch: bool,
+    ) -> Run {
+        let mut full: Vec<f64> = start.to_vec();
+        let mut free = Vec::with_capacity(full.len());
+        let mut transforms = Vec::with_capacity(full.len());
+        for (k, h) in hold.iter().enumerate() {
+            if let Some(v) = h {
+                full[k] = *v;
+            } else {
+                free.push(k);
+                transforms.push(Transform::for_bounds(lo[k], hi[k]));
+            }
+        }
+        self.runs += 1;
+        if free.is_empty() {
+            let sse = self.sse(&full);
+            self.evaluations += 1;
+            return Run {
+                p: full,
+                sse,
+                termination: Termination::Converged,
+                saturated: None,
+            };
+        }
+        let q0 = DVector::from_iterator(
+            free.len(),
+            free.iter()
+                .zip(&transforms)
+                .map(|(&k, t)| t.inverse_start(full[k].clamp(lo[k], hi[k]))),
+        );
+        let problem = Problem::new(self.model, self.data, &free, &transforms, full, q0, watch);
+        let tol = self.options.tolerance;
+        let (problem, report) = LevenbergMarquardt::new()
+            .with_ftol(tol)
+            .with_xtol(tol)
+            .with_gtol(tol)
+            .with_patience(self.options.patience)
+            .with_stepbound(self.options.step_bound)
+            .minimize(problem);
+        self.evaluations += report.number_of_evaluations;
+        let p = problem.physical(problem.q());
+        let saturated = problem.saturated().map(|(j, s)| (free[j], s));
+        let termination = match (&report.termination, saturated) {
+            (_, Some((_, Saturation::Runaway))) => Termination::Runaway,
+            (_, Some(_)) => Termination::Converged,
+            (reason, None) => termination_of(reason),
+        };
+        // The solver's objective is half the SSE at the point it holds (the last accepted one);
+        // recompute only when that point was a NaN stand-in or the solver stopped at once.
+        let half = report.objective_function;
+        let sse = if half.is_finite() && half < 1e290 && report.number_of_evaluations > 1 {
+            2.0 * half
+        } else {
+            self.sse(&p)
+        };
+        Run {
+            p,
+            sse,
+            termination,
+            saturated,
+        }
+    }
+
+    /// Solve from `start` with an active set for parameters that reach a finite bound.
+    fn solve(&mut self, start: &[f64], fixed: &[Option<f64>], lo: &[f64], hi: &[f64]) -> Candidate {
+        let n = start.len();
+        let mut hold = fixed.to_vec();
+        let mut pinned: Vec<Option<Side>> = vec![None; n];
+        let mut from = start.to_vec();
+        let mut run = self.run(&from, &hold, lo, hi, true);
+        for _ in 0..n {
+            match run.saturated {
+                Some((k, Saturation::Pinned(side))) => {
+                    let bound = if side == Side::Lower { lo[k] } else { hi[k] };
+                    hold[k] = Some(bound);
+                    pinned[k] = Some(side);
+                    from.clone_from(&run.p);
+                    run = self.run(&from, &hold, lo, hi, true);
+                }
+                _ => break,
+            }
+        }
+        let mut best = Candidate {
+            p: run.p,
+            sse: run.sse,
+            termination: run.termination,
+            pinned,
+        };
+        // Release held parameters whose gradient points into the interval (KKT test), and
+        // repeat while the released fit is better and leaves others on the wrong side.
+        for _ in 0..n {
+            let wrong_side: Vec<usize> = (0..n)
+                .filter(|&k| match best.pinned[k] {
+                    Some(Side::Lower) => self.sse_gradient(&best.p, k) < 0.0,
+                    Some(Side::Upper) => self.sse_gradient(&best.p, k) > 0.0,
+                    None => false,
+                })
+                .collect();
+            if wrong_side.is_empty() {
+                break;
+            }
+            let mut hold = fixed.to_vec();
+            let mut from = best.p.clone();
+            for (k, h) in hold.iter_mut().enumerate() {
+                if best.pinned[k].is_some() && !wrong_side.contains(&k) {
+                    *h = Some(best.p[k]);
+                }
+            }
+            for &k in &wrong_side {
+                let inside = 1e-3 * (hi[k] - lo[k]).min(1.0);
+                from[k] = match best.pinned[k] {
+                    Some(Side::Lower) => lo[k] + inside,
+                    _ => hi[k] - inside,
+                };
+            }
+            let released = self.run(&from, &hold, lo, hi, false);
+            if released.sse >= best.sse * (1.0 - SSE_TIE) {
+                break;
+            }
+            let mut pinned = best.pinned.clone();
+            for &k in &wrong_side {
+                pinned[k] = None;
+            }
+            best = Candidate {
+                p: released.p,
+                sse: released.sse,
+                termination: released.termination,
+                pinned,
+            };
+        }
+        best
+    }
+}
+
+/// Keep the better of two candidates: the lower SSE; within a tie, an optimum.
+fn better(a: Candidate, b: Candidate) -> Candidate {
+    let tie = (a.sse - b.sse).abs() <= SSE_TIE * a.sse.abs().max(b.sse.abs());
+    let prefer_b = if tie {
+        b.termination.is_optimum() && !a.termination.is_optimum()
+    } else {
+        b.sse < a.sse || a.sse.is_nan()
+    };
+    if prefer_b { b } else { a }
+}
+
+/// Starting points beyond the model's own: the best so far, shifted in the solver's space.
+fn perturbed_start(
+    base: &[f64],
+    fixed: &[Option<f64>],
+    lo: &[f64],
+    hi: &[f64],
+    index: usize,
+) -> Vec<f64> {
+    // A fixed sign pattern per start (bits of a small odd multiplier), magnitude 1.5 in q.
+    let pattern = (index as u64 + 1).wrapping_mul(0x9E37_79B9_7F4A_7C15) >> 7;
+    let mut p = base.to_vec();
+    for (k, v) in p.iter_mut().enumerate() {
+        if fixed[k].is_some() {
+            continue;
+        }
+        let sign = if (pattern >> k) & 1 == 1 { 1.0 } else { -1.0 };
+        let shift = sign * (1.0 + 0.25 * ((pattern >> (k + 16)) & 3) as f64);
+        let t = Transform::for_bounds(lo[k], hi[k]);
+        *v = match t {
+            Transform::Identity => *v + shift * 0.5 * (v.abs() + 1.0),
+            _ => t.forward(t.inverse_start(*v) + shift).0,
+        };
+    }
+    p
+}
+
+/// Fit a curve model to readings.
+///
+/// `id` names the model in the report. The first of the model's starting guesses is tried
+/// first; the others, and perturbed starts, only when the result looks doubtful (the solver
+/// did not stop at an optimum, R2 < 0.9, or a parameter ended on a bound). The best SSE wins.
+///
+/// # Errors
+/// [`FitError`] for input that cannot be fitted: mismatched lengths, NaN or infinity, a negative
+/// suction, flat data, equal suctions, too few readings, unknown parameter names, bad bounds.
+pub fn fit_curve(
+    model: &dyn CurveModel,
+    id: &str,
+    readings: &Readings<'_>,
+    options: &FitOptions,
+) -> Result<FitReport, FitError> {
+    fit_curve_with(model, id, readings, options, &Hooks::default())
+}
+
+/// Model-specific knowledge a caller may lend the driver.
+#[derive(Debug, Clone, Copy, Default)]
+pub(crate) struct Hooks {
+    /// Map equivalent parameter sets onto one canonical form; applied to the kept solution
+    /// (when nothing is fixed or on a bound) before the statistics.
+    pub canonicalize: Option<fn(&mut [f64])>,
+    /// Positions of parameters that enter the curve as f = a (1 - g) + b g (theta_r, theta_s)
+    /// or f = b g (theta_s alone): each start gets them by linear least squares first.
+    pub linear: Option<(Option<usize>, usize)>,
+}
+
+/// Improve a start: the linear parameters (see [`Hooks::linear`]) by least squares given the
+/// start's shape parameters. Leaves the start alone when the answer is not usable.
+fn refine_linear(ctx: &Context<'_>, setup: &Setup, linear: (Option<usize>, usize), p: &mut [f64]) {
+    let (r, s) = linear;
+    if setup.fixed[s].is_some() || r.is_some_and(|r| setup.fixed[r].is_some()) {
+        return;
+    }
+    let (r0, s0) = (r.map_or(0.0, |r| p[r]), p[s]);
+    if s0 - r0 <= 0.0 {
+        return;
+    }
+    // g_i: the shape term at the start; solve min sum w (a (1 - g) + b g - y)^2.
+    let (mut saa, mut sab, mut sbb, mut say, mut sby) = (0.0, 0.0, 0.0, 0.0, 0.0);
+    for (i, (&x, &y)) in ctx.data.x.iter().zip(ctx.data.y).enumerate() {
+        let w = ctx.data.sqrt_w.map_or(1.0, |w| w[i] * w[i]);
+        let g = (ctx.model.value(x, p) - r0) / (s0 - r0);
+        let a = if r.is_some() { 1.0 - g } else { 0.0 };
+        saa += w * a * a;
+        sab += w * a * g;
+        sbb += w * g * g;
+        say += w * a * y;
+        sby += w * g * y;
+    }
+    let (new_r, new_s) = if r.is_some() {
+        let det = saa * sbb - sab * sab;
+        if det.is_nan() || det.abs() <= 1e-12 * saa * sbb {
+            return;
+        }
+        ((say * sbb - sby * sab) / det, (saa * sby - sab * say) / det)
+    } else if sbb > 0.0 {
+        (0.0, sby / sbb)
+    } else {
+        return;
+    };
+    let inside = |k: usize, v: f64| v.is_finite() && v >= setup.lower[k] && v <= setup.upper[k];
+    if !inside(s, new_s) || r.is_some_and(|r| !inside(r, new_r) || new_r >= new_s) {
+        return;
+    }
+    p[s] = new_s;
+    if let Some(r) = r {
+        p[r] = new_r;
+    }
+}
+
+/// [`fit_curve`] with model-specific [`Hooks`].
+pub(crate) fn fit_curve_with(
+    model: &dyn CurveModel,
+    id: &str,
+    readings: &Readings<'_>,
+    options: &FitOptions,
+    hooks: &Hooks,
+) -> Result<FitReport, FitError> {
+    validate(readings, options.domain)?;
+    let setup = setup(model, id, options)?;
+    let free = setup.fixed.iter().filter(|f| f.is_none()).count();
+    if free == 0 {
+        return Err(FitError::NothingToFit {
+            model: id.to_string(),
+        });
+    }
+    let n = readings.x.len();
+    if n <= free {
+        return Err(FitError::TooFewPoints { points: n, free });
+    }
+    let sqrt_w: Option<Vec<f64>> = readings
+        .weights
+        .map(|w| w.iter().map(|v| v.sqrt()).collect());
+    let data = Data {
+        x: readings.x,
+        y: readings.y,
+        sqrt_w: sqrt_w.as_deref(),
+    };
+    let mut ctx = Context {
+        model,
+        data,
+        options,
+        evaluations: 0,
+        runs: 0,
+    };
+    let sst = total_sum_of_squares(&data);
+    let mut guesses = model.initial_guesses(readings.x, readings.y);
+    guesses.retain(|g| g.len() == setup.lower.len());
+    if guesses.is_empty() {
+        guesses.push(default_start(&setup));
+    }
+    if let Some(linear) = hooks.linear {
+        refine_linear(&ctx, &setup, linear, &mut guesses[0]);
+    }
+    let mut best = solve_start(&mut ctx, &setup, &guesses[0]);
+    let failed = |c: &Candidate| !c.termination.is_optimum() || !c.sse.is_finite();
+    let poor = |c: &Candidate| sst > 0.0 && 1.0 - c.sse / sst < DOUBTFUL_R2;
+    // A failed run gets the full budget of extra starts; a poor fit (low R2, often just flat
+    // noisy data) a second and third opinion. A fit on a bound has had its active-set refit
+    // already (in the benchmark a further start there changed 1 sample in 3000 and cost 20 %).
+    let budget = if failed(&best) {
+        options.max_extra_starts
+    } else if poor(&best) {
+        options.max_extra_starts.min(POOR_EXTRA_STARTS)
+    } else {
+        0
+    };
+    let mut perturbation = 0;
+    let mut continued = false;
+    for extra in 0..budget {
+        // A run that stopped short (evaluation budget) first goes on from where it stopped.
+        let start = match guesses.get(extra + 1 - usize::from(continued)) {
+            _ if !continued && failed(&best) && best.sse.is_finite() => {
+                continued = true;
+                best.p.clone()
+            }
+            Some(g) => {
+                let mut g = g.clone();
+                if let Some(linear) = hooks.linear {
+                    refine_linear(&ctx, &setup, linear, &mut g);
+                }
+                g
+            }
+            None => {
+                perturbation += 1;
+                perturbed_start(
+                    &best.p,
+                    &setup.fixed,
+                    &setup.lower,
+                    &setup.upper,
+                    perturbation,
+                )
+            }
+        };
+        let c = solve_start(&mut ctx, &setup, &start);
+        best = better(best, c);
+        if !failed(&best) && !poor(&best) {
+            break;
+        }
+    }
+    if !best.sse.is_finite() {
+        return Err(FitError::NoFiniteFit {
+            reason: best.termination.to_string(),
+        });
+    }
+    if let Some(canon) = hooks.canonicalize
+        && setup.fixed.iter().all(Option::is_none)
+        && best.pinned.iter().all(Option::is_none)
+    {
+        canon(&mut best.p);
+    }
+    Ok(build_report(&ctx, id, &setup, &best, sst))
+}
+
+/// A start for a model with no guesses: the middle of each interval (1 when unbounded).
+fn default_start(setup: &Setup) -> Vec<f64> {
+    setup
+        .lower
+        .iter()
+        .zip(&setup.upper)
+        .map(|(&lo, &hi)| match (lo.is_finite(), hi.is_finite()) {
+            (true, true) => 0.5 * (lo + hi),
+            (true, false) => lo + 1.0,
+            (false, true) => hi - 1.0,
+            (false, false) => 1.0,
+        })
+        .collect()
+}
+
+/// Solve from one start, interval by interval when the model has a free breakpoint.
+fn solve_start(ctx: &mut Context<'_>, setup: &Setup, start: &[f64]) -> Candidate {
+    let Some(b) = setup.breakpoint.filter(|&b| setup.fixed[b].is_none()) else {
+        return ctx.solve(start, &setup.fixed, &setup.lower, &setup.upper);
+    };
+    let (lo_b, hi_b) = (setup.lower[b], setup.upper[b]);
+    let mut edges: Vec<f64> = ctx
+        .data
+        .x
+        .iter()
+        .copied()
+        .filter(|&x| x > lo_b && x < hi_b)
+        .collect();
+    edges.sort_by(f64::total_cmp);
+    edges.dedup();
+    edges.insert(0, lo_b);
+    edges.push(hi_b);
+    let mut lo = setup.lower.clone();
+    let mut hi = setup.upper.clone();
+    let mut best: Option<Candidate> = None;
+    for w in edges.windows(2) {
+        let (a, z) = (w[0], w[1]);
+        lo[b] = a;
+        hi[b] = z;
+        let mut s = start.to_vec();
+        s[b] = if a > 0.0 && z.is_finite() {
+            (a * z).sqrt()
+        } else if z.is_finite() {
+            0.5 * (a + z)
+        } else {
+            2.0 * a.max(1.0)
+        };
+        let mut c = ctx.solve(&s, &setup.fixed, &lo, &hi);
+        // Held on an interval edge is a kink, not a bound, unless the edge is the bound.
+        c.pinned[b] = match c.pinned[b] {
+            Some(Side::Lower) if a <= lo_b => Some(Side::Lower),
+            Some(Side::Upper) if z >= hi_b => Some(Side::Upper),
+            _ => None,
+        };
+        best = Some(match best {
+            Some(prev) => better(prev, c),
+            None => c,
+        });
+    }
+    best.unwrap_or_else(|| ctx.solve(start, &setup.fixed, &setup.lower, &setup.upper))
+}
+
+/// sum w (y - weighted mean)^2.
+fn total_sum_of_squares(data: &Data<'_>) -> f64 {
+    let w = |i: usize| data.sqrt_w.map_or(1.0, |s| s[i] * s[i]);
+    let (mut sw, mut swy) = (0.0, 0.0);
+    for (i, &y) in data.y.iter().enumerate() {
+        sw += w(i);
+        swy += w(i) * y;
+    }
+    let mean = swy / sw;
+    data.y
+        .iter()
+        .enumerate()
+        .map(|(i, &y)| w(i) * (y - mean) * (y - mean))
+        .sum()
+}
+
+/// Statistics and diagnostics at the kept candidate.
+fn build_report(
+    ctx: &Context<'_>,
+    id: &str,
+    setup: &Setup,
+    best: &Candidate,
+    sst: f64,
+) -> FitReport {
+    let specs = ctx.model.params();
+    let n = ctx.data.x.len();
+    let np = specs.len();
+    let k = setup.fixed.iter().filter(|f| f.is_none()).count();
+    let cov_params: Vec<usize> = (0..np)
+        .filter(|&j| setup.fixed[j].is_none() && best.pinned[j].is_none())
+        .collect();
+    let p = cov_params.len();
+    let mut jac = DMatrix::zeros(n, p);
+    let mut fitted = Vec::with_capacity(n);
+    let mut e = Vec::with_capacity(n);
+    let mut grad = vec![0.0; np];
+    let mut sse = 0.0;
+    for i in 0..n {
+        let f = ctx
+            .model
+            .value_and_gradient(ctx.data.x[i], &best.p, &mut grad);
+        let sw = ctx.data.sqrt_w.map_or(1.0, |w| w[i]);
+        for (c, &j) in cov_params.iter().enumerate() {
+            jac[(i, c)] = sw * grad[j];
+        }
+        let ei = sw * (ctx.data.y[i] - f);
+        sse += ei * ei;
+        fitted.push(f);
+        e.push(ei);
+    }
+    let dof = n.saturating_sub(k);
+    let s2 = (dof > 0).then(|| sse / dof as f64);
+    let mut notes: Vec<String> = Vec::new();
+    let inverse = if jac.iter().all(|v| v.is_finite()) {
+        stats::inverse_normal_matrix(&jac)
+    } else {
+        None
+    };
+    if inverse.is_none() && p > 0 {
+        notes.push("no standard errors: the Jacobian is singular (parameters not identifiable from these readings)".to_string());
+    } else if let Some((_, Inversion::PseudoInverse)) = &inverse {
+        notes.push(
+            "standard errors from a pseudo-inverse: the Jacobian is nearly singular".to_string(),
+        );
+    }
+    let inv = inverse.as_ref().map(|(m, _)| m);
+    let cov = match (inv, s2) {
+        (Some(inv), Some(s2)) => Some(inv * s2),
+        _ => None,
+    };
+    let t = stats::t975(dof);
+    let mut parameters = Vec::with_capacity(np);
+    for (j, spec) in specs.iter().enumerate() {
+        let value = best.p[j];
+        let se = cov_params
+            .iter()
+            .position(|&c| c == j)
+            .and_then(|c| cov.as_ref().map(|m| m[(c, c)]))
+            .filter(|v| v.is_finite() && *v >= 0.0)
+            .map(f64::sqrt);
+        let ci95 = match (se, t) {
+            (Some(se), Some(t)) => Some([value - t * se, value + t * se]),
+            _ => None,
+        };
+        if let Some(side) = best.pinned[j] {
+            let bound = if side == Side::Lower {
+                setup.lower[j]
+            } else {
+                setup.upper[j]
+            };
+            notes.push(format!(
+                "{} on its {} bound {bound} (held there)",
+                spec.name,
+                if side == Side::Lower {
+                    "lower"
+                } else {
+                    "upper"
+                }
+            ));
+        }
+        parameters.push(ParamEstimate {
+            name: spec.name.to_string(),
+            unit: spec.unit.to_string(),
+            value,
+            se,
+            ci95,
+            fixed: setup.fixed[j].is_some(),
+            at_bound: best.pinned[j],
+        });
+    }
+    let names: Vec<String> = cov_params
+        .iter()
+        .map(|&j| specs[j].name.to_string())
+        .collect();
+    let (covariance, correlation) = match &cov {
+        Some(m) if m.iter().all(|v| v.is_finite()) => {
+            let rows = |f: &dyn Fn(usize, usize) -> f64| -> Vec<Vec<f64>> {
+                (0..p).map(|r| (0..p).map(|c| f(r, c)).collect()).collect()
+            };
+            let cov_rows = rows(&|r, c| m[(r, c)]);
+            let diag_ok = (0..p).all(|r| m[(r, r)] > 0.0);
+            let corr = diag_ok.then(|| ParamMatrix {
+                names: names.clone(),
+                rows: rows(&|r, c| (m[(r, c)] / (m[(r, r)] * m[(c, c)]).sqrt()).clamp(-1.0, 1.0)),
+            });
+            (
+                Some(ParamMatrix {
+                    names: names.clone(),
+                    rows: cov_rows,
+                }),
+                corr,
+            )
+        }
+        _ => (None, None),
+    };
+    let mut readings = Vec::with_capacity(n);
+    let mut row = vec![0.0; p];
+    for i in 0..n {
+        for (c, r) in row.iter_mut().enumerate() {
+            *r = jac[(i, c)];
+        }
+        let inf = stats::influence(e[i], &row, inv, s2, dof, sse);
+        readings.push(ReadingFit {
+            x: ctx.data.x[i],
+            observed: ctx.data.y[i],
+            fitted: fitted[i],
+            residual: ctx.data.y[i] - fitted[i],
+            leverage: inf.leverage,
+            studentized: inf.studentized,
+            studentized_external: inf.external,
+            cooks_distance: inf.cooks,
+        });
+    }
+    let (aic, aicc, bic) = stats::information_criteria(n, k, sse);
+    let r2 = (sst > 0.0).then(|| 1.0 - sse / sst);
+    let mut converged = true;
+    let mut problems: Vec<String> = Vec::new();
+    if !best.termination.is_optimum() {
+        converged = false;
+        problems.push(format!("not converged: {}", best.termination));
+    }
+    if best.p.iter().any(|v| !v.is_finite()) || !sse.is_finite() {
+        converged = false;
+        problems.push("not converged: non-finite result".to_string());
+    }
+    if r2.is_some_and(|r| r < -1e-9) {
+        converged = false;
+        problems
+            .push("not converged: the fit is worse than a horizontal line (R2 < 0)".to_string());
+    }
+    problems.extend(notes);
+    FitReport {
+        model: id.to_string(),
+        parameters,
+        sse,
+        rmse: (sse / n as f64).sqrt(),
+        residual_sd: s2.map(f64::sqrt),
+        r2,
+        aic,
+        aicc,
+        bic,
+        n_points: n,
+        n_free_params: k,
+        converged,
+        message: (!problems.is_empty()).then(|| problems.join("; ")),
+        termination: best.termination,
+        evaluations: ctx.evaluations,
+        runs: ctx.runs,
+        covariance,
+        correlation,
+        readings,
+    }
+}

@@ -1,0 +1,177 @@
+//! The result of one fit: estimates, statistics and per-reading diagnostics.
+//!
+//! Everything is computed from the Jacobian in the physical (original) parameters at the
+//! optimum. A value that does not apply (no degrees of freedom, a singular Jacobian, a
+//! parameter on a bound) is `None`, which serialises as JSON `null`; no field is ever NaN.
+
+use serde::{Deserialize, Serialize};
+
+pub use super::transform::Side;
+
+/// Why the solver run that was kept stopped.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Termination {
+    /// The relative change of the sum of squares or of the step fell below the tolerance.
+    Converged,
+    /// The residuals are orthogonal to every Jacobian column (gradient test).
+    Orthogonal,
+    /// The residuals are exactly zero.
+    ResidualsZero,
+    /// No further progress is possible in double precision (a tolerance was met at machine epsilon).
+    PrecisionLimit,
+    /// The evaluation budget ran out.
+    MaxEvaluations,
+    /// The model produced NaN or infinity along the way.
+    Numerical,
+    /// A parameter ran off towards an infinite bound.
+    Runaway,
+}
+
+impl Termination {
+    /// True for the stops that leave a (local) optimum: converged, orthogonal, zero, precision.
+    pub fn is_optimum(self) -> bool {
+        matches!(
+            self,
+            Termination::Converged
+                | Termination::Orthogonal
+                | Termination::ResidualsZero
+                | Termination::PrecisionLimit
+        )
+    }
+}
+
+impl std::fmt::Display for Termination {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Termination::Converged => "converged",
+            Termination::Orthogonal => "converged (gradient)",
+            Termination::ResidualsZero => "residuals zero",
+            Termination::PrecisionLimit => "at the limit of double precision",
+            Termination::MaxEvaluations => "evaluation budget exhausted",
+            Termination::Numerical => "NaN or infinity in the model",
+            Termination::Runaway => "a parameter ran off to infinity",
+        })
+    }
+}
+
+/// One parameter's estimate.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ParamEstimate {
+    /// Identifier (unit in the name), as in the model's parameter list.
+    pub name: String,
+    /// Display unit.
+    pub unit: String,
+    /// Estimated (or fixed) value.
+    pub value: f64,
+    /// Standard error sqrt(Cov_kk); `None` when fixed, on a bound, with no degrees of freedom
+    /// or with a singular Jacobian.
+    pub se: Option<f64>,
+    /// 95 % confidence interval value -+ t(0.975, dof) * se (Student t), when se is known.
+    pub ci95: Option<[f64; 2]>,
+    /// Fixed by the caller (not estimated).
+    pub fixed: bool,
+    /// The estimate ended on this bound and was refitted held there (active set).
+    pub at_bound: Option<Side>,
+}
+
+/// A symmetric matrix over named parameters (the free ones off their bounds).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ParamMatrix {
+    /// Row and column names.
+    pub names: Vec<String>,
+    /// Row-major values.
+    pub rows: Vec<Vec<f64>>,
+}
+
+impl ParamMatrix {
+    /// The entry for two named parameters.
+    pub fn get(&self, a: &str, b: &str) -> Option<f64> {
+        let i = self.names.iter().position(|n| n == a)?;
+        let j = self.names.iter().position(|n| n == b)?;
+        Some(self.rows[i][j])
+    }
+}
+
+/// One reading's fit and influence diagnostics.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ReadingFit {
+    /// x (suction in cm for retention models).
+    pub x: f64,
+    /// Observed y (water content).
+    pub observed: f64,
+    /// Fitted y at x.
+    pub fitted: f64,
+    /// observed - fitted (unweighted).
+    pub residual: f64,
+    /// Diagonal of the hat matrix W^1/2 J (J' W J)^-1 J' W^1/2.
+    pub leverage: Option<f64>,
+    /// e_i / (s sqrt(1 - h_ii)), e_i the weighted residual, s the residual standard deviation.
+    pub studentized: Option<f64>,
+    /// As `studentized` with s estimated without reading i (externally studentized).
+    pub studentized_external: Option<f64>,
+    /// Cook's distance: studentized^2 h_ii / (p (1 - h_ii)), p the parameters in the covariance.
+    pub cooks_distance: Option<f64>,
+}
+
+/// The result of fitting one model to one set of readings.
+///
+/// With n readings, k free parameters (estimated, bounds included; fixed ones excluded) and
+/// SSE = sum w_i (y_i - f_i)^2 (w_i = 1 without weights), the information criteria are from the
+/// Gaussian likelihood with its constants dropped and without counting the variance as a
+/// parameter (so AICc exists whenever n > k + 1, the rule `auto` uses):
+/// AIC = n ln(SSE/n) + 2k, AICc = AIC + 2k(k+1)/(n-k-1), BIC = n ln(SSE/n) + k ln n.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FitReport {
+    /// Model identifier (`van-genuchten`, ...).
+    pub model: String,
+    /// Every parameter of the model, in its order.
+    pub parameters: Vec<ParamEstimate>,
+    /// Weighted sum of squared residuals.
+    pub sse: f64,
+    /// sqrt(SSE / n).
+    pub rmse: f64,
+    /// Residual standard deviation s = sqrt(SSE / (n - k)); `None` when n = k.
+    pub residual_sd: Option<f64>,
+    /// 1 - SSE / SST with SST = sum w_i (y_i - weighted mean)^2.
+    pub r2: Option<f64>,
+    /// Akaike information criterion (see the type's documentation).
+    pub aic: Option<f64>,
+    /// AIC with the small-sample correction; `None` when n <= k + 1 or SSE = 0.
+    pub aicc: Option<f64>,
+    /// Bayesian (Schwarz) information criterion.
+    pub bic: Option<f64>,
+    /// Number of readings n.
+    pub n_points: usize,
+    /// Number of free (estimated) parameters k.
+    pub n_free_params: usize,
+    /// The fit passed every check: the solver stopped at an optimum, the SSE is finite and
+    /// no better than a horizontal line is not the result, no parameter ran away.
+    pub converged: bool,
+    /// Why the fit is not converged, or notes on it (parameters on bounds, singular Jacobian).
+    pub message: Option<String>,
+    /// Why the kept solver run stopped.
+    pub termination: Termination,
+    /// Residual evaluations over every run (starts, active set, intervals).
+    pub evaluations: usize,
+    /// Solver runs made.
+    pub runs: usize,
+    /// s^2 (J' W J)^-1 over the free parameters off their bounds.
+    pub covariance: Option<ParamMatrix>,
+    /// Correlations from the covariance.
+    pub correlation: Option<ParamMatrix>,
+    /// Per reading, in input order.
+    pub readings: Vec<ReadingFit>,
+}
+
+impl FitReport {
+    /// The estimate of a named parameter.
+    pub fn parameter(&self, name: &str) -> Option<&ParamEstimate> {
+        self.parameters.iter().find(|p| p.name == name)
+    }
+
+    /// The parameter values in model order.
+    pub fn values(&self) -> Vec<f64> {
+        self.parameters.iter().map(|p| p.value).collect()
+    }
+}

@@ -1,0 +1,292 @@
+//! Unit tests of the driver with a private van Genuchten model (m = 1 - 1/n).
+
+#![allow(clippy::float_cmp)]
+
+use super::*;
+use crate::model::curve::{CurveModel, ParamSpec};
+
+/// van Genuchten (1980), m = 1 - 1/n; written here so the driver is tested on its own.
+struct Vg;
+
+const VG: [ParamSpec; 4] = [
+    ParamSpec {
+        name: "theta_r",
+        unit: "m3/m3",
+        lower: 0.0,
+        upper: 0.5,
+    },
+    ParamSpec {
+        name: "theta_s",
+        unit: "m3/m3",
+        lower: 0.2,
+        upper: 0.7,
+    },
+    ParamSpec {
+        name: "alpha_per_cm",
+        unit: "1/cm",
+        lower: 1e-5,
+        upper: 10.0,
+    },
+    ParamSpec {
+        name: "n",
+        unit: "-",
+        lower: 1.01,
+        upper: 15.0,
+    },
+];
+
+impl CurveModel for Vg {
+    fn params(&self) -> &[ParamSpec] {
+        &VG
+    }
+    fn value(&self, h: f64, p: &[f64]) -> f64 {
+        let mut g = [0.0; 4];
+        self.value_and_gradient(h, p, &mut g)
+    }
+    fn value_and_gradient(&self, h: f64, p: &[f64], grad: &mut [f64]) -> f64 {
+        let (tr, ts, alpha, n) = (p[0], p[1], p[2], p[3]);
+        let m = 1.0 - 1.0 / n;
+        let x = alpha * h;
+        if x <= 0.0 {
+            grad.copy_from_slice(&[0.0, 1.0, 0.0, 0.0]);
+            return ts;
+        }
+        let lnx = x.ln();
+        let u = (n * lnx).exp();
+        let b = 1.0 + u;
+        let lnb = u.ln_1p();
+        let s = (-m * lnb).exp();
+        let d = ts - tr;
+        grad[0] = 1.0 - s;
+        grad[1] = s;
+        grad[2] = d * (-m * n * u * s / (alpha * b));
+        grad[3] = d * s * (-lnb / (n * n) - m * u * lnx / b);
+        tr + d * s
+    }
+    fn initial_guesses(&self, x: &[f64], y: &[f64]) -> Vec<Vec<f64>> {
+        let ymax = y.iter().copied().fold(f64::MIN, f64::max);
+        let ymin = y.iter().copied().fold(f64::MAX, f64::min);
+        let mid = 0.5 * (ymax + ymin);
+        let mut best = (f64::MAX, 100.0);
+        for (&h, &t) in x.iter().zip(y) {
+            if (t - mid).abs() < best.0 && h > 0.0 {
+                best = ((t - mid).abs(), h);
+            }
+        }
+        vec![vec![ymin * 0.5, ymax, 1.0 / best.1, 1.6]]
+    }
+}
+
+const H: [f64; 9] = [0.0, 10.0, 30.0, 60.0, 100.0, 330.0, 1000.0, 3000.0, 15000.0];
+
+fn curve(p: &[f64]) -> Vec<f64> {
+    H.iter().map(|&h| Vg.value(h, p)).collect()
+}
+
+#[test]
+fn recovers_a_noise_free_curve() {
+    let truth = [0.065, 0.41, 0.075, 1.89];
+    let y = curve(&truth);
+    let r = fit_curve(&Vg, "vg", &Readings::new(&H, &y), &FitOptions::new()).unwrap();
+    assert!(r.converged, "{r:?}");
+    for (got, want) in r.values().iter().zip(truth) {
+        assert!((got - want).abs() <= 1e-7 * want, "{got} vs {want}");
+    }
+    assert!(r.sse < 1e-20);
+    assert_eq!(r.n_free_params, 4);
+    assert_eq!(r.readings.len(), 9);
+}
+
+#[test]
+fn fixed_parameters_leave_the_vector() {
+    let truth = [0.0, 0.41, 0.075, 1.89];
+    let mut y = curve(&truth);
+    y[3] += 0.004;
+    let opts = FitOptions::new().with_fixed("theta_r", 0.0);
+    let r = fit_curve(&Vg, "vg", &Readings::new(&H, &y), &opts).unwrap();
+    let tr = r.parameter("theta_r").unwrap();
+    assert!(tr.fixed && tr.value == 0.0 && tr.se.is_none());
+    assert_eq!(r.n_free_params, 3);
+    assert_eq!(r.covariance.as_ref().unwrap().names.len(), 3);
+    assert!(r.parameter("n").unwrap().se.is_some());
+}
+
+#[test]
+fn theta_r_pinned_at_zero_is_held_there() {
+    // A curve that wants a negative theta_r: the best bounded fit has theta_r = 0.
+    let truth = [0.0, 0.41, 0.075, 1.89];
+    let mut y = curve(&truth);
+    for v in y.iter_mut().skip(6) {
+        *v -= 0.01;
+    }
+    let r = fit_curve(&Vg, "vg", &Readings::new(&H, &y), &FitOptions::new()).unwrap();
+    let tr = r.parameter("theta_r").unwrap();
+    assert_eq!(tr.value, 0.0);
+    assert_eq!(tr.at_bound, Some(Side::Lower));
+    assert!(r.converged);
+    assert!(
+        r.message
+            .as_deref()
+            .unwrap_or("")
+            .contains("theta_r on its lower bound")
+    );
+}
+
+#[test]
+fn bad_input_is_an_error_not_a_panic() {
+    let y = curve(&[0.065, 0.41, 0.075, 1.89]);
+    let opts = FitOptions::new();
+    let err = |x: &[f64], y: &[f64]| fit_curve(&Vg, "vg", &Readings::new(x, y), &opts).unwrap_err();
+    assert!(matches!(
+        err(&H[..4], &y[..4]),
+        FitError::TooFewPoints { points: 4, free: 4 }
+    ));
+    assert!(matches!(err(&H, &[0.3; 9]), FitError::FlatData { .. }));
+    assert!(matches!(
+        err(&[5.0; 9], &y),
+        FitError::SuctionsAllEqual { .. }
+    ));
+    assert!(matches!(err(&H[..8], &y), FitError::LengthMismatch { .. }));
+    let mut bad = y.clone();
+    bad[2] = f64::NAN;
+    assert!(matches!(
+        err(&H, &bad),
+        FitError::NonFinite {
+            what: "theta",
+            index: 3,
+            ..
+        }
+    ));
+    let mut neg = H;
+    neg[1] = -1.0;
+    assert!(matches!(
+        err(&neg, &y),
+        FitError::NegativeSuction { index: 2, .. }
+    ));
+    let unknown = FitOptions::new().with_fixed("beta", 1.0);
+    let e = fit_curve(&Vg, "vg", &Readings::new(&H, &y), &unknown).unwrap_err();
+    assert!(e.to_string().contains("no parameter \"beta\""), "{e}");
+}
+
+#[test]
+fn weights_scale_rows() {
+    let truth = [0.065, 0.41, 0.075, 1.89];
+    let mut y = curve(&truth);
+    y[4] += 0.02;
+    let w = [1.0, 1.0, 1.0, 1.0, 1e-6, 1.0, 1.0, 1.0, 1.0];
+    let r = fit_curve(
+        &Vg,
+        "vg",
+        &Readings::new(&H, &y).with_weights(&w),
+        &FitOptions::new(),
+    )
+    .unwrap();
+    // The outlier hardly counts, so the other readings are fitted almost exactly.
+    assert!((r.parameter("n").unwrap().value - 1.89).abs() < 1e-3);
+    let json = serde_json::to_string(&r).unwrap();
+    let back: FitReport = serde_json::from_str(&json).unwrap();
+    assert_eq!(back, r);
+}
+
+mod retention {
+    use crate::fit::{FitOptions, Readings, fit_auto, fit_curve, fit_model};
+    use crate::model::retention::ModelKind;
+
+    const H: [f64; 10] = [
+        0.0, 5.0, 10.0, 20.0, 50.0, 100.0, 330.0, 1000.0, 3000.0, 15000.0,
+    ];
+
+    fn curve(kind: ModelKind, p: &[f64]) -> Vec<f64> {
+        H.iter().map(|&h| kind.curve().value(h, p)).collect()
+    }
+
+    #[test]
+    fn brooks_corey_breakpoint_is_searched_between_measured_suctions() {
+        // h_b = 30 cm lies between the readings at 20 and 50 cm; start guesses sit elsewhere.
+        let truth = [0.05, 0.42, 30.0, 0.45];
+        let mut y = curve(ModelKind::BrooksCorey, &truth);
+        let wiggle = [
+            0.003, -0.002, 0.001, -0.003, 0.002, -0.001, 0.002, -0.002, 0.001, -0.001,
+        ];
+        for (v, w) in y.iter_mut().zip(wiggle) {
+            *v += w;
+        }
+        let r = fit_model(
+            ModelKind::BrooksCorey,
+            &Readings::new(&H, &y),
+            &FitOptions::new(),
+        )
+        .unwrap();
+        assert!(r.converged, "{:?}", r.message);
+        assert!(r.runs >= 9, "one run per interval expected, got {}", r.runs);
+        // A brute-force scan of h_b (others fitted with h_b held) finds nothing better.
+        let mut best_scan = f64::INFINITY;
+        for k in 0..=400 {
+            let h_b = 10f64.powf(-1.0 + 5.0 * f64::from(k) / 400.0);
+            let opts = FitOptions::new().with_fixed("h_b_cm", h_b);
+            if let Ok(s) = fit_curve(
+                ModelKind::BrooksCorey.curve(),
+                "bc",
+                &Readings::new(&H, &y),
+                &opts,
+            ) {
+                best_scan = best_scan.min(s.sse);
+            }
+        }
+        assert!(
+            r.sse <= best_scan * (1.0 + 1e-9),
+            "interval search {} vs scan {best_scan}",
+            r.sse
+        );
+        // Without the interval search, the fit from the first guess is no better.
+        let plain = fit_curve(
+            ModelKind::BrooksCorey.curve(),
+            "bc",
+            &Readings::new(&H, &y),
+            &FitOptions::new(),
+        )
+        .unwrap();
+        assert!(r.sse <= plain.sse * (1.0 + 1e-12));
+    }
+
+    #[test]
+    fn auto_ranks_by_aicc_with_weights_summing_to_one() {
+        let truth = [0.06, 0.43, 0.03, 1.7];
+        let mut y = curve(ModelKind::VanGenuchten, &truth);
+        for (i, v) in y.iter_mut().enumerate() {
+            *v += if i % 2 == 0 { 0.002 } else { -0.002 };
+        }
+        let auto = fit_auto(&ModelKind::ALL, &Readings::new(&H, &y), &FitOptions::new());
+        assert!(!auto.ranked.is_empty());
+        let total: f64 = auto.ranked.iter().map(|r| r.akaike_weight).sum();
+        assert!((total - 1.0).abs() < 1e-12);
+        assert_eq!(auto.ranked[0].delta_aicc, 0.0);
+        for w in auto.ranked.windows(2) {
+            assert!(w[0].report.aicc <= w[1].report.aicc);
+        }
+        // Durner (7 parameters) needs 9 readings: with 10 it is tried, with 8 it is skipped.
+        let few = fit_auto(
+            &ModelKind::ALL,
+            &Readings::new(&H[..8], &y[..8]),
+            &FitOptions::new(),
+        );
+        let durner = few.skipped.iter().find(|s| s.model == "durner").unwrap();
+        assert!(
+            durner.reason.contains("auto needs at least 9"),
+            "{}",
+            durner.reason
+        );
+        // A fixed theta_r applies to the models that have one.
+        let fixed = fit_auto(
+            &[ModelKind::VanGenuchten, ModelKind::Campbell],
+            &Readings::new(&H, &y),
+            &FitOptions::new().with_fixed("theta_r", 0.0),
+        );
+        let vg = fixed
+            .ranked
+            .iter()
+            .find(|r| r.report.model == "van-genuchten")
+            .unwrap();
+        assert_eq!(vg.report.n_free_params, 3);
+    }
+}
