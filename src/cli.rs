@@ -13,6 +13,7 @@ pub mod fit;
 pub mod import;
 pub mod init;
 pub mod list;
+pub mod set;
 
 /// porewise: soil-water retention campaigns in one SQLite file.
 #[derive(Debug, Parser)]
@@ -35,7 +36,9 @@ pub enum Command {
     Import(import::ImportCommand),
     /// List what a campaign file holds.
     List(list::ListArgs),
-    /// Fit retention models to samples (from a plain CSV file with --input).
+    /// Change campaign settings (field capacity and wilting point suctions).
+    Set(set::SetArgs),
+    /// Fit retention models to a campaign's samples, or to a plain CSV file with --input.
     Fit(fit::FitArgs),
     /// Tabulate a retention curve for given parameters.
     Curve(curve::CurveArgs),
@@ -51,6 +54,7 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Init(args) => init::run(&args),
         Command::Import(cmd) => import::run(&cmd),
         Command::List(args) => list::run(&args),
+        Command::Set(args) => set::run(&args),
         Command::Fit(args) => fit::run(&args),
         Command::Curve(args) => curve::run(&args),
     }

@@ -11,7 +11,7 @@ use std::path::{Path, PathBuf};
 
 use sha2::{Digest, Sha256};
 
-use crate::model::number::plural;
+use crate::model::number::{hex, plural};
 use crate::store::{Campaign, StoreError};
 
 mod apply;
@@ -63,13 +63,7 @@ impl Source {
 
     /// SHA-256 of the content, lower-case hex.
     pub fn sha256(&self) -> String {
-        let digest = Sha256::digest(&self.bytes);
-        digest
-            .iter()
-            .fold(String::with_capacity(64), |mut hex, byte| {
-                let _ = write!(hex, "{byte:02x}");
-                hex
-            })
+        hex(&Sha256::digest(&self.bytes))
     }
 }
 

@@ -18,6 +18,7 @@
 //! - [`demo`]: the seeded generator of the invented demo campaign.
 //! - [`cli`]: the command line, thin over the library.
 
+pub mod analysis;
 pub mod cli;
 pub mod demo;
 pub mod error;

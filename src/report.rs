@@ -3,6 +3,7 @@
 pub mod campaign;
 pub mod curve_table;
 pub mod fit_table;
+pub mod fits;
 pub mod table;
 
 pub use table::{Cell, Column, Listing};

@@ -10,6 +10,7 @@ use std::path::PathBuf;
 pub mod batches;
 pub mod campaign;
 pub mod db;
+pub mod fits;
 pub mod layers;
 pub mod migrate;
 pub mod overview;
@@ -59,6 +60,14 @@ pub enum StoreError {
     /// Campaign settings out of range (empty name, field capacity not below wilting point, ...).
     #[error("invalid campaign settings: {0}")]
     InvalidSettings(String),
+    /// A site, layer or sample code that the campaign does not have.
+    #[error("no {what} {code:?} in this campaign (see `porewise list`)")]
+    Unknown {
+        /// `site`, `layer` or `sample`.
+        what: &'static str,
+        /// The code as given.
+        code: String,
+    },
     /// A value read back from the file is not what the schema promises.
     #[error("unexpected value in the campaign file: {0}")]
     Corrupt(String),

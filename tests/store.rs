@@ -240,8 +240,10 @@ fn a_version_1_file_upgrades_with_its_data_intact() {
     {
         // A file as porewise with schema version 1 left it.
         let conn = Connection::open(&path).expect("create");
-        conn.execute_batch(migrate::MIGRATIONS[0]).expect("v1 schema");
-        conn.pragma_update(None, "user_version", 1).expect("version");
+        conn.execute_batch(migrate::MIGRATIONS[0])
+            .expect("v1 schema");
+        conn.pragma_update(None, "user_version", 1)
+            .expect("version");
         conn.execute_batch(
             "INSERT INTO campaign VALUES (1, 'old', NULL, 33, 1500, '2026-01-05T10:00:00Z');
              INSERT INTO site (id, uid, code) VALUES (1, '00000000-0000-4000-8000-000000000001', 'S');

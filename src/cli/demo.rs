@@ -5,9 +5,12 @@ use std::path::{Path, PathBuf};
 use anyhow::Context;
 use clap::Args;
 
+use crate::analysis::{ModelChoice, fit_campaign};
 use crate::error::Outcome;
+use crate::fit::FitOptions;
 use crate::import::{ImportKind, ImportOptions, import_files};
-use crate::store::campaign::{DEFAULT_FC_KPA, DEFAULT_PWP_KPA};
+use crate::store::campaign::{DEFAULT_FC_KPA, DEFAULT_PWP_KPA, remove_with_journal};
+use crate::store::fits::Selection;
 use crate::store::{Campaign, migrate, overview};
 
 /// Arguments of `porewise demo`.
@@ -103,13 +106,14 @@ fn rebuild_reason(file: &Path, sources: &[(ImportKind, Vec<PathBuf>)]) -> Option
     }
 }
 
-/// Build the demo campaign into `file` from `sources`, through the normal import path.
+/// Build the demo campaign into `file` from `sources`, through the normal import path, and
+/// fit every sample (`auto`) so it opens with curves.
 ///
 /// Builds into a temporary file beside it and renames it into place, so an interrupted build
 /// leaves no half-made campaign.
 fn build(file: &Path, sources: &[(ImportKind, Vec<PathBuf>)]) -> anyhow::Result<()> {
     let building = file.with_extension("sqlite.building");
-    remove_with_journals(&building)?;
+    remove_with_journal(&building);
     {
         let mut campaign = Campaign::create(
             &building,
@@ -121,24 +125,26 @@ fn build(file: &Path, sources: &[(ImportKind, Vec<PathBuf>)]) -> anyhow::Result<
             import_files(&mut campaign, *kind, paths, ImportOptions::default())
                 .with_context(|| format!("cannot import the demo {} files", kind.as_str()))?;
         }
+        let fits = fit_campaign(
+            &mut campaign,
+            &Selection::all(),
+            ModelChoice::Auto,
+            &FitOptions::new(),
+            &|_, _| {},
+        )?;
+        eprintln!(
+            "fitted {} samples (auto){}",
+            fits.fitted.len(),
+            if fits.failed.is_empty() {
+                String::new()
+            } else {
+                format!("; {} could not be fitted", fits.failed.len())
+            }
+        );
     }
-    remove_with_journals(file)?;
+    remove_with_journal(file);
     std::fs::rename(&building, file)
         .with_context(|| format!("cannot move the demo campaign into {}", file.display()))?;
-    Ok(())
-}
-
-/// Remove a SQLite file and its `-wal` / `-shm` companions if present.
-fn remove_with_journals(file: &Path) -> anyhow::Result<()> {
-    for suffix in ["", "-wal", "-shm"] {
-        let mut name = file.as_os_str().to_os_string();
-        name.push(suffix);
-        let path = PathBuf::from(name);
-        if path.exists() {
-            std::fs::remove_file(&path)
-                .with_context(|| format!("cannot remove {}", path.display()))?;
-        }
-    }
     Ok(())
 }
 

@@ -1,22 +1,34 @@
 //! `porewise fit`: fit retention models to every sample of a plain pairs file, no database.
 
-use std::path::PathBuf;
-use std::str::FromStr;
+use std::path::{Path, PathBuf};
 
 use anyhow::{Context, bail};
 use clap::Args;
 use rayon::prelude::*;
 
+use indicatif::{ProgressBar, ProgressStyle};
+
+use crate::analysis::{ModelChoice, fit_campaign, fit_choice};
 use crate::error::Outcome;
-use crate::fit::{FitOptions, Readings, fit_auto, fit_model};
+use crate::fit::{FitOptions, Readings};
 use crate::import::pairs::{PairSample, read_pairs_path};
+use crate::model::domain::LayerRef;
+use crate::model::number::plural;
 use crate::model::retention::{ModelKind, parse_assignment};
 use crate::report::fit_table::{FitRow, to_csv, to_json};
 use crate::report::write_atomic;
+use crate::store::Campaign;
+use crate::store::fits::Selection;
 
 const AFTER_HELP: &str = "\
-Example:
+Examples:
+  porewise fit spring.sqlite                         every sample, auto
+  porewise fit spring.sqlite --site LEV1 --model brooks-corey --fix theta_r=0
   porewise fit --input lab.csv --model auto --fix theta_r=0 --output fits.csv
+
+With a campaign file, each new fit becomes its sample's current one (older fits stay as
+history: porewise list DB fits --sample CODE --all); a failed refit is recorded with its
+reason and leaves the previous fit current but stale. Exit 3 when some samples failed.
 
 The input has a header row with `sample`, one suction column (suction_cm, suction_hpa,
 suction_kpa, suction_mpa, suction_bar or pf) and `theta` (m3/m3) or `theta_pct`; other
@@ -32,12 +44,25 @@ suctions; designs (irrigation, slope stability, covers) defer to local codes and
 #[derive(Debug, Args)]
 #[command(after_help = AFTER_HELP)]
 pub struct FitArgs {
+    /// Campaign file whose samples to fit (every sample unless --site, --layer or --sample).
+    #[arg(value_name = "DB", conflicts_with_all = ["input", "output"])]
+    pub db: Option<PathBuf>,
+    /// Only the samples of this site (code); with DB.
+    #[arg(long, value_name = "CODE", requires = "db")]
+    pub site: Option<String>,
+    /// Only the samples of this layer, as SITE:TOP-BOTTOM (e.g. LEV1:0-20); with DB.
+    #[arg(long, value_name = "SITE:TOP-BOTTOM", requires = "db", value_parser = parse_layer)]
+    pub layer: Option<LayerRef>,
+    /// Only this sample (code; repeatable); with DB.
+    #[arg(long = "sample", value_name = "CODE", requires = "db")]
+    pub samples: Vec<String>,
     /// Plain pairs file: sample,suction_<unit>,theta (comma or semicolon separated).
     #[arg(long, value_name = "FILE")]
     pub input: Option<PathBuf>,
-    /// Model identifier, or `auto` to fit every model and rank them by AICc.
-    #[arg(long, value_name = "NAME", default_value = "van-genuchten")]
-    pub model: String,
+    /// Model identifier, or `auto` to fit every model and rank them by AICc
+    /// (default: auto for a campaign, van-genuchten for --input).
+    #[arg(long, value_name = "NAME")]
+    pub model: Option<String>,
     /// Hold a parameter at a value, e.g. theta_r=0 (repeatable).
     #[arg(long = "fix", value_name = "NAME=VALUE")]
     pub fix: Vec<String>,
@@ -46,11 +71,52 @@ pub struct FitArgs {
     pub output: Option<PathBuf>,
 }
 
-/// What to fit: one model or all of them.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Choice {
-    One(ModelKind),
-    Auto,
+fn parse_layer(s: &str) -> Result<LayerRef, String> {
+    s.parse()
+}
+
+/// `porewise fit DB`: fit the selected samples of a campaign and record every attempt.
+fn run_campaign(
+    args: &FitArgs,
+    db: &Path,
+    choice: ModelChoice,
+    options: &FitOptions,
+) -> anyhow::Result<Outcome> {
+    let mut campaign =
+        Campaign::open(db).with_context(|| format!("cannot open campaign {}", db.display()))?;
+    let selection = Selection {
+        site: args.site.clone(),
+        layer: args.layer.clone(),
+        samples: args.samples.clone(),
+    };
+    let bar = ProgressBar::new(0).with_style(
+        ProgressStyle::with_template("fitting {bar:30} {pos}/{len} samples ({eta} left)")
+            .unwrap_or_else(|_| ProgressStyle::default_bar()),
+    );
+    let summary = fit_campaign(
+        &mut campaign,
+        &selection,
+        choice,
+        options,
+        &|done, total| {
+            bar.set_length(total as u64);
+            bar.set_position(done as u64);
+        },
+    )?;
+    bar.finish_and_clear();
+    println!(
+        "fitted {} with {choice}; {} failed",
+        plural(summary.fitted.len() as u64, "sample"),
+        summary.failed.len()
+    );
+    for (sample, reason) in &summary.failed {
+        eprintln!("sample {sample}: not fitted: {reason}");
+    }
+    Ok(if summary.failed.is_empty() {
+        Outcome::Success
+    } else {
+        Outcome::Partial
+    })
 }
 
 /// Output format, from the output file's extension.
@@ -80,16 +146,16 @@ fn format_of(path: Option<&PathBuf>) -> anyhow::Result<Format> {
 }
 
 /// Parse `--fix` values and check each name against the model(s).
-fn fixes(args: &FitArgs, choice: Choice) -> anyhow::Result<FitOptions> {
+fn fixes(args: &FitArgs, choice: ModelChoice) -> anyhow::Result<FitOptions> {
     let mut options = FitOptions::new();
     for text in &args.fix {
         let (name, value) = parse_assignment(text).map_err(|e| anyhow::anyhow!("--fix: {e}"))?;
         match choice {
-            Choice::One(kind) => {
+            ModelChoice::One(kind) => {
                 kind.param_index(&name)
                     .map_err(|e| anyhow::anyhow!("--fix {text}: {e}"))?;
             }
-            Choice::Auto => {
+            ModelChoice::Auto => {
                 if !ModelKind::ALL
                     .iter()
                     .any(|k| k.params().iter().any(|p| p.name == name))
@@ -103,53 +169,17 @@ fn fixes(args: &FitArgs, choice: Choice) -> anyhow::Result<FitOptions> {
     Ok(options)
 }
 
-/// Fit one sample.
-fn fit_sample(sample: &PairSample, choice: Choice, options: &FitOptions) -> FitRow {
+/// Fit one sample of the plain file.
+fn fit_sample(sample: &PairSample, choice: ModelChoice, options: &FitOptions) -> FitRow {
     let h = sample.suctions();
     let theta = sample.thetas();
-    let readings = Readings::new(&h, &theta);
-    match choice {
-        Choice::One(kind) => match fit_model(kind, &readings, options) {
-            Ok(report) => FitRow {
-                sample: sample.name.clone(),
-                model: kind.id().to_string(),
-                report: Some(report),
-                message: None,
-                auto: None,
-            },
-            Err(e) => FitRow {
-                sample: sample.name.clone(),
-                model: kind.id().to_string(),
-                report: None,
-                message: Some(e.to_string()),
-                auto: None,
-            },
-        },
-        Choice::Auto => {
-            let auto = fit_auto(&ModelKind::ALL, &readings, options);
-            let (model, report, message) = match (auto.best(), &auto.fallback) {
-                (Some(best), _) => (best.model.clone(), Some(best.clone()), None),
-                (None, Some(f)) => (f.model.clone(), Some(f.clone()), None),
-                (None, None) => (
-                    "auto".to_string(),
-                    None,
-                    Some(
-                        auto.skipped
-                            .iter()
-                            .map(|s| format!("{}: {}", s.model, s.reason))
-                            .collect::<Vec<_>>()
-                            .join("; "),
-                    ),
-                ),
-            };
-            FitRow {
-                sample: sample.name.clone(),
-                model,
-                report,
-                message,
-                auto: Some(auto),
-            }
-        }
+    let attempt = fit_choice(choice, &Readings::new(&h, &theta), options);
+    FitRow {
+        sample: sample.name.clone(),
+        model: attempt.model,
+        report: attempt.report,
+        message: attempt.message,
+        auto: attempt.auto,
     }
 }
 
@@ -159,15 +189,26 @@ fn fit_sample(sample: &PairSample, choice: Choice, options: &FitOptions) -> FitR
 /// Bad input for the user (exit 1): no `--input`, an unreadable or invalid file (each problem
 /// at `FILE:LINE:COLUMN`), an unknown model or parameter, an output that cannot be written.
 pub fn run(args: &FitArgs) -> anyhow::Result<Outcome> {
-    let Some(input) = &args.input else {
-        bail!("nothing to fit: give --input FILE (a sample,suction_<unit>,theta file)");
-    };
-    let choice = if args.model.trim().eq_ignore_ascii_case("auto") {
-        Choice::Auto
-    } else {
-        Choice::One(ModelKind::from_str(&args.model).map_err(|e| anyhow::anyhow!("--model: {e}"))?)
-    };
+    let choice: ModelChoice = args
+        .model
+        .as_deref()
+        .unwrap_or(if args.db.is_some() {
+            "auto"
+        } else {
+            "van-genuchten"
+        })
+        .parse()
+        .map_err(|e| anyhow::anyhow!("--model: {e}"))?;
     let options = fixes(args, choice)?;
+    if let Some(db) = &args.db {
+        return run_campaign(args, db, choice, &options);
+    }
+    let Some(input) = &args.input else {
+        bail!(
+            "nothing to fit: give a campaign file (porewise fit DB) or --input FILE \
+             (a sample,suction_<unit>,theta file)"
+        );
+    };
     let format = format_of(args.output.as_ref())?;
     let file = read_pairs_path(input).map_err(|d| anyhow::anyhow!("{d}"))?;
     let rows: Vec<FitRow> = file

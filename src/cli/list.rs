@@ -5,11 +5,16 @@ use std::path::PathBuf;
 use anyhow::{Context, bail};
 use clap::{Args, ValueEnum};
 
+use crate::analysis::water::DEFAULT_ROOT_ZONE_CM;
+use crate::analysis::{profiles, sample_fits};
 use crate::error::Outcome;
 use crate::model::units::SuctionUnit;
 use crate::report::Listing;
 use crate::report::campaign::{layers_listing, readings_listing, samples_listing, sites_listing};
+use crate::report::fits::{fits_listing, history_listing, profiles_listing};
+use crate::store::fits::{self as store_fits, Selection};
 use crate::store::{Campaign, Filter, layers, readings, samples, sites};
+use rusqlite::Connection;
 
 /// What to list.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum, Default)]
@@ -23,6 +28,10 @@ pub enum What {
     Samples,
     /// Readings; the first column is the reading id.
     Readings,
+    /// The current fit of every sample (with --sample CODE --all: its whole fit history).
+    Fits,
+    /// Available water per layer and the profile total in mm down to --root-zone-cm.
+    Profiles,
 }
 
 /// Output format.
@@ -40,7 +49,7 @@ pub enum Format {
 /// Arguments of `porewise list`.
 #[derive(Debug, Args)]
 #[command(
-    after_help = "Examples:\n  porewise list spring.sqlite\n  porewise list spring.sqlite readings --site LV --units kpa\n  porewise list spring.sqlite samples --format csv > samples.csv"
+    after_help = "Examples:\n  porewise list spring.sqlite\n  porewise list spring.sqlite readings --site LV --units kpa\n  porewise list spring.sqlite samples --format csv > samples.csv\n  porewise list spring.sqlite fits --site LV\n  porewise list spring.sqlite fits --sample LV-Ap-a --all\n  porewise list spring.sqlite profiles --root-zone-cm 60"
 )]
 pub struct ListArgs {
     /// The campaign file.
@@ -57,6 +66,12 @@ pub struct ListArgs {
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Table)]
     pub format: Format,
+    /// With `fits --sample CODE`: every fit attempt of the sample, not only the current one.
+    #[arg(long)]
+    pub all: bool,
+    /// With `profiles`: the depth down to which available water is summed, cm.
+    #[arg(long, value_name = "CM", default_value_t = DEFAULT_ROOT_ZONE_CM)]
+    pub root_zone_cm: f64,
     /// Suction unit for readings: cm, hpa, kpa, mpa, bar or pf.
     #[arg(long, default_value = "cm", value_parser = parse_unit, value_name = "UNIT")]
     pub units: SuctionUnit,
@@ -64,6 +79,26 @@ pub struct ListArgs {
 
 fn parse_unit(s: &str) -> Result<SuctionUnit, String> {
     s.parse()
+}
+
+/// The `fits` listing: current fits, or one sample's history with `--all`.
+fn fits(conn: &Connection, args: &ListArgs) -> anyhow::Result<Listing> {
+    if args.all
+        && let Some(code) = &args.sample
+    {
+        let sample = samples::find(conn, code)?.with_context(|| format!("no sample {code:?}"))?;
+        return Ok(history_listing(
+            code,
+            &store_fits::history(conn, sample.id)?,
+        ));
+    }
+    let selection = Selection {
+        site: args.site.clone(),
+        samples: args.sample.iter().cloned().collect(),
+        ..Selection::default()
+    };
+    let settings = crate::store::campaign::settings(conn)?;
+    Ok(fits_listing(&sample_fits(conn, &settings, &selection)?))
 }
 
 /// Run `porewise list`.
@@ -83,8 +118,8 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
         );
     }
     if let Some(code) = &args.sample {
-        if matches!(args.what, What::Sites | What::Layers) {
-            bail!("--sample filters samples and readings, not sites or layers");
+        if matches!(args.what, What::Sites | What::Layers | What::Profiles) {
+            bail!("--sample filters samples, readings and fits, not sites, layers or profiles");
         }
         if samples::find(conn, code)?.is_none() {
             bail!(
@@ -92,6 +127,17 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
                 args.db.display()
             );
         }
+    }
+    if args.all && !(args.what == What::Fits && args.sample.is_some()) {
+        bail!(
+            "--all lists the fit history of one sample: porewise list DB fits --sample CODE --all"
+        );
+    }
+    if !(args.root_zone_cm.is_finite() && args.root_zone_cm > 0.0) {
+        bail!(
+            "--root-zone-cm {}: expected a depth greater than 0 cm",
+            args.root_zone_cm
+        );
     }
     let filter = Filter {
         site: args.site.as_deref(),
@@ -102,6 +148,13 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
         What::Layers => layers_listing(&layers::list(conn, filter.site)?),
         What::Samples => samples_listing(&samples::list(conn, filter)?),
         What::Readings => readings_listing(&readings::list(conn, filter)?, args.units),
+        What::Fits => fits(conn, args)?,
+        What::Profiles => profiles_listing(&profiles(
+            conn,
+            &campaign.settings()?,
+            args.root_zone_cm,
+            filter.site,
+        )?),
     };
     match args.format {
         Format::Table => print!("{}", listing.to_table()),

@@ -19,6 +19,17 @@ pub fn significant(v: f64, digits: usize) -> Option<String> {
     })
 }
 
+/// Lower-case hexadecimal text of bytes (for SHA-256 digests).
+pub fn hex(bytes: &[u8]) -> String {
+    use std::fmt::Write as _;
+    bytes
+        .iter()
+        .fold(String::with_capacity(2 * bytes.len()), |mut out, b| {
+            let _ = write!(out, "{b:02x}");
+            out
+        })
+}
+
 /// `n` and the word, with an `s` unless `n` is 1 (`1 site`, `3 readings`).
 pub fn plural(n: u64, word: &str) -> String {
     format!("{n} {word}{}", if n == 1 { "" } else { "s" })

@@ -45,6 +45,21 @@ impl FitRow {
 /// Parameter columns for these rows: the union in the order of [`ModelKind::ALL`], then any
 /// other names in order of appearance.
 fn parameter_columns(rows: &[FitRow]) -> Vec<String> {
+    parameter_union(
+        rows.iter().map(|r| r.model.as_str()),
+        rows.iter()
+            .filter_map(|r| r.report.as_ref())
+            .flat_map(|rep| rep.parameters.iter().map(|p| p.name.as_str())),
+    )
+}
+
+/// The parameter names of these models, as a union in the order of [`ModelKind::ALL`], then
+/// any `extra` names not among them, in order of appearance.
+pub fn parameter_union<'a>(
+    models: impl IntoIterator<Item = &'a str>,
+    extra: impl IntoIterator<Item = &'a str>,
+) -> Vec<String> {
+    let models: Vec<&str> = models.into_iter().collect();
     let mut names: Vec<String> = Vec::new();
     let mut push = |n: &str| {
         if !names.iter().any(|m| m == n) {
@@ -52,18 +67,14 @@ fn parameter_columns(rows: &[FitRow]) -> Vec<String> {
         }
     };
     for kind in ModelKind::ALL {
-        if rows.iter().any(|r| r.model == kind.id()) {
+        if models.contains(&kind.id()) {
             for p in kind.params() {
                 push(p.name);
             }
         }
     }
-    for r in rows {
-        if let Some(rep) = &r.report {
-            for p in &rep.parameters {
-                push(&p.name);
-            }
-        }
+    for n in extra {
+        push(n);
     }
     names
 }

@@ -228,8 +228,8 @@ pub fn set_suctions(conn: &Connection, fc_kpa: f64, pwp_kpa: f64) -> Result<()> 
     Ok(())
 }
 
-/// Remove a half-made database and the WAL files beside it (best effort).
-fn remove_with_journal(path: &Path) {
+/// Remove a database file and the WAL files beside it (best effort).
+pub fn remove_with_journal(path: &Path) {
     let _ = std::fs::remove_file(path);
     for suffix in ["-wal", "-shm", "-journal"] {
         let mut side = path.as_os_str().to_owned();

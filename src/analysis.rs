@@ -1,0 +1,10 @@
+//! Campaign-wide work built from the store and the fit engine: fitting samples and recording
+//! the attempts, and the derived numbers (available water per fit, layer and profile).
+
+pub mod current;
+pub mod fitting;
+pub mod water;
+
+pub use current::{SampleFit, sample_fits};
+pub use fitting::{FitAttempt, FitRunSummary, ModelChoice, fit_campaign, fit_choice, fit_input};
+pub use water::{FitDerived, LayerWater, SiteProfile, derive_fit, profiles};

@@ -1,0 +1,745 @@
+//! Fits of a campaign: the readings a fit uses, fit history, the current fit and staleness.
+//!
+//! A reading is used by fits unless a flag on it is `accepted` (manual flags are stored
+//! accepted). Every fit records the ids of the readings it used, their SHA-256 fingerprint and
+//! the sample's revision counter (bumped by triggers whenever a reading or a flag on it
+//! changes). A fit is stale when the sample's readings no longer match its fingerprint, or
+//! when a later attempt to refit the sample failed.
+
+use std::collections::{BTreeMap, HashMap, HashSet};
+
+use chrono::{DateTime, Utc};
+use rusqlite::{Connection, OptionalExtension, Row, params};
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
+
+use super::sql_types::SqlTime;
+use super::{Result, StoreError};
+use crate::fit::{AutoFit, FitReport, SkippedModel};
+use crate::model::domain::{LayerRef, SampleKind};
+use crate::model::number::hex;
+
+/// SQL condition, on a reading aliased `r`, that is true when fits must leave it out.
+pub const EXCLUDED: &str =
+    "EXISTS (SELECT 1 FROM flag f WHERE f.reading_id = r.id AND f.status = 'accepted')";
+
+/// Which samples a command works on: all of them, a site, a layer, or named samples.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Selection {
+    /// Only samples of this site (code).
+    pub site: Option<String>,
+    /// Only samples of this layer.
+    pub layer: Option<LayerRef>,
+    /// Only these samples (codes); empty for no restriction.
+    pub samples: Vec<String>,
+}
+
+impl Selection {
+    /// Every sample of the campaign.
+    pub fn all() -> Self {
+        Self::default()
+    }
+
+    /// Check that every code named exists, so a typo is an error rather than an empty result.
+    ///
+    /// # Errors
+    /// [`StoreError::Unknown`] naming the first code not found.
+    pub fn check(&self, conn: &Connection) -> Result<()> {
+        if let Some(site) = &self.site
+            && super::sites::find(conn, site)?.is_none()
+        {
+            return Err(StoreError::Unknown {
+                what: "site",
+                code: site.clone(),
+            });
+        }
+        if let Some(layer) = &self.layer
+            && super::layers::find(conn, layer)?.is_none()
+        {
+            return Err(StoreError::Unknown {
+                what: "layer",
+                code: layer.to_string(),
+            });
+        }
+        for code in &self.samples {
+            if super::samples::find(conn, code)?.is_none() {
+                return Err(StoreError::Unknown {
+                    what: "sample",
+                    code: code.clone(),
+                });
+            }
+        }
+        Ok(())
+    }
+
+    /// Whether a sample with this code and layer is selected.
+    fn includes(&self, code: &str, layer: &LayerRef) -> bool {
+        self.site.as_ref().is_none_or(|s| *s == layer.site)
+            && self.layer.as_ref().is_none_or(|l| l.same_as(layer))
+            && (self.samples.is_empty() || self.samples.iter().any(|s| s == code))
+    }
+}
+
+/// A selected sample: its ids, layer, kind and revision.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SampleInfo {
+    /// Database id.
+    pub id: i64,
+    /// Sample code.
+    pub code: String,
+    /// Database id of its layer.
+    pub layer_id: i64,
+    /// Its layer (site and depths).
+    pub layer: LayerRef,
+    /// Lab core or field pairing.
+    pub kind: SampleKind,
+    /// Revision counter of its readings and their flags.
+    pub revision: i64,
+}
+
+/// The selected samples, ordered by site, depth and code.
+///
+/// # Errors
+/// An SQLite error.
+pub fn samples(conn: &Connection, selection: &Selection) -> Result<Vec<SampleInfo>> {
+    let mut stmt = conn.prepare_cached(
+        "SELECT m.id, m.code, m.layer_id, s.code, l.top_cm, l.bottom_cm, m.kind, m.readings_rev
+         FROM sample m JOIN layer l ON m.layer_id = l.id JOIN site s ON l.site_id = s.id
+         WHERE (?1 IS NULL OR s.code = ?1)
+         ORDER BY s.code, l.top_cm, l.bottom_cm, m.code",
+    )?;
+    let rows = stmt.query_map(params![selection.site], |r| {
+        Ok(SampleInfo {
+            id: r.get(0)?,
+            code: r.get(1)?,
+            layer_id: r.get(2)?,
+            layer: LayerRef {
+                site: r.get(3)?,
+                top_cm: r.get(4)?,
+                bottom_cm: r.get(5)?,
+            },
+            kind: r.get(6)?,
+            revision: r.get(7)?,
+        })
+    })?;
+    let mut out = Vec::new();
+    for row in rows {
+        let info = row?;
+        if selection.includes(&info.code, &info.layer) {
+            out.push(info);
+        }
+    }
+    Ok(out)
+}
+
+/// The readings of one sample that a fit uses, ordered by suction.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FitInput {
+    /// The sample.
+    pub sample: SampleInfo,
+    /// Reading ids, in the order of the values below.
+    pub reading_ids: Vec<i64>,
+    /// Suction head, cm.
+    pub h_cm: Vec<f64>,
+    /// Water content, m3/m3.
+    pub theta: Vec<f64>,
+    /// Weights, when any reading has one (1 for those that do not).
+    pub weights: Option<Vec<f64>>,
+    /// SHA-256 of the readings used (see [`fingerprint`]).
+    pub fingerprint: String,
+    /// How many readings of the sample are left out by flags.
+    pub excluded: usize,
+}
+
+/// SHA-256 (hex) of a set of readings: ids, suctions, water contents and weights, in id order.
+///
+/// Changes when a reading is added, removed (or excluded), or any value of one changes.
+pub fn fingerprint(ids: &[i64], h_cm: &[f64], theta: &[f64], weights: Option<&[f64]>) -> String {
+    let mut order: Vec<usize> = (0..ids.len()).collect();
+    order.sort_by_key(|&i| ids[i]);
+    let mut hasher = Sha256::new();
+    for i in order {
+        hasher.update(ids[i].to_le_bytes());
+        hasher.update(h_cm[i].to_bits().to_le_bytes());
+        hasher.update(theta[i].to_bits().to_le_bytes());
+        hasher.update(weights.map_or(1.0, |w| w[i]).to_bits().to_le_bytes());
+    }
+    hex(&hasher.finalize())
+}
+
+/// The fit inputs of the selected samples (samples without readings included, empty).
+///
+/// # Errors
+/// An SQLite error.
+pub fn inputs(conn: &Connection, selection: &Selection) -> Result<Vec<FitInput>> {
+    let samples = samples(conn, selection)?;
+    let mut stmt = conn.prepare_cached(&format!(
+        "SELECT r.id, r.h_cm, r.theta, r.weight, {EXCLUDED} FROM reading r
+         WHERE r.sample_id = ?1 ORDER BY r.h_cm, r.id"
+    ))?;
+    let mut out = Vec::with_capacity(samples.len());
+    for sample in samples {
+        let mut ids = Vec::new();
+        let mut h = Vec::new();
+        let mut theta = Vec::new();
+        let mut weights: Vec<Option<f64>> = Vec::new();
+        let mut excluded = 0;
+        let rows = stmt.query_map(params![sample.id], |r| {
+            Ok((
+                r.get::<_, i64>(0)?,
+                r.get::<_, f64>(1)?,
+                r.get::<_, f64>(2)?,
+                r.get::<_, Option<f64>>(3)?,
+                r.get::<_, bool>(4)?,
+            ))
+        })?;
+        for row in rows {
+            let (id, hv, tv, w, is_excluded) = row?;
+            if is_excluded {
+                excluded += 1;
+                continue;
+            }
+            ids.push(id);
+            h.push(hv);
+            theta.push(tv);
+            weights.push(w);
+        }
+        let weights = weights
+            .iter()
+            .any(Option::is_some)
+            .then(|| weights.iter().map(|w| w.unwrap_or(1.0)).collect::<Vec<_>>());
+        let fingerprint = fingerprint(&ids, &h, &theta, weights.as_deref());
+        out.push(FitInput {
+            sample,
+            reading_ids: ids,
+            h_cm: h,
+            theta,
+            weights,
+            fingerprint,
+            excluded,
+        });
+    }
+    Ok(out)
+}
+
+/// Whether a stored fit attempt produced a usable curve.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum FitStatus {
+    /// A converged fit; it became the sample's current fit when it was made.
+    Ok,
+    /// The attempt failed; its reason is in the message. It never becomes current.
+    Failed,
+}
+
+impl FitStatus {
+    fn as_str(self) -> &'static str {
+        match self {
+            FitStatus::Ok => "ok",
+            FitStatus::Failed => "failed",
+        }
+    }
+}
+
+/// One model's line in a stored `auto` ranking (no per-reading diagnostics, to stay small).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RankEntry {
+    /// Model identifier.
+    pub model: String,
+    /// AICc of the fit.
+    pub aicc: Option<f64>,
+    /// AICc minus the best AICc.
+    pub delta_aicc: f64,
+    /// Akaike weight.
+    pub akaike_weight: f64,
+    /// Sum of squared residuals.
+    pub sse: f64,
+    /// Root mean square error, m3/m3.
+    pub rmse: f64,
+    /// Free parameters.
+    pub n_free_params: usize,
+    /// Parameter values by name, in model order.
+    pub parameters: Vec<(String, f64)>,
+}
+
+/// The stored form of an `auto` ranking: ranked models best first, and the skipped ones.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Ranking {
+    /// Converged fits, lowest AICc first.
+    pub ranked: Vec<RankEntry>,
+    /// Models not ranked, with the reason.
+    pub skipped: Vec<SkippedModel>,
+}
+
+impl From<&AutoFit> for Ranking {
+    fn from(auto: &AutoFit) -> Self {
+        Self {
+            ranked: auto
+                .ranked
+                .iter()
+                .map(|r| RankEntry {
+                    model: r.report.model.clone(),
+                    aicc: r.report.aicc,
+                    delta_aicc: r.delta_aicc,
+                    akaike_weight: r.akaike_weight,
+                    sse: r.report.sse,
+                    rmse: r.report.rmse,
+                    n_free_params: r.report.n_free_params,
+                    parameters: r
+                        .report
+                        .parameters
+                        .iter()
+                        .map(|p| (p.name.clone(), p.value))
+                        .collect(),
+                })
+                .collect(),
+            skipped: auto.skipped.clone(),
+        }
+    }
+}
+
+/// A fit attempt to record.
+#[derive(Debug, Clone, Copy)]
+pub struct NewFit<'a> {
+    /// The readings it was made from.
+    pub input: &'a FitInput,
+    /// What was asked for: a model identifier or `auto`.
+    pub requested: &'a str,
+    /// The model of the result (the best one for `auto`), or the one tried when it failed.
+    pub model: &'a str,
+    /// Parameters the user fixed.
+    pub fixed: &'a [(String, f64)],
+    /// The report, when the solver produced one (a failed attempt may have one too).
+    pub report: Option<&'a FitReport>,
+    /// The `auto` ranking.
+    pub ranking: Option<&'a Ranking>,
+    /// `Some(reason)` for a failed attempt.
+    pub failure: Option<&'a str>,
+}
+
+fn json<T: Serialize + ?Sized>(value: &T) -> Result<String> {
+    serde_json::to_string(value).map_err(|e| StoreError::Corrupt(format!("cannot encode: {e}")))
+}
+
+/// Record a fit attempt. A successful one becomes the sample's current fit (the previous
+/// current one stays as history); a failed one leaves the current fit alone, which is then
+/// stale. Returns the new fit's id.
+///
+/// # Errors
+/// An SQLite error.
+pub fn record(conn: &Connection, fit: &NewFit<'_>) -> Result<i64> {
+    let status = if fit.failure.is_some() {
+        FitStatus::Failed
+    } else {
+        FitStatus::Ok
+    };
+    if status == FitStatus::Ok {
+        conn.prepare_cached(
+            "UPDATE fit SET is_current = 0 WHERE sample_id = ?1 AND is_current = 1",
+        )?
+        .execute(params![fit.input.sample.id])?;
+    }
+    let parameters: BTreeMap<&str, f64> = fit
+        .report
+        .map(|r| {
+            r.parameters
+                .iter()
+                .map(|p| (p.name.as_str(), p.value))
+                .collect()
+        })
+        .unwrap_or_default();
+    let errors: Option<BTreeMap<&str, Option<f64>>> = fit.report.map(|r| {
+        r.parameters
+            .iter()
+            .map(|p| (p.name.as_str(), p.se))
+            .collect()
+    });
+    let statistics = fit.report.map(|r| {
+        serde_json::json!({
+            "sse": r.sse, "rmse": r.rmse, "r2": r.r2, "aic": r.aic, "aicc": r.aicc,
+            "bic": r.bic, "n_points": r.n_points, "n_free_params": r.n_free_params,
+            "converged": r.converged, "termination": r.termination,
+            "evaluations": r.evaluations,
+        })
+    });
+    let fixed: BTreeMap<&str, f64> = fit.fixed.iter().map(|(n, v)| (n.as_str(), *v)).collect();
+    let message = fit
+        .failure
+        .map(str::to_string)
+        .or_else(|| fit.report.and_then(|r| r.message.clone()));
+    conn.prepare_cached(
+        "INSERT INTO fit (sample_id, model, parameters, standard_errors, covariance, statistics,
+             n_points, readings_fingerprint, created_at, is_current, status, message, requested,
+             fixed, report, ranking, reading_ids, sample_rev)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18)",
+    )?
+    .execute(params![
+        fit.input.sample.id,
+        fit.model,
+        json(&parameters)?,
+        errors.map(|e| json(&e)).transpose()?,
+        fit.report
+            .and_then(|r| r.covariance.as_ref())
+            .map(json)
+            .transpose()?,
+        json(&statistics.unwrap_or(serde_json::Value::Object(serde_json::Map::new())))?,
+        fit.input.reading_ids.len() as i64,
+        fit.input.fingerprint,
+        SqlTime::now(),
+        status == FitStatus::Ok,
+        status.as_str(),
+        message,
+        fit.requested,
+        json(&fixed)?,
+        fit.report.map(json).transpose()?,
+        fit.ranking.map(json).transpose()?,
+        json(&fit.input.reading_ids)?,
+        fit.input.sample.revision,
+    ])?;
+    Ok(conn.last_insert_rowid())
+}
+
+/// A fit attempt as stored.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StoredFit {
+    /// Fit id.
+    pub id: i64,
+    /// Database id of the sample.
+    pub sample_id: i64,
+    /// Model identifier of the result.
+    pub model: String,
+    /// What was asked for: a model identifier or `auto`.
+    pub requested: Option<String>,
+    /// Ok or failed.
+    pub status: FitStatus,
+    /// The failure reason, or the solver's notes on a good fit.
+    pub message: Option<String>,
+    /// Parameters the user fixed.
+    pub fixed: Vec<(String, f64)>,
+    /// The full report (absent for an attempt that failed before fitting).
+    pub report: Option<FitReport>,
+    /// The `auto` ranking, when the fit was made with `auto`.
+    pub ranking: Option<Ranking>,
+    /// Ids of the readings used, in the order of the report's per-reading diagnostics.
+    pub reading_ids: Vec<i64>,
+    /// Number of readings used.
+    pub n_points: usize,
+    /// Fingerprint of the readings used.
+    pub fingerprint: String,
+    /// The sample's revision when the fit was made.
+    pub sample_revision: Option<i64>,
+    /// When the fit was made (UTC).
+    pub created_at: DateTime<Utc>,
+    /// The sample's current fit.
+    pub is_current: bool,
+}
+
+const FIT_COLUMNS: &str = "f.id, f.sample_id, f.model, f.requested, f.status, f.message, \
+     f.fixed, f.report, f.ranking, f.reading_ids, f.n_points, f.readings_fingerprint, \
+     f.sample_rev, f.created_at, f.is_current";
+
+fn decode<T: for<'de> Deserialize<'de>>(text: Option<String>, what: &str) -> Result<Option<T>> {
+    text.map(|t| {
+        serde_json::from_str(&t)
+            .map_err(|e| StoreError::Corrupt(format!("fit {what} does not decode: {e}")))
+    })
+    .transpose()
+}
+
+/// The raw row, decoded in a second step so JSON errors become [`StoreError::Corrupt`].
+struct RawFit {
+    id: i64,
+    sample_id: i64,
+    model: String,
+    requested: Option<String>,
+    status: String,
+    message: Option<String>,
+    fixed: Option<String>,
+    report: Option<String>,
+    ranking: Option<String>,
+    reading_ids: Option<String>,
+    n_points: i64,
+    fingerprint: String,
+    sample_rev: Option<i64>,
+    created_at: SqlTime,
+    is_current: bool,
+}
+
+fn raw(r: &Row<'_>) -> rusqlite::Result<RawFit> {
+    Ok(RawFit {
+        id: r.get(0)?,
+        sample_id: r.get(1)?,
+        model: r.get(2)?,
+        requested: r.get(3)?,
+        status: r.get(4)?,
+        message: r.get(5)?,
+        fixed: r.get(6)?,
+        report: r.get(7)?,
+        ranking: r.get(8)?,
+        reading_ids: r.get(9)?,
+        n_points: r.get(10)?,
+        fingerprint: r.get(11)?,
+        sample_rev: r.get(12)?,
+        created_at: r.get(13)?,
+        is_current: r.get(14)?,
+    })
+}
+
+impl RawFit {
+    fn decode(self) -> Result<StoredFit> {
+        let fixed: BTreeMap<String, f64> =
+            decode(self.fixed, "fixed parameters")?.unwrap_or_default();
+        Ok(StoredFit {
+            id: self.id,
+            sample_id: self.sample_id,
+            model: self.model,
+            requested: self.requested,
+            status: if self.status == "failed" {
+                FitStatus::Failed
+            } else {
+                FitStatus::Ok
+            },
+            message: self.message,
+            fixed: fixed.into_iter().collect(),
+            report: decode(self.report, "report")?,
+            ranking: decode(self.ranking, "ranking")?,
+            reading_ids: decode(self.reading_ids, "reading ids")?.unwrap_or_default(),
+            n_points: self.n_points.max(0) as usize,
+            fingerprint: self.fingerprint,
+            sample_revision: self.sample_rev,
+            created_at: self.created_at.0,
+            is_current: self.is_current,
+        })
+    }
+}
+
+/// Every fit attempt of a sample, oldest first.
+///
+/// # Errors
+/// An SQLite error, or a stored JSON value that does not decode.
+pub fn history(conn: &Connection, sample_id: i64) -> Result<Vec<StoredFit>> {
+    let mut stmt = conn.prepare_cached(&format!(
+        "SELECT {FIT_COLUMNS} FROM fit f WHERE f.sample_id = ?1 ORDER BY f.id"
+    ))?;
+    let raws = stmt
+        .query_map(params![sample_id], raw)?
+        .collect::<rusqlite::Result<Vec<_>>>()?;
+    raws.into_iter().map(RawFit::decode).collect()
+}
+
+/// The current fit of a sample, if it has one.
+///
+/// # Errors
+/// An SQLite error, or a stored JSON value that does not decode.
+pub fn current(conn: &Connection, sample_id: i64) -> Result<Option<StoredFit>> {
+    let mut stmt = conn.prepare_cached(&format!(
+        "SELECT {FIT_COLUMNS} FROM fit f WHERE f.sample_id = ?1 AND f.is_current = 1"
+    ))?;
+    stmt.query_row(params![sample_id], raw)
+        .optional()?
+        .map(RawFit::decode)
+        .transpose()
+}
+
+/// Why a current fit no longer describes its sample.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum StaleReason {
+    /// A reading was added, changed, removed or excluded (or a flag cleared) since the fit.
+    ReadingsChanged,
+    /// A later attempt to refit the sample failed; the message says why.
+    RefitFailed(String),
+}
+
+impl std::fmt::Display for StaleReason {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            StaleReason::ReadingsChanged => f.write_str("readings changed since the fit"),
+            StaleReason::RefitFailed(m) => write!(f, "a later refit failed: {m}"),
+        }
+    }
+}
+
+/// Where a sample's fitting stands.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case", tag = "state", content = "detail")]
+pub enum FitState {
+    /// Never fitted.
+    None,
+    /// Its current fit matches its readings.
+    Current,
+    /// It has a current fit that no longer matches (see the reasons).
+    Stale(Vec<StaleReason>),
+    /// Every attempt failed; the last reason.
+    Failed(String),
+}
+
+impl FitState {
+    /// A one-word label for tables: `none`, `current`, `stale`, `failed`.
+    pub fn label(&self) -> &'static str {
+        match self {
+            FitState::None => "none",
+            FitState::Current => "current",
+            FitState::Stale(_) => "stale",
+            FitState::Failed(_) => "failed",
+        }
+    }
+
+    /// True when the sample has a current fit that is stale.
+    pub fn is_stale(&self) -> bool {
+        matches!(self, FitState::Stale(_))
+    }
+}
+
+/// A sample's fit standing without decoding any report: cheap enough for a tree of thousands
+/// of samples (readings are read only for samples whose revision moved since their fit).
+#[derive(Debug, Clone, PartialEq)]
+pub struct FitSummary {
+    /// Id of the current fit, if any.
+    pub current_fit: Option<i64>,
+    /// Model of the current fit.
+    pub model: Option<String>,
+    /// Where the sample stands.
+    pub state: FitState,
+}
+
+/// The fit standing of every sample in `samples`, by sample id.
+///
+/// # Errors
+/// An SQLite error.
+pub fn summaries(conn: &Connection, samples: &[SampleInfo]) -> Result<HashMap<i64, FitSummary>> {
+    let wanted: HashSet<i64> = samples.iter().map(|s| s.id).collect();
+    let revision: HashMap<i64, i64> = samples.iter().map(|s| (s.id, s.revision)).collect();
+    // Current fits, and the newest failed attempt of each sample.
+    let mut current: HashMap<i64, (i64, String, String, Option<i64>)> = HashMap::new();
+    let mut stmt = conn.prepare_cached(
+        "SELECT sample_id, id, model, readings_fingerprint, sample_rev FROM fit WHERE is_current = 1",
+    )?;
+    for row in stmt.query_map([], |r| {
+        Ok((
+            r.get::<_, i64>(0)?,
+            r.get::<_, i64>(1)?,
+            r.get::<_, String>(2)?,
+            r.get::<_, String>(3)?,
+            r.get::<_, Option<i64>>(4)?,
+        ))
+    })? {
+        let (sample, id, model, fp, rev) = row?;
+        if wanted.contains(&sample) {
+            current.insert(sample, (id, model, fp, rev));
+        }
+    }
+    let mut failed: HashMap<i64, (i64, String)> = HashMap::new();
+    let mut stmt = conn.prepare_cached(
+        "SELECT sample_id, id, coalesce(message, 'no reason recorded') FROM fit
+         WHERE status = 'failed' ORDER BY id",
+    )?;
+    for row in stmt.query_map([], |r| {
+        Ok((
+            r.get::<_, i64>(0)?,
+            r.get::<_, i64>(1)?,
+            r.get::<_, String>(2)?,
+        ))
+    })? {
+        let (sample, id, message) = row?;
+        if wanted.contains(&sample) {
+            failed.insert(sample, (id, message));
+        }
+    }
+    let mut out = HashMap::with_capacity(samples.len());
+    for sample in samples {
+        let fail = failed.get(&sample.id);
+        let summary = match current.get(&sample.id) {
+            None => FitSummary {
+                current_fit: None,
+                model: None,
+                state: fail.map_or(FitState::None, |(_, m)| FitState::Failed(m.clone())),
+            },
+            Some((id, model, fp, rev)) => {
+                let mut reasons = Vec::new();
+                let moved = *rev != revision.get(&sample.id).copied();
+                if moved && readings_fingerprint(conn, sample.id)? != *fp {
+                    reasons.push(StaleReason::ReadingsChanged);
+                }
+                if let Some((fail_id, message)) = fail
+                    && fail_id > id
+                {
+                    reasons.push(StaleReason::RefitFailed(message.clone()));
+                }
+                FitSummary {
+                    current_fit: Some(*id),
+                    model: Some(model.clone()),
+                    state: if reasons.is_empty() {
+                        FitState::Current
+                    } else {
+                        FitState::Stale(reasons)
+                    },
+                }
+            }
+        };
+        out.insert(sample.id, summary);
+    }
+    Ok(out)
+}
+
+/// The fingerprint of the readings a fit of this sample would use now.
+///
+/// # Errors
+/// An SQLite error.
+pub fn readings_fingerprint(conn: &Connection, sample_id: i64) -> Result<String> {
+    let mut stmt = conn.prepare_cached(&format!(
+        "SELECT r.id, r.h_cm, r.theta, r.weight FROM reading r
+         WHERE r.sample_id = ?1 AND NOT {EXCLUDED}"
+    ))?;
+    let mut ids = Vec::new();
+    let mut h = Vec::new();
+    let mut theta = Vec::new();
+    let mut weights = Vec::new();
+    for row in stmt.query_map(params![sample_id], |r| {
+        Ok((
+            r.get::<_, i64>(0)?,
+            r.get::<_, f64>(1)?,
+            r.get::<_, f64>(2)?,
+            r.get::<_, Option<f64>>(3)?,
+        ))
+    })? {
+        let (id, hv, tv, w) = row?;
+        ids.push(id);
+        h.push(hv);
+        theta.push(tv);
+        weights.push(w);
+    }
+    let weights = weights
+        .iter()
+        .any(Option::is_some)
+        .then(|| weights.iter().map(|w| w.unwrap_or(1.0)).collect::<Vec<_>>());
+    Ok(fingerprint(&ids, &h, &theta, weights.as_deref()))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn fingerprint_ignores_order_and_sees_every_value() {
+        let base = fingerprint(&[1, 2], &[10.0, 100.0], &[0.4, 0.3], None);
+        assert_eq!(
+            base,
+            fingerprint(&[2, 1], &[100.0, 10.0], &[0.3, 0.4], None)
+        );
+        assert_ne!(
+            base,
+            fingerprint(&[1, 2], &[10.0, 100.0], &[0.4, 0.31], None)
+        );
+        assert_ne!(
+            base,
+            fingerprint(&[1, 3], &[10.0, 100.0], &[0.4, 0.3], None)
+        );
+        assert_ne!(base, fingerprint(&[1], &[10.0], &[0.4], None));
+        assert_ne!(
+            base,
+            fingerprint(&[1, 2], &[10.0, 100.0], &[0.4, 0.3], Some(&[1.0, 2.0]))
+        );
+        assert_eq!(base.len(), 64);
+    }
+}
