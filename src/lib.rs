@@ -14,7 +14,9 @@
 //! - [`import`]: CSV files to validated batches of model values, with `FILE:LINE:COLUMN`
 //!   diagnostics. Reads files, writes nothing.
 //! - [`store`]: the SQLite campaign file: migrations, pragmas, one module per aggregate.
-//! - [`report`]: tables and exports built from model and store values.
+//! - [`analysis`]: campaign-wide work over store and fit engine: fitting samples and recording
+//!   the attempts; derived values, layer and profile available water (computed on read).
+//! - [`report`]: tables and exports built from model, store and analysis values.
 //! - [`demo`]: the seeded generator of the invented demo campaign.
 //! - [`cli`]: the command line, thin over the library.
 

@@ -1,10 +1,10 @@
 //! Fits of a campaign: the readings a fit uses, fit history, the current fit and staleness.
 //!
-//! A reading is used by fits unless a flag on it is `accepted` (manual flags are stored
-//! accepted). Every fit records the ids of the readings it used, their SHA-256 fingerprint and
-//! the sample's revision counter (bumped by triggers whenever a reading or a flag on it
-//! changes). A fit is stale when the sample's readings no longer match its fingerprint, or
-//! when a later attempt to refit the sample failed.
+//! A reading is used by fits unless a flag on it excludes it (an accepted flag, or a manual
+//! one not dismissed or cleared; see [`EXCLUDED`]). Every fit records the ids of the readings
+//! it used, their SHA-256 fingerprint and the sample's revision counter (bumped by triggers
+//! whenever a reading or a flag on it changes). A fit is stale when the sample's readings no
+//! longer match its fingerprint, or when a later attempt to refit the sample failed.
 
 use std::collections::{BTreeMap, HashMap, HashSet};
 
@@ -19,9 +19,10 @@ use crate::fit::{AutoFit, FitReport, SkippedModel};
 use crate::model::domain::{LayerRef, SampleKind};
 use crate::model::number::hex;
 
-/// SQL condition, on a reading aliased `r`, that is true when fits must leave it out.
-pub const EXCLUDED: &str =
-    "EXISTS (SELECT 1 FROM flag f WHERE f.reading_id = r.id AND f.status = 'accepted')";
+/// SQL condition, on a reading aliased `r`, that is true when fits must leave it out: an
+/// accepted flag, or a manual flag not yet dismissed or cleared (as `Flag::excludes`).
+pub const EXCLUDED: &str = "EXISTS (SELECT 1 FROM flag f WHERE f.reading_id = r.id \
+     AND (f.status = 'accepted' OR (f.status = 'suggested' AND f.origin = 'manual')))";
 
 /// Which samples a command works on: all of them, a site, a layer, or named samples.
 #[derive(Debug, Clone, Default, PartialEq)]
