@@ -203,8 +203,14 @@ mod tests {
         assert_eq!(t.forward(800.0).0, 10.0);
         assert_eq!(t.saturation(-40.0), Some(Saturation::Pinned(Side::Lower)));
         assert_eq!(t.saturation(t.inverse_start(2e-5)), None);
-        assert_eq!(t.near_bound(t.inverse_start(1.005e-5)), Some(Side::Lower));
-        assert_eq!(t.near_bound(t.inverse_start(2e-5)), None);
+        let q_of = |p: f64| {
+            let s = (p - 1e-5) / (10.0 - 1e-5);
+            (s / (1.0 - s)).ln()
+        };
+        assert_eq!(t.near_bound(q_of(1.005e-5)), Some(Side::Lower));
+        assert_eq!(t.near_bound(q_of(2e-5)), None);
+        // A start on the bound is placed outside the near band.
+        assert_eq!(t.near_bound(t.inverse_start(1e-5)), None);
     }
 
     #[test]
