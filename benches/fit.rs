@@ -76,7 +76,8 @@ fn generate(count: usize) -> Vec<Sample> {
             let sd = rng.random_range(0.005..0.01);
             let theta = h
                 .iter()
-                .map(|&x| vg.value(x, &p) + sd * z.sample(&mut rng))
+                // A reading cannot be negative: noise below zero is cut at 0.
+                .map(|&x| (vg.value(x, &p) + sd * z.sample(&mut rng)).max(0.0))
                 .collect();
             Sample { h, theta }
         })

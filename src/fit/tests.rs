@@ -117,7 +117,7 @@ fn theta_r_pinned_at_zero_is_held_there() {
     let truth = [0.0, 0.41, 0.075, 1.89];
     let mut y = curve(&truth);
     for v in y.iter_mut().skip(6) {
-        *v -= 0.01;
+        *v *= 0.6;
     }
     let r = fit_curve(&Vg, "vg", &Readings::new(&H, &y), &FitOptions::new()).unwrap();
     let tr = r.parameter("theta_r").unwrap();
@@ -157,6 +157,9 @@ fn bad_input_is_an_error_not_a_panic() {
             ..
         }
     ));
+    let mut wet = y.clone();
+    wet[0] = -0.01;
+    assert!(matches!(err(&H, &wet), FitError::WaterContentOutOfRange { index: 1, .. }));
     let mut neg = H;
     neg[1] = -1.0;
     assert!(matches!(
