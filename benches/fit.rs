@@ -5,7 +5,10 @@
 //! CSV (`sample,suction_cm,theta`) so a baseline script can be timed on the same data. With
 //! `POREWISE_BASELINE=/path/to/script.py` set it runs `python3 script CSV [N]` itself and prints
 //! the per-fit ratio. `POREWISE_BENCH_SAMPLES` changes the sample count (default 10,000),
-//! `POREWISE_BASELINE_SAMPLES` the baseline's (default all).
+//! `POREWISE_BASELINE_SAMPLES` the baseline's (default all), `POREWISE_BENCH_RESTARTS` the random
+//! restarts per sample (default 40); `POREWISE_BENCH_TOL`, `_STEP`, `_PATIENCE` change the fit
+//! options; `POREWISE_TRACE=INDEX` fits one sample and prints it; `--breakdown` groups the fits
+//! by solver runs.
 //!
 //! Parameters are drawn around the Carsel & Parrish (1988) class means (Water Resour. Res.
 //! 24(5), values from memory, high confidence); noise sd 0.005-0.01 m3/m3. Seeded (ChaCha8).
@@ -73,7 +76,8 @@ fn generate(count: usize) -> Vec<Sample> {
             let sd = rng.random_range(0.005..0.01);
             let theta = h
                 .iter()
-                .map(|&x| vg.value(x, &p) + sd * z.sample(&mut rng))
+                // A reading cannot be negative: noise below zero is cut at 0.
+                .map(|&x| (vg.value(x, &p) + sd * z.sample(&mut rng)).max(0.0))
                 .collect();
             Sample { h, theta }
         })

@@ -86,6 +86,12 @@ fn validate(readings: &Readings<'_>, domain: Domain) -> Result<(), FitError> {
                 value: xi,
             });
         }
+        if domain == Domain::Suction && !(0.0..=1.0).contains(&yi) {
+            return Err(FitError::WaterContentOutOfRange {
+                index: i + 1,
+                value: yi,
+            });
+        }
     }
     if let Some(w) = weights {
         for (i, &wi) in w.iter().enumerate() {

@@ -32,6 +32,14 @@ pub enum FitError {
         /// The value found.
         value: f64,
     },
+    /// A water content outside 0..1 m3/m3 (retention fits only).
+    #[error("reading {index}: water content {value} is outside 0..1 m3/m3")]
+    WaterContentOutOfRange {
+        /// Position of the reading, from 1.
+        index: usize,
+        /// The value found.
+        value: f64,
+    },
     /// A weight below or equal to zero.
     #[error("reading {index}: weight {value} must be greater than 0")]
     BadWeight {
