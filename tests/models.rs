@@ -723,3 +723,38 @@ fn guesses_survive_degenerate_data() {
         }
     }
 }
+
+/// Regression: odd readings (water content below zero, all equal, NaN) must give guesses or
+/// none, never a panic, for every model.
+#[test]
+fn guesses_never_panic_on_odd_readings() {
+    let x = [0.0, 10.0, 100.0, 1000.0, 15000.0];
+    for y in [
+        [0.4, 0.3, -0.05, -0.1, -0.2],
+        [0.3, 0.3, 0.3, 0.3, 0.3],
+        [0.1, 0.2, 0.3, 0.4, 0.5],
+        [f64::NAN, 0.3, 0.2, 0.1, 0.05],
+        [0.0, 0.0, 0.0, 0.0, 0.0],
+    ] {
+        for kind in porewise::model::retention::ModelKind::ALL {
+            let _ = kind.curve().initial_guesses(&x, &y);
+        }
+    }
+    // Seeded noise around a drying curve that dips below zero at the dry end.
+    let mut state = 0x2545_f491_4f6c_dd1d_u64;
+    let mut next = || {
+        state ^= state << 13;
+        state ^= state >> 7;
+        state ^= state << 17;
+        (state >> 11) as f64 / (1u64 << 53) as f64
+    };
+    for _ in 0..2000 {
+        let y: Vec<f64> = x
+            .iter()
+            .map(|h| 0.4 / (1.0 + h / 50.0) - 0.1 + 0.2 * next())
+            .collect();
+        for kind in porewise::model::retention::ModelKind::ALL {
+            let _ = kind.curve().initial_guesses(&x, &y);
+        }
+    }
+}

@@ -726,7 +726,8 @@ pub(crate) fn linear_ends(
     let theta_r = (sut * svv - svt * suv) / det;
     let theta_s = (svt * suu - sut * suv) / det;
     let theta_s = theta_s.max(shape.theta_max).min(THETA_S.upper);
-    let theta_r = theta_r.clamp(0.0, shape.theta_min.min(0.95 * theta_s));
+    // max/min rather than clamp: with odd data (theta_min < 0) the upper end can fall below 0.
+    let theta_r = theta_r.min(shape.theta_min.min(0.95 * theta_s)).max(0.0);
     (theta_r.is_finite() && theta_s.is_finite()).then_some((theta_r, theta_s))
 }
 
