@@ -317,7 +317,9 @@ fn is_ours(name: &str) -> bool {
         || ALL_FILES.iter().any(|f| {
             name.strip_prefix('.')
                 .and_then(|rest| rest.strip_prefix(f))
-                .is_some_and(|rest| rest.starts_with('.') && rest.ends_with(".tmp"))
+                .and_then(|rest| rest.strip_prefix('.'))
+                .and_then(|rest| rest.strip_suffix(".tmp"))
+                .is_some_and(|pid| !pid.is_empty() && pid.bytes().all(|b| b.is_ascii_digit()))
         })
 }
 

@@ -215,25 +215,23 @@ fn decades(snapshot: &Snapshot, site: &SitePart) -> (i32, i32) {
     } else {
         -1
     };
-    let hi_exp = (hi.max(pwp_cm).log10().ceil() as i32).max(5).min(8);
+    let hi_exp = (hi.max(pwp_cm).log10().ceil() as i32).clamp(5, 8);
     (lo_exp.max(-4), hi_exp)
 }
 
 /// `1`, `10`, `100`, `1000`, then `10⁴`, `10⁵` ... and `0.1`, `0.01` below 1.
 pub fn decade_label(exp: i32) -> String {
     const SUPERSCRIPT: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
-    match exp {
-        -3..=3 => significant(10f64.powi(exp), 3).unwrap_or_default(),
-        _ => {
-            let digits: String = exp
-                .unsigned_abs()
-                .to_string()
-                .chars()
-                .filter_map(|d| d.to_digit(10).map(|d| SUPERSCRIPT[d as usize]))
-                .collect();
-            format!("10{}{digits}", if exp < 0 { "⁻" } else { "" })
-        }
+    if (-3..=3).contains(&exp) {
+        return significant(10f64.powi(exp), 3).unwrap_or_default();
     }
+    let digits: String = exp
+        .unsigned_abs()
+        .to_string()
+        .chars()
+        .filter_map(|d| d.to_digit(10).map(|d| SUPERSCRIPT[d as usize]))
+        .collect();
+    format!("10{}{digits}", if exp < 0 { "⁻" } else { "" })
 }
 
 /// The upper end of the water-content axis: above every reading and theta_s, in 0.05 steps.
@@ -311,13 +309,12 @@ fn draw_reference_lines(
     Ok(())
 }
 
+/// Points of a line in data coordinates.
+type Line = Vec<(f64, f64)>;
+
 /// A curve over `grid`, solid between the smallest and largest suction measured (`used`)
 /// and in dashed pieces beyond (all dashed when nothing was measured).
-fn split_curve(
-    grid: &[f64],
-    used: &[f64],
-    theta: impl Fn(f64) -> f64,
-) -> (Vec<(f64, f64)>, Vec<Vec<(f64, f64)>>) {
+fn split_curve(grid: &[f64], used: &[f64], theta: impl Fn(f64) -> f64) -> (Line, Vec<Line>) {
     let point = |h: f64| Some((h, theta(h))).filter(|(_, t)| t.is_finite());
     let lo = used.iter().copied().fold(f64::INFINITY, f64::min);
     let hi = used.iter().copied().fold(f64::NEG_INFINITY, f64::max);
@@ -383,7 +380,8 @@ pub fn site_chart(snapshot: &Snapshot, site: &SitePart) -> Result<Option<String>
             .x_label_area_size(44)
             .y_label_area_size(58)
             .top_x_label_area_size(46)
-            .build_cartesian_2d((x_lo..x_hi).log_scale(), 0.0..y_top)
+            // A hair wider than the decades, so both end decades get their label.
+            .build_cartesian_2d((x_lo * 0.9999..x_hi * 1.0001).log_scale(), 0.0..y_top)
             .map_err(draw_err)?
             .set_secondary_coord(f64::from(lo_exp)..f64::from(hi_exp), 0.0..y_top);
         let decade_count = (hi_exp - lo_exp) as usize;
@@ -427,7 +425,7 @@ pub fn site_chart(snapshot: &Snapshot, site: &SitePart) -> Result<Option<String>
                 let used: Vec<f64> = m
                     .readings
                     .iter()
-                    .filter(|r| !snapshot.excluded.contains(&r.id))
+                    .filter(|r| !snapshot.is_excluded(r.id))
                     .map(|r| r.reading.h_cm.max(x_lo))
                     .collect();
                 let (solid, extrapolated) = split_curve(&grid, &used, |h| curve.theta(h));
@@ -452,7 +450,7 @@ pub fn site_chart(snapshot: &Snapshot, site: &SitePart) -> Result<Option<String>
                     (
                         r.reading.h_cm.max(x_lo),
                         r.reading.theta,
-                        snapshot.excluded.contains(&r.id),
+                        snapshot.is_excluded(r.id),
                     )
                 })
                 .collect();
@@ -478,13 +476,13 @@ pub fn site_chart(snapshot: &Snapshot, site: &SitePart) -> Result<Option<String>
             .iter()
             .flat_map(|l| &l.samples)
             .flat_map(|m| &m.readings)
-            .any(|r| snapshot.excluded.contains(&r.id));
+            .any(|r| snapshot.is_excluded(r.id));
         if any_excluded {
             chart
                 .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())
                 .map_err(draw_err)?
                 .label("left out of the fit")
-                .legend(|at| cross(at));
+                .legend(cross);
         }
         chart
             .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())

@@ -11,7 +11,7 @@
 use std::fmt::Write as _;
 
 use super::chart::{Marker, colour_hex, layer_colour, layer_label};
-use super::snapshot::{SitePart, Snapshot, models_in};
+use super::snapshot::{ReadingFlag, SitePart, Snapshot, models_in};
 use super::tables::state_detail;
 use crate::fit::FitReport;
 use crate::model::domain::SampleKind;
@@ -25,6 +25,8 @@ use crate::store::fits::FitState;
 const DIGITS: usize = 4;
 /// Significant digits of standard errors.
 const SE_DIGITS: usize = 2;
+/// Columns of the parameter table.
+const PARAMETER_COLUMNS: usize = 12;
 /// What an empty (not applicable) cell shows.
 const NONE: &str = "–";
 
@@ -66,7 +68,7 @@ pub struct PageMeta<'a> {
 
 const STYLE: &str = "
 body { font-family: system-ui, -apple-system, 'Segoe UI', Roboto, 'Helvetica Neue', Arial, sans-serif;
-       color: #1a1a1a; margin: 0 auto; max-width: 1180px; padding: 1rem 1.5rem 3rem; line-height: 1.45; }
+       color: #1a1a1a; margin: 0 auto; max-width: 1400px; padding: 1rem 1.5rem 3rem; line-height: 1.45; }
 h1 { font-size: 1.7rem; margin-bottom: 0.2rem; }
 h2 { font-size: 1.35rem; border-bottom: 2px solid #ccc; padding-bottom: 0.2rem; margin-top: 2.4rem; }
 h3 { font-size: 1.1rem; margin-top: 1.4rem; }
@@ -77,7 +79,10 @@ td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: now
 tr.total td { font-weight: bold; background: #fafafa; }
 table.meta td, table.meta th { border: none; padding: 0.05rem 1rem 0.05rem 0; background: none; }
 table.meta { font-size: 0.92rem; color: #333; }
-td.params, td.code { white-space: nowrap; }
+td.params, td.code, td.model, td.layer { white-space: nowrap; }
+.wide { overflow-x: auto; }
+.wide table { font-size: 0.82rem; }
+tr.note td { font-size: 0.8rem; color: #5a3500; background: #fffaf3; border-top: none; }
 .caution { border-left: 5px solid #b35900; background: #fff6ec; padding: 0.5rem 1rem; }
 figure { margin: 0.5rem 0 1rem; }
 figure svg { max-width: 100%; height: auto; border: 1px solid #ddd; }
@@ -87,7 +92,7 @@ figcaption { font-size: 0.85rem; color: #444; max-width: 760px; }
 .stale { color: #8a4b00; font-weight: bold; }
 .muted { color: #666; }
 code { font-size: 0.9em; }
-@media print { h2 { page-break-before: always; } figure svg { border: none; } }
+@media print { h2 { page-break-before: always; } figure svg { border: none; } .wide { overflow: visible; } }
 ";
 
 /// The page of a snapshot with its charts (one per site, `None` for a site without data).
@@ -167,7 +172,7 @@ fn header(out: &mut String, s: &Snapshot, meta: PageMeta<'_>) {
         format!(
             "{} kPa = {} cm (pF {})",
             num(Some(settings.fc_kpa), 6),
-            num(Some(fc_cm), DIGITS),
+            num(Some(fc_cm), 5),
             num(Some(fc_cm.log10()), 3)
         ),
     );
@@ -177,7 +182,7 @@ fn header(out: &mut String, s: &Snapshot, meta: PageMeta<'_>) {
         format!(
             "{} kPa = {} cm (pF {})",
             num(Some(settings.pwp_kpa), 6),
-            num(Some(pwp_cm), DIGITS),
+            num(Some(pwp_cm), 5),
             num(Some(pwp_cm.log10()), 3)
         ),
     );
@@ -310,16 +315,29 @@ fn parameters_cell(report: &FitReport) -> String {
         .join("<br/>")
 }
 
-fn state_cell(state: &FitState) -> String {
+/// The state column: one word (stale and failed in the warning style); their reasons go in
+/// a row of their own under the sample (see [`state_note`]).
+fn state_cell(state: &FitState) -> &'static str {
     match state {
-        FitState::Current => "current".to_string(),
-        FitState::None => "not fitted".to_string(),
-        FitState::Stale(_) => format!(
-            "<span class=\"stale\">stale</span>: {}",
-            escape(&state_detail(state))
-        ),
-        FitState::Failed(_) => format!("failed: {}", escape(&state_detail(state))),
+        FitState::Current => "current",
+        FitState::None => "not fitted",
+        FitState::Stale(_) => "<span class=\"stale\">stale</span>",
+        FitState::Failed(_) => "<span class=\"stale\">failed</span>",
     }
+}
+
+/// Why a fit is stale or failed, as a full-width row under its sample; empty otherwise.
+fn state_note(code: &str, state: &FitState, columns: usize) -> String {
+    let why = match state {
+        FitState::Stale(_) => "its fit is stale",
+        FitState::Failed(_) => "it could not be fitted",
+        FitState::None | FitState::Current => return String::new(),
+    };
+    format!(
+        "<tr class=\"note\"><td colspan=\"{columns}\">{} {why}: {}</td></tr>\n",
+        escape(code),
+        escape(&state_detail(state))
+    )
 }
 
 fn site_section(
@@ -420,7 +438,7 @@ fn layer_table(out: &mut String, part: &SitePart) {
 fn parameter_table(out: &mut String, s: &Snapshot, part: &SitePart) {
     let _ = writeln!(
         out,
-        "<h3>Fitted parameters</h3>\n<table>\n<thead><tr><th>sample</th><th>layer</th><th>model</th>\
+        "<h3>Fitted parameters</h3>\n<div class=\"wide\">\n<table>\n<thead><tr><th>sample</th><th>layer</th><th>model</th>\
          <th>parameters ± standard error</th><th>RMSE, m³/m³</th><th>R²</th><th>AICc</th>\
          <th>readings used / flagged / left out</th><th>θ at FC, m³/m³</th><th>θ at PWP, m³/m³</th>\
          <th>available water, m³/m³</th><th>state</th></tr></thead>\n<tbody>"
@@ -443,7 +461,7 @@ fn parameter_table(out: &mut String, s: &Snapshot, part: &SitePart) {
                         .map_or_else(|_| escape(&f.model), |k| k.display_name().to_string());
                     match f.requested.as_deref() {
                         Some("auto") => {
-                            format!("{name} <span class=\"muted\">(auto: lowest AICc)</span>")
+                            format!("{name}<br/><span class=\"muted\">auto: lowest AICc</span>")
                         }
                         _ => name,
                     }
@@ -451,7 +469,7 @@ fn parameter_table(out: &mut String, s: &Snapshot, part: &SitePart) {
             );
             let _ = writeln!(
                 out,
-                "<tr><td class=\"code\">{code}{kind}</td><td>{layer}</td><td>{model}</td><td class=\"params\">{params}</td>\
+                "<tr><td class=\"code\">{code}{kind}</td><td class=\"layer\">{layer}</td><td class=\"model\">{model}</td><td class=\"params\">{params}</td>\
                  <td class=\"num\">{rmse}</td><td class=\"num\">{r2}</td><td class=\"num\">{aicc}</td>\
                  <td class=\"num\">{used} / {flagged} / {excluded}</td><td class=\"num\">{fc}</td>\
                  <td class=\"num\">{pwp}</td><td class=\"num\">{aw}</td><td>{state}</td></tr>",
@@ -469,9 +487,14 @@ fn parameter_table(out: &mut String, s: &Snapshot, part: &SitePart) {
                 aw = num(values.and_then(|v| v.plant_available_water), DIGITS),
                 state = state_cell(&m.fit.state),
             );
+            out.push_str(&state_note(
+                &m.row.stored.sample.code,
+                &m.fit.state,
+                PARAMETER_COLUMNS,
+            ));
         }
     }
-    let _ = writeln!(out, "</tbody>\n</table>");
+    let _ = writeln!(out, "</tbody>\n</table>\n</div>");
 }
 
 fn profile_table(out: &mut String, part: &SitePart) {
@@ -533,46 +556,66 @@ fn flagged_section(out: &mut String, s: &Snapshot) {
     }
     let _ = writeln!(
         out,
-        "<p>Every flag ever raised on a reading, with its review trail (flags are never \
+        "<p>Every flag ever raised on a reading, with its audit trail (flags are never \
          deleted). A reading is left out of fits while a flag on it is accepted, or is a manual \
-         flag not yet reviewed; a suggested automatic flag alone leaves it in.</p>\n<table>\n\
+         flag not yet reviewed; an automatic suggestion alone leaves it in until reviewed.</p>\n<table>\n\
          <thead><tr><th>site</th><th>sample</th><th>reading</th><th>suction, cm</th>\
-         <th>θ, m³/m³</th><th>left out of fits</th><th>flag</th><th>status</th><th>origin</th>\
-         <th>reason</th><th>score</th><th>note</th><th>raised</th><th>decided</th></tr></thead>\n<tbody>"
+         <th>θ, m³/m³</th><th>left out of fits</th><th>flag</th><th>check</th><th>reason</th>\
+         <th>score</th><th>status</th><th>trail (UTC)</th></tr></thead>\n<tbody>"
     );
     for (site, m, r) in rows {
         for f in s.flags_of(r.id) {
+            let flag = &f.stored.flag;
             let _ = writeln!(
                 out,
-                "<tr><td>{site}</td><td>{sample}</td><td class=\"num\">{id}</td>\
+                "<tr><td>{site}</td><td class=\"code\">{sample}</td><td class=\"num\">{id}</td>\
                  <td class=\"num\">{h}</td><td class=\"num\">{theta}</td><td>{excluded}</td>\
-                 <td class=\"num\">{flag}</td><td>{status}</td><td>{origin}</td><td>{reason}</td>\
-                 <td class=\"num\">{score}</td><td>{note}</td><td>{raised}</td><td>{decided}</td></tr>",
+                 <td class=\"num\">{flag_id}</td><td>{rule}</td><td>{reason}</td>\
+                 <td class=\"num\">{score}</td><td>{status} ({origin})</td><td>{trail}</td></tr>",
                 site = escape(&site.row.stored.site.code),
                 sample = escape(&m.row.stored.sample.code),
                 id = r.id,
                 h = num(Some(r.reading.h_cm), 6),
                 theta = num(Some(r.reading.theta), DIGITS),
-                excluded = if s.excluded.contains(&r.id) {
-                    "yes"
-                } else {
-                    "no"
-                },
-                flag = f.id,
-                status = f.status,
-                origin = f.origin,
-                reason = escape(&f.reason),
-                score = num(f.score, 3),
-                note = opt_text(f.note.as_deref()),
-                raised = f.created_at.format("%Y-%m-%d %H:%M"),
-                decided = f.decided_at.map_or_else(
-                    || NONE.to_string(),
-                    |t| t.format("%Y-%m-%d %H:%M").to_string()
-                ),
+                excluded = if s.is_excluded(r.id) { "yes" } else { "no" },
+                flag_id = f.stored.id,
+                rule = opt_text(f.stored.rule.as_deref()),
+                reason = escape(&flag.reason),
+                score = num(flag.score, 3),
+                status = flag.status,
+                origin = flag.origin,
+                trail = trail_cell(f),
             );
         }
     }
     let _ = writeln!(out, "</tbody>\n</table>");
+}
+
+/// `suggested by checks 2026-12-02 10:00; accepted by user 2026-12-03 09:12: "note"`.
+fn trail_cell(f: &ReadingFlag) -> String {
+    if f.events.is_empty() {
+        return format!(
+            "raised {}",
+            f.stored.flag.created_at.format("%Y-%m-%d %H:%M")
+        );
+    }
+    f.events
+        .iter()
+        .map(|e| {
+            let note = e
+                .note
+                .as_deref()
+                .map(|n| format!(": “{}”", escape(n)))
+                .unwrap_or_default();
+            format!(
+                "{} by {} {}{note}",
+                e.to,
+                e.actor,
+                e.at.format("%Y-%m-%d %H:%M")
+            )
+        })
+        .collect::<Vec<_>>()
+        .join("<br/>")
 }
 
 /// The equation of a model as HTML.
@@ -646,7 +689,7 @@ fn methods(out: &mut String, s: &Snapshot) {
                 .join(", ");
             let _ = writeln!(
                 out,
-                "<li><strong>{}</strong>, {} (<code>{}</code>): <span class=\"eq\">{}</span>. \
+                "<li><strong>{}</strong>, {} (<code>{}</code>):<br/><span class=\"eq\">{}</span><br/>\
                  Parameters: {params}.</li>",
                 kind.display_name(),
                 citation(kind),
@@ -687,10 +730,10 @@ fn methods(out: &mut String, s: &Snapshot) {
          {zone} cm. Where part of that depth has no layer with available water, the total is a \
          lower bound and the table says how many cm are missing.</p>",
         fc = num(Some(settings.fc_kpa), 6),
-        fc_cm = num(Some(fc_cm), DIGITS),
+        fc_cm = num(Some(fc_cm), 5),
         fc_pf = num(Some(fc_cm.log10()), 3),
         pwp = num(Some(settings.pwp_kpa), 6),
-        pwp_cm = num(Some(pwp_cm), DIGITS),
+        pwp_cm = num(Some(pwp_cm), 5),
         pwp_pf = num(Some(pwp_cm.log10()), 3),
         zone = num(Some(s.root_zone_cm), 6),
     );

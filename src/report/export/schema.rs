@@ -287,6 +287,9 @@ pub struct ProvenanceData {
 pub struct FlagData {
     /// Flag id.
     pub id: i64,
+    /// The check that raised it (`leave-one-out`, `saturation`, `monotonic`, `manual`, ...);
+    /// `null` for flags from before schema version 3 of the campaign file.
+    pub rule: Option<String>,
     /// Why it was flagged.
     pub reason: String,
     /// How suspicious, on the scale of the check that raised it.
@@ -301,6 +304,25 @@ pub struct FlagData {
     pub created_at: String,
     /// When its status was last decided (UTC, RFC 3339).
     pub decided_at: Option<String>,
+    /// Who made the last decision: `user` or `checks`.
+    pub decided_by: Option<String>,
+    /// The audit trail: every status the flag took, oldest first.
+    pub events: Vec<FlagEventData>,
+}
+
+/// One status a flag took.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FlagEventData {
+    /// Status before; `null` when the flag was raised.
+    pub from: Option<FlagStatus>,
+    /// Status after.
+    pub to: FlagStatus,
+    /// `user` or `checks`.
+    pub actor: String,
+    /// The note given with the change.
+    pub note: Option<String>,
+    /// When (UTC, RFC 3339).
+    pub at: String,
 }
 
 /// A sample's current fit.
@@ -513,15 +535,29 @@ fn site_data(s: &Snapshot, part: &SitePart) -> SiteData {
 }
 
 fn flag_data(f: &ReadingFlag) -> FlagData {
+    let flag = &f.stored.flag;
     FlagData {
-        id: f.id,
-        reason: f.reason.clone(),
-        score: f.score,
-        origin: f.origin,
-        status: f.status,
-        note: f.note.clone(),
-        created_at: rfc3339(f.created_at),
-        decided_at: f.decided_at.map(rfc3339),
+        id: f.stored.id,
+        rule: f.stored.rule.clone(),
+        reason: flag.reason.clone(),
+        score: flag.score,
+        origin: flag.origin,
+        status: flag.status,
+        note: flag.note.clone(),
+        created_at: rfc3339(flag.created_at),
+        decided_at: flag.decided_at.map(rfc3339),
+        decided_by: f.stored.decided_by.map(|a| a.as_str().to_string()),
+        events: f
+            .events
+            .iter()
+            .map(|e| FlagEventData {
+                from: e.from,
+                to: e.to,
+                actor: e.actor.as_str().to_string(),
+                note: e.note.clone(),
+                at: rfc3339(e.at),
+            })
+            .collect(),
     }
 }
 
@@ -555,7 +591,7 @@ fn sample_data(s: &Snapshot, part: &SamplePart) -> SampleData {
                     file_name: r.source_file.clone(),
                     line: (r.reading.provenance.line > 0).then_some(r.reading.provenance.line),
                 },
-                excluded: s.excluded.contains(&r.id),
+                excluded: s.is_excluded(r.id),
                 used_in_fit: used(r.id),
                 flags: s.flags_of(r.id).iter().map(flag_data).collect(),
             })

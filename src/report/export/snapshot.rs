@@ -3,48 +3,26 @@
 
 use std::collections::{BTreeMap, BTreeSet};
 
-use chrono::{DateTime, Utc};
 use rusqlite::Connection;
 
 use crate::analysis::{SampleFit, SiteProfile, profiles, sample_fits};
-use crate::model::domain::{FlagOrigin, FlagStatus};
 use crate::model::retention::ModelKind;
 use crate::store::batches::{self, ImportBatchRecord};
-use crate::store::fits::{EXCLUDED, Selection};
+use crate::store::fits::Selection;
+use crate::store::flags::{self, FlagEvent, FlagFilter, Mark, StoredFlag, Subject};
 use crate::store::layers::{self, LayerRow};
 use crate::store::readings::{self, StoredReading};
 use crate::store::samples::{self, SampleRow};
 use crate::store::sites::{self, SiteRow};
 use crate::store::{CampaignSettings, Filter, Result, StoreError, campaign};
 
-/// One flag on a reading, with its review trail.
+/// One flag on a reading, with its audit trail (from the flag store).
 #[derive(Debug, Clone, PartialEq)]
 pub struct ReadingFlag {
-    /// Flag id.
-    pub id: i64,
-    /// The flagged reading.
-    pub reading_id: i64,
-    /// Why it was flagged.
-    pub reason: String,
-    /// How suspicious, on the scale of the check that raised it.
-    pub score: Option<f64>,
-    /// Automatic suggestion or the user's own flag.
-    pub origin: FlagOrigin,
-    /// Review state.
-    pub status: FlagStatus,
-    /// The reviewer's note.
-    pub note: Option<String>,
-    /// When it was raised (UTC).
-    pub created_at: DateTime<Utc>,
-    /// When its status was last decided (UTC).
-    pub decided_at: Option<DateTime<Utc>>,
-}
-
-impl ReadingFlag {
-    /// Open (suggested) or confirmed (accepted): the flags that make a reading "flagged".
-    pub fn is_live(&self) -> bool {
-        matches!(self.status, FlagStatus::Suggested | FlagStatus::Accepted)
-    }
+    /// The flag as stored: id, rule, who decided it last, reason, status, dates.
+    pub stored: StoredFlag,
+    /// Every status it took, oldest first.
+    pub events: Vec<FlagEvent>,
 }
 
 /// One layer with the samples taken from it.
@@ -93,8 +71,8 @@ pub struct Snapshot {
     pub imports: Vec<ImportBatchRecord>,
     /// Flags by reading id, oldest first.
     pub flags: BTreeMap<i64, Vec<ReadingFlag>>,
-    /// Readings that flags leave out of fits now.
-    pub excluded: BTreeSet<i64>,
+    /// The flag mark of every flagged reading (excluded, suggested or kept).
+    pub marks: BTreeMap<i64, Mark>,
 }
 
 impl Snapshot {
@@ -115,12 +93,22 @@ impl Snapshot {
         self.flags.get(&reading_id).map_or(&[], Vec::as_slice)
     }
 
-    /// Readings of a sample with an open or accepted flag.
+    /// Whether flags leave this reading out of fits now.
+    pub fn is_excluded(&self, reading_id: i64) -> bool {
+        self.marks.get(&reading_id) == Some(&Mark::Excluded)
+    }
+
+    /// Readings of a sample that are flagged: an open suggestion, or left out of fits.
     pub fn flagged_count(&self, sample: &SamplePart) -> usize {
         sample
             .readings
             .iter()
-            .filter(|r| self.flags_of(r.id).iter().any(ReadingFlag::is_live))
+            .filter(|r| {
+                matches!(
+                    self.marks.get(&r.id),
+                    Some(Mark::Suggested | Mark::Excluded)
+                )
+            })
             .count()
     }
 
@@ -129,7 +117,7 @@ impl Snapshot {
         sample
             .readings
             .iter()
-            .filter(|r| self.excluded.contains(&r.id))
+            .filter(|r| self.is_excluded(r.id))
             .count()
     }
 
@@ -154,57 +142,27 @@ pub fn models_in<'a>(samples: impl Iterator<Item = &'a SamplePart>) -> Vec<Model
         .collect()
 }
 
-/// Every flag on a reading of the campaign, by reading and id.
-///
-/// A small query of our own until the review's flag store is merged (it reads the `flag`
-/// table of schema version 1 only).
-fn reading_flags(conn: &Connection) -> Result<BTreeMap<i64, Vec<ReadingFlag>>> {
-    let mut stmt = conn.prepare(
-        "SELECT id, reading_id, reason, score, origin, status, note, created_at, decided_at
-         FROM flag WHERE reading_id IS NOT NULL ORDER BY reading_id, id",
-    )?;
-    let time = |text: String| {
-        DateTime::parse_from_rfc3339(&text)
-            .map(|t| t.with_timezone(&Utc))
-            .map_err(|e| StoreError::Corrupt(format!("flag time {text:?}: {e}")))
+/// Every flag on a reading of the campaign (or of one site) with its trail, by reading.
+fn reading_flags(conn: &Connection, site: Option<&str>) -> Result<BTreeMap<i64, Vec<ReadingFlag>>> {
+    let filter = FlagFilter {
+        site: site.map(str::to_string),
+        ..FlagFilter::default()
     };
-    let rows = stmt.query_map([], |r| {
-        Ok((
-            r.get::<_, i64>(0)?,
-            r.get::<_, i64>(1)?,
-            r.get::<_, String>(2)?,
-            r.get::<_, Option<f64>>(3)?,
-            r.get::<_, String>(4)?,
-            r.get::<_, String>(5)?,
-            r.get::<_, Option<String>>(6)?,
-            r.get::<_, String>(7)?,
-            r.get::<_, Option<String>>(8)?,
-        ))
-    })?;
     let mut out: BTreeMap<i64, Vec<ReadingFlag>> = BTreeMap::new();
-    for row in rows {
-        let (id, reading_id, reason, score, origin, status, note, created, decided) = row?;
-        let flag = ReadingFlag {
-            id,
-            reading_id,
-            reason,
-            score,
-            origin: origin.parse().map_err(StoreError::Corrupt)?,
-            status: status.parse().map_err(StoreError::Corrupt)?,
-            note,
-            created_at: time(created)?,
-            decided_at: decided.map(time).transpose()?,
+    for row in flags::list(conn, &filter)? {
+        let Subject::Reading { reading_id, .. } = row.subject else {
+            continue;
         };
-        out.entry(reading_id).or_default().push(flag);
+        let events = flags::events(conn, row.stored.id)?;
+        out.entry(reading_id).or_default().push(ReadingFlag {
+            stored: row.stored,
+            events,
+        });
+    }
+    for list in out.values_mut() {
+        list.sort_by_key(|f| f.stored.id);
     }
     Ok(out)
-}
-
-/// The ids of the readings that flags leave out of fits now.
-fn excluded_readings(conn: &Connection) -> Result<BTreeSet<i64>> {
-    let mut stmt = conn.prepare(&format!("SELECT r.id FROM reading r WHERE {EXCLUDED}"))?;
-    let rows = stmt.query_map([], |r| r.get(0))?;
-    Ok(rows.collect::<rusqlite::Result<_>>()?)
 }
 
 /// Read the campaign (or one site of it) for an export.
@@ -269,7 +227,7 @@ pub fn read(
             {
                 let id = sample.stored.id;
                 let fit = fits.remove(&id).ok_or_else(|| {
-                    StoreError::Corrupt(format!("sample {} has no fit standing", id))
+                    StoreError::Corrupt(format!("sample {id} has no fit standing"))
                 })?;
                 samples.push(SamplePart {
                     row: sample,
@@ -291,18 +249,17 @@ pub fn read(
             profile,
         });
     }
-    let mut flags = reading_flags(conn)?;
-    let mut excluded = excluded_readings(conn)?;
-    if site.is_some() {
-        let ids: BTreeSet<i64> = parts
-            .iter()
-            .flat_map(|s| &s.layers)
-            .flat_map(|l| &l.samples)
-            .flat_map(|m| m.readings.iter().map(|r| r.id))
-            .collect();
-        flags.retain(|id, _| ids.contains(id));
-        excluded.retain(|id| ids.contains(id));
-    }
+    let flags = reading_flags(conn, site)?;
+    let ids: BTreeSet<i64> = parts
+        .iter()
+        .flat_map(|s| &s.layers)
+        .flat_map(|l| &l.samples)
+        .flat_map(|m| m.readings.iter().map(|r| r.id))
+        .collect();
+    let marks: BTreeMap<i64, Mark> = flags::reading_marks(conn)?
+        .into_iter()
+        .filter(|(id, _)| ids.contains(id))
+        .collect();
     Ok(Snapshot {
         settings,
         site_filter: site.map(str::to_string),
@@ -310,7 +267,7 @@ pub fn read(
         sites: parts,
         imports: batches::all(conn)?,
         flags,
-        excluded,
+        marks,
     })
 }
 
