@@ -19,6 +19,9 @@
 //! down, samples by code, readings by suction), numbers have a fixed format, and no hash-map
 //! order reaches the output.
 //!
+//! Not exported: field logger records and earlier fit attempts (the campaign file keeps both;
+//! `porewise list DB fits --sample CODE --all` shows a sample's attempts).
+//!
 //! The target folder may be missing (it is created), empty, or hold files of an earlier export
 //! only (those are replaced). A folder holding anything else is refused, so an export never
 //! mixes with other files or overwrites them.
