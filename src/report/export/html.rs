@@ -329,12 +329,12 @@ fn state_cell(state: &FitState) -> &'static str {
 /// Why a fit is stale or failed, as a full-width row under its sample; empty otherwise.
 fn state_note(code: &str, state: &FitState, columns: usize) -> String {
     let why = match state {
-        FitState::Stale(_) => "its fit is stale",
-        FitState::Failed(_) => "it could not be fitted",
+        FitState::Stale(_) => "the fit is stale",
+        FitState::Failed(_) => "no fit could be made",
         FitState::None | FitState::Current => return String::new(),
     };
     format!(
-        "<tr class=\"note\"><td colspan=\"{columns}\">{} {why}: {}</td></tr>\n",
+        "<tr class=\"note\"><td colspan=\"{columns}\">{}: {why}. {}</td></tr>\n",
         escape(code),
         escape(&state_detail(state))
     )
