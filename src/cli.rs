@@ -9,6 +9,7 @@ use crate::error::Outcome;
 
 pub mod curve;
 pub mod demo;
+pub mod export;
 pub mod fit;
 pub mod import;
 pub mod init;
@@ -42,6 +43,8 @@ pub enum Command {
     Fit(fit::FitArgs),
     /// Tabulate a retention curve for given parameters.
     Curve(curve::CurveArgs),
+    /// Write the campaign summary: parameter and profile tables, JSON, GeoJSON, HTML report.
+    Export(export::ExportArgs),
 }
 
 /// Run a parsed command line.
@@ -57,5 +60,6 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Set(args) => set::run(&args),
         Command::Fit(args) => fit::run(&args),
         Command::Curve(args) => curve::run(&args),
+        Command::Export(args) => export::run(&args),
     }
 }

@@ -2,6 +2,7 @@
 
 pub mod campaign;
 pub mod curve_table;
+pub mod export;
 pub mod fit_table;
 pub mod fits;
 pub mod table;

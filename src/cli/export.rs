@@ -1,0 +1,90 @@
+//! `porewise export`: write the campaign summary (tables, JSON, GeoJSON, HTML report) into a
+//! folder.
+
+use std::path::PathBuf;
+
+use anyhow::Context;
+use clap::Args;
+use indicatif::{ProgressBar, ProgressStyle};
+
+use crate::analysis::water::DEFAULT_ROOT_ZONE_CM;
+use crate::error::Outcome;
+use crate::model::number::plural;
+use crate::report::export::{ExportFormat, ExportOptions, export_campaign};
+use crate::store::Campaign;
+
+/// Arguments of `porewise export`.
+#[derive(Debug, Args)]
+#[command(
+    after_help = "Writes parameters.csv, profiles.csv, campaign.json, sites.geojson and report.html.\n\
+                  DIR is created when missing; a folder holding other files than an earlier export's is refused.\n\n\
+                  Examples:\n  porewise export spring.sqlite --to spring-summary\n  \
+                  porewise export spring.sqlite --to lv --site LV --format csv,html\n  \
+                  porewise export spring.sqlite --to out --root-zone-cm 60"
+)]
+pub struct ExportArgs {
+    /// The campaign file.
+    pub db: PathBuf,
+    /// The folder to write into.
+    #[arg(long, value_name = "DIR")]
+    pub to: PathBuf,
+    /// What to write, comma separated: csv (parameters.csv, profiles.csv), json, geojson, html.
+    #[arg(
+        long,
+        value_name = "LIST",
+        value_delimiter = ',',
+        default_value = "csv,json,geojson,html",
+        value_parser = parse_format
+    )]
+    pub format: Vec<ExportFormat>,
+    /// Only this site (code).
+    #[arg(long, value_name = "CODE")]
+    pub site: Option<String>,
+    /// The depth down to which profile available water is summed, cm.
+    #[arg(long, value_name = "CM", default_value_t = DEFAULT_ROOT_ZONE_CM)]
+    pub root_zone_cm: f64,
+}
+
+fn parse_format(s: &str) -> Result<ExportFormat, String> {
+    s.parse()
+}
+
+/// Run `porewise export`.
+///
+/// # Errors
+/// The campaign cannot be opened, the site is unknown, the folder is refused, or a file
+/// cannot be written.
+pub fn run(args: &ExportArgs) -> anyhow::Result<Outcome> {
+    let campaign = Campaign::open(&args.db)
+        .with_context(|| format!("cannot open campaign {}", args.db.display()))?;
+    let options = ExportOptions::new(&args.to)
+        .with_formats(&args.format)
+        .with_site(args.site.clone())
+        .with_root_zone_cm(args.root_zone_cm);
+    let bar = ProgressBar::new(0).with_style(
+        ProgressStyle::with_template("exporting {bar:30} {pos}/{len}")
+            .unwrap_or_else(|_| ProgressStyle::default_bar()),
+    );
+    let summary = export_campaign(campaign.connection(), &options, &|done, total| {
+        bar.set_length(total as u64);
+        bar.set_position(done as u64);
+    })?;
+    bar.finish_and_clear();
+    println!(
+        "exported {}, {} and {} into {}",
+        plural(summary.sites as u64, "site"),
+        plural(summary.samples as u64, "sample"),
+        plural(summary.readings as u64, "reading"),
+        summary.dir.display()
+    );
+    for path in &summary.written {
+        println!("  {}", path.display());
+    }
+    for path in &summary.left_from_before {
+        eprintln!(
+            "note: {} is from an earlier export (its format was not asked for this time)",
+            path.display()
+        );
+    }
+    Ok(Outcome::Success)
+}

@@ -1,0 +1,670 @@
+//! The schema of `campaign.json`: the whole campaign (or one site) as one JSON document.
+//!
+//! Layout (schema version [`SCHEMA_VERSION`]):
+//!
+//! ```text
+//! { "format": "porewise-campaign", "schema_version": 1,
+//!   "program": {"name", "version"}, "exported_at", "fingerprint_sha256",
+//!   "data": { "campaign", "scope", "imports": [..],
+//!             "sites": [ { ..., "profile", "layers": [ { ..., "water", "samples": [
+//!                 { ..., "fit_state", "readings": [ { ..., "provenance", "flags": [..] } ],
+//!                   "fit": { ..., "parameters", "statistics", "covariance", "correlation",
+//!                            "residuals", "ranking", "derived" } } ] } ] } ] } }
+//! ```
+//!
+//! Units are canonical and in the field names where a field has one (`suction_cm`,
+//! `theta_m3_m3`, `*_kpa`, `*_mm`); parameter values are in the unit their name carries
+//! (`alpha_per_cm`, `h_b_cm`; `theta_*` in m3/m3; the others are dimensionless). A value that
+//! does not apply is `null`, never NaN. Sites are ordered by code, layers top down, samples by
+//! code, readings by suction then id, flags by id.
+//!
+//! `fingerprint_sha256` is the SHA-256 of the compact JSON of `data` as porewise writes it
+//! (field order as documented here): everything but the program, the export time and the
+//! fingerprint itself. Two exports of the same campaign file with the same options have the
+//! same fingerprint, whichever porewise version of the same schema version wrote them.
+//!
+//! A few members reuse the fit engine's documented types ([`ParamEstimate`], [`ParamMatrix`],
+//! [`Termination`], [`DerivedValues`], [`Ranking`]) and the store's [`FitState`]; a change to
+//! any of them is a change of this schema and bumps [`SCHEMA_VERSION`] (a test lists every key
+//! path of the document, so such a change cannot go unnoticed).
+
+use std::collections::BTreeMap;
+
+use chrono::{DateTime, NaiveDate, SecondsFormat, Utc};
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
+
+use super::snapshot::{ReadingFlag, SamplePart, SitePart, Snapshot};
+use crate::analysis::water::LayerWater;
+use crate::fit::{FitReport, ParamEstimate, ParamMatrix, Termination};
+use crate::model::derived::DerivedValues;
+use crate::model::domain::{Branch, FlagOrigin, FlagStatus, LayerRef, SampleKind};
+use crate::model::number::hex;
+use crate::store::fits::{FitState, Ranking, StoredFit};
+
+/// The version of this document layout; bumped on any change to it.
+pub const SCHEMA_VERSION: u32 = 1;
+
+/// The value of the `format` member, naming what the document is.
+pub const FORMAT: &str = "porewise-campaign";
+
+/// The whole document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CampaignDocument {
+    /// Always [`FORMAT`].
+    pub format: String,
+    /// [`SCHEMA_VERSION`] of the writer.
+    pub schema_version: u32,
+    /// The program that wrote the file.
+    pub program: ProgramInfo,
+    /// When the export was made (UTC, RFC 3339); the only member that changes between two
+    /// exports of the same campaign.
+    pub exported_at: String,
+    /// SHA-256 (hex) of the compact JSON of `data`.
+    pub fingerprint_sha256: String,
+    /// The campaign's content.
+    pub data: CampaignData,
+}
+
+/// Name and version of the writing program.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct ProgramInfo {
+    /// `porewise`.
+    pub name: String,
+    /// Its version (Cargo package version).
+    pub version: String,
+}
+
+/// Everything the fingerprint covers.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CampaignData {
+    /// The campaign's settings row.
+    pub campaign: CampaignInfo,
+    /// What the export covers.
+    pub scope: Scope,
+    /// Every imported file, oldest first (readings point at them by `id`).
+    pub imports: Vec<ImportInfo>,
+    /// The sites, by code.
+    pub sites: Vec<SiteData>,
+}
+
+/// The campaign's settings.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CampaignInfo {
+    /// Name.
+    pub name: String,
+    /// Free text.
+    pub description: Option<String>,
+    /// When the campaign file was created (UTC, RFC 3339).
+    pub created_at: String,
+    /// Suction at field capacity used by every derived value, kPa.
+    pub field_capacity_kpa: f64,
+    /// Suction at the permanent wilting point, kPa.
+    pub wilting_point_kpa: f64,
+}
+
+/// What the export covers.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Scope {
+    /// The one site exported, or `null` for the whole campaign.
+    pub site: Option<String>,
+    /// Depth down to which profile available water is summed, cm.
+    pub root_zone_cm: f64,
+}
+
+/// One imported file (provenance of sites, layers, samples and readings).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ImportInfo {
+    /// Import id (local to the campaign file).
+    pub id: i64,
+    /// The file as the user named it.
+    pub file_name: String,
+    /// SHA-256 of its bytes, hex.
+    pub sha256: String,
+    /// `sites`, `layers`, `lab` or `logger`.
+    pub kind: String,
+    /// Data rows in the file.
+    pub rows: u64,
+    /// Forced past an earlier import of the same content.
+    pub forced: bool,
+    /// When it was imported (UTC, RFC 3339).
+    pub imported_at: String,
+}
+
+/// One site.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SiteData {
+    /// Code.
+    pub code: String,
+    /// Descriptive name.
+    pub name: Option<String>,
+    /// WGS 84 latitude, decimal degrees.
+    pub latitude_deg: Option<f64>,
+    /// WGS 84 longitude, decimal degrees.
+    pub longitude_deg: Option<f64>,
+    /// Elevation above sea level, m.
+    pub elevation_m: Option<f64>,
+    /// Free text.
+    pub notes: Option<String>,
+    /// Stable identifier (UUID).
+    pub uid: String,
+    /// The profile's available water down to the root-zone depth; `null` without layers.
+    pub profile: Option<ProfileData>,
+    /// Layers, top down.
+    pub layers: Vec<LayerData>,
+}
+
+/// A site's available water down to the root-zone depth.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ProfileData {
+    /// Depth of the sum, cm.
+    pub root_zone_cm: f64,
+    /// Sum over the layers with available water, mm.
+    pub total_mm: f64,
+    /// Depth of the root zone covered by layers with available water, cm.
+    pub covered_cm: f64,
+    /// Depth not covered (no layer, or no fitted lab core): the total is a lower bound when
+    /// this is above zero, cm.
+    pub uncovered_cm: f64,
+}
+
+/// One layer.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LayerData {
+    /// Upper boundary, cm below the surface.
+    pub top_cm: f64,
+    /// Lower boundary, cm below the surface.
+    pub bottom_cm: f64,
+    /// Horizon label.
+    pub horizon: Option<String>,
+    /// Sand, mass %.
+    pub sand_pct: Option<f64>,
+    /// Silt, mass %.
+    pub silt_pct: Option<f64>,
+    /// Clay, mass %.
+    pub clay_pct: Option<f64>,
+    /// Organic carbon, mass %.
+    pub organic_carbon_pct: Option<f64>,
+    /// Dry bulk density, g/cm3.
+    pub bulk_density_g_cm3: Option<f64>,
+    /// Saturated hydraulic conductivity, cm/day.
+    pub ks_cm_per_day: Option<f64>,
+    /// Stable identifier (UUID).
+    pub uid: String,
+    /// The layer's available water and its share of the profile sum.
+    pub water: Option<LayerWaterData>,
+    /// Samples, by code.
+    pub samples: Vec<SampleData>,
+}
+
+/// A layer's available water (mean over its lab cores' current fits).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LayerWaterData {
+    /// Lab cores taken from the layer.
+    pub lab_cores: usize,
+    /// Lab cores whose current fit gives available water (they make the mean).
+    pub fitted_cores: usize,
+    /// Of those, cores whose fit is stale.
+    pub stale_cores: usize,
+    /// Mean plant-available water over the fitted lab cores, m3/m3.
+    pub available_water_m3_m3: Option<f64>,
+    /// Mean available water of the field pairings (not in the sum), m3/m3.
+    pub field_available_water_m3_m3: Option<f64>,
+    /// Thickness of the layer inside the root zone, cm.
+    pub depth_in_root_zone_cm: f64,
+    /// Available water of that part, mm.
+    pub water_mm: Option<f64>,
+}
+
+/// One sample.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SampleData {
+    /// Code.
+    pub code: String,
+    /// `lab_core` or `field_pairing`.
+    pub kind: SampleKind,
+    /// Day it was taken.
+    pub collected_on: Option<NaiveDate>,
+    /// Dry bulk density of the sample, g/cm3.
+    pub bulk_density_g_cm3: Option<f64>,
+    /// Free text.
+    pub notes: Option<String>,
+    /// Stable identifier (UUID).
+    pub uid: String,
+    /// Where its fitting stands: `{"state": "current" | "stale" | "failed" | "none",
+    /// "detail": ...}` (stale: the reasons; failed: the last message).
+    pub fit_state: FitState,
+    /// Readings, by suction.
+    pub readings: Vec<ReadingData>,
+    /// The current fit, if any.
+    pub fit: Option<FitData>,
+}
+
+/// One retention reading.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ReadingData {
+    /// Reading id (local to the campaign file; the id other commands take).
+    pub id: i64,
+    /// Stable identifier (UUID).
+    pub uid: String,
+    /// Matric suction head, cm of water.
+    pub suction_cm: f64,
+    /// Volumetric water content, m3/m3.
+    pub theta_m3_m3: f64,
+    /// How it was measured.
+    pub method: Option<String>,
+    /// Day of the measurement.
+    pub measured_on: Option<NaiveDate>,
+    /// `drying`, `wetting` or `unknown`.
+    pub branch: Branch,
+    /// Relative weight in a weighted fit.
+    pub weight: Option<f64>,
+    /// Free text.
+    pub notes: Option<String>,
+    /// Where it came from.
+    pub provenance: ProvenanceData,
+    /// Left out of fits now by a flag (accepted, or manual and not yet reviewed).
+    pub excluded: bool,
+    /// Used by the sample's current fit.
+    pub used_in_fit: bool,
+    /// Every flag on it, oldest first (the audit trail: nothing is deleted).
+    pub flags: Vec<FlagData>,
+}
+
+/// Where a reading came from.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct ProvenanceData {
+    /// Import id (see `imports`).
+    pub import_id: Option<i64>,
+    /// The imported file's name.
+    pub file_name: Option<String>,
+    /// Physical line in that file (the header is line 1).
+    pub line: Option<u64>,
+}
+
+/// A flag on a reading.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FlagData {
+    /// Flag id.
+    pub id: i64,
+    /// The check that raised it (`leave-one-out`, `saturation`, `monotonic`, `manual`, ...);
+    /// `null` for flags from before schema version 3 of the campaign file.
+    pub rule: Option<String>,
+    /// Why it was flagged.
+    pub reason: String,
+    /// How suspicious, on the scale of the check that raised it.
+    pub score: Option<f64>,
+    /// `auto` or `manual`.
+    pub origin: FlagOrigin,
+    /// `suggested`, `accepted`, `dismissed` or `cleared`.
+    pub status: FlagStatus,
+    /// The reviewer's note.
+    pub note: Option<String>,
+    /// When it was raised (UTC, RFC 3339).
+    pub created_at: String,
+    /// When its status was last decided (UTC, RFC 3339).
+    pub decided_at: Option<String>,
+    /// Who made the last decision: `user` or `checks`.
+    pub decided_by: Option<String>,
+    /// The audit trail: every status the flag took, oldest first.
+    pub events: Vec<FlagEventData>,
+}
+
+/// One status a flag took.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FlagEventData {
+    /// Status before; `null` when the flag was raised.
+    pub from: Option<FlagStatus>,
+    /// Status after.
+    pub to: FlagStatus,
+    /// `user` or `checks`.
+    pub actor: String,
+    /// The note given with the change.
+    pub note: Option<String>,
+    /// When (UTC, RFC 3339).
+    pub at: String,
+}
+
+/// A sample's current fit.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FitData {
+    /// Fit id (local to the campaign file).
+    pub id: i64,
+    /// Model identifier (`van-genuchten`, ...).
+    pub model: String,
+    /// What was asked for: a model identifier or `auto`.
+    pub requested: Option<String>,
+    /// When the fit was made (UTC, RFC 3339).
+    pub fitted_at: String,
+    /// Parameters the user fixed, by name.
+    pub fixed: BTreeMap<String, f64>,
+    /// The solver's notes (parameters on bounds, singular Jacobian).
+    pub message: Option<String>,
+    /// SHA-256 of the readings used (ids, suctions, water contents, weights).
+    pub readings_fingerprint_sha256: String,
+    /// Every parameter with its standard error and 95 % interval.
+    pub parameters: Vec<ParamEstimate>,
+    /// Goodness of fit.
+    pub statistics: Option<FitStatistics>,
+    /// Covariance s^2 (J'WJ)^-1 over the free parameters off their bounds.
+    pub covariance: Option<ParamMatrix>,
+    /// Correlations from the covariance.
+    pub correlation: Option<ParamMatrix>,
+    /// Per reading used: observed, fitted, residual and influence.
+    pub residuals: Vec<ResidualData>,
+    /// With `auto`: every ranked model (AICc, Akaike weight) and the skipped ones.
+    pub ranking: Option<Ranking>,
+    /// Derived values under the campaign's field capacity and wilting point.
+    pub derived: Option<DerivedData>,
+}
+
+/// Goodness-of-fit statistics of one fit (definitions in the report's methods section).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FitStatistics {
+    /// Weighted sum of squared residuals, (m3/m3)^2.
+    pub sse: f64,
+    /// sqrt(SSE / n), m3/m3.
+    pub rmse_m3_m3: f64,
+    /// sqrt(SSE / (n - k)), m3/m3.
+    pub residual_sd_m3_m3: Option<f64>,
+    /// Coefficient of determination.
+    pub r2: Option<f64>,
+    /// Akaike information criterion.
+    pub aic: Option<f64>,
+    /// AIC with the small-sample correction.
+    pub aicc: Option<f64>,
+    /// Bayesian information criterion.
+    pub bic: Option<f64>,
+    /// Readings used, n.
+    pub n_points: usize,
+    /// Free parameters, k.
+    pub n_free_params: usize,
+    /// Passed every check of the fit engine.
+    pub converged: bool,
+    /// Why the solver stopped.
+    pub termination: Termination,
+}
+
+/// One reading's residual and influence in a fit.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ResidualData {
+    /// The reading (`id` in `readings`).
+    pub reading_id: Option<i64>,
+    /// Suction, cm.
+    pub suction_cm: f64,
+    /// Observed water content, m3/m3.
+    pub observed_m3_m3: f64,
+    /// Fitted water content, m3/m3.
+    pub fitted_m3_m3: f64,
+    /// Observed - fitted, m3/m3.
+    pub residual_m3_m3: f64,
+    /// Hat-matrix diagonal.
+    pub leverage: Option<f64>,
+    /// Internally studentized residual.
+    pub studentized: Option<f64>,
+    /// Externally studentized residual.
+    pub studentized_external: Option<f64>,
+    /// Cook's distance.
+    pub cooks_distance: Option<f64>,
+}
+
+/// Values derived from a fit.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DerivedData {
+    /// Water contents at FC and PWP, available water, air entry, inflection points.
+    pub values: DerivedValues,
+    /// Saturated conductivity of the layer, cm/day.
+    pub ks_cm_per_day: Option<f64>,
+    /// K at field capacity, cm/day.
+    pub k_field_capacity_cm_per_day: Option<f64>,
+    /// K at the wilting point, cm/day.
+    pub k_wilting_point_cm_per_day: Option<f64>,
+}
+
+fn rfc3339(t: DateTime<Utc>) -> String {
+    t.to_rfc3339_opts(SecondsFormat::Secs, true)
+}
+
+/// The fingerprint of `data`: SHA-256 of its compact JSON.
+pub fn fingerprint(data: &CampaignData) -> String {
+    let bytes = serde_json::to_vec(data).unwrap_or_default();
+    hex(&Sha256::digest(&bytes))
+}
+
+impl CampaignDocument {
+    /// The document of a snapshot, stamped with the export time.
+    pub fn new(snapshot: &Snapshot, exported_at: DateTime<Utc>) -> Self {
+        let data = CampaignData::from(snapshot);
+        Self {
+            format: FORMAT.to_string(),
+            schema_version: SCHEMA_VERSION,
+            program: ProgramInfo {
+                name: env!("CARGO_PKG_NAME").to_string(),
+                version: env!("CARGO_PKG_VERSION").to_string(),
+            },
+            exported_at: rfc3339(exported_at),
+            fingerprint_sha256: fingerprint(&data),
+            data,
+        }
+    }
+}
+
+impl From<&Snapshot> for CampaignData {
+    fn from(s: &Snapshot) -> Self {
+        Self {
+            campaign: CampaignInfo {
+                name: s.settings.name.clone(),
+                description: s.settings.description.clone(),
+                created_at: rfc3339(s.settings.created_at),
+                field_capacity_kpa: s.settings.fc_kpa,
+                wilting_point_kpa: s.settings.pwp_kpa,
+            },
+            scope: Scope {
+                site: s.site_filter.clone(),
+                root_zone_cm: s.root_zone_cm,
+            },
+            imports: s
+                .imports
+                .iter()
+                .map(|b| ImportInfo {
+                    id: b.id,
+                    file_name: b.file_name.clone(),
+                    sha256: b.sha256.clone(),
+                    kind: b.kind.clone(),
+                    rows: b.rows,
+                    forced: b.forced,
+                    imported_at: rfc3339(b.imported_at),
+                })
+                .collect(),
+            sites: s.sites.iter().map(|site| site_data(s, site)).collect(),
+        }
+    }
+}
+
+fn site_data(s: &Snapshot, part: &SitePart) -> SiteData {
+    let site = &part.row.stored.site;
+    let water_of = |at: &LayerRef| -> Option<&LayerWater> {
+        part.profile
+            .as_ref()
+            .and_then(|p| p.layers.iter().find(|w| w.layer.same_as(at)))
+    };
+    SiteData {
+        code: site.code.clone(),
+        name: site.name.clone(),
+        latitude_deg: site.latitude,
+        longitude_deg: site.longitude,
+        elevation_m: site.elevation_m,
+        notes: site.notes.clone(),
+        uid: site.uid.to_string(),
+        profile: part.profile.as_ref().map(|p| ProfileData {
+            root_zone_cm: p.root_zone_cm,
+            total_mm: p.total_mm,
+            covered_cm: p.covered_cm,
+            uncovered_cm: p.uncovered_cm(),
+        }),
+        layers: part
+            .layers
+            .iter()
+            .map(|l| {
+                let layer = &l.row.stored.layer;
+                LayerData {
+                    top_cm: layer.at.top_cm,
+                    bottom_cm: layer.at.bottom_cm,
+                    horizon: layer.horizon.clone(),
+                    sand_pct: layer.sand_pct,
+                    silt_pct: layer.silt_pct,
+                    clay_pct: layer.clay_pct,
+                    organic_carbon_pct: layer.organic_carbon_pct,
+                    bulk_density_g_cm3: layer.bulk_density_g_cm3,
+                    ks_cm_per_day: layer.ks_cm_per_day,
+                    uid: layer.uid.to_string(),
+                    water: water_of(&layer.at).map(|w| LayerWaterData {
+                        lab_cores: w.lab_cores,
+                        fitted_cores: w.fitted_cores,
+                        stale_cores: w.stale_cores,
+                        available_water_m3_m3: w.available_water,
+                        field_available_water_m3_m3: w.field_available_water,
+                        depth_in_root_zone_cm: w.depth_in_zone_cm,
+                        water_mm: w.water_mm,
+                    }),
+                    samples: l.samples.iter().map(|m| sample_data(s, m)).collect(),
+                }
+            })
+            .collect(),
+    }
+}
+
+fn flag_data(f: &ReadingFlag) -> FlagData {
+    let flag = &f.stored.flag;
+    FlagData {
+        id: f.stored.id,
+        rule: f.stored.rule.clone(),
+        reason: flag.reason.clone(),
+        score: flag.score,
+        origin: flag.origin,
+        status: flag.status,
+        note: flag.note.clone(),
+        created_at: rfc3339(flag.created_at),
+        decided_at: flag.decided_at.map(rfc3339),
+        decided_by: f.stored.decided_by.map(|a| a.as_str().to_string()),
+        events: f
+            .events
+            .iter()
+            .map(|e| FlagEventData {
+                from: e.from,
+                to: e.to,
+                actor: e.actor.as_str().to_string(),
+                note: e.note.clone(),
+                at: rfc3339(e.at),
+            })
+            .collect(),
+    }
+}
+
+fn sample_data(s: &Snapshot, part: &SamplePart) -> SampleData {
+    let sample = &part.row.stored.sample;
+    let fit = part.fit.fit.as_ref();
+    let used = |id: i64| fit.is_some_and(|f| f.reading_ids.contains(&id));
+    SampleData {
+        code: sample.code.clone(),
+        kind: sample.kind,
+        collected_on: sample.collected_on,
+        bulk_density_g_cm3: sample.bulk_density_g_cm3,
+        notes: sample.notes.clone(),
+        uid: sample.uid.to_string(),
+        fit_state: part.fit.state.clone(),
+        readings: part
+            .readings
+            .iter()
+            .map(|r| ReadingData {
+                id: r.id,
+                uid: r.reading.uid.to_string(),
+                suction_cm: r.reading.h_cm,
+                theta_m3_m3: r.reading.theta,
+                method: r.reading.method.as_ref().map(ToString::to_string),
+                measured_on: r.reading.measured_on,
+                branch: r.reading.branch,
+                weight: r.reading.weight,
+                notes: r.reading.notes.clone(),
+                provenance: ProvenanceData {
+                    import_id: r.reading.provenance.batch,
+                    file_name: r.source_file.clone(),
+                    line: (r.reading.provenance.line > 0).then_some(r.reading.provenance.line),
+                },
+                excluded: s.is_excluded(r.id),
+                used_in_fit: used(r.id),
+                flags: s.flags_of(r.id).iter().map(flag_data).collect(),
+            })
+            .collect(),
+        fit: fit.map(|f| fit_data(f, part)),
+    }
+}
+
+fn statistics(r: &FitReport) -> FitStatistics {
+    FitStatistics {
+        sse: r.sse,
+        rmse_m3_m3: r.rmse,
+        residual_sd_m3_m3: r.residual_sd,
+        r2: r.r2,
+        aic: r.aic,
+        aicc: r.aicc,
+        bic: r.bic,
+        n_points: r.n_points,
+        n_free_params: r.n_free_params,
+        converged: r.converged,
+        termination: r.termination,
+    }
+}
+
+fn fit_data(f: &StoredFit, part: &SamplePart) -> FitData {
+    let report = f.report.as_ref();
+    FitData {
+        id: f.id,
+        model: f.model.clone(),
+        requested: f.requested.clone(),
+        fitted_at: rfc3339(f.created_at),
+        fixed: f.fixed.iter().cloned().collect(),
+        message: f.message.clone(),
+        readings_fingerprint_sha256: f.fingerprint.clone(),
+        parameters: report.map(|r| r.parameters.clone()).unwrap_or_default(),
+        statistics: report.map(statistics),
+        covariance: report.and_then(|r| r.covariance.clone()),
+        correlation: report.and_then(|r| r.correlation.clone()),
+        residuals: report
+            .map(|r| {
+                r.readings
+                    .iter()
+                    .enumerate()
+                    .map(|(i, d)| ResidualData {
+                        reading_id: f.reading_ids.get(i).copied(),
+                        suction_cm: d.x,
+                        observed_m3_m3: d.observed,
+                        fitted_m3_m3: d.fitted,
+                        residual_m3_m3: d.residual,
+                        leverage: d.leverage,
+                        studentized: d.studentized,
+                        studentized_external: d.studentized_external,
+                        cooks_distance: d.cooks_distance,
+                    })
+                    .collect()
+            })
+            .unwrap_or_default(),
+        ranking: f.ranking.clone(),
+        derived: part.fit.derived.as_ref().map(|d| DerivedData {
+            values: d.values.clone(),
+            ks_cm_per_day: d.ks_cm_per_day,
+            k_field_capacity_cm_per_day: d.k_field_capacity_cm_per_day,
+            k_wilting_point_cm_per_day: d.k_wilting_point_cm_per_day,
+        }),
+    }
+}
+
+/// The document as pretty-printed JSON with a final newline.
+///
+/// # Errors
+/// Only if serialisation fails (it does not for these types).
+pub fn to_json(doc: &CampaignDocument) -> serde_json::Result<String> {
+    let mut text = serde_json::to_string_pretty(doc)?;
+    text.push('\n');
+    Ok(text)
+}

@@ -1,0 +1,238 @@
+//! `parameters.csv` (one row per sample) and `profiles.csv` (one row per layer and a total
+//! per site).
+//!
+//! Numbers are written with [`format_number`]: the shortest text that reads back to the very
+//! f64 stored, so a parameter in the file equals the stored fit exactly. A value that does not
+//! apply is an empty cell, never NaN. Column units follow the design notes: a unit is in the
+//! column name (`_cm`, `_kpa`, `_m3_m3`, `_mm`); parameter columns carry the parameter
+//! identifiers unchanged (the names `--set` and `--fix` take), whose unit is in the name
+//! (`alpha_per_cm`, `h_b_cm`), `theta_*` in m3/m3, and the rest (`n`, `m`, `lambda`, `sigma`,
+//! `w1`, `b`) dimensionless; each `<parameter>_se` is in the unit of its parameter.
+
+use super::snapshot::Snapshot;
+use crate::report::fit_table::parameter_union;
+use crate::report::format_number;
+
+/// The fixed columns of `parameters.csv` before the parameter columns.
+pub const PARAMETER_LEAD_COLUMNS: [&str; 10] = [
+    "site",
+    "layer",
+    "horizon",
+    "top_cm",
+    "bottom_cm",
+    "sample",
+    "kind",
+    "model",
+    "state",
+    "stale",
+];
+
+/// The fixed columns of `parameters.csv` after the parameter and standard-error columns.
+pub const PARAMETER_TAIL_COLUMNS: [&str; 18] = [
+    "sse",
+    "rmse_m3_m3",
+    "r2",
+    "aicc",
+    "bic",
+    "n_readings",
+    "n_points",
+    "n_flagged",
+    "n_excluded",
+    "fc_kpa",
+    "pwp_kpa",
+    "theta_fc_m3_m3",
+    "theta_pwp_m3_m3",
+    "available_water_m3_m3",
+    "air_entry_cm",
+    "fit_id",
+    "fitted_at_utc",
+    "state_detail",
+];
+
+/// The columns of `profiles.csv`.
+pub const PROFILE_COLUMNS: [&str; 15] = [
+    "site",
+    "row",
+    "layer",
+    "horizon",
+    "top_cm",
+    "bottom_cm",
+    "lab_cores",
+    "fitted_cores",
+    "stale_cores",
+    "available_water_m3_m3",
+    "field_available_water_m3_m3",
+    "depth_in_root_zone_cm",
+    "water_mm",
+    "root_zone_cm",
+    "uncovered_cm",
+];
+
+/// A number cell: exact text, or empty for a missing or non-finite value.
+fn num(v: Option<f64>) -> String {
+    v.filter(|v| v.is_finite())
+        .map(format_number)
+        .unwrap_or_default()
+}
+
+fn text(v: Option<&str>) -> String {
+    v.unwrap_or_default().to_string()
+}
+
+/// `SITE:TOP-BOTTOM` with exact depths.
+fn layer_ref(site: &str, top: f64, bottom: f64) -> String {
+    format!("{site}:{}-{}", format_number(top), format_number(bottom))
+}
+
+fn write_csv(header: &[String], rows: &[Vec<String>]) -> Result<String, csv::Error> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    w.write_record(header)?;
+    for row in rows {
+        w.write_record(row)?;
+    }
+    let bytes = w
+        .into_inner()
+        .map_err(|e| csv::Error::from(e.into_error()))?;
+    Ok(String::from_utf8_lossy(&bytes).into_owned())
+}
+
+/// The parameter columns of an export: the union over the models of its current fits, in
+/// the order of the model table.
+pub fn parameter_columns(snapshot: &Snapshot) -> Vec<String> {
+    parameter_union(
+        snapshot
+            .samples()
+            .filter_map(|(_, _, m)| m.fit.fit.as_ref().map(|f| f.model.as_str())),
+        std::iter::empty(),
+    )
+}
+
+/// The header of `parameters.csv` for these parameter columns.
+pub fn parameters_header(params: &[String]) -> Vec<String> {
+    PARAMETER_LEAD_COLUMNS
+        .iter()
+        .map(ToString::to_string)
+        .chain(params.iter().cloned())
+        .chain(params.iter().map(|p| format!("{p}_se")))
+        .chain(PARAMETER_TAIL_COLUMNS.iter().map(ToString::to_string))
+        .collect()
+}
+
+/// `parameters.csv`: one row per sample with its current fit (empty cells without one).
+///
+/// # Errors
+/// Only if the CSV writer fails on memory.
+pub fn parameters_csv(snapshot: &Snapshot) -> Result<String, csv::Error> {
+    let params = parameter_columns(snapshot);
+    let header = parameters_header(&params);
+    let mut rows = Vec::new();
+    for (_, layer, part) in snapshot.samples() {
+        let at = &layer.row.stored.layer.at;
+        let fit = part.fit.fit.as_ref();
+        let report = fit.and_then(|f| f.report.as_ref());
+        let values = part.fit.derived.as_ref().map(|d| &d.values);
+        let estimate = |name: &str| report.and_then(|r| r.parameter(name));
+        let mut row = vec![
+            at.site.clone(),
+            layer_ref(&at.site, at.top_cm, at.bottom_cm),
+            text(layer.row.stored.layer.horizon.as_deref()),
+            format_number(at.top_cm),
+            format_number(at.bottom_cm),
+            part.row.stored.sample.code.clone(),
+            part.row.stored.sample.kind.to_string(),
+            text(fit.map(|f| f.model.as_str())),
+            part.fit.state.label().to_string(),
+            part.fit.state.is_stale().to_string(),
+        ];
+        row.extend(params.iter().map(|p| num(estimate(p).map(|e| e.value))));
+        row.extend(params.iter().map(|p| num(estimate(p).and_then(|e| e.se))));
+        row.extend([
+            num(report.map(|r| r.sse)),
+            num(report.map(|r| r.rmse)),
+            num(report.and_then(|r| r.r2)),
+            num(report.and_then(|r| r.aicc)),
+            num(report.and_then(|r| r.bic)),
+            part.readings.len().to_string(),
+            fit.map(|f| f.n_points.to_string()).unwrap_or_default(),
+            snapshot.flagged_count(part).to_string(),
+            snapshot.excluded_count(part).to_string(),
+            format_number(snapshot.settings.fc_kpa),
+            format_number(snapshot.settings.pwp_kpa),
+            num(values.and_then(|v| v.theta_field_capacity)),
+            num(values.and_then(|v| v.theta_wilting_point)),
+            num(values.and_then(|v| v.plant_available_water)),
+            num(values.and_then(|v| v.air_entry.map(|a| a.suction_cm))),
+            fit.map(|f| f.id.to_string()).unwrap_or_default(),
+            fit.map(|f| f.created_at.format("%Y-%m-%dT%H:%M:%SZ").to_string())
+                .unwrap_or_default(),
+            state_detail(&part.fit.state),
+        ]);
+        rows.push(row);
+    }
+    write_csv(&header, &rows)
+}
+
+/// The reasons of a stale fit or the message of a failed one; empty otherwise.
+pub fn state_detail(state: &crate::store::fits::FitState) -> String {
+    use crate::store::fits::FitState;
+    match state {
+        FitState::Stale(reasons) => reasons
+            .iter()
+            .map(ToString::to_string)
+            .collect::<Vec<_>>()
+            .join("; "),
+        FitState::Failed(message) => message.clone(),
+        FitState::None | FitState::Current => String::new(),
+    }
+}
+
+/// `profiles.csv`: per site one `layer` row per layer, top down, then one `total` row with
+/// the profile sum (`water_mm`), the depth covered (`depth_in_root_zone_cm`) and the depth
+/// without data (`uncovered_cm`).
+///
+/// # Errors
+/// Only if the CSV writer fails on memory.
+pub fn profiles_csv(snapshot: &Snapshot) -> Result<String, csv::Error> {
+    let header: Vec<String> = PROFILE_COLUMNS.iter().map(ToString::to_string).collect();
+    let mut rows = Vec::new();
+    for profile in snapshot.sites.iter().filter_map(|s| s.profile.as_ref()) {
+        let zone = format_number(profile.root_zone_cm);
+        for w in &profile.layers {
+            rows.push(vec![
+                profile.site.clone(),
+                "layer".to_string(),
+                layer_ref(&profile.site, w.layer.top_cm, w.layer.bottom_cm),
+                text(w.horizon.as_deref()),
+                format_number(w.layer.top_cm),
+                format_number(w.layer.bottom_cm),
+                w.lab_cores.to_string(),
+                w.fitted_cores.to_string(),
+                w.stale_cores.to_string(),
+                num(w.available_water),
+                num(w.field_available_water),
+                format_number(w.depth_in_zone_cm),
+                num(w.water_mm),
+                zone.clone(),
+                String::new(),
+            ]);
+        }
+        rows.push(vec![
+            profile.site.clone(),
+            "total".to_string(),
+            layer_ref(&profile.site, 0.0, profile.root_zone_cm),
+            String::new(),
+            "0".to_string(),
+            zone.clone(),
+            String::new(),
+            String::new(),
+            String::new(),
+            String::new(),
+            String::new(),
+            format_number(profile.covered_cm),
+            format_number(profile.total_mm),
+            zone,
+            format_number(profile.uncovered_cm()),
+        ]);
+    }
+    write_csv(&header, &rows)
+}
