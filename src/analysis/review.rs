@@ -398,3 +398,36 @@ pub fn unflag_reading(
     tx.commit()?;
     Ok(ids)
 }
+
+/// The sample of a reading and where its fit stands now (after a flag change, say).
+///
+/// # Errors
+/// [`StoreError::Unknown`] for a reading that does not exist, or an SQLite error.
+pub fn fit_state_of_reading(
+    conn: &rusqlite::Connection,
+    reading: i64,
+) -> Result<(String, fits::FitState)> {
+    use rusqlite::OptionalExtension as _;
+    let code: Option<String> = conn
+        .prepare_cached(
+            "SELECT m.code FROM reading r JOIN sample m ON m.id = r.sample_id WHERE r.id = ?1",
+        )?
+        .query_row([reading], |r| r.get(0))
+        .optional()?;
+    let code = code.ok_or_else(|| StoreError::Unknown {
+        what: "reading",
+        code: reading.to_string(),
+    })?;
+    let samples = fits::samples(
+        conn,
+        &Selection {
+            samples: vec![code.clone()],
+            ..Selection::default()
+        },
+    )?;
+    let state = fits::summaries(conn, &samples)?
+        .into_values()
+        .next()
+        .map_or(fits::FitState::None, |s| s.state);
+    Ok((code, state))
+}

@@ -5,9 +5,10 @@ use std::path::PathBuf;
 use anyhow::Context;
 use clap::Args;
 
-use crate::analysis::review::flag_reading;
+use crate::analysis::review::{fit_state_of_reading, flag_reading};
 use crate::error::Outcome;
 use crate::store::Campaign;
+use crate::store::fits::FitState;
 
 /// Arguments of `porewise flag`.
 #[derive(Debug, Args)]
@@ -41,9 +42,22 @@ pub fn run(args: &FlagArgs) -> anyhow::Result<Outcome> {
         &args.reason,
         args.note.as_deref(),
     )?;
+    let (sample, state) = fit_state_of_reading(campaign.connection(), args.reading)?;
     println!(
-        "reading {} flagged (flag {id}); left out of fits, its sample's fit is stale until refitted",
-        args.reading
+        "reading {} flagged (flag {id}); left out of fits; {}",
+        args.reading,
+        fit_note(&sample, &state)
     );
     Ok(Outcome::Success)
+}
+
+/// What a flag change did to the sample's fit, for the message after it.
+pub(crate) fn fit_note(sample: &str, state: &FitState) -> String {
+    match state {
+        FitState::Stale(_) => format!(
+            "the fit of {sample} is stale until refitted (porewise fit DB --sample {sample})"
+        ),
+        FitState::Current => format!("the fit of {sample} matches its readings"),
+        FitState::None | FitState::Failed(_) => format!("{sample} has no current fit"),
+    }
 }

@@ -176,6 +176,7 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
             for row in flags::list(conn, &flag_filter(args))? {
                 events.extend(flags::events(conn, row.stored.id)?);
             }
+            events.sort_by_key(|e| e.id);
             events_listing(&events)
         }
         What::Fits => fits(conn, args)?,

@@ -8,7 +8,7 @@ use clap::Args;
 use super::list::Format;
 use crate::analysis::review::{self, Decided, Decision, ReviewOptions};
 use crate::error::Outcome;
-use crate::fit::outliers::OutlierOptions;
+use crate::fit::outliers::{NoiseBasis, OutlierOptions};
 use crate::model::number::plural;
 use crate::model::retention::ModelKind;
 use crate::model::units::SuctionUnit;
@@ -206,8 +206,14 @@ pub fn run(args: &ReviewArgs) -> anyhow::Result<Outcome> {
         );
         if args.format == Format::Table {
             for level in &summary.noise.levels {
+                let basis = match level.basis {
+                    NoiseBasis::Own => "",
+                    NoiseBasis::Method => "; too few: the method's level across files",
+                    NoiseBasis::Campaign => "; too few: the campaign's level",
+                    NoiseBasis::Default => "; too few anywhere: the default level",
+                };
                 eprintln!(
-                    "noise {:.4} m3/m3 for {} ({})",
+                    "noise {:.4} m3/m3 for {} ({}{basis})",
                     level.sd,
                     level.label(),
                     plural(level.residuals as u64, "residual")

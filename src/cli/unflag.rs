@@ -5,7 +5,8 @@ use std::path::PathBuf;
 use anyhow::Context;
 use clap::Args;
 
-use crate::analysis::review::unflag_reading;
+use super::flag::fit_note;
+use crate::analysis::review::{fit_state_of_reading, unflag_reading};
 use crate::error::Outcome;
 use crate::model::number::plural;
 use crate::store::Campaign;
@@ -33,10 +34,12 @@ pub fn run(args: &UnflagArgs) -> anyhow::Result<Outcome> {
     let mut campaign = Campaign::open(&args.db)
         .with_context(|| format!("cannot open campaign {}", args.db.display()))?;
     let ids = unflag_reading(&mut campaign, args.reading, args.note.as_deref())?;
+    let (sample, state) = fit_state_of_reading(campaign.connection(), args.reading)?;
     println!(
-        "reading {} back in fits ({} cleared); its sample's fit is stale until refitted",
+        "reading {} back in fits ({} cleared); {}",
         args.reading,
-        plural(ids.len() as u64, "flag")
+        plural(ids.len() as u64, "flag"),
+        fit_note(&sample, &state)
     );
     Ok(Outcome::Success)
 }
