@@ -334,3 +334,27 @@ fn noise_is_estimated_per_method_and_source() {
         );
     }
 }
+
+#[test]
+fn odd_input_gives_no_finding_and_no_panic() {
+    let options = OutlierOptions::default();
+    // NaN, a short noise vector, too few readings, flat data: nothing to judge, no panic.
+    let mut s = OutlierSample::new(
+        vec![1.0, 10.0, f64::NAN, 1000.0],
+        vec![0.4, 0.38, 0.3, f64::NAN],
+    );
+    s.model = Some(ModelKind::VanGenuchten);
+    let r = check_sample(&s, s.model, &[0.01], &options);
+    assert!(r.findings.is_empty(), "{:?}", r.findings);
+    let flat = OutlierSample::new(vec![1.0, 10.0, 100.0], vec![0.3; 3]);
+    assert!(review(&[flat], &options).samples[0].findings.is_empty());
+    assert!(review(&[], &options).samples.is_empty());
+    assert!(
+        OutlierOptions {
+            threshold_sd: f64::NAN,
+            ..options
+        }
+        .validate()
+        .is_err()
+    );
+}

@@ -625,7 +625,8 @@ fn free_params(kind: ModelKind, options: &FitOptions) -> usize {
         .count()
 }
 
-/// The checks on one sample with per-reading noise `sigma` (m3/m3).
+/// The checks on one sample with per-reading noise `sigma` (m3/m3; a missing or non-positive
+/// value is taken as `options.default_noise`).
 pub fn check_sample(
     sample: &OutlierSample,
     model: Option<ModelKind>,
@@ -633,6 +634,17 @@ pub fn check_sample(
     options: &OutlierOptions,
 ) -> SampleReview {
     let n = sample.len();
+    // A missing or unusable noise level falls back to the default one.
+    let sigma: Vec<f64> = (0..n)
+        .map(|i| {
+            sigma
+                .get(i)
+                .copied()
+                .filter(|v| v.is_finite() && *v > 0.0)
+                .unwrap_or(options.default_noise)
+        })
+        .collect();
+    let sigma = &sigma[..];
     let mut active: Vec<usize> = (0..n).collect();
     let mut findings: Vec<Finding> = Vec::new();
     // Physical: above the porosity, whatever the curve.
@@ -899,6 +911,17 @@ pub fn leave_one_out_scores(
     sigma: &[f64],
 ) -> Vec<Option<f64>> {
     let active: Vec<usize> = (0..sample.len()).collect();
+    let sigma: Vec<f64> = active
+        .iter()
+        .map(|&i| {
+            sigma
+                .get(i)
+                .copied()
+                .filter(|v| v.is_finite() && *v > 0.0)
+                .unwrap_or(OutlierOptions::default().default_noise)
+        })
+        .collect();
+    let sigma = &sigma[..];
     let full = Subset::fit(sample, kind, &active);
     active
         .iter()
@@ -951,7 +974,7 @@ fn monotonic(
             let rise = sample.theta[dry] - sample.theta[wet];
             let sd = sigma[wet].hypot(sigma[dry]);
             let z = rise / sd;
-            if z < options.monotonic_sd {
+            if z.is_nan() || z < options.monotonic_sd {
                 continue;
             }
             // The wetter reading too low, or the drier one too high? The one whose setting
