@@ -11,10 +11,13 @@ pub mod curve;
 pub mod demo;
 pub mod export;
 pub mod fit;
+pub mod flag;
 pub mod import;
 pub mod init;
 pub mod list;
+pub mod review;
 pub mod set;
+pub mod unflag;
 
 /// porewise: soil-water retention campaigns in one SQLite file.
 #[derive(Debug, Parser)]
@@ -45,6 +48,12 @@ pub enum Command {
     Curve(curve::CurveArgs),
     /// Write the campaign summary: parameter and profile tables, JSON, GeoJSON, HTML report.
     Export(export::ExportArgs),
+    /// Find suspect readings across the campaign, list them worst first, accept or dismiss them.
+    Review(review::ReviewArgs),
+    /// Leave a reading out of fits by hand, with a reason.
+    Flag(flag::FlagArgs),
+    /// Take a flagged reading back into fits.
+    Unflag(unflag::UnflagArgs),
 }
 
 /// Run a parsed command line.
@@ -61,5 +70,8 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Fit(args) => fit::run(&args),
         Command::Curve(args) => curve::run(&args),
         Command::Export(args) => export::run(&args),
+        Command::Review(args) => review::run(&args),
+        Command::Flag(args) => flag::run(&args),
+        Command::Unflag(args) => unflag::run(&args),
     }
 }

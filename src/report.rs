@@ -5,6 +5,7 @@ pub mod curve_table;
 pub mod export;
 pub mod fit_table;
 pub mod fits;
+pub mod review;
 pub mod table;
 
 pub use table::{Cell, Column, Listing};
