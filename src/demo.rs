@@ -401,7 +401,8 @@ pub fn generate() -> Vec<DemoFile> {
         ]);
         for (depth_index, &(top, bottom, horizon, tex)) in site.layers.iter().enumerate() {
             // Porosity a little above the class theta_s; bulk density from it.
-            let porosity = tex.theta_s + 0.02 + 0.01 * unit.sample(&mut rng);
+            // Porosity above the class theta_s: air stays trapped at "saturation" (common practice).
+            let porosity = tex.theta_s + 0.04 + 0.005 * unit.sample(&mut rng);
             let bulk_density = PARTICLE_DENSITY_G_CM3 * (1.0 - porosity);
             let organic_carbon = (2.4 * (-(top + bottom) / 2.0 / 25.0).exp()).max(0.1);
             let ks = tex.ks * (0.35 * unit.sample(&mut rng)).exp();
@@ -419,12 +420,16 @@ pub fn generate() -> Vec<DemoFile> {
             ]);
             for core in ["a", "b"] {
                 let code = format!("{}-{horizon}-{core}", site.code);
-                let theta_s = tex.theta_s + 0.012 * unit.sample(&mut rng);
+                // A core's saturated water content stays below its layer's porosity.
+                let theta_s = (tex.theta_s + 0.012 * unit.sample(&mut rng)).min(porosity - 0.015);
                 let theta_r = (tex.theta_r + 0.008 * unit.sample(&mut rng)).max(0.0);
                 let alpha = tex.alpha * (0.15 * unit.sample(&mut rng)).exp();
                 let n = 1.0 + (tex.n - 1.0) * (0.08 * unit.sample(&mut rng)).exp();
                 let noise = rng.random_range(0.004..0.008);
-                let core_density = bulk_density * (1.0 + 0.02 * unit.sample(&mut rng));
+                // The core's own porosity varies about the layer's, but never below its theta_s.
+                let core_porosity =
+                    (porosity + 0.008 * unit.sample(&mut rng)).max(theta_s + 0.015);
+                let core_density = PARTICLE_DENSITY_G_CM3 * (1.0 - core_porosity);
                 let count = rng.random_range(8..=12);
                 let day = 3 + depth_index * 2 + usize::from(core == "b");
                 let steps: Vec<f64> = match site.lab {
