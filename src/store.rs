@@ -13,6 +13,7 @@ pub mod db;
 pub mod fits;
 pub mod layers;
 pub mod migrate;
+pub mod outline;
 pub mod overview;
 pub mod readings;
 pub mod samples;
