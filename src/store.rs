@@ -11,6 +11,7 @@ pub mod batches;
 pub mod campaign;
 pub mod db;
 pub mod fits;
+pub mod flags;
 pub mod layers;
 pub mod migrate;
 pub mod outline;
@@ -69,6 +70,10 @@ pub enum StoreError {
         /// The code as given.
         code: String,
     },
+    /// A change the campaign's rules do not allow (for example dismissing an accepted flag);
+    /// the message says what to do instead.
+    #[error("{0}")]
+    Refused(String),
     /// A value read back from the file is not what the schema promises.
     #[error("unexpected value in the campaign file: {0}")]
     Corrupt(String),

@@ -252,7 +252,10 @@ fn a_version_1_file_upgrades_with_its_data_intact() {
              INSERT INTO sample (id, uid, layer_id, code, kind)
                  VALUES (1, '00000000-0000-4000-8000-000000000003', 1, 'S-a', 'lab_core');
              INSERT INTO reading (id, uid, sample_id, h_cm, theta)
-                 VALUES (1, '00000000-0000-4000-8000-000000000004', 1, 100.0, 0.3125);",
+                 VALUES (1, '00000000-0000-4000-8000-000000000004', 1, 100.0, 0.3125);
+             INSERT INTO flag (reading_id, reason, origin, status, created_at, decided_at)
+                 VALUES (1, 'odd', 'manual', 'accepted', '2026-01-05T10:00:00Z',
+                         '2026-01-06T09:00:00Z');",
         )
         .expect("v1 data");
     }
@@ -286,4 +289,11 @@ fn a_version_1_file_upgrades_with_its_data_intact() {
     )
     .expect("insert");
     assert_eq!(rev(conn), before + 1);
+    // Version 3: the old flag has its decision in the audit trail, and new changes add events.
+    let trail = store::flags::events(conn, 1).expect("events");
+    assert_eq!(trail.len(), 1, "{trail:?}");
+    assert_eq!(trail[0].to, porewise::model::domain::FlagStatus::Accepted);
+    assert_eq!(trail[0].at.to_rfc3339(), "2026-01-06T09:00:00+00:00");
+    store::flags::clear(conn, 1, Some("fine after all")).expect("clear");
+    assert_eq!(store::flags::events(conn, 1).expect("events").len(), 2);
 }

@@ -343,7 +343,8 @@ text_enum! {
         Accepted => "accepted",
         /// Reviewed and rejected: the value stays in.
         Dismissed => "dismissed",
-        /// Withdrawn after it had been accepted.
+        /// Withdrawn: an accepted flag the user took back, or a suggestion the checks no
+        /// longer make. The value stays in.
         Cleared => "cleared",
     }
 }

@@ -12,6 +12,7 @@ use super::{Result, StoreError};
 pub const MIGRATIONS: &[&str] = &[
     include_str!("../../migrations/0001_init.sql"),
     include_str!("../../migrations/0002_fits.sql"),
+    include_str!("../../migrations/0003_flag_review.sql"),
 ];
 
 /// `application_id` written by the first migration, so a porewise file can be recognised.
@@ -85,7 +86,7 @@ mod tests {
                 |r| r.get(0),
             )
             .expect("count");
-        assert_eq!(tables, 9);
+        assert_eq!(tables, 10);
         let app: i64 = conn
             .pragma_query_value(None, "application_id", |r| r.get(0))
             .expect("application id");
