@@ -177,7 +177,9 @@ mod tests {
         assert_eq!(o.layers[1].at.to_string(), "AA:20-40");
         let first: Vec<&str> = o.samples.iter().take(3).map(|s| s.code.as_str()).collect();
         assert_eq!(first, ["AA-0-a", "AA-0-b", "AA-20-a"]);
-        let (info, layer) = sample(conn, o.samples[2].id).expect("query").expect("found");
+        let (info, layer) = sample(conn, o.samples[2].id)
+            .expect("query")
+            .expect("found");
         assert_eq!(info.code, "AA-20-a");
         assert_eq!(layer.at.to_string(), "AA:20-40");
         assert!(sample(conn, 9999).expect("query").is_none());
