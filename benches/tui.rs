@@ -14,6 +14,7 @@
 //! Figures, not assertions: a shared 2-core machine is noisy, so each is the median of
 //! several runs with the minimum beside it.
 
+use std::fmt::Write as _;
 use std::path::Path;
 use std::time::{Duration, Instant};
 
@@ -120,7 +121,11 @@ fn build(path: &Path) -> Duration {
                                 sample_id,
                                 h,
                                 theta,
-                                if kpa < 10.0 { "sandbox" } else { "pressure plate" }
+                                if kpa < 10.0 {
+                                    "sandbox"
+                                } else {
+                                    "pressure plate"
+                                }
                             ])
                             .expect("reading");
                     }
@@ -229,12 +234,18 @@ fn main() {
             vec![enter, down, down, Key::char('b'), Key::char('u')],
         ),
         ("fit card focused", vec![enter, down, down, tab, tab, tab]),
-        ("tree filtered while typing", vec![Key::char('/'), Key::char('C'), Key::char('9')]),
+        (
+            "tree filtered while typing",
+            vec![Key::char('/'), Key::char('C'), Key::char('9')],
+        ),
         ("depth view (10 layers, 100 curves)", vec![Key::char('2')]),
         ("review queue (100 suspects) + curve", vec![Key::char('3')]),
         ("help", vec![Key::char('?')]),
     ];
-    println!("{:<40} {:>16} {:>16}", "frame render into TestBackend", "100x30 median", "200x60 median");
+    println!(
+        "{:<40} {:>16} {:>16}",
+        "frame render into TestBackend", "100x30 median", "200x60 median"
+    );
     for (name, script) in &panes {
         let mut row = format!("{name:<40}");
         for (w, h) in [(100u16, 30u16), (200, 60)] {
@@ -242,7 +253,7 @@ fn main() {
             keys(&mut s, script);
             let mut terminal = Terminal::new(TestBackend::new(w, h)).expect("terminal");
             let (median, _) = time(51, || s.draw(&mut terminal).expect("draw"));
-            row.push_str(&format!(" {:>13.3} ms", ms(median)));
+            let _ = write!(row, " {:>13.3} ms", ms(median));
         }
         println!("{row}");
     }
@@ -254,7 +265,14 @@ fn main() {
     let mut toggle = false;
     let (select, _) = time(21, || {
         toggle = !toggle;
-        s.press(&(if toggle { Key::char('j') } else { Key::char('k') }).event());
+        s.press(
+            &(if toggle {
+                Key::char('j')
+            } else {
+                Key::char('k')
+            })
+            .event(),
+        );
     });
     let (tree, _) = time(7, || {
         s.dispatch(Action::FlagChanged(Ok("bench".into())));
@@ -274,9 +292,24 @@ fn main() {
         s.press(&key.event());
     });
     println!("loads behind keys (median):");
-    println!("  select a sample (its 100 readings, fit, flags): {:.1} ms", ms(select));
-    println!("  reload tree + sample after a flag or refit:     {:.1} ms", ms(tree));
-    println!("  depth view of a site (100 fits decoded):        {:.1} ms", ms(depth));
-    println!("  review queue:                                   {:.1} ms", ms(review));
-    println!("  a filter keystroke over 10,000 samples:         {:.1} ms", ms(filter));
+    println!(
+        "  select a sample (its 100 readings, fit, flags): {:.1} ms",
+        ms(select)
+    );
+    println!(
+        "  reload tree + sample after a flag or refit:     {:.1} ms",
+        ms(tree)
+    );
+    println!(
+        "  depth view of a site (100 fits decoded):        {:.1} ms",
+        ms(depth)
+    );
+    println!(
+        "  review queue:                                   {:.1} ms",
+        ms(review)
+    );
+    println!(
+        "  a filter keystroke over 10,000 samples:         {:.1} ms",
+        ms(filter)
+    );
 }

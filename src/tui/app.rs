@@ -54,6 +54,7 @@ impl Pane {
     pub const ALL: [Pane; 4] = [Pane::Tree, Pane::Curve, Pane::Readings, Pane::Card];
 
     /// The pane after this one (`step` 1) or before it (`step` -1).
+    #[must_use]
     pub fn cycle(self, step: isize) -> Pane {
         let i = Self::ALL.iter().position(|p| *p == self).unwrap_or(0) as isize;
         Self::ALL[(i + step).rem_euclid(Self::ALL.len() as isize) as usize]
@@ -84,6 +85,7 @@ pub enum AxisUnit {
 
 impl AxisUnit {
     /// The next unit in the cycle cm, kPa, pF.
+    #[must_use]
     pub fn next(self) -> AxisUnit {
         match self {
             AxisUnit::Cm => AxisUnit::Kpa,
@@ -581,8 +583,12 @@ pub struct SampleDetail {
     pub pwp_kpa: f64,
 }
 
-/// Sample the curve of a report at [`CURVE_POINTS`] suctions from `x_min` to `x_max`.
-fn curve_points(fit: &StoredFit, x_max: f64) -> (Vec<(f64, f64)>, Vec<(f64, f64, f64)>) {
+/// A curve as (log10 h, theta) points and its band as (log10 h, lower, upper).
+type CurveAndBand = (Vec<(f64, f64)>, Vec<(f64, f64, f64)>);
+
+/// Sample the curve of a report at [`CURVE_POINTS`] suctions from the plot's left edge to
+/// `x_max`.
+fn curve_points(fit: &StoredFit, x_max: f64) -> CurveAndBand {
     let Some(report) = &fit.report else {
         return (Vec::new(), Vec::new());
     };
@@ -853,9 +859,10 @@ impl DepthData {
                 i
             } else {
                 let water = profile.and_then(|p| {
-                    p.layers
-                        .iter()
-                        .find(|l| l.layer.top_cm == key.0 && l.layer.bottom_cm == key.1)
+                    p.layers.iter().find(|l| {
+                        (l.layer.top_cm - key.0).abs() < 1e-9
+                            && (l.layer.bottom_cm - key.1).abs() < 1e-9
+                    })
                 });
                 layers.push(DepthLayer {
                     top_cm: key.0,
@@ -1192,6 +1199,8 @@ pub(crate) mod fixtures {
 
 #[cfg(test)]
 mod tests {
+    #![allow(clippy::float_cmp)]
+
     use super::fixtures::{outline, tree};
     use super::*;
 

@@ -10,7 +10,7 @@ use std::collections::VecDeque;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::mpsc::{Receiver, Sender, TryRecvError, channel};
+use std::sync::mpsc::{Receiver, Sender, channel};
 use std::thread::JoinHandle;
 use std::time::Duration;
 
@@ -217,11 +217,8 @@ impl Session {
     pub fn poll_worker(&mut self) -> bool {
         let mut got = Vec::new();
         if let Some(worker) = &self.worker {
-            loop {
-                match worker.results.try_recv() {
-                    Ok(action) => got.push(action),
-                    Err(TryRecvError::Empty | TryRecvError::Disconnected) => break,
-                }
+            while let Ok(action) = worker.results.try_recv() {
+                got.push(action);
             }
         }
         let any = !got.is_empty();
@@ -326,27 +323,24 @@ impl Session {
     }
 
     fn start_fit(&mut self, job: JobId, request: FitRequest) -> Option<Action> {
-        match &self.worker {
-            Some(worker) => {
-                if worker.jobs.send((job, request)).is_err() {
-                    return Some(Action::FitFinished {
-                        job,
-                        result: Err("the fit worker has stopped".to_string()),
-                    });
-                }
-                None
+        if let Some(worker) = &self.worker {
+            if worker.jobs.send((job, request)).is_err() {
+                return Some(Action::FitFinished {
+                    job,
+                    result: Err("the fit worker has stopped".to_string()),
+                });
             }
-            None => {
-                let result = fit_campaign(
-                    &mut self.campaign,
-                    &request.scope.selection(),
-                    request.choice,
-                    &FitOptions::new(),
-                    &|_, _| {},
-                )
-                .map_err(|e| e.to_string());
-                Some(Action::FitFinished { job, result })
-            }
+            None
+        } else {
+            let result = fit_campaign(
+                &mut self.campaign,
+                &request.scope.selection(),
+                request.choice,
+                &FitOptions::new(),
+                &|_, _| {},
+            )
+            .map_err(|e| e.to_string());
+            Some(Action::FitFinished { job, result })
         }
     }
 }
@@ -385,7 +379,10 @@ fn event_loop(session: &mut Session, terminal: &mut DefaultTerminal) -> anyhow::
 /// The file cannot be opened, or the terminal fails.
 pub fn run(path: &Path) -> anyhow::Result<()> {
     let mut session = Session::open(path, SessionOptions::interactive())?;
-    let mut terminal = ratatui::init();
+    let mut terminal = ratatui::try_init().context(
+        "cannot take over the terminal (is this a terminal?); `porewise list` and \
+         `porewise demo --no-ui` work without one",
+    )?;
     let result = event_loop(&mut session, &mut terminal);
     ratatui::restore();
     result

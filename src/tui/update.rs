@@ -1,5 +1,7 @@
 //! The one place the UI state changes: an [`Action`] in, the [`Effect`]s for the runtime out.
 
+use std::fmt::Write as _;
+
 use crate::analysis::{FitRunSummary, ModelChoice};
 use crate::model::retention::ModelKind;
 
@@ -59,7 +61,7 @@ pub fn update(state: &mut AppState, action: Action) -> Vec<Effect> {
                 text,
             } => on_reason_input(state, reading_id, flag, text, &intent),
             Input::ConfirmQuit => on_confirm(state, &intent),
-            Input::None => on_intent(state, intent),
+            Input::None => on_intent(state, &intent),
         },
     }
 }
@@ -253,10 +255,11 @@ fn on_fit_finished(
                     if summary.fitted.len() == 1 { "" } else { "s" }
                 );
                 if let Some((code, why)) = summary.failed.first() {
-                    text.push_str(&format!(
+                    let _ = write!(
+                        text,
                         "; {} could not be fitted ({code}: {why})",
                         summary.failed.len()
-                    ));
+                    );
                 }
                 let tone = if summary.failed.is_empty() {
                     Tone::Info
@@ -439,7 +442,7 @@ fn submit_fit(state: &mut AppState, scope: FitScope) -> Vec<Effect> {
         Submitted::Queued { replaced, .. } => {
             let mut text = format!("queued {request} after the running fit");
             if let Some(old) = replaced {
-                text.push_str(&format!(" (replaces the queued {old})"));
+                let _ = write!(text, " (replaces the queued {old})");
             }
             state.say(Tone::Info, text);
             Vec::new()
@@ -486,33 +489,36 @@ fn on_global(state: &mut AppState, action: &Action) -> Option<Vec<Effect>> {
             state.screen = Screen::Browse;
             follow_tree(state)
         }
-        Action::ShowDepth => match target_site(state) {
-            Some(site) => show_depth(state, site),
-            None => {
+        Action::ShowDepth => {
+            if let Some(site) = target_site(state) {
+                show_depth(state, site)
+            } else {
                 state.say(Tone::Warning, "no site to show: the campaign has none");
                 Vec::new()
             }
-        },
+        }
         Action::ShowReview => {
             state.screen = Screen::Review;
             let mut effects = vec![Effect::LoadReview];
             effects.extend(follow_review(state));
             effects
         }
-        Action::RefitSample => match target_sample(state) {
-            Some((id, code, site)) => submit_fit(state, FitScope::Sample { id, code, site }),
-            None => {
+        Action::RefitSample => {
+            if let Some((id, code, site)) = target_sample(state) {
+                submit_fit(state, FitScope::Sample { id, code, site })
+            } else {
                 state.say(Tone::Warning, "select a sample first (F refits a site)");
                 Vec::new()
             }
-        },
-        Action::RefitSite => match target_site(state) {
-            Some(site) => submit_fit(state, FitScope::Site(site)),
-            None => {
+        }
+        Action::RefitSite => {
+            if let Some(site) = target_site(state) {
+                submit_fit(state, FitScope::Site(site))
+            } else {
                 state.say(Tone::Warning, "select a site first");
                 Vec::new()
             }
-        },
+        }
         Action::RefitAll => submit_fit(state, FitScope::All),
         Action::CycleModel => {
             state.choice = next_choice(state.choice);
@@ -548,14 +554,14 @@ fn on_global(state: &mut AppState, action: &Action) -> Option<Vec<Effect>> {
     })
 }
 
-fn on_intent(state: &mut AppState, action: Action) -> Vec<Effect> {
-    if let Some(effects) = on_global(state, &action) {
+fn on_intent(state: &mut AppState, action: &Action) -> Vec<Effect> {
+    if let Some(effects) = on_global(state, action) {
         return effects;
     }
     match state.screen {
-        Screen::Browse => on_browse(state, &action),
-        Screen::Depth => on_depth(state, &action),
-        Screen::Review => on_review(state, &action),
+        Screen::Browse => on_browse(state, action),
+        Screen::Depth => on_depth(state, action),
+        Screen::Review => on_review(state, action),
         Screen::Help => {
             match action {
                 Action::Back => state.screen = state.back_to,
@@ -841,16 +847,17 @@ fn on_review(state: &mut AppState, action: &Action) -> Vec<Effect> {
     }
     match action {
         Action::Accept | Action::Dismiss if refuse_while_fitting(state) => Vec::new(),
-        Action::Accept | Action::Dismiss => match state.review_item() {
-            Some(item) => vec![Effect::DecideFlag {
-                flag_id: item.flag_id,
-                accept: *action == Action::Accept,
-            }],
-            None => {
+        Action::Accept | Action::Dismiss => {
+            if let Some(item) = state.review_item() {
+                vec![Effect::DecideFlag {
+                    flag_id: item.flag_id,
+                    accept: *action == Action::Accept,
+                }]
+            } else {
                 state.say(Tone::Info, "nothing to review");
                 Vec::new()
             }
-        },
+        }
         Action::Open => match state.review_item().cloned() {
             Some(item) => {
                 let effects = open_in_browser(state, item.sample_id);

@@ -41,10 +41,8 @@ fn reading_flags(conn: &Connection, sample: &str) -> Result<HashMap<i64, FlagMar
     let rank = |m: &FlagMark| {
         if m.excludes {
             2
-        } else if m.status == FlagStatus::Suggested.as_str() {
-            1
         } else {
-            0
+            i32::from(m.status == FlagStatus::Suggested.as_str())
         }
     };
     let mut out: HashMap<i64, FlagMark> = HashMap::new();

@@ -54,7 +54,7 @@ impl Widget for CurvePane<'_> {
             .render(inner, buf),
             Detail::Loading(_) => Paragraph::new("loading…").render(inner, buf),
             Detail::Failed(_, why) => {
-                Paragraph::new(format!("cannot show: {why}")).render(inner, buf)
+                Paragraph::new(format!("cannot show: {why}")).render(inner, buf);
             }
             Detail::Empty => Paragraph::new("Select a sample in the tree.").render(inner, buf),
         }

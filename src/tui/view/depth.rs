@@ -103,7 +103,7 @@ impl DepthScreen<'_> {
             for (sample_id, curve) in &layer.curves {
                 let is_selected = selected.is_some_and(|r| r.sample_id == *sample_id);
                 for k in 0..3 {
-                    let frac = (k as f64 + (li as f64 + 0.5) / n as f64) / 3.0;
+                    let frac = (f64::from(k) + (li as f64 + 0.5) / n as f64) / 3.0;
                     let idx = ((curve.len() - 1) as f64 * frac).round() as usize;
                     let Some(&(x, y)) = curve.get(idx) else {
                         continue;
@@ -129,7 +129,7 @@ impl DepthScreen<'_> {
         let inner = block.inner(area);
         block.render(area, buf);
         let mut lines = vec![Line::from(Span::styled(
-            "mark layer        AW m3/m3    mm",
+            "  layer cm       AW     mm",
             theme.heading(),
         ))];
         for (i, l) in data.layers.iter().enumerate() {
@@ -140,13 +140,13 @@ impl DepthScreen<'_> {
             };
             lines.push(Line::from(vec![
                 Span::styled(
-                    format!(" {}   ", l.mark),
+                    format!("{} ", l.mark),
                     ratatui::style::Style::new()
                         .fg(theme.layer(i))
                         .add_modifier(ratatui::style::Modifier::BOLD),
                 ),
                 Span::raw(format!(
-                    "{:<12} {:>6} {:>6}{stale}",
+                    "{:<13}{:>6} {:>6}{stale}",
                     format!(
                         "{}-{} {}",
                         l.top_cm,
@@ -175,7 +175,7 @@ impl DepthScreen<'_> {
         }
         lines.push(Line::from(Span::styled(
             format!(
-                "FC {} · PWP {}",
+                "AW = θ(FC) − θ(PWP), m3/m3, mean of the lab cores; FC {}, PWP {}",
                 kpa_text(data.fc_kpa, state.units),
                 kpa_text(data.pwp_kpa, state.units)
             ),
