@@ -1,8 +1,10 @@
 //! Campaign-wide work built from the store and the fit engine: fitting samples and recording
-//! the attempts, and the derived numbers (available water per fit, layer and profile).
+//! the attempts, the outlier review, and the derived numbers (available water per fit, layer
+//! and profile).
 
 pub mod current;
 pub mod fitting;
+pub mod review;
 pub mod water;
 
 pub use current::{SampleFit, sample_fits};

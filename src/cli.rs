@@ -10,11 +10,14 @@ use crate::error::Outcome;
 pub mod curve;
 pub mod demo;
 pub mod fit;
+pub mod flag;
 pub mod import;
 pub mod init;
 pub mod list;
 pub mod open;
+pub mod review;
 pub mod set;
+pub mod unflag;
 
 /// porewise: soil-water retention campaigns in one SQLite file.
 #[derive(Debug, Parser)]
@@ -45,6 +48,12 @@ pub enum Command {
     Fit(fit::FitArgs),
     /// Tabulate a retention curve for given parameters.
     Curve(curve::CurveArgs),
+    /// Find suspect readings across the campaign, list them worst first, accept or dismiss them.
+    Review(review::ReviewArgs),
+    /// Leave a reading out of fits by hand, with a reason.
+    Flag(flag::FlagArgs),
+    /// Take a flagged reading back into fits.
+    Unflag(unflag::UnflagArgs),
 }
 
 /// Run a parsed command line.
@@ -61,5 +70,8 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Set(args) => set::run(&args),
         Command::Fit(args) => fit::run(&args),
         Command::Curve(args) => curve::run(&args),
+        Command::Review(args) => review::run(&args),
+        Command::Flag(args) => flag::run(&args),
+        Command::Unflag(args) => unflag::run(&args),
     }
 }

@@ -9,6 +9,7 @@ mod config;
 mod driver;
 mod error;
 mod models;
+pub mod outliers;
 mod problem;
 mod report;
 mod stats;

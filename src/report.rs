@@ -4,6 +4,7 @@ pub mod campaign;
 pub mod curve_table;
 pub mod fit_table;
 pub mod fits;
+pub mod review;
 pub mod table;
 
 pub use table::{Cell, Column, Listing};

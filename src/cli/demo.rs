@@ -6,6 +6,7 @@ use std::path::{Path, PathBuf};
 use anyhow::Context;
 use clap::Args;
 
+use crate::analysis::review::{ReviewOptions, refresh};
 use crate::analysis::{ModelChoice, fit_campaign};
 use crate::error::Outcome;
 use crate::fit::FitOptions;
@@ -98,17 +99,25 @@ fn rebuild_reason(file: &Path, sources: &[(ImportKind, Vec<PathBuf>)]) -> Option
             return Some(format!("{} is newer", path.display()));
         }
     }
-    match Campaign::open(file) {
-        Ok(c) => match migrate::schema_version(c.connection()) {
-            Ok(v) if v == migrate::latest_version() => None,
-            _ => Some("its schema is older than this program".to_string()),
+    // Read the version before opening it as a campaign (which would upgrade it in place and
+    // skip the build steps a newer schema brings, such as the stored review queue).
+    let version =
+        rusqlite::Connection::open_with_flags(file, rusqlite::OpenFlags::SQLITE_OPEN_READ_ONLY)
+            .map_err(|_| ())
+            .and_then(|c| migrate::schema_version(&c).map_err(|_| ()));
+    match version {
+        Ok(v) if v == migrate::latest_version() => match Campaign::open(file) {
+            Ok(_) => None,
+            Err(_) => Some("it cannot be opened".to_string()),
         },
-        Err(_) => Some("it cannot be opened".to_string()),
+        Ok(_) => Some("its schema is older than this program".to_string()),
+        Err(()) => Some("it cannot be opened".to_string()),
     }
 }
 
-/// Build the demo campaign into `file` from `sources`, through the normal import path, and
-/// fit every sample (`auto`) so it opens with curves.
+/// Build the demo campaign into `file` from `sources`, through the normal import path, fit
+/// every sample (`auto`) so it opens with curves, and run the outlier review so the planted
+/// bad readings wait in the queue.
 ///
 /// Builds into a temporary file beside it and renames it into place, so an interrupted build
 /// leaves no half-made campaign.
@@ -141,6 +150,12 @@ fn build(file: &Path, sources: &[(ImportKind, Vec<PathBuf>)]) -> anyhow::Result<
             } else {
                 format!("; {} could not be fitted", fits.failed.len())
             }
+        );
+        let review = refresh(&mut campaign, &Selection::all(), &ReviewOptions::default())?;
+        eprintln!(
+            "review: {} suspect readings wait in the queue (porewise review {})",
+            review.raised,
+            file.display()
         );
     }
     remove_with_journal(file);

@@ -10,12 +10,14 @@ use indicatif::{ProgressBar, ProgressStyle};
 
 use crate::analysis::{ModelChoice, fit_campaign, fit_choice};
 use crate::error::Outcome;
+use crate::fit::outliers::{OutlierOptions, OutlierSample, review};
 use crate::fit::{FitOptions, Readings};
-use crate::import::pairs::{PairSample, read_pairs_path};
+use crate::import::pairs::{PairSample, PairsFile, read_pairs_path};
 use crate::model::domain::LayerRef;
 use crate::model::number::plural;
 use crate::model::retention::{ModelKind, parse_assignment};
 use crate::report::fit_table::{FitRow, to_csv, to_json};
+use crate::report::review::{SuspectRow, suspects_csv};
 use crate::report::write_atomic;
 use crate::store::Campaign;
 use crate::store::fits::Selection;
@@ -25,6 +27,7 @@ Examples:
   porewise fit spring.sqlite                         every sample, auto
   porewise fit spring.sqlite --site LEV1 --model brooks-corey --fix theta_r=0
   porewise fit --input lab.csv --model auto --fix theta_r=0 --output fits.csv
+  porewise fit --input lab.csv --flag-outliers --flags-output suspects.csv
 
 With a campaign file, each new fit becomes its sample's current one (older fits stay as
 history: porewise list DB fits --sample CODE --all); a failed refit is recorded with its
@@ -69,6 +72,14 @@ pub struct FitArgs {
     /// Write the results to FILE.csv or FILE.json (written whole or not at all); default: CSV on stdout.
     #[arg(long, value_name = "FILE")]
     pub output: Option<PathBuf>,
+    /// With --input: find suspect readings (noise estimated across the file), leave them out
+    /// and fit the rest; the suspects are listed on stderr, or written with --flags-output.
+    #[arg(long, requires = "input")]
+    pub flag_outliers: bool,
+    /// With --flag-outliers: write the suspects to FILE as CSV
+    /// (sample,line,suction_cm,theta,reason,score; line = physical line of the input).
+    #[arg(long, value_name = "FILE", requires = "flag_outliers")]
+    pub flags_output: Option<PathBuf>,
 }
 
 fn parse_layer(s: &str) -> Result<LayerRef, String> {
@@ -169,10 +180,20 @@ fn fixes(args: &FitArgs, choice: ModelChoice) -> anyhow::Result<FitOptions> {
     Ok(options)
 }
 
-/// Fit one sample of the plain file.
-fn fit_sample(sample: &PairSample, choice: ModelChoice, options: &FitOptions) -> FitRow {
-    let h = sample.suctions();
-    let theta = sample.thetas();
+/// Fit one sample of the plain file, leaving out the readings at the indices in `skip`.
+fn fit_sample(
+    sample: &PairSample,
+    choice: ModelChoice,
+    options: &FitOptions,
+    skip: &[usize],
+) -> FitRow {
+    let kept = sample
+        .readings
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| !skip.contains(i))
+        .map(|(_, r)| r);
+    let (h, theta): (Vec<f64>, Vec<f64>) = kept.map(|r| (r.h_cm, r.theta)).unzip();
     let attempt = fit_choice(choice, &Readings::new(&h, &theta), options);
     FitRow {
         sample: sample.name.clone(),
@@ -181,6 +202,76 @@ fn fit_sample(sample: &PairSample, choice: ModelChoice, options: &FitOptions) ->
         message: attempt.message,
         auto: attempt.auto,
     }
+}
+
+/// Run the outlier checks over the samples of a pairs file; report the suspects (stderr, or
+/// `--flags-output`) and return each sample's suspect indices.
+///
+/// The noise is one level for the whole file; suspects are judged with the model asked for
+/// (van Genuchten for `auto`, which could bend to a wild reading).
+fn flag_outliers(
+    args: &FitArgs,
+    input: &Path,
+    file: &PairsFile,
+    choice: ModelChoice,
+    options: &FitOptions,
+) -> anyhow::Result<Vec<Vec<usize>>> {
+    let judge = match choice {
+        ModelChoice::One(kind) => kind,
+        ModelChoice::Auto => ModelKind::VanGenuchten,
+    };
+    let samples: Vec<OutlierSample> = file
+        .samples
+        .iter()
+        .map(|s| {
+            let mut o = OutlierSample::new(s.suctions(), s.thetas());
+            o.model = Some(judge);
+            o.options = options.clone();
+            o
+        })
+        .collect();
+    let result = review(&samples, &OutlierOptions::default());
+    let mut suspects = Vec::new();
+    let mut skips = Vec::with_capacity(file.samples.len());
+    for (sample, checked) in file.samples.iter().zip(&result.samples) {
+        let mut skip: Vec<usize> = checked.findings.iter().map(|f| f.index).collect();
+        skip.sort_unstable();
+        for finding in &checked.findings {
+            let r = sample.readings[finding.index];
+            suspects.push(SuspectRow {
+                sample: sample.name.clone(),
+                line: r.line,
+                h_cm: r.h_cm,
+                theta: r.theta,
+                reason: finding.reason.clone(),
+                score: finding.score,
+            });
+        }
+        skips.push(skip);
+    }
+    suspects.sort_by_key(|s| s.line);
+    if let Some(path) = &args.flags_output {
+        let text = suspects_csv(&suspects).context("formatting the suspects as CSV")?;
+        write_atomic(path, text.as_bytes())
+            .with_context(|| format!("cannot write {}", path.display()))?;
+    } else {
+        for s in &suspects {
+            eprintln!(
+                "{}:{}: sample {}: left out (suction {} cm, theta {}): {}",
+                input.display(),
+                s.line,
+                s.sample,
+                crate::report::format_number(s.h_cm),
+                crate::report::format_number(s.theta),
+                s.reason
+            );
+        }
+    }
+    eprintln!(
+        "{} left out of the fits",
+        plural(suspects.len() as u64, "suspect reading")
+    );
+    Ok(skips)
 }
 
 /// Run `porewise fit`.
@@ -211,10 +302,16 @@ pub fn run(args: &FitArgs) -> anyhow::Result<Outcome> {
     };
     let format = format_of(args.output.as_ref())?;
     let file = read_pairs_path(input).map_err(|d| anyhow::anyhow!("{d}"))?;
+    let skips: Vec<Vec<usize>> = if args.flag_outliers {
+        flag_outliers(args, input, &file, choice, &options)?
+    } else {
+        vec![Vec::new(); file.samples.len()]
+    };
     let rows: Vec<FitRow> = file
         .samples
         .par_iter()
-        .map(|s| fit_sample(s, choice, &options))
+        .zip(&skips)
+        .map(|(s, skip)| fit_sample(s, choice, &options, skip))
         .collect();
     let text = match format {
         Format::Csv => to_csv(&rows).context("formatting the results as CSV")?,

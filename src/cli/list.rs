@@ -10,9 +10,13 @@ use crate::analysis::{profiles, sample_fits};
 use crate::error::Outcome;
 use crate::model::units::SuctionUnit;
 use crate::report::Listing;
-use crate::report::campaign::{layers_listing, readings_listing, samples_listing, sites_listing};
+use crate::report::campaign::{
+    layers_listing, readings_listing_with_flags, samples_listing, sites_listing,
+};
 use crate::report::fits::{fits_listing, history_listing, profiles_listing};
+use crate::report::review::{events_listing, flags_listing};
 use crate::store::fits::{self as store_fits, Selection};
+use crate::store::flags::{self, FlagFilter};
 use crate::store::{Campaign, Filter, layers, readings, samples, sites};
 use rusqlite::Connection;
 
@@ -32,6 +36,10 @@ pub enum What {
     Fits,
     /// Available water per layer and the profile total in mm down to --root-zone-cm.
     Profiles,
+    /// Flags on readings and logger records, with their status and reason.
+    Flags,
+    /// Every status change of every flag, with its time and note (the audit trail).
+    FlagEvents,
 }
 
 /// Output format.
@@ -49,7 +57,7 @@ pub enum Format {
 /// Arguments of `porewise list`.
 #[derive(Debug, Args)]
 #[command(
-    after_help = "Examples:\n  porewise list spring.sqlite\n  porewise list spring.sqlite readings --site LV --units kpa\n  porewise list spring.sqlite samples --format csv > samples.csv\n  porewise list spring.sqlite fits --site LV\n  porewise list spring.sqlite fits --sample LV-Ap-a --all\n  porewise list spring.sqlite profiles --root-zone-cm 60"
+    after_help = "Examples:\n  porewise list spring.sqlite\n  porewise list spring.sqlite readings --site LV --units kpa\n  porewise list spring.sqlite samples --format csv > samples.csv\n  porewise list spring.sqlite fits --site LV\n  porewise list spring.sqlite fits --sample LV-Ap-a --all\n  porewise list spring.sqlite profiles --root-zone-cm 60\n  porewise list spring.sqlite flags --sample LV-Ap-a\n  porewise list spring.sqlite flag-events"
 )]
 pub struct ListArgs {
     /// The campaign file.
@@ -101,6 +109,14 @@ fn fits(conn: &Connection, args: &ListArgs) -> anyhow::Result<Listing> {
     Ok(fits_listing(&sample_fits(conn, &settings, &selection)?))
 }
 
+fn flag_filter(args: &ListArgs) -> FlagFilter {
+    FlagFilter {
+        site: args.site.clone(),
+        sample: args.sample.clone(),
+        ..FlagFilter::default()
+    }
+}
+
 /// Run `porewise list`.
 ///
 /// # Errors
@@ -119,7 +135,9 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
     }
     if let Some(code) = &args.sample {
         if matches!(args.what, What::Sites | What::Layers | What::Profiles) {
-            bail!("--sample filters samples, readings and fits, not sites, layers or profiles");
+            bail!(
+                "--sample filters samples, readings, fits and flags, not sites, layers or profiles"
+            );
         }
         if samples::find(conn, code)?.is_none() {
             bail!(
@@ -147,7 +165,20 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
         What::Sites => sites_listing(&sites::list(conn, filter.site)?),
         What::Layers => layers_listing(&layers::list(conn, filter.site)?),
         What::Samples => samples_listing(&samples::list(conn, filter)?),
-        What::Readings => readings_listing(&readings::list(conn, filter)?, args.units),
+        What::Readings => readings_listing_with_flags(
+            &readings::list(conn, filter)?,
+            args.units,
+            &flags::reading_marks(conn)?,
+        ),
+        What::Flags => flags_listing(&flags::list(conn, &flag_filter(args))?, args.units),
+        What::FlagEvents => {
+            let mut events = Vec::new();
+            for row in flags::list(conn, &flag_filter(args))? {
+                events.extend(flags::events(conn, row.stored.id)?);
+            }
+            events.sort_by_key(|e| e.id);
+            events_listing(&events)
+        }
         What::Fits => fits(conn, args)?,
         What::Profiles => profiles_listing(&profiles(
             conn,

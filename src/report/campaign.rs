@@ -1,10 +1,12 @@
 //! Listings of what a campaign holds (sites, layers, samples, readings) and its overview text.
 
+use std::collections::HashMap;
 use std::fmt;
 
 use super::table::{Cell, Column, Listing};
 use crate::model::number::{plural, significant};
 use crate::model::units::SuctionUnit;
+use crate::store::flags::Mark;
 use crate::store::layers::LayerRow;
 use crate::store::readings::ReadingRow;
 use crate::store::samples::SampleRow;
@@ -133,7 +135,26 @@ pub fn samples_listing(rows: &[SampleRow]) -> Listing {
 /// The columns include those of a lab file (`site,top_cm,bottom_cm,sample,method,
 /// suction_<unit>,theta_m3_m3,...`), so a CSV listing can be imported into another campaign.
 pub fn readings_listing(rows: &[ReadingRow], unit: SuctionUnit) -> Listing {
-    let mut l = Listing::new(columns(&[
+    readings_table(rows, unit, None)
+}
+
+/// As [`readings_listing`], with a `flag` column after `theta_m3_m3`: `excluded` (left out
+/// of fits), `suggested` (waiting for review), `kept` (reviewed and kept) or empty.
+pub fn readings_listing_with_flags<S: std::hash::BuildHasher>(
+    rows: &[ReadingRow],
+    unit: SuctionUnit,
+    marks: &HashMap<i64, Mark, S>,
+) -> Listing {
+    let marks: HashMap<i64, Mark> = marks.iter().map(|(k, v)| (*k, *v)).collect();
+    readings_table(rows, unit, Some(&marks))
+}
+
+fn readings_table(
+    rows: &[ReadingRow],
+    unit: SuctionUnit,
+    marks: Option<&HashMap<i64, Mark>>,
+) -> Listing {
+    let mut names = vec![
         "reading",
         "sample",
         "site",
@@ -141,6 +162,11 @@ pub fn readings_listing(rows: &[ReadingRow], unit: SuctionUnit) -> Listing {
         "bottom_cm",
         unit.column_name(),
         "theta_m3_m3",
+    ];
+    if marks.is_some() {
+        names.push("flag");
+    }
+    names.extend([
         "method",
         "branch",
         "measured_on",
@@ -148,7 +174,8 @@ pub fn readings_listing(rows: &[ReadingRow], unit: SuctionUnit) -> Listing {
         "notes",
         "source",
         "uid",
-    ]));
+    ]);
+    let mut l = Listing::new(columns(&names));
     for r in rows {
         let x = &r.stored.reading;
         let source = r
@@ -156,7 +183,7 @@ pub fn readings_listing(rows: &[ReadingRow], unit: SuctionUnit) -> Listing {
             .source_file
             .as_ref()
             .map(|f| format!("{f}:{}", x.provenance.line));
-        l.push(vec![
+        let mut row = vec![
             r.stored.id.into(),
             Cell::text(&x.sample),
             Cell::text(&r.layer.site),
@@ -164,6 +191,16 @@ pub fn readings_listing(rows: &[ReadingRow], unit: SuctionUnit) -> Listing {
             r.layer.bottom_cm.into(),
             unit.from_cm(x.h_cm).into(),
             x.theta.into(),
+        ];
+        if let Some(marks) = marks {
+            row.push(
+                marks
+                    .get(&r.stored.id)
+                    .map(|m| m.label().to_string())
+                    .into(),
+            );
+        }
+        row.extend([
             x.method.as_ref().map(ToString::to_string).into(),
             Cell::text(x.branch.as_str()),
             x.measured_on.map(|d| d.to_string()).into(),
@@ -172,6 +209,7 @@ pub fn readings_listing(rows: &[ReadingRow], unit: SuctionUnit) -> Listing {
             source.into(),
             Cell::text(x.uid.as_str()),
         ]);
+        l.push(row);
     }
     l
 }

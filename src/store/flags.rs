@@ -10,7 +10,7 @@
 //! Every function takes a `&Connection`; a command that changes several flags runs them in one
 //! transaction ([`super::Campaign::transaction`]).
 
-use std::collections::HashMap;
+use std::collections::{HashMap, HashSet};
 use std::fmt;
 
 use chrono::{DateTime, Utc};
@@ -783,6 +783,23 @@ pub fn trail(conn: &Connection, target: FlagTarget) -> Result<Vec<FlagEvent>> {
          WHERE f.reading_id IS ?1 AND f.logger_record_id IS ?2 ORDER BY e.id",
     )?;
     let rows = stmt.query_map(params![reading, record], event_from_row)?;
+    Ok(rows.collect::<rusqlite::Result<_>>()?)
+}
+
+/// Readings the user reviewed and kept: a flag on them dismissed or cleared by the user (or
+/// decided before schema version 3), and none excluding them. The checks leave these alone.
+///
+/// # Errors
+/// An SQLite error.
+pub fn kept_by_user(conn: &Connection) -> Result<HashSet<i64>> {
+    let mut stmt = conn.prepare_cached(
+        "SELECT DISTINCT f.reading_id FROM flag f
+         WHERE f.reading_id IS NOT NULL AND f.status IN ('dismissed', 'cleared')
+           AND f.decided_by IS NOT 'checks'
+           AND NOT EXISTS (SELECT 1 FROM flag x WHERE x.reading_id = f.reading_id
+               AND (x.status = 'accepted' OR (x.status = 'suggested' AND x.origin = 'manual')))",
+    )?;
+    let rows = stmt.query_map([], |r| r.get(0))?;
     Ok(rows.collect::<rusqlite::Result<_>>()?)
 }
 

@@ -684,8 +684,11 @@ fn on_browse(state: &mut AppState, action: &Action) -> Vec<Effect> {
             return Vec::new();
         }
         Action::StartFilter => {
+            // A new filter each time; Esc in the tree clears a kept one.
             state.focus = Pane::Tree;
-            state.input = Input::Filter(state.tree.filter.clone());
+            state.tree.filter.clear();
+            state.tree.rebuild();
+            state.input = Input::Filter(String::new());
             return Vec::new();
         }
         Action::ToggleFlag => {

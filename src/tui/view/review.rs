@@ -83,7 +83,7 @@ impl Widget for ReviewScreen<'_> {
             );
         }
         let [curve_area, detail_area] =
-            Layout::vertical([Constraint::Fill(1), Constraint::Length(5)]).areas(right);
+            Layout::vertical([Constraint::Fill(1), Constraint::Length(7)]).areas(right);
         let title = match (&state.detail, state.review_item()) {
             (Detail::Ready(d), Some(_)) => format!("Curve · {}", d.code),
             _ => "Curve".to_string(),

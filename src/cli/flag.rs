@@ -1,0 +1,63 @@
+//! `porewise flag`: leave a reading out of fits by hand, with a reason and an optional note.
+
+use std::path::PathBuf;
+
+use anyhow::Context;
+use clap::Args;
+
+use crate::analysis::review::{fit_state_of_reading, flag_reading};
+use crate::error::Outcome;
+use crate::store::Campaign;
+use crate::store::fits::FitState;
+
+/// Arguments of `porewise flag`.
+#[derive(Debug, Args)]
+#[command(
+    after_help = "Example:\n  porewise flag spring.sqlite 112 --reason \"core cracked\" --note \"photo 14\"\n\nThe reading is left out of fits at once; its sample's current fit is then stale\n(porewise list DB fits) until refitted (porewise fit DB --sample CODE).\nporewise unflag DB READING takes it back; both changes are kept in the audit trail."
+)]
+pub struct FlagArgs {
+    /// The campaign file.
+    pub db: PathBuf,
+    /// The reading id (as `porewise list DB readings` shows it).
+    pub reading: i64,
+    /// Why the reading is left out.
+    #[arg(long, value_name = "TEXT")]
+    pub reason: String,
+    /// A note kept with the flag.
+    #[arg(long, value_name = "TEXT")]
+    pub note: Option<String>,
+}
+
+/// Run `porewise flag`.
+///
+/// # Errors
+/// The campaign cannot be opened or written, no such reading, an empty reason, or a reading
+/// already flagged.
+pub fn run(args: &FlagArgs) -> anyhow::Result<Outcome> {
+    let mut campaign = Campaign::open(&args.db)
+        .with_context(|| format!("cannot open campaign {}", args.db.display()))?;
+    let id = flag_reading(
+        &mut campaign,
+        args.reading,
+        &args.reason,
+        args.note.as_deref(),
+    )?;
+    let (sample, state) = fit_state_of_reading(campaign.connection(), args.reading)?;
+    println!(
+        "reading {} flagged (flag {id}); left out of fits; {}",
+        args.reading,
+        fit_note(&sample, &state)
+    );
+    Ok(Outcome::Success)
+}
+
+/// What a flag change did to the sample's fit, for the message after it.
+pub(crate) fn fit_note(sample: &str, state: &FitState) -> String {
+    match state {
+        FitState::Stale(_) => format!(
+            "the fit of {sample} is stale until refitted (porewise fit DB --sample {sample})"
+        ),
+        FitState::Current => format!("the fit of {sample} matches its readings"),
+        FitState::None | FitState::Failed(_) => format!("{sample} has no current fit"),
+    }
+}

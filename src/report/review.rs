@@ -1,0 +1,170 @@
+//! Listings of the outlier review: the queue of open suggestions, flags, and their audit trail.
+
+use crate::model::units::SuctionUnit;
+use crate::report::{Cell, Column, Listing};
+use crate::store::flags::{FlagEvent, FlagRow, Subject};
+
+fn time(t: chrono::DateTime<chrono::Utc>) -> Cell {
+    Cell::text(t.to_rfc3339_opts(chrono::SecondsFormat::Secs, true))
+}
+
+/// Flags with their subject: reading id (or logger record id), sample, suction in `unit`,
+/// water content, score and reason; `queue` order is kept as given.
+///
+/// Columns: `flag,reading,logger_record,sample,site,suction_<unit>,theta_m3_m3,status,origin,
+/// score,reason,note,created_at,decided_at`.
+pub fn flags_listing(rows: &[FlagRow], unit: SuctionUnit) -> Listing {
+    let mut l = Listing::new(
+        [
+            "flag",
+            "reading",
+            "logger_record",
+            "sample",
+            "site",
+            unit.column_name(),
+            "theta_m3_m3",
+            "status",
+            "origin",
+            "score",
+            "reason",
+            "note",
+            "created_at",
+            "decided_at",
+        ]
+        .into_iter()
+        .map(Column::new)
+        .collect(),
+    );
+    for row in rows {
+        let flag = &row.stored.flag;
+        let (reading, record) = match &row.subject {
+            Subject::Reading { reading_id, .. } => (Cell::Int(*reading_id), Cell::Text(None)),
+            Subject::LoggerRecord { record_id, .. } => (Cell::Text(None), Cell::Int(*record_id)),
+        };
+        l.push(vec![
+            row.stored.id.into(),
+            reading,
+            record,
+            row.subject.sample().map(str::to_string).into(),
+            Cell::text(row.subject.site()),
+            row.subject.h_cm().map(|h| unit.from_cm(h)).into(),
+            row.subject.theta().into(),
+            Cell::text(flag.status.as_str()),
+            Cell::text(flag.origin.as_str()),
+            flag.score.into(),
+            Cell::text(&flag.reason),
+            flag.note.clone().into(),
+            time(flag.created_at),
+            flag.decided_at.map_or(Cell::Text(None), time),
+        ]);
+    }
+    l
+}
+
+/// The review queue: worst first, with the columns a reviewer decides on
+/// (`reading,sample,site,suction_<unit>,theta_m3_m3,score,flag,logger_record,reason`; the
+/// reason last, as it is the widest).
+pub fn queue_listing(rows: &[FlagRow], unit: SuctionUnit) -> Listing {
+    let mut l = Listing::new(
+        [
+            "reading",
+            "sample",
+            "site",
+            unit.column_name(),
+            "theta_m3_m3",
+            "score",
+            "flag",
+            "logger_record",
+            "reason",
+        ]
+        .into_iter()
+        .map(Column::new)
+        .collect(),
+    );
+    for row in rows {
+        let (reading, record) = match &row.subject {
+            Subject::Reading { reading_id, .. } => (Cell::Int(*reading_id), Cell::Text(None)),
+            Subject::LoggerRecord { record_id, .. } => (Cell::Text(None), Cell::Int(*record_id)),
+        };
+        l.push(vec![
+            reading,
+            row.subject.sample().map(str::to_string).into(),
+            Cell::text(row.subject.site()),
+            row.subject.h_cm().map(|h| unit.from_cm(h)).into(),
+            row.subject.theta().into(),
+            row.stored.flag.score.into(),
+            row.stored.id.into(),
+            record,
+            Cell::text(&row.stored.flag.reason),
+        ]);
+    }
+    l
+}
+
+/// The audit trail: one row per status a flag took (`flag,from,to,by,note,at`).
+pub fn events_listing(events: &[FlagEvent]) -> Listing {
+    let mut l = Listing::new(
+        ["flag", "from", "to", "by", "note", "at"]
+            .into_iter()
+            .map(Column::new)
+            .collect(),
+    );
+    for e in events {
+        l.push(vec![
+            e.flag_id.into(),
+            e.from.map(|s| s.as_str().to_string()).into(),
+            Cell::text(e.to.as_str()),
+            Cell::text(e.actor.as_str()),
+            e.note.clone().into(),
+            time(e.at),
+        ]);
+    }
+    l
+}
+
+/// One suspect reading of a plain pairs file (`fit --input --flag-outliers`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct SuspectRow {
+    /// Sample name as written in the file.
+    pub sample: String,
+    /// Physical line of the reading in the input file (the header is line 1).
+    pub line: u64,
+    /// Suction head, cm.
+    pub h_cm: f64,
+    /// Water content, m3/m3.
+    pub theta: f64,
+    /// Why it is suspect.
+    pub reason: String,
+    /// How bad, higher is worse.
+    pub score: f64,
+}
+
+/// The suspects as CSV: `sample,line,suction_cm,theta,reason,score` (numbers read back exactly).
+///
+/// # Errors
+/// A CSV writer error (not expected for in-memory output).
+pub fn suspects_csv(rows: &[SuspectRow]) -> Result<String, csv::Error> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    w.write_record(["sample", "line", "suction_cm", "theta", "reason", "score"])?;
+    let num = |v: f64| {
+        if v.is_finite() {
+            crate::report::format_number(v)
+        } else {
+            String::new()
+        }
+    };
+    for r in rows {
+        w.write_record([
+            r.sample.clone(),
+            r.line.to_string(),
+            num(r.h_cm),
+            num(r.theta),
+            r.reason.clone(),
+            num(r.score),
+        ])?;
+    }
+    let bytes = w
+        .into_inner()
+        .map_err(|e| csv::Error::from(std::io::Error::other(e.to_string())))?;
+    Ok(String::from_utf8_lossy(&bytes).into_owned())
+}
