@@ -147,7 +147,10 @@ fn scripted_session_flags_refits_and_reviews() {
         n
     };
     let suspects = queue(&mut s);
-    assert!(suspects >= 5, "the demo's planted readings are in the queue: {suspects}");
+    assert!(
+        suspects >= 5,
+        "the demo's planted readings are in the queue: {suspects}"
+    );
     // The third step of TER1-A-a drained on the bench (demo-db/README.md).
     type_keys(
         &mut s,
@@ -179,7 +182,13 @@ fn scripted_session_flags_refits_and_reviews() {
     let worst = s.state.review.items[0].clone();
     type_keys(&mut s, "a");
     assert_eq!(s.state.review.items.len(), suspects - 2);
-    assert!(s.state.review.items.iter().all(|i| i.flag_id != worst.flag_id));
+    assert!(
+        s.state
+            .review
+            .items
+            .iter()
+            .all(|i| i.flag_id != worst.flag_id)
+    );
     insta::assert_snapshot!("session_review_accepted_100x30", screen(&s, &copy));
     type_keys(&mut s, "1");
     type_keys(&mut s, &format!("/{}<enter>G", worst.sample));

@@ -1,10 +1,10 @@
 //! The campaign's outline for browsing: sites, their layers and samples, without a single
 //! reading, so a tree of thousands of samples loads in one pass over three small tables.
 
-use rusqlite::{Connection, OptionalExtension, Row, params};
+use rusqlite::{Connection, OptionalExtension, params};
 
 use super::Result;
-use super::fits::SampleInfo;
+use super::fits::{self, SAMPLE_INFO_COLUMNS, SampleInfo, Selection, sample_info};
 use crate::model::domain::LayerRef;
 
 /// A site in the outline.
@@ -44,24 +44,6 @@ pub struct Outline {
     pub samples: Vec<SampleInfo>,
 }
 
-const SAMPLE_COLUMNS: &str =
-    "m.id, m.code, m.layer_id, s.code, l.top_cm, l.bottom_cm, m.kind, m.readings_rev";
-
-fn sample_row(r: &Row<'_>) -> rusqlite::Result<SampleInfo> {
-    Ok(SampleInfo {
-        id: r.get(0)?,
-        code: r.get(1)?,
-        layer_id: r.get(2)?,
-        layer: LayerRef {
-            site: r.get(3)?,
-            top_cm: r.get(4)?,
-            bottom_cm: r.get(5)?,
-        },
-        kind: r.get(6)?,
-        revision: r.get(7)?,
-    })
-}
-
 /// The whole outline.
 ///
 /// # Errors
@@ -97,14 +79,7 @@ pub fn outline(conn: &Connection) -> Result<Outline> {
             })
         })?
         .collect::<rusqlite::Result<Vec<_>>>()?;
-    let mut stmt = conn.prepare_cached(&format!(
-        "SELECT {SAMPLE_COLUMNS}
-         FROM sample m JOIN layer l ON m.layer_id = l.id JOIN site s ON l.site_id = s.id
-         ORDER BY s.code, l.top_cm, l.bottom_cm, m.code"
-    ))?;
-    let samples = stmt
-        .query_map([], sample_row)?
-        .collect::<rusqlite::Result<Vec<_>>>()?;
+    let samples = fits::samples(conn, &Selection::all())?;
     Ok(Outline {
         sites,
         layers,
@@ -118,13 +93,13 @@ pub fn outline(conn: &Connection) -> Result<Outline> {
 /// An SQLite error.
 pub fn sample(conn: &Connection, id: i64) -> Result<Option<(SampleInfo, OutlineLayer)>> {
     let mut stmt = conn.prepare_cached(&format!(
-        "SELECT {SAMPLE_COLUMNS}, l.site_id, l.horizon, l.ks_cm_per_day
+        "SELECT {SAMPLE_INFO_COLUMNS}, l.site_id, l.horizon, l.ks_cm_per_day
          FROM sample m JOIN layer l ON m.layer_id = l.id JOIN site s ON l.site_id = s.id
          WHERE m.id = ?1"
     ))?;
     Ok(stmt
         .query_row(params![id], |r| {
-            let info = sample_row(r)?;
+            let info = sample_info(r)?;
             let layer = OutlineLayer {
                 id: info.layer_id,
                 site_id: r.get(8)?,

@@ -258,6 +258,15 @@ fn moves() -> Vec<Binding> {
     ]
 }
 
+fn back_to_browsing() -> Binding {
+    bind(
+        &[Key::plain(KeyCode::Esc)],
+        Action::Back,
+        "back to browsing",
+        None,
+    )
+}
+
 impl Default for KeyTable {
     fn default() -> Self {
         let always = vec![bind(
@@ -423,12 +432,7 @@ impl Default for KeyTable {
                 "open the sample under the cursor",
                 Some("open"),
             ),
-            bind(
-                &[Key::plain(KeyCode::Esc)],
-                Action::Back,
-                "back to browsing",
-                None,
-            ),
+            back_to_browsing(),
         ]);
         let mut review = moves();
         review.extend([
@@ -450,35 +454,15 @@ impl Default for KeyTable {
                 "show the sample in the browser",
                 Some("open"),
             ),
-            bind(
-                &[Key::plain(KeyCode::Esc)],
-                Action::Back,
-                "back to browsing",
-                None,
-            ),
+            back_to_browsing(),
         ]);
-        let help = vec![
-            bind(&UP, Action::Up, "scroll up", None),
-            bind(&DOWN, Action::Down, "scroll down", None),
-            bind(
-                &[Key::plain(KeyCode::PageUp)],
-                Action::PageUp,
-                "page up",
-                None,
-            ),
-            bind(
-                &[Key::plain(KeyCode::PageDown)],
-                Action::PageDown,
-                "page down",
-                None,
-            ),
-            bind(
-                &[Key::plain(KeyCode::Esc), Key::plain(KeyCode::Enter)],
-                Action::Back,
-                "close the help",
-                Some("close"),
-            ),
-        ];
+        let mut help: Vec<Binding> = moves().into_iter().take(4).collect();
+        help.extend([bind(
+            &[Key::plain(KeyCode::Esc), Key::plain(KeyCode::Enter)],
+            Action::Back,
+            "close the help",
+            Some("close"),
+        )]);
         let typing = |submit: &'static str, cancel: &'static str| {
             vec![
                 bind(

@@ -8,7 +8,7 @@ use ratatui::buffer::Buffer;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::Style;
 use ratatui::text::{Line, Span};
-use ratatui::widgets::{Block, BorderType, Widget};
+use ratatui::widgets::{Block, BorderType, Row, Table, Widget};
 
 use crate::model::number::significant;
 use crate::model::units::CM_PER_KPA;
@@ -172,6 +172,44 @@ pub fn pane_block<'a>(title: impl Into<Line<'a>>, focused: bool, theme: Theme) -
         } else {
             Style::new()
         }))
+}
+
+/// Draw a table with one space between columns.
+pub fn render_table<'a>(
+    header: Row<'a>,
+    rows: impl IntoIterator<Item = Row<'a>>,
+    widths: &[Constraint],
+    area: Rect,
+    buf: &mut Buffer,
+) {
+    Widget::render(
+        Table::new(rows, widths).header(header).column_spacing(1),
+        area,
+        buf,
+    );
+}
+
+/// A table row, styled as the cursor when it is the cursor's.
+pub fn cursor_row(row: Row<'_>, is_cursor: bool, focused: bool, theme: Theme) -> Row<'_> {
+    match (is_cursor, focused) {
+        (false, _) => row,
+        (true, true) => row.style(theme.cursor()),
+        (true, false) => row.style(theme.cursor_unfocused()),
+    }
+}
+
+/// Draw a pane's block and return the area inside it.
+pub fn framed<'a>(
+    title: impl Into<Line<'a>>,
+    focused: bool,
+    theme: Theme,
+    area: Rect,
+    buf: &mut Buffer,
+) -> Rect {
+    let block = pane_block(title, focused, theme);
+    let inner = block.inner(area);
+    block.render(area, buf);
+    inner
 }
 
 /// First row shown of a list of `len` rows in `height` rows, keeping the cursor in the middle

@@ -11,7 +11,7 @@ use crate::report::fits::state_text;
 
 use super::super::app::{AppState, Detail, FitTag, SampleDetail, model_tag};
 use super::super::theme::Theme;
-use super::{kpa_text, num, opt_num, pane_block, theta_text};
+use super::{framed, kpa_text, num, opt_num, theta_text};
 
 /// The fit card pane.
 pub struct CardPane<'a> {
@@ -157,9 +157,7 @@ impl Widget for CardPane<'_> {
     fn render(self, area: Rect, buf: &mut Buffer) {
         let state = self.state;
         let theme = state.theme;
-        let block = pane_block("Fit", self.focused, theme);
-        let inner = block.inner(area);
-        block.render(area, buf);
+        let inner = framed("Fit", self.focused, theme, area, buf);
         let lines = match &state.detail {
             Detail::Ready(d) => card_lines(state, d, theme),
             Detail::Loading(_) => vec![Line::from("loading…")],

@@ -8,7 +8,7 @@ use ratatui::widgets::{Paragraph, Widget};
 
 use super::super::app::{AppState, Detail, SampleDetail, plot_x};
 use super::plot::{Axes, draw_dotted, draw_polyline, render_canvas};
-use super::{pane_block, theta_text};
+use super::{framed, theta_text};
 
 /// The glyph of a reading used by the fit.
 pub const USED: &str = "o";
@@ -42,9 +42,7 @@ impl Widget for CurvePane<'_> {
             ),
             _ => "Curve".to_string(),
         };
-        let block = pane_block(title, self.focused, theme);
-        let inner = block.inner(area);
-        block.render(area, buf);
+        let inner = framed(title, self.focused, theme, area, buf);
         match &state.detail {
             Detail::Ready(detail) => CurvePlot {
                 state,

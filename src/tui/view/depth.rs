@@ -5,11 +5,11 @@
 use ratatui::buffer::Buffer;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::text::{Line, Span};
-use ratatui::widgets::{Paragraph, Row, Table, Widget};
+use ratatui::widgets::{Paragraph, Row, Widget};
 
 use super::super::app::{AppState, DepthData, model_tag};
 use super::plot::{Axes, draw_polyline, render_canvas};
-use super::{kpa_text, num, opt_num, pane_block, scroll_offset};
+use super::{cursor_row, framed, kpa_text, num, opt_num, render_table, scroll_offset};
 use crate::model::units::CM_PER_KPA;
 
 /// The depth screen.
@@ -23,9 +23,7 @@ impl Widget for DepthScreen<'_> {
         let state = self.state;
         let theme = state.theme;
         let Some(data) = state.depth.data.as_ref() else {
-            let block = pane_block("Depth view", true, theme);
-            let inner = block.inner(area);
-            block.render(area, buf);
+            let inner = framed("Depth view", true, theme, area, buf);
             let text = match &state.depth.site {
                 Some(site) => format!("loading site {site}…"),
                 None => "No site chosen: go back (Esc) and pick one.".to_string(),
@@ -58,9 +56,7 @@ impl DepthScreen<'_> {
                 .unwrap_or_default(),
             state.units.symbol()
         );
-        let block = pane_block(title, true, theme);
-        let inner = block.inner(area);
-        block.render(area, buf);
+        let inner = framed(title, true, theme, area, buf);
         let theta_max = data
             .layers
             .iter()
@@ -121,13 +117,13 @@ impl DepthScreen<'_> {
     fn render_profile(&self, data: &DepthData, area: Rect, buf: &mut Buffer) {
         let state = self.state;
         let theme = state.theme;
-        let block = pane_block(
+        let inner = framed(
             format!("Profile water to {} cm · +/-", data.root_zone_cm),
             false,
             theme,
+            area,
+            buf,
         );
-        let inner = block.inner(area);
-        block.render(area, buf);
         let mut lines = vec![Line::from(Span::styled(
             "  layer cm       AW     mm",
             theme.heading(),
@@ -189,9 +185,7 @@ impl DepthScreen<'_> {
     fn render_table(&self, data: &DepthData, area: Rect, buf: &mut Buffer) {
         let state = self.state;
         let theme = state.theme;
-        let block = pane_block("Parameters by depth · Enter opens", false, theme);
-        let inner = block.inner(area);
-        block.render(area, buf);
+        let inner = framed("Parameters by depth · Enter opens", false, theme, area, buf);
         if inner.height < 2 {
             return;
         }
@@ -252,11 +246,7 @@ impl DepthScreen<'_> {
                         Line::from(opt_num(r.rmse, 2)),
                         Line::from(shape),
                     ]);
-                    if i == state.depth.cursor {
-                        row.style(theme.cursor())
-                    } else {
-                        row
-                    }
+                    cursor_row(row, i == state.depth.cursor, true, theme)
                 });
         let widths = [
             Constraint::Length(1),
@@ -270,10 +260,6 @@ impl DepthScreen<'_> {
             Constraint::Length(6),
             Constraint::Fill(1),
         ];
-        Widget::render(
-            Table::new(rows, widths).header(header).column_spacing(1),
-            inner,
-            buf,
-        );
+        render_table(header, rows, &widths, inner, buf);
     }
 }

@@ -8,7 +8,7 @@ use ratatui::widgets::{Paragraph, Widget};
 
 use super::super::app::{AppState, FitTag};
 use super::super::keymap::KeyTable;
-use super::pane_block;
+use super::framed;
 
 /// The help screen.
 pub struct HelpScreen<'a> {
@@ -84,9 +84,7 @@ impl HelpScreen<'_> {
 impl Widget for HelpScreen<'_> {
     fn render(self, area: Rect, buf: &mut Buffer) {
         let theme = self.state.theme;
-        let block = pane_block("Keys · Esc or ? closes", true, theme);
-        let inner = block.inner(area);
-        block.render(area, buf);
+        let inner = framed("Keys · Esc or ? closes", true, theme, area, buf);
         let columns: u16 = if inner.width >= 96 { 2 } else { 1 };
         let areas = Layout::horizontal(vec![Constraint::Fill(1); usize::from(columns)])
             .spacing(2)

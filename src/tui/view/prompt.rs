@@ -6,7 +6,7 @@ use ratatui::text::{Line, Span};
 use ratatui::widgets::{Clear, Paragraph, Widget, Wrap};
 
 use super::super::app::{AppState, Input};
-use super::{pane_block, suction_text, theta_text};
+use super::{framed, suction_text, theta_text};
 
 /// The overlay, drawn last.
 pub struct Overlay<'a> {
@@ -104,9 +104,7 @@ impl Widget for Overlay<'_> {
         let width = area.width.saturating_sub(8).min(72);
         let popup = centred(area, width, lines.len() as u16 + 3);
         Clear.render(popup, buf);
-        let block = pane_block(title, true, theme);
-        let inner = block.inner(popup);
-        block.render(popup, buf);
+        let inner = framed(title, true, theme, popup, buf);
         Paragraph::new(lines)
             .wrap(Wrap { trim: false })
             .render(inner, buf);

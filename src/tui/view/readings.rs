@@ -4,11 +4,11 @@
 use ratatui::buffer::Buffer;
 use ratatui::layout::{Constraint, Rect};
 use ratatui::text::{Line, Span};
-use ratatui::widgets::{Paragraph, Row, Table, Widget};
+use ratatui::widgets::{Paragraph, Row, Widget};
 
 use super::super::app::{AppState, Detail, ReadingView};
 use super::curve::{EXCLUDED, USED};
-use super::{pane_block, scroll_offset, suction_text, theta_text};
+use super::{cursor_row, framed, render_table, scroll_offset, suction_text, theta_text};
 
 /// The readings pane.
 pub struct ReadingsPane<'a> {
@@ -38,9 +38,7 @@ impl Widget for ReadingsPane<'_> {
         let state = self.state;
         let theme = state.theme;
         let Detail::Ready(d) = &state.detail else {
-            let block = pane_block("Readings", self.focused, theme);
-            let inner = block.inner(area);
-            block.render(area, buf);
+            let inner = framed("Readings", self.focused, theme, area, buf);
             Paragraph::new("No sample open.").render(inner, buf);
             return;
         };
@@ -56,9 +54,7 @@ impl Widget for ReadingsPane<'_> {
                 ""
             }
         );
-        let block = pane_block(title, self.focused, theme);
-        let inner = block.inner(area);
-        block.render(area, buf);
+        let inner = framed(title, self.focused, theme, area, buf);
         if inner.height < 2 {
             return;
         }
@@ -82,7 +78,7 @@ impl Widget for ReadingsPane<'_> {
             .take(height)
             .map(|(i, r)| {
                 let glyph = if r.excluded { EXCLUDED } else { USED };
-                let mut row = Row::new(vec![
+                let row = Row::new(vec![
                     Line::from(Span::styled(
                         glyph,
                         if r.excluded {
@@ -98,14 +94,7 @@ impl Widget for ReadingsPane<'_> {
                     Line::from(signed(r.studentized, 2)),
                     Line::from(Span::styled(flag_text(r), theme.flag())),
                 ]);
-                if i == state.reading {
-                    row = row.style(if self.focused {
-                        theme.cursor()
-                    } else {
-                        theme.cursor_unfocused()
-                    });
-                }
-                row
+                cursor_row(row, i == state.reading, self.focused, theme)
             });
         let widths = [
             Constraint::Length(1),
@@ -116,10 +105,6 @@ impl Widget for ReadingsPane<'_> {
             Constraint::Length(5),
             Constraint::Fill(1),
         ];
-        Widget::render(
-            Table::new(rows, widths).header(header).column_spacing(1),
-            inner,
-            buf,
-        );
+        render_table(header, rows, &widths, inner, buf);
     }
 }

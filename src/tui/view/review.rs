@@ -4,11 +4,13 @@
 use ratatui::buffer::Buffer;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::text::{Line, Span};
-use ratatui::widgets::{Paragraph, Row, Table, Widget, Wrap};
+use ratatui::widgets::{Paragraph, Row, Widget, Wrap};
 
 use super::super::app::{AppState, Detail};
 use super::curve::CurvePlot;
-use super::{num, opt_num, pane_block, scroll_offset, suction_text, theta_text};
+use super::{
+    cursor_row, framed, num, opt_num, render_table, scroll_offset, suction_text, theta_text,
+};
 
 /// The review screen.
 pub struct ReviewScreen<'a> {
@@ -24,13 +26,13 @@ impl Widget for ReviewScreen<'_> {
         let [list_area, right] =
             Layout::horizontal([Constraint::Length(list_width), Constraint::Fill(1)]).areas(area);
         let review = &state.review;
-        let block = pane_block(
+        let inner = framed(
             format!("Review · {} suspected, worst first", review.items.len()),
             true,
             theme,
+            list_area,
+            buf,
         );
-        let inner = block.inner(list_area);
-        block.render(list_area, buf);
         if let Some(why) = &review.unavailable {
             Paragraph::new(why.clone())
                 .wrap(Wrap { trim: true })
@@ -64,11 +66,7 @@ impl Widget for ReviewScreen<'_> {
                         suction_text(item.h_cm, state.units),
                         theta_text(item.theta),
                     ]);
-                    if i == review.cursor {
-                        row.style(theme.cursor())
-                    } else {
-                        row
-                    }
+                    cursor_row(row, i == review.cursor, true, theme)
                 });
             let widths = [
                 Constraint::Length(5),
@@ -76,11 +74,7 @@ impl Widget for ReviewScreen<'_> {
                 Constraint::Length(6),
                 Constraint::Length(5),
             ];
-            Widget::render(
-                Table::new(rows, widths).header(header).column_spacing(1),
-                inner,
-                buf,
-            );
+            render_table(header, rows, &widths, inner, buf);
         }
         let [curve_area, detail_area] =
             Layout::vertical([Constraint::Fill(1), Constraint::Length(7)]).areas(right);
@@ -88,9 +82,7 @@ impl Widget for ReviewScreen<'_> {
             (Detail::Ready(d), Some(_)) => format!("Curve · {}", d.code),
             _ => "Curve".to_string(),
         };
-        let block = pane_block(title, false, theme);
-        let inner = block.inner(curve_area);
-        block.render(curve_area, buf);
+        let inner = framed(title, false, theme, curve_area, buf);
         if let (Detail::Ready(detail), Some(item)) = (&state.detail, state.review_item()) {
             let selected = detail.readings.iter().position(|r| r.id == item.reading_id);
             CurvePlot {
@@ -100,9 +92,7 @@ impl Widget for ReviewScreen<'_> {
             }
             .render(inner, buf);
         }
-        let block = pane_block("Suspect", false, theme);
-        let inner = block.inner(detail_area);
-        block.render(detail_area, buf);
+        let inner = framed("Suspect", false, theme, detail_area, buf);
         if let Some(item) = state.review_item() {
             let lines = vec![
                 Line::from(vec![

@@ -8,7 +8,7 @@ use ratatui::widgets::{Paragraph, Widget};
 
 use super::super::app::{AppState, FitTag, SampleNode, TreeRow, model_tag};
 use super::super::theme::Theme;
-use super::pane_block;
+use super::framed;
 
 /// The summary pane.
 pub struct SummaryPane<'a> {
@@ -133,9 +133,7 @@ impl Widget for SummaryPane<'_> {
                 "Campaign".to_string()
             }
         };
-        let block = pane_block(title, false, theme);
-        let inner = block.inner(area);
-        block.render(area, buf);
+        let inner = framed(title, false, theme, area, buf);
         Paragraph::new(lines).render(inner, buf);
     }
 }
