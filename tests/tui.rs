@@ -302,3 +302,27 @@ fn no_color_draws_every_screen_without_a_single_colour() {
         }
     }
 }
+
+#[test]
+fn open_refuses_a_missing_or_foreign_file_before_touching_the_terminal() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let missing = dir.path().join("nothing.sqlite");
+    let out = assert_cmd::Command::cargo_bin("porewise")
+        .expect("binary")
+        .arg("open")
+        .arg(&missing)
+        .assert()
+        .code(1);
+    let stderr = String::from_utf8_lossy(&out.get_output().stderr).into_owned();
+    assert!(stderr.contains("does not exist"), "{stderr}");
+    let foreign = dir.path().join("notes.txt");
+    std::fs::write(&foreign, "not a campaign").expect("write");
+    let out = assert_cmd::Command::cargo_bin("porewise")
+        .expect("binary")
+        .arg("open")
+        .arg(&foreign)
+        .assert()
+        .code(1);
+    let stderr = String::from_utf8_lossy(&out.get_output().stderr).into_owned();
+    assert!(stderr.contains("not a porewise campaign"), "{stderr}");
+}
