@@ -15,6 +15,7 @@ pub mod flag;
 pub mod import;
 pub mod init;
 pub mod list;
+pub mod open;
 pub mod review;
 pub mod set;
 pub mod unflag;
@@ -31,7 +32,7 @@ pub struct Cli {
 /// The subcommands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
-    /// Build the invented demo campaign and show it.
+    /// Build the invented demo campaign and open it in the terminal UI.
     Demo(demo::DemoArgs),
     /// Create an empty campaign file.
     Init(init::InitArgs),
@@ -40,6 +41,8 @@ pub enum Command {
     Import(import::ImportCommand),
     /// List what a campaign file holds.
     List(list::ListArgs),
+    /// Open a campaign in the terminal UI: browse, review outliers, refit, compare depths.
+    Open(open::OpenArgs),
     /// Change campaign settings (field capacity and wilting point suctions).
     Set(set::SetArgs),
     /// Fit retention models to a campaign's samples, or to a plain CSV file with --input.
@@ -66,6 +69,7 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Init(args) => init::run(&args),
         Command::Import(cmd) => import::run(&cmd),
         Command::List(args) => list::run(&args),
+        Command::Open(args) => open::run(&args),
         Command::Set(args) => set::run(&args),
         Command::Fit(args) => fit::run(&args),
         Command::Curve(args) => curve::run(&args),

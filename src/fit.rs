@@ -4,6 +4,7 @@
 //! [`CurveModel`](crate::model::curve::CurveModel) can be fitted, retention curves and the
 //! NIST reference problems alike.
 
+pub mod band;
 mod config;
 mod driver;
 mod error;

@@ -18,6 +18,7 @@
 //!   the attempts; derived values, layer and profile available water (computed on read).
 //! - [`report`]: tables and exports built from model, store and analysis values.
 //! - [`demo`]: the seeded generator of the invented demo campaign.
+//! - [`tui`]: the terminal UI, thin over the library (only `cli` calls it).
 //! - [`cli`]: the command line, thin over the library.
 
 pub mod analysis;
@@ -29,3 +30,4 @@ pub mod import;
 pub mod model;
 pub mod report;
 pub mod store;
+pub mod tui;

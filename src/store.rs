@@ -14,6 +14,7 @@ pub mod fits;
 pub mod flags;
 pub mod layers;
 pub mod migrate;
+pub mod outline;
 pub mod overview;
 pub mod readings;
 pub mod samples;

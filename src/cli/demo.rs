@@ -1,4 +1,5 @@
-//! `porewise demo`: build the invented demo campaign from `demo-db/` and show it.
+//! `porewise demo`: build the invented demo campaign from `demo-db/` and open it in the
+//! terminal UI.
 
 use std::path::{Path, PathBuf};
 
@@ -12,15 +13,15 @@ use crate::fit::FitOptions;
 use crate::import::{ImportKind, ImportOptions, import_files};
 use crate::store::campaign::{DEFAULT_FC_KPA, DEFAULT_PWP_KPA, remove_with_journal};
 use crate::store::fits::Selection;
-use crate::store::{Campaign, migrate, overview};
+use crate::store::{Campaign, migrate};
 
 /// Arguments of `porewise demo`.
 #[derive(Debug, Args)]
 #[command(
-    after_help = "Examples:\n  porewise demo            build demo-db/demo.sqlite if needed, then show it\n  porewise demo --no-ui    only build it"
+    after_help = "Examples:\n  porewise demo            build demo-db/demo.sqlite if needed, then open it\n  porewise demo --no-ui    only build it"
 )]
 pub struct DemoArgs {
-    /// Only build the demo campaign file; do not show it.
+    /// Only build the demo campaign file; do not open the terminal UI.
     #[arg(long)]
     pub no_ui: bool,
     /// Folder holding the demo source files (default: ./demo-db, else the one beside the sources).
@@ -192,7 +193,6 @@ pub fn run(args: &DemoArgs) -> anyhow::Result<Outcome> {
         eprintln!("demo campaign ready: {}", file.display());
         return Ok(Outcome::Success);
     }
-    let campaign = Campaign::open(&file)?;
-    print!("{}", overview(&campaign)?);
+    crate::tui::run(&file)?;
     Ok(Outcome::Success)
 }

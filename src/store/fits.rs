@@ -98,31 +98,38 @@ pub struct SampleInfo {
     pub revision: i64,
 }
 
+/// Columns of a [`SampleInfo`], in the order [`sample_info`] reads them.
+pub(crate) const SAMPLE_INFO_COLUMNS: &str =
+    "m.id, m.code, m.layer_id, s.code, l.top_cm, l.bottom_cm, m.kind, m.readings_rev";
+
+/// A [`SampleInfo`] from the first columns of a row ([`SAMPLE_INFO_COLUMNS`]).
+pub(crate) fn sample_info(r: &Row<'_>) -> rusqlite::Result<SampleInfo> {
+    Ok(SampleInfo {
+        id: r.get(0)?,
+        code: r.get(1)?,
+        layer_id: r.get(2)?,
+        layer: LayerRef {
+            site: r.get(3)?,
+            top_cm: r.get(4)?,
+            bottom_cm: r.get(5)?,
+        },
+        kind: r.get(6)?,
+        revision: r.get(7)?,
+    })
+}
+
 /// The selected samples, ordered by site, depth and code.
 ///
 /// # Errors
 /// An SQLite error.
 pub fn samples(conn: &Connection, selection: &Selection) -> Result<Vec<SampleInfo>> {
-    let mut stmt = conn.prepare_cached(
-        "SELECT m.id, m.code, m.layer_id, s.code, l.top_cm, l.bottom_cm, m.kind, m.readings_rev
+    let mut stmt = conn.prepare_cached(&format!(
+        "SELECT {SAMPLE_INFO_COLUMNS}
          FROM sample m JOIN layer l ON m.layer_id = l.id JOIN site s ON l.site_id = s.id
          WHERE (?1 IS NULL OR s.code = ?1)
-         ORDER BY s.code, l.top_cm, l.bottom_cm, m.code",
-    )?;
-    let rows = stmt.query_map(params![selection.site], |r| {
-        Ok(SampleInfo {
-            id: r.get(0)?,
-            code: r.get(1)?,
-            layer_id: r.get(2)?,
-            layer: LayerRef {
-                site: r.get(3)?,
-                top_cm: r.get(4)?,
-                bottom_cm: r.get(5)?,
-            },
-            kind: r.get(6)?,
-            revision: r.get(7)?,
-        })
-    })?;
+         ORDER BY s.code, l.top_cm, l.bottom_cm, m.code"
+    ))?;
+    let rows = stmt.query_map(params![selection.site], sample_info)?;
     let mut out = Vec::new();
     for row in rows {
         let info = row?;

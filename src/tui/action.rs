@@ -1,0 +1,177 @@
+//! Everything that can happen to the UI ([`Action`]) and everything it asks the runtime to do
+//! ([`Effect`]).
+//!
+//! Keys map to actions through the key table; the runtime turns loads, fits and flag changes
+//! into result actions. [`update`](super::update::update) consumes actions and returns
+//! effects: state changes happen there and nowhere else.
+
+use crate::analysis::FitRunSummary;
+
+use super::app::{DepthData, ReviewItem, SampleDetail, Tree};
+use super::worker::{FitRequest, JobId};
+
+/// Data the runtime loaded from the campaign file.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Loaded {
+    /// The campaign tree (outline, fit standings, flag counts).
+    Tree(Tree),
+    /// One sample's readings, fit and derived values.
+    Sample(Box<SampleDetail>),
+    /// One site's depth view.
+    Depth(Box<DepthData>),
+    /// The review queue, worst first, or why there is none.
+    Review(Result<Vec<ReviewItem>, String>),
+}
+
+/// What can happen: a user intent from the key table, or a result from the runtime.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Action {
+    /// Move up one row.
+    Up,
+    /// Move down one row.
+    Down,
+    /// Move up a page.
+    PageUp,
+    /// Move down a page.
+    PageDown,
+    /// First row.
+    Top,
+    /// Last row.
+    Bottom,
+    /// Collapse, go to the parent, or the previous site (depth view).
+    Left,
+    /// Expand, go to the first child, or the next site (depth view).
+    Right,
+    /// Focus the next pane.
+    NextPane,
+    /// Focus the previous pane.
+    PrevPane,
+    /// Open what is under the cursor.
+    Open,
+    /// Go back (close, clear the filter, leave the screen).
+    Back,
+    /// Show the browse screen.
+    ShowBrowse,
+    /// Show the depth view of the site under the cursor.
+    ShowDepth,
+    /// Show the review queue.
+    ShowReview,
+    /// Show or hide the key help.
+    ToggleHelp,
+    /// Start typing the tree filter.
+    StartFilter,
+    /// Refit the selected sample.
+    RefitSample,
+    /// Refit every sample of the selected site.
+    RefitSite,
+    /// Refit every sample of the campaign.
+    RefitAll,
+    /// Next model for refits (the models in turn, then auto).
+    CycleModel,
+    /// Next suction unit (cm, kPa, pF).
+    CycleUnits,
+    /// Show or hide the 95 % band.
+    ToggleBand,
+    /// Sum the profile's available water 10 cm deeper.
+    DeeperRootZone,
+    /// Sum it 10 cm shallower.
+    ShallowerRootZone,
+    /// Flag the selected reading, or clear its flag (asks for a reason).
+    ToggleFlag,
+    /// Accept the review item under the cursor (exclude the reading).
+    Accept,
+    /// Dismiss it (keep the reading).
+    Dismiss,
+    /// Write the campaign report.
+    Export,
+    /// A typed character.
+    Char(char),
+    /// Delete the last typed character.
+    Backspace,
+    /// Finish typing / answer yes.
+    Submit,
+    /// Abandon typing / answer no.
+    Cancel,
+    /// Quit (asks first while a fit is running).
+    Quit,
+    /// Quit at once (Ctrl-C).
+    ForceQuit,
+    /// The runtime loaded something.
+    Loaded(Loaded),
+    /// A load failed.
+    LoadFailed(String),
+    /// A fit job made progress.
+    FitProgress {
+        /// Which job.
+        job: JobId,
+        /// Samples done.
+        done: usize,
+        /// Samples in the job.
+        total: usize,
+    },
+    /// A fit job ended.
+    FitFinished {
+        /// Which job.
+        job: JobId,
+        /// What it did, or why it could not run.
+        result: Result<FitRunSummary, String>,
+    },
+    /// A flag was changed (the message says what), or could not be.
+    FlagChanged(Result<String, String>),
+    /// The export ended (the message names the file), or could not run.
+    ExportFinished(Result<String, String>),
+    /// Time passed (drives the busy spinner).
+    Tick,
+    /// The terminal changed size (columns, rows).
+    Resize(u16, u16),
+}
+
+/// What [`update`](super::update::update) asks the runtime to do.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Effect {
+    /// Reload the tree.
+    LoadTree,
+    /// Load one sample (database id).
+    LoadSample(i64),
+    /// Load a site's depth view.
+    LoadDepth {
+        /// Site code.
+        site: String,
+        /// Root-zone depth, cm.
+        root_zone_cm: f64,
+    },
+    /// Load the review queue.
+    LoadReview,
+    /// Start a fit job on the worker.
+    StartFit {
+        /// Its id.
+        job: JobId,
+        /// What to fit.
+        request: FitRequest,
+    },
+    /// Flag a reading by hand (excluding it from fits).
+    SetFlag {
+        /// The reading.
+        reading_id: i64,
+        /// Why.
+        reason: String,
+    },
+    /// Clear the live flag of a reading (it is used by fits again).
+    ClearFlag {
+        /// The reading.
+        reading_id: i64,
+        /// The reviewer's note (may be empty).
+        note: String,
+    },
+    /// Decide a suggested flag.
+    DecideFlag {
+        /// The flag.
+        flag_id: i64,
+        /// True to accept (exclude the reading), false to dismiss.
+        accept: bool,
+    },
+    /// Write the campaign report.
+    Export,
+    /// Leave the UI.
+    Quit,
+}

@@ -1,0 +1,389 @@
+//! The only code that touches the terminal, the campaign file and threads.
+//!
+//! A [`Session`] holds the open campaign, the state, the key table and the fit worker. It turns
+//! key events into actions (through the key table), actions into effects (through `update`)
+//! and effects into loads, writes and jobs, whose results come back as actions. [`run`] puts a
+//! session on the terminal: init with a panic hook that restores it, a loop over input,
+//! worker results and a tick, and restore on quit or Ctrl-C.
+
+use std::collections::VecDeque;
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::mpsc::{Receiver, Sender, channel};
+use std::thread::JoinHandle;
+use std::time::Duration;
+
+use anyhow::Context;
+use ratatui::backend::Backend;
+use ratatui::crossterm::event::{self, Event, KeyEvent};
+use ratatui::{DefaultTerminal, Terminal};
+
+use crate::analysis::fit_campaign;
+use crate::fit::FitOptions;
+use crate::model::domain::FlagTarget;
+use crate::store::{Campaign, CampaignSettings, StoreError, flags};
+
+use super::action::{Action, Effect, Loaded};
+use super::app::AppState;
+use super::keymap::{self, KeyTable, Mode};
+use super::theme::Theme;
+use super::update::update;
+use super::view;
+use super::worker::{FitRequest, JobId};
+
+mod load;
+
+/// How a session runs its fits.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Jobs {
+    /// On a worker thread with its own connection; results arrive through a channel.
+    Background,
+    /// At once, on the session's connection (scripted sessions and tests: deterministic).
+    Inline,
+}
+
+/// How to open a session.
+#[derive(Debug, Clone, Copy)]
+pub struct SessionOptions {
+    /// Styles (with or without colour).
+    pub theme: Theme,
+    /// Terminal size (columns, rows) until the terminal says otherwise.
+    pub size: (u16, u16),
+    /// Where fits run.
+    pub jobs: Jobs,
+}
+
+impl SessionOptions {
+    /// Background fits, colour unless `NO_COLOR` says otherwise.
+    pub fn interactive() -> Self {
+        Self {
+            theme: Theme::from_no_color(std::env::var_os("NO_COLOR").as_deref()),
+            size: (80, 24),
+            jobs: Jobs::Background,
+        }
+    }
+
+    /// Inline fits, monochrome, a fixed size: for tests and benchmarks.
+    pub fn scripted(width: u16, height: u16) -> Self {
+        Self {
+            theme: Theme::monochrome(),
+            size: (width, height),
+            jobs: Jobs::Inline,
+        }
+    }
+}
+
+/// The fit worker thread and its channels.
+struct Worker {
+    jobs: Sender<(JobId, FitRequest)>,
+    results: Receiver<Action>,
+    stop: Arc<AtomicBool>,
+    handle: Option<JoinHandle<()>>,
+}
+
+impl Worker {
+    /// Start the thread; it opens its own connection to `path` on the first job.
+    fn spawn(path: PathBuf) -> Worker {
+        let (jobs, job_rx) = channel::<(JobId, FitRequest)>();
+        let (result_tx, results) = channel::<Action>();
+        let stop = Arc::new(AtomicBool::new(false));
+        let stop_flag = Arc::clone(&stop);
+        let handle = std::thread::spawn(move || {
+            let mut campaign: Option<Campaign> = None;
+            for (job, request) in job_rx {
+                if stop_flag.load(Ordering::Relaxed) {
+                    break;
+                }
+                let result = (|| -> Result<_, StoreError> {
+                    if campaign.is_none() {
+                        campaign = Some(Campaign::open(&path)?);
+                    }
+                    let Some(c) = campaign.as_mut() else {
+                        return Err(StoreError::NotFound(path.clone()));
+                    };
+                    let progress = |done: usize, total: usize| {
+                        let _ = result_tx.send(Action::FitProgress { job, done, total });
+                    };
+                    fit_campaign(
+                        c,
+                        &request.scope.selection(),
+                        request.choice,
+                        &FitOptions::new(),
+                        &progress,
+                    )
+                })()
+                .map_err(|e| e.to_string());
+                if result_tx.send(Action::FitFinished { job, result }).is_err() {
+                    break;
+                }
+            }
+        });
+        Worker {
+            jobs,
+            results,
+            stop,
+            handle: Some(handle),
+        }
+    }
+}
+
+impl Drop for Worker {
+    fn drop(&mut self) {
+        // Waiting jobs are not started; a running one is abandoned with the process (its
+        // transaction never commits), so quitting never waits for a long fit.
+        self.stop.store(true, Ordering::Relaxed);
+        drop(self.handle.take());
+    }
+}
+
+/// An open campaign with its UI state.
+pub struct Session {
+    campaign: Campaign,
+    settings: CampaignSettings,
+    worker: Option<Worker>,
+    /// The UI state.
+    pub state: AppState,
+    /// The key table.
+    pub keys: KeyTable,
+}
+
+impl std::fmt::Debug for Session {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Session")
+            .field("state", &self.state)
+            .finish_non_exhaustive()
+    }
+}
+
+impl Session {
+    /// Open a campaign file and load the tree (nothing else: samples load when selected).
+    ///
+    /// # Errors
+    /// The file cannot be opened as a campaign, or the tree cannot be read.
+    pub fn open(path: &Path, options: SessionOptions) -> anyhow::Result<Session> {
+        let campaign =
+            Campaign::open(path).with_context(|| format!("cannot open {}", path.display()))?;
+        let settings = campaign.settings()?;
+        let state = AppState {
+            campaign: settings.name.clone(),
+            file: path.file_name().map_or_else(
+                || path.display().to_string(),
+                |n| n.to_string_lossy().into(),
+            ),
+            fc_kpa: settings.fc_kpa,
+            pwp_kpa: settings.pwp_kpa,
+            theme: options.theme,
+            size: options.size,
+            ..AppState::default()
+        };
+        let worker = match options.jobs {
+            Jobs::Background => Some(Worker::spawn(path.to_path_buf())),
+            Jobs::Inline => None,
+        };
+        let mut session = Session {
+            campaign,
+            settings,
+            worker,
+            state,
+            keys: KeyTable::default(),
+        };
+        session.dispatch(Action::Loaded(Loaded::Tree(
+            load::tree(session.campaign.connection()).context("cannot read the campaign tree")?,
+        )));
+        Ok(session)
+    }
+
+    /// Apply an action and every effect it leads to (loads and writes run here, in order).
+    pub fn dispatch(&mut self, action: Action) {
+        let mut queue = VecDeque::from([action]);
+        while let Some(action) = queue.pop_front() {
+            for effect in update(&mut self.state, action) {
+                if let Some(result) = self.execute(effect) {
+                    queue.push_back(result);
+                }
+            }
+        }
+    }
+
+    /// Handle a key event through the key table.
+    pub fn press(&mut self, key: &KeyEvent) {
+        if let Some(action) = keymap::map(Mode::of(&self.state), key, &self.keys) {
+            self.dispatch(action);
+        }
+    }
+
+    /// Take every result the worker has sent; true when there was one.
+    pub fn poll_worker(&mut self) -> bool {
+        let mut got = Vec::new();
+        if let Some(worker) = &self.worker {
+            while let Ok(action) = worker.results.try_recv() {
+                got.push(action);
+            }
+        }
+        let any = !got.is_empty();
+        for action in got {
+            self.dispatch(action);
+        }
+        any
+    }
+
+    /// Wait up to `timeout` for worker results (tests and benchmarks of background fits).
+    pub fn wait_for_jobs(&mut self, timeout: Duration) -> bool {
+        let deadline = std::time::Instant::now() + timeout;
+        while self.state.jobs.is_busy() {
+            if std::time::Instant::now() > deadline {
+                return false;
+            }
+            if !self.poll_worker() {
+                std::thread::sleep(Duration::from_millis(5));
+            }
+        }
+        true
+    }
+
+    /// Draw the UI on any backend.
+    ///
+    /// # Errors
+    /// The backend's error.
+    pub fn draw<B: Backend>(&self, terminal: &mut Terminal<B>) -> Result<(), B::Error> {
+        terminal.draw(|frame| view::render(&self.state, &self.keys, frame))?;
+        Ok(())
+    }
+
+    fn execute(&mut self, effect: Effect) -> Option<Action> {
+        let conn = self.campaign.connection();
+        let loaded = |r: crate::store::Result<Loaded>| {
+            Some(r.map_or_else(|e| Action::LoadFailed(e.to_string()), Action::Loaded))
+        };
+        match effect {
+            Effect::LoadTree => loaded(load::tree(conn).map(Loaded::Tree)),
+            Effect::LoadSample(id) => {
+                loaded(load::sample(conn, &self.settings, id).map(|d| Loaded::Sample(Box::new(d))))
+            }
+            Effect::LoadDepth { site, root_zone_cm } => loaded(
+                load::depth(conn, &self.settings, &site, root_zone_cm)
+                    .map(|d| Loaded::Depth(Box::new(d))),
+            ),
+            Effect::LoadReview => Some(Action::Loaded(Loaded::Review(
+                load::review(conn).map_err(|e| e.to_string()),
+            ))),
+            Effect::StartFit { job, request } => self.start_fit(job, request),
+            Effect::SetFlag { reading_id, reason } => Some(Action::FlagChanged(
+                self.write(|tx| {
+                    flags::flag_manual(tx, FlagTarget::Reading(reading_id), &reason, None)
+                })
+                .map(|id| {
+                    format!(
+                        "reading {reading_id} flagged (flag {id}); it is left out of fits: f refits"
+                    )
+                }),
+            )),
+            Effect::ClearFlag { reading_id, note } => Some(Action::FlagChanged(
+                self.write(|tx| {
+                    let note = (!note.is_empty()).then_some(note.as_str());
+                    flags::clear_target(tx, FlagTarget::Reading(reading_id), note)
+                })
+                .map(|_| {
+                    format!("flag on reading {reading_id} cleared; fits use it again: f refits")
+                }),
+            )),
+            Effect::DecideFlag { flag_id, accept } => Some(Action::FlagChanged(
+                self.write(|tx| {
+                    if accept {
+                        flags::accept(tx, flag_id, None)
+                    } else {
+                        flags::dismiss(tx, flag_id, None)
+                    }
+                })
+                .map(|()| {
+                    if accept {
+                        format!("flag {flag_id} accepted: the reading is left out of fits")
+                    } else {
+                        format!("flag {flag_id} dismissed: the reading stays in")
+                    }
+                }),
+            )),
+            Effect::Export => Some(Action::ExportFinished(Err(
+                "export not available yet".to_string()
+            ))),
+            Effect::Quit => None,
+        }
+    }
+
+    /// Run `f` in one write transaction; committed when it succeeds.
+    fn write<T>(
+        &mut self,
+        f: impl FnOnce(&rusqlite::Transaction<'_>) -> crate::store::Result<T>,
+    ) -> Result<T, String> {
+        let tx = self.campaign.transaction().map_err(|e| e.to_string())?;
+        let value = f(&tx).map_err(|e| e.to_string())?;
+        tx.commit().map_err(|e| e.to_string())?;
+        Ok(value)
+    }
+
+    fn start_fit(&mut self, job: JobId, request: FitRequest) -> Option<Action> {
+        if let Some(worker) = &self.worker {
+            if worker.jobs.send((job, request)).is_err() {
+                return Some(Action::FitFinished {
+                    job,
+                    result: Err("the fit worker has stopped".to_string()),
+                });
+            }
+            None
+        } else {
+            let result = fit_campaign(
+                &mut self.campaign,
+                &request.scope.selection(),
+                request.choice,
+                &FitOptions::new(),
+                &|_, _| {},
+            )
+            .map_err(|e| e.to_string());
+            Some(Action::FitFinished { job, result })
+        }
+    }
+}
+
+/// How often the loop wakes without input (spinner, worker results), ms.
+const TICK_MS: u64 = 120;
+
+fn event_loop(session: &mut Session, terminal: &mut DefaultTerminal) -> anyhow::Result<()> {
+    let size = terminal.size()?;
+    session.dispatch(Action::Resize(size.width, size.height));
+    loop {
+        session.draw(terminal)?;
+        if session.state.quit {
+            return Ok(());
+        }
+        if event::poll(Duration::from_millis(TICK_MS))? {
+            match event::read()? {
+                Event::Key(key) => session.press(&key),
+                Event::Resize(w, h) => session.dispatch(Action::Resize(w, h)),
+                _ => {}
+            }
+        } else if session.state.jobs.is_busy() {
+            session.dispatch(Action::Tick);
+        }
+        session.poll_worker();
+    }
+}
+
+/// Open `path` in the terminal UI until the user quits.
+///
+/// The campaign is opened before the terminal is taken over, so a bad file is an ordinary
+/// error message. `ratatui::init` installs a panic hook that restores the terminal; it is
+/// restored on quit and on Ctrl-C (a key in raw mode) as well.
+///
+/// # Errors
+/// The file cannot be opened, or the terminal fails.
+pub fn run(path: &Path) -> anyhow::Result<()> {
+    let mut session = Session::open(path, SessionOptions::interactive())?;
+    let mut terminal = ratatui::try_init().context(
+        "cannot take over the terminal (is this a terminal?); `porewise list` and \
+         `porewise demo --no-ui` work without one",
+    )?;
+    let result = event_loop(&mut session, &mut terminal);
+    ratatui::restore();
+    result
+}

@@ -1,0 +1,265 @@
+//! The depth view of one site: every layer's curves overlaid (each layer marked along its
+//! curves with its digit, so the legend reads without colour), the parameters by depth, and
+//! the profile's available water in mm down to the root-zone depth.
+
+use ratatui::buffer::Buffer;
+use ratatui::layout::{Constraint, Layout, Rect};
+use ratatui::text::{Line, Span};
+use ratatui::widgets::{Paragraph, Row, Widget};
+
+use super::super::app::{AppState, DepthData, model_tag};
+use super::plot::{Axes, draw_polyline, render_canvas};
+use super::{cursor_row, framed, kpa_text, num, opt_num, render_table, scroll_offset};
+use crate::model::units::CM_PER_KPA;
+
+/// The depth screen.
+pub struct DepthScreen<'a> {
+    /// The state.
+    pub state: &'a AppState,
+}
+
+impl Widget for DepthScreen<'_> {
+    fn render(self, area: Rect, buf: &mut Buffer) {
+        let state = self.state;
+        let theme = state.theme;
+        let Some(data) = state.depth.data.as_ref() else {
+            let inner = framed("Depth view", true, theme, area, buf);
+            let text = match &state.depth.site {
+                Some(site) => format!("loading site {site}…"),
+                None => "No site chosen: go back (Esc) and pick one.".to_string(),
+            };
+            Paragraph::new(text).render(inner, buf);
+            return;
+        };
+        let top_height = (area.height * 11 / 20).max(9);
+        let [top, bottom] =
+            Layout::vertical([Constraint::Length(top_height), Constraint::Fill(1)]).areas(area);
+        let legend_width = (top.width * 2 / 5).clamp(30, 46);
+        let [plot_area, legend_area] =
+            Layout::horizontal([Constraint::Fill(1), Constraint::Length(legend_width)]).areas(top);
+        self.render_plot(data, plot_area, buf);
+        self.render_profile(data, legend_area, buf);
+        self.render_table(data, bottom, buf);
+    }
+}
+
+impl DepthScreen<'_> {
+    fn render_plot(&self, data: &DepthData, area: Rect, buf: &mut Buffer) {
+        let state = self.state;
+        let theme = state.theme;
+        let title = format!(
+            "Depth · {}{} · θ vs suction ({}) · ←→ site",
+            data.site,
+            data.name
+                .as_ref()
+                .map(|n| format!(" {n}"))
+                .unwrap_or_default(),
+            state.units.symbol()
+        );
+        let inner = framed(title, true, theme, area, buf);
+        let theta_max = data
+            .layers
+            .iter()
+            .flat_map(|l| l.curves.iter().flat_map(|(_, c)| c))
+            .map(|p| p.1)
+            .fold(0.0_f64, f64::max);
+        let axes = Axes::new(theta_max, super::super::app::PLOT_X_MAX, state.units);
+        axes.render_axes(inner, buf, theme);
+        let plot = axes.plot_area(inner);
+        let marker_style = ratatui::style::Style::new().fg(theme.marker_line());
+        axes.render_marker(
+            plot,
+            buf,
+            (data.fc_kpa * CM_PER_KPA).log10(),
+            "FC",
+            marker_style,
+        );
+        axes.render_marker(
+            plot,
+            buf,
+            (data.pwp_kpa * CM_PER_KPA).log10(),
+            "PWP",
+            marker_style,
+        );
+        let canvas = axes.canvas(|ctx| {
+            for (i, layer) in data.layers.iter().enumerate() {
+                for (_, curve) in &layer.curves {
+                    draw_polyline(ctx, curve, theme.layer(i));
+                }
+            }
+        });
+        render_canvas(&canvas, plot, buf);
+        // Each layer's digit along its curves, staggered so marks of neighbours do not collide.
+        let selected = data.rows.get(state.depth.cursor);
+        let n = data.layers.len().max(1);
+        for (li, layer) in data.layers.iter().enumerate() {
+            let style = ratatui::style::Style::new()
+                .fg(theme.layer(li))
+                .add_modifier(ratatui::style::Modifier::BOLD);
+            for (sample_id, curve) in &layer.curves {
+                let is_selected = selected.is_some_and(|r| r.sample_id == *sample_id);
+                for k in 0..3 {
+                    let frac = (f64::from(k) + (li as f64 + 0.5) / n as f64) / 3.0;
+                    let idx = ((curve.len() - 1) as f64 * frac).round() as usize;
+                    let Some(&(x, y)) = curve.get(idx) else {
+                        continue;
+                    };
+                    if let Some((cx, cy)) = axes.cell(plot, x, y) {
+                        let mark = layer.mark.to_string();
+                        let style = if is_selected { theme.cursor() } else { style };
+                        buf.set_string(cx, cy, mark, style);
+                    }
+                }
+            }
+        }
+    }
+
+    fn render_profile(&self, data: &DepthData, area: Rect, buf: &mut Buffer) {
+        let state = self.state;
+        let theme = state.theme;
+        let inner = framed(
+            format!("Profile water to {} cm · +/-", data.root_zone_cm),
+            false,
+            theme,
+            area,
+            buf,
+        );
+        let mut lines = vec![Line::from(Span::styled(
+            "  layer cm       AW     mm",
+            theme.heading(),
+        ))];
+        for (i, l) in data.layers.iter().enumerate() {
+            let stale = if l.stale_cores > 0 {
+                format!(" ~{}", l.stale_cores)
+            } else {
+                String::new()
+            };
+            lines.push(Line::from(vec![
+                Span::styled(
+                    format!("{} ", l.mark),
+                    ratatui::style::Style::new()
+                        .fg(theme.layer(i))
+                        .add_modifier(ratatui::style::Modifier::BOLD),
+                ),
+                Span::raw(format!(
+                    "{:<13}{:>6} {:>6}{stale}",
+                    format!(
+                        "{}-{} {}",
+                        l.top_cm,
+                        l.bottom_cm,
+                        l.horizon.as_deref().unwrap_or("")
+                    ),
+                    l.available_water
+                        .map_or_else(|| "–".to_string(), |v| format!("{v:.3}")),
+                    l.water_mm
+                        .map_or_else(|| "–".to_string(), |v| format!("{v:.1}")),
+                )),
+            ]));
+        }
+        lines.push(Line::from(Span::styled(
+            format!("total {:.1} mm to {} cm", data.total_mm, data.root_zone_cm),
+            theme.heading(),
+        )));
+        if data.uncovered_cm > 0.0 {
+            lines.push(Line::from(Span::styled(
+                format!(
+                    "{} cm of it without a fitted layer: the total is a lower bound",
+                    num(data.uncovered_cm, 3)
+                ),
+                theme.tone(super::super::app::Tone::Warning),
+            )));
+        }
+        lines.push(Line::from(Span::styled(
+            format!(
+                "AW = θ(FC) − θ(PWP), m3/m3, mean of the lab cores; FC {}, PWP {}",
+                kpa_text(data.fc_kpa, state.units),
+                kpa_text(data.pwp_kpa, state.units)
+            ),
+            theme.dim(),
+        )));
+        Paragraph::new(lines)
+            .wrap(ratatui::widgets::Wrap { trim: false })
+            .render(inner, buf);
+    }
+
+    fn render_table(&self, data: &DepthData, area: Rect, buf: &mut Buffer) {
+        let state = self.state;
+        let theme = state.theme;
+        let inner = framed("Parameters by depth · Enter opens", false, theme, area, buf);
+        if inner.height < 2 {
+            return;
+        }
+        let header = Row::new(vec![
+            " ".to_string(),
+            "depth".to_string(),
+            "sample".to_string(),
+            "fit".to_string(),
+            "θr".to_string(),
+            "θs".to_string(),
+            "AW".to_string(),
+            format!("h_ae {}", state.units.symbol()),
+            "RMSE".to_string(),
+            "shape".to_string(),
+        ])
+        .style(theme.heading());
+        let height = usize::from(inner.height - 1);
+        let offset = scroll_offset(state.depth.cursor, data.rows.len(), height);
+        let rows =
+            data.rows
+                .iter()
+                .enumerate()
+                .skip(offset)
+                .take(height)
+                .map(|(i, r)| {
+                    let layer = &data.layers[r.layer];
+                    let shape = r
+                        .shape
+                        .iter()
+                        .map(|(n, v)| format!("{n}={}", num(*v, 3)))
+                        .collect::<Vec<_>>()
+                        .join(" ");
+                    let row = Row::new(vec![
+                        Line::from(Span::styled(
+                            layer.mark.to_string(),
+                            ratatui::style::Style::new().fg(theme.layer(r.layer)),
+                        )),
+                        Line::from(format!("{}-{}", layer.top_cm, layer.bottom_cm)),
+                        Line::from(r.sample.clone()),
+                        Line::from(Span::styled(
+                            format!(
+                                "{} {}",
+                                r.tag.glyph(),
+                                r.model.as_deref().map_or("", model_tag)
+                            ),
+                            theme.fit_tag(r.tag),
+                        )),
+                        Line::from(opt_num(r.theta_r, 3)),
+                        Line::from(opt_num(r.theta_s, 3)),
+                        Line::from(
+                            r.available_water
+                                .map_or_else(|| "–".into(), |v| format!("{v:.3}")),
+                        ),
+                        Line::from(r.air_entry_cm.map_or_else(
+                            || "–".to_string(),
+                            |h| super::suction_text(h, state.units),
+                        )),
+                        Line::from(opt_num(r.rmse, 2)),
+                        Line::from(shape),
+                    ]);
+                    cursor_row(row, i == state.depth.cursor, true, theme)
+                });
+        let widths = [
+            Constraint::Length(1),
+            Constraint::Length(7),
+            Constraint::Length(12),
+            Constraint::Length(5),
+            Constraint::Length(5),
+            Constraint::Length(5),
+            Constraint::Length(5),
+            Constraint::Length(7),
+            Constraint::Length(6),
+            Constraint::Fill(1),
+        ];
+        render_table(header, rows, &widths, inner, buf);
+    }
+}
