@@ -427,8 +427,7 @@ pub fn generate() -> Vec<DemoFile> {
                 let n = 1.0 + (tex.n - 1.0) * (0.08 * unit.sample(&mut rng)).exp();
                 let noise = rng.random_range(0.004..0.008);
                 // The core's own porosity varies about the layer's, but never below its theta_s.
-                let core_porosity =
-                    (porosity + 0.008 * unit.sample(&mut rng)).max(theta_s + 0.015);
+                let core_porosity = (porosity + 0.008 * unit.sample(&mut rng)).max(theta_s + 0.015);
                 let core_density = PARTICLE_DENSITY_G_CM3 * (1.0 - core_porosity);
                 let count = rng.random_range(8..=12);
                 let day = 3 + depth_index * 2 + usize::from(core == "b");

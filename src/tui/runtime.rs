@@ -8,6 +8,8 @@
 
 use std::collections::VecDeque;
 use std::path::{Path, PathBuf};
+
+use crate::report::export::{ExportOptions, export_campaign};
 use std::sync::Arc;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{Receiver, Sender, channel};
@@ -304,11 +306,30 @@ impl Session {
                     }
                 }),
             )),
-            Effect::Export => Some(Action::ExportFinished(Err(
-                "export not available yet".to_string()
-            ))),
+            Effect::Export => Some(Action::ExportFinished(self.export())),
             Effect::Quit => None,
         }
+    }
+
+    /// Export the campaign summary into `<file stem>-export/` beside the campaign file, with
+    /// the depth view's root zone.
+    fn export(&self) -> Result<String, String> {
+        let path = self
+            .campaign
+            .path()
+            .ok_or("an in-memory campaign has no folder to export into")?;
+        let stem = path
+            .file_stem()
+            .map_or_else(|| "campaign".into(), |s| s.to_string_lossy().into_owned());
+        let dir = path.with_file_name(format!("{stem}-export"));
+        let options = ExportOptions::new(&dir).with_root_zone_cm(self.state.depth.root_zone_cm);
+        let summary = export_campaign(self.campaign.connection(), &options, &|_, _| {})
+            .map_err(|e| format!("export failed: {e}"))?;
+        Ok(format!(
+            "exported {} samples: {}",
+            summary.samples,
+            dir.join("report.html").display()
+        ))
     }
 
     /// Run `f` in one write transaction; committed when it succeeds.

@@ -293,6 +293,20 @@ fn on_filter_input(state: &mut AppState, mut text: String, action: &Action) -> V
                 .filter(|r| matches!(r, TreeRow::Sample(..)))
                 .count();
             if !state.tree.filter.is_empty() {
+                // Land on the first match, so Enter opens it.
+                let on_sample = matches!(
+                    state.tree.rows.get(state.tree.cursor),
+                    Some(TreeRow::Sample(..))
+                );
+                if !on_sample
+                    && let Some(i) = state
+                        .tree
+                        .rows
+                        .iter()
+                        .position(|r| matches!(r, TreeRow::Sample(..)))
+                {
+                    state.tree.cursor = i;
+                }
                 state.say(
                     Tone::Info,
                     format!(
@@ -1095,6 +1109,13 @@ mod tests {
         update(&mut state, Action::Submit);
         assert_eq!(state.input, Input::None);
         assert_eq!(state.tree.filter, "bb-1");
+        assert!(
+            matches!(
+                state.tree.rows.get(state.tree.cursor),
+                Some(TreeRow::Sample(..))
+            ),
+            "the cursor lands on the first match"
+        );
         let effects = update(&mut state, Action::Bottom);
         assert_eq!(effects, vec![Effect::LoadSample(8)]);
         update(&mut state, Action::Back);
