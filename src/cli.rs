@@ -13,6 +13,8 @@ pub mod fit;
 pub mod import;
 pub mod init;
 pub mod list;
+pub mod logger;
+pub mod pair;
 
 /// porewise: soil-water retention campaigns in one SQLite file.
 #[derive(Debug, Parser)]
@@ -30,11 +32,13 @@ pub enum Command {
     Demo(demo::DemoArgs),
     /// Create an empty campaign file.
     Init(init::InitArgs),
-    /// Import sites, layers or lab retention readings from CSV files.
+    /// Import sites, layers, lab retention readings or field logger records from CSV files.
     #[command(subcommand)]
     Import(import::ImportCommand),
     /// List what a campaign file holds.
     List(list::ListArgs),
+    /// Pair tensiometer and water-content records into field retention readings.
+    Pair(pair::PairArgs),
     /// Fit retention models to samples (from a plain CSV file with --input).
     Fit(fit::FitArgs),
     /// Tabulate a retention curve for given parameters.
@@ -51,6 +55,7 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Init(args) => init::run(&args),
         Command::Import(cmd) => import::run(&cmd),
         Command::List(args) => list::run(&args),
+        Command::Pair(args) => pair::run(&args),
         Command::Fit(args) => fit::run(&args),
         Command::Curve(args) => curve::run(&args),
     }

@@ -144,6 +144,11 @@ impl<'a> Cells<'a> {
     }
 
     fn raw(&self, col: usize) -> &str {
+        self.cell(col)
+    }
+
+    /// The trimmed text of column `col`, borrowed from the record (no copy).
+    pub(crate) fn cell(&self, col: usize) -> &'a str {
         self.record.get(col).map_or("", str::trim)
     }
 

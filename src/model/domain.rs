@@ -290,6 +290,16 @@ text_enum! {
     }
 }
 
+text_enum! {
+    /// What a field logger sensor measures.
+    SensorKind, "a sensor" {
+        /// Matric suction: a tensiometer (stored as suction head h, cm).
+        Tensiometer => "tensiometer",
+        /// Volumetric water content: a dielectric or TDR probe (stored as theta, m3/m3).
+        WaterContent => "water_content",
+    }
+}
+
 /// Where a stored value came from: its import batch and the physical line in that file.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 pub struct Provenance {
