@@ -373,6 +373,8 @@ fn read_row(
 /// One sensor seen by the command.
 #[derive(Debug)]
 struct SensorState {
+    site_id: i64,
+    sensor_id: String,
     depth_cm: f64,
     kind: SensorKind,
     /// Where the command first saw it.
@@ -387,11 +389,11 @@ struct SensorState {
     inline_marks: [u64; 4],
 }
 
-/// A site seen by the command and its sensors.
+/// A site seen by the command, and its sensors (indexes into `Run::sensors`).
 #[derive(Debug)]
 struct SiteEntry {
     id: i64,
-    sensors: HashMap<String, SensorState>,
+    sensors: HashMap<String, usize>,
 }
 
 /// The state of one import command.
@@ -403,6 +405,7 @@ struct Run<'c> {
     files: Vec<String>,
     batch_ids: Vec<i64>,
     sites: HashMap<String, SiteEntry>,
+    sensors: Vec<SensorState>,
     next_pseudo_site: i64,
     marks: Vec<(i64, Mark)>,
     summary: LoggerSummary,
@@ -511,6 +514,7 @@ pub fn import_logger_files(
         files: Vec::with_capacity(files.len()),
         batch_ids: Vec::with_capacity(files.len()),
         sites: HashMap::new(),
+        sensors: Vec::new(),
         next_pseudo_site: -1,
         marks: Vec::new(),
         summary: LoggerSummary {
@@ -554,7 +558,7 @@ pub fn import_logger_files(
         return Err(ImportError::Invalid(diags));
     }
     run.check_again()?;
-    run.summary.sensors = run.sites.values().map(|s| s.sensors.len() as u64).sum();
+    run.summary.sensors = run.sensors.len() as u64;
     let summary = std::mem::take(&mut run.summary);
     drop(run);
     if !options.dry_run {
@@ -693,6 +697,85 @@ impl Run<'_> {
         Ok(id)
     }
 
+    /// The sensor of a row: its index in `self.sensors`, noted on first sight; `None` (a
+    /// problem reported) when the row gives the sensor another depth or kind than the
+    /// command or the campaign knows.
+    fn sensor(
+        &mut self,
+        file: usize,
+        row: &Row<'_>,
+        columns: &Columns,
+        header: &super::table::Header,
+        diags: &mut Diagnostics,
+    ) -> Result<Option<usize>, StoreError> {
+        if let Some(&i) = self
+            .sites
+            .get(row.site)
+            .and_then(|s| s.sensors.get(row.sensor_id))
+        {
+            let state = &self.sensors[i];
+            let Some(col) = conflict(row, state.depth_cm, state.kind) else {
+                return Ok(Some(i));
+            };
+            let message = conflict_message(
+                row,
+                col,
+                state.depth_cm,
+                state.kind,
+                &self.place(state.first),
+            );
+            diags.push(
+                &self.files[file],
+                row.line,
+                header.name(pick(columns, col)),
+                message,
+            );
+            return Ok(None);
+        }
+        let site_id = self.site_id(row.site, self.batch_ids[file])?;
+        let stored = if site_id > 0 {
+            records::stored_sensor(self.conn, site_id, row.sensor_id)?
+        } else {
+            None
+        };
+        if let Some(s) = &stored
+            && let Some(col) = conflict(row, s.depth_cm, s.sensor)
+        {
+            let from = match (&s.file_name, s.line) {
+                (Some(f), Some(l)) => format!("the campaign (from {f}:{l})"),
+                _ => "the campaign".to_string(),
+            };
+            let message = conflict_message(row, col, s.depth_cm, s.sensor, &from);
+            diags.push(
+                &self.files[file],
+                row.line,
+                header.name(pick(columns, col)),
+                message,
+            );
+            return Ok(None);
+        }
+        let index = self.sensors.len();
+        self.sensors.push(SensorState {
+            site_id,
+            sensor_id: row.sensor_id.to_string(),
+            depth_cm: row.depth_cm,
+            kind: row.kind,
+            first: Origin {
+                file,
+                line: row.line,
+            },
+            last_time: i64::MIN,
+            // A sensor with stored records is checked over its whole series at the end.
+            inline: stored.is_none(),
+            checker: SensorChecker::new(row.kind, self.options.quality),
+            inline_marks: [0; 4],
+        });
+        if let Some(entry) = self.sites.get_mut(row.site) {
+            entry.sensors.insert(row.sensor_id.to_string(), index);
+        }
+        Ok(Some(index))
+    }
+
     /// Check a row's sensor against what the command and the campaign know of it, then store
     /// the row and run the quality checks.
     fn add(
@@ -704,70 +787,18 @@ impl Run<'_> {
         header: &super::table::Header,
         diags: &mut Diagnostics,
     ) -> Result<(), StoreError> {
-        let name = self.files[file].clone();
-        let batch_id = self.batch_ids[file];
-        let site_id = self.site_id(row.site, batch_id)?;
-        let known = self
-            .sites
-            .get(row.site)
-            .is_some_and(|s| s.sensors.contains_key(row.sensor_id));
-        if known {
-            let state = &self.sites[row.site].sensors[row.sensor_id];
-            let place = self.place(state.first);
-            if let Some((col, message)) =
-                conflict(row, state.depth_cm, state.kind, || place.clone())
-            {
-                diags.push(&name, row.line, header.name(pick(columns, col)), message);
-                return Ok(());
-            }
-        } else {
-            let stored = if site_id > 0 {
-                records::stored_sensor(self.conn, site_id, row.sensor_id)?
-            } else {
-                None
-            };
-            if let Some(s) = &stored {
-                let from = match (&s.file_name, s.line) {
-                    (Some(f), Some(l)) => format!(" (from {f}:{l})"),
-                    _ => String::new(),
-                };
-                if let Some((col, message)) =
-                    conflict(row, s.depth_cm, s.sensor, || format!("the campaign{from}"))
-                {
-                    diags.push(&name, row.line, header.name(pick(columns, col)), message);
-                    return Ok(());
-                }
-            }
-            let entry = self
-                .sites
-                .get_mut(row.site)
-                .ok_or_else(|| StoreError::Corrupt(format!("site {} not noted", row.site)))?;
-            entry.sensors.insert(
-                row.sensor_id.to_string(),
-                SensorState {
-                    depth_cm: row.depth_cm,
-                    kind: row.kind,
-                    first: Origin {
-                        file,
-                        line: row.line,
-                    },
-                    last_time: i64::MIN,
-                    // A sensor with stored records is checked over its whole series at the end.
-                    inline: stored.is_none(),
-                    checker: SensorChecker::new(row.kind, self.options.quality),
-                    inline_marks: [0; 4],
-                },
-            );
-        }
+        let Some(sensor) = self.sensor(file, row, columns, header, diags)? else {
+            return Ok(());
+        };
         let time = std::str::from_utf8(utc).unwrap_or_default();
         let added = self.sink.add(&NewRecord {
-            site_id,
+            site_id: self.sensors[sensor].site_id,
             depth_cm: row.depth_cm,
             sensor: row.kind,
             sensor_id: row.sensor_id,
             time,
             value: row.value,
-            batch_id,
+            batch_id: self.batch_ids[file],
             line: row.line,
         })?;
         let handle = match added {
@@ -779,37 +810,12 @@ impl Run<'_> {
                         self.summary.duplicates_differing += 1;
                     }
                 } else {
-                    let at = match (existing.file_name.as_deref(), existing.line) {
-                        (Some(f), Some(l)) => format!("{f}:{l}"),
-                        (None, Some(l)) => {
-                            let file = existing
-                                .batch_id
-                                .and_then(|b| self.batch_ids.iter().position(|&x| x == b));
-                            self.place(Origin {
-                                file: file.unwrap_or(usize::MAX),
-                                line: l,
-                            })
-                        }
-                        _ => "?".to_string(),
-                    };
-                    let ours = existing
-                        .batch_id
-                        .is_some_and(|b| self.batch_ids.contains(&b));
-                    let first = if ours {
-                        format!("(first at {at})")
-                    } else {
-                        format!("which the campaign already holds (from {at})")
-                    };
+                    let message = self.duplicate_message(row, time, &existing);
                     diags.push(
-                        &name,
+                        &self.files[file],
                         row.line,
                         header.name(columns.time),
-                        format!(
-                            "found a second record of sensor {:?} at site {:?} for {time} \
-                             {first}, expected one record per sensor and time \
-                             (--skip-duplicates skips repeats)",
-                            row.sensor_id, row.site
-                        ),
+                        message,
                     );
                 }
                 return Ok(());
@@ -820,19 +826,37 @@ impl Run<'_> {
             // The command will write nothing; checking quality is wasted work now.
             return Ok(());
         }
-        self.check(row, site_id, handle)
+        self.check(sensor, row, handle)
+    }
+
+    /// The message for a second record of a sensor at one time.
+    fn duplicate_message(&self, row: &Row<'_>, time: &str, existing: &records::Existing) -> String {
+        let ours = existing
+            .batch_id
+            .and_then(|b| self.batch_ids.iter().position(|&x| x == b));
+        let at = match (existing.file_name.as_deref(), existing.line, ours) {
+            (Some(f), Some(l), _) => format!("{f}:{l}"),
+            (None, Some(l), Some(file)) => self.place(Origin { file, line: l }),
+            _ => "?".to_string(),
+        };
+        let first = if ours.is_some() {
+            format!("(first at {at})")
+        } else {
+            format!("which the campaign already holds (from {at})")
+        };
+        format!(
+            "found a second record of sensor {:?} at site {:?} for {time} {first}, expected one \
+             record per sensor and time (--skip-duplicates skips repeats)",
+            row.sensor_id, row.site
+        )
     }
 
     /// Run the quality checks on a stored record and suggest the flags they raise.
-    fn check(&mut self, row: &Row<'_>, site_id: i64, handle: i64) -> Result<(), StoreError> {
+    fn check(&mut self, sensor: usize, row: &Row<'_>, handle: i64) -> Result<(), StoreError> {
         let first_batch = self.batch_ids[0];
         let mut marks = std::mem::take(&mut self.marks);
         marks.clear();
-        let state = self
-            .sites
-            .get_mut(row.site)
-            .and_then(|s| s.sensors.get_mut(row.sensor_id))
-            .ok_or_else(|| StoreError::Corrupt(format!("sensor {} not noted", row.sensor_id)))?;
+        let state = &mut self.sensors[sensor];
         state
             .checker
             .push_point(handle, row.value, row.written_negative, &mut marks);
@@ -854,8 +878,8 @@ impl Run<'_> {
                 if !self.options.dry_run {
                     records::remove_new_flags(
                         self.conn,
-                        site_id,
-                        row.sensor_id,
+                        state.site_id,
+                        &state.sensor_id,
                         first_batch,
                         &[STUCK_PREFIX, SPIKE_PREFIX],
                     )?;
@@ -879,23 +903,14 @@ impl Run<'_> {
     /// records or whose rows came out of time order, flagging only this command's records.
     fn check_again(&mut self) -> Result<(), StoreError> {
         let first_batch = self.batch_ids.first().copied().unwrap_or(0);
-        let mut again: Vec<(i64, String, SensorKind)> = Vec::new();
-        for site in self.sites.values() {
-            for (id, s) in &site.sensors {
-                if !s.inline {
-                    again.push((site.id, id.clone(), s.kind));
-                }
-            }
-        }
-        again.sort_by(|a, b| (a.0, &a.1).cmp(&(b.0, &b.1)));
         let quality = self.options.quality;
-        for (site_id, sensor_id, kind) in again {
-            let mut checker = SensorChecker::new(kind, quality);
+        for state in self.sensors.iter().filter(|s| !s.inline) {
+            let mut checker = SensorChecker::new(state.kind, quality);
             let mut marks: Vec<((i64, bool), Mark)> = Vec::new();
             let mut found: Vec<(i64, Mark)> = Vec::new();
             self.sink.series(
-                site_id,
-                &sensor_id,
+                state.site_id,
+                &state.sensor_id,
                 first_batch,
                 |handle, time, value, new| {
                     checker.push_ordered((handle, new), time, value, &mut marks);
@@ -932,36 +947,38 @@ fn pick(c: &Columns, col: ConflictColumn) -> usize {
     }
 }
 
-/// A row whose sensor has another depth or kind than `depth_cm` and `kind`, as `where_`
-/// (`FILE:LINE`, or the campaign) has it: the column and the message.
-fn conflict(
+/// Which column (if any) of a row gives its sensor another kind or depth than `kind` and
+/// `depth_cm`.
+fn conflict(row: &Row<'_>, depth_cm: f64, kind: SensorKind) -> Option<ConflictColumn> {
+    if kind != row.kind {
+        Some(ConflictColumn::Sensor)
+    } else if (depth_cm - row.depth_cm).abs() > 1e-9 {
+        Some(ConflictColumn::Depth)
+    } else {
+        None
+    }
+}
+
+/// The message for a sensor conflict, `where_` (`FILE:LINE`, or the campaign) having the
+/// sensor at `depth_cm` as a `kind`.
+fn conflict_message(
     row: &Row<'_>,
+    col: ConflictColumn,
     depth_cm: f64,
     kind: SensorKind,
-    where_: impl Fn() -> String,
-) -> Option<(ConflictColumn, String)> {
+    where_: &str,
+) -> String {
     let who = format!("sensor {:?} of site {:?}", row.sensor_id, row.site);
-    if kind != row.kind {
-        return Some((
-            ConflictColumn::Sensor,
-            format!(
-                "found {who} as {}, but {} has it as {kind}; expected one kind per sensor",
-                row.kind,
-                where_()
-            ),
-        ));
+    let cm = |v: f64| significant(v, 6).unwrap_or_default();
+    match col {
+        ConflictColumn::Sensor => format!(
+            "found {who} as {}, but {where_} has it as {kind}; expected one kind per sensor",
+            row.kind
+        ),
+        ConflictColumn::Depth => format!(
+            "found {who} at {} cm, but {where_} has it at {} cm; expected one depth per sensor",
+            cm(row.depth_cm),
+            cm(depth_cm)
+        ),
     }
-    if (depth_cm - row.depth_cm).abs() > 1e-9 {
-        let cm = |v: f64| significant(v, 6).unwrap_or_default();
-        return Some((
-            ConflictColumn::Depth,
-            format!(
-                "found {who} at {} cm, but {} has it at {} cm; expected one depth per sensor",
-                cm(row.depth_cm),
-                where_(),
-                cm(depth_cm)
-            ),
-        ));
-    }
-    None
 }
