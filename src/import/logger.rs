@@ -211,6 +211,8 @@ struct Row<'r> {
     depth_cm: f64,
     kind: SensorKind,
     sensor_id: &'r str,
+    /// The time as written.
+    time_text: &'r str,
     time: i64,
     value: f64,
     written_negative: bool,
@@ -302,12 +304,11 @@ fn read_row(
         (SensorKind::Tensiometer, RowUnit::Suction(u)) => {
             let h = u.to_cm(raw.abs());
             if h > MAX_SUCTION_CM {
-                let found = cells.found(c.value);
+                let found = format!("{} {unit_text}", cells.cell(c.value));
                 cells.fail(
                     c.value,
                     format!(
-                        "found {found} {unit_text}, expected a suction of at most 1e7 cm \
-                         (pF 7, oven dry)"
+                        "found {found:?}, expected a suction of at most 1e7 cm (pF 7, oven dry)"
                     ),
                 );
                 return None;
@@ -362,6 +363,7 @@ fn read_row(
             depth_cm,
             kind,
             sensor_id: "",
+            time_text: "",
             time,
             value,
             written_negative: raw < 0.0,
@@ -633,6 +635,7 @@ impl Run<'_> {
                 let row = Row {
                     site: text(columns.site),
                     sensor_id: text(columns.sensor_id),
+                    time_text: text(columns.time),
                     ..row
                 };
                 self.add(index, &row, &utc, &columns, &header, diags)?;
@@ -840,13 +843,18 @@ impl Run<'_> {
             _ => "?".to_string(),
         };
         let first = if ours.is_some() {
-            format!("(first at {at})")
+            format!("first at {at}")
         } else {
             format!("which the campaign already holds (from {at})")
         };
+        let written = if row.time_text == time {
+            String::new()
+        } else {
+            format!(" ({} as written)", row.time_text)
+        };
         format!(
-            "found a second record of sensor {:?} at site {:?} for {time} {first}, expected one \
-             record per sensor and time (--skip-duplicates skips repeats)",
+            "found a second record of sensor {:?} at site {:?} for {time}{written}, {first}; \
+             expected one record per sensor and time (--skip-duplicates skips repeats)",
             row.sensor_id, row.site
         )
     }
