@@ -120,7 +120,10 @@ fn a_file_cut_off_mid_line_is_refused_whole() {
 #[test]
 fn a_good_file_is_stored_in_canonical_units_and_utc_with_flags() {
     let s = Scratch::new();
-    let out = stdout(&s.import("logger", &["valid/logger_station.csv"], &[]).success());
+    let out = stdout(
+        &s.import("logger", &["valid/logger_station.csv"], &[])
+            .success(),
+    );
     assert_eq!(
         out.trim(),
         "added 32 logger records (16 tensiometer, 16 water content) of 4 sensors from 1 file; \
@@ -156,7 +159,10 @@ fn a_good_file_is_stored_in_canonical_units_and_utc_with_flags() {
     ];
     for (sensor, line, want) in units {
         let (_, got) = record(sensor, line);
-        assert!((got - want).abs() < 1e-6 * want, "{sensor} line {line}: {got} vs {want}");
+        assert!(
+            (got - want).abs() < 1e-6 * want,
+            "{sensor} line {line}: {got} vs {want}"
+        );
     }
     // The flags: suggested, automatic, with reasons and scores, on the right records.
     let mut stmt = conn
@@ -166,7 +172,9 @@ fn a_good_file_is_stored_in_canonical_units_and_utc_with_flags() {
         )
         .expect("prepare");
     let flags: Vec<(i64, String, f64, String, String)> = stmt
-        .query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?)))
+        .query_map([], |r| {
+            Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+        })
         .expect("query")
         .collect::<Result<_, _>>()
         .expect("rows");
@@ -177,13 +185,19 @@ fn a_good_file_is_stored_in_canonical_units_and_utc_with_flags() {
         flags[0].1,
         "stuck sensor: the same value (0.31 m3/m3) for at least 6 h (since 2026-05-01T00:00:00Z)"
     );
-    assert_eq!(flags[7].1, "tensiometer beyond working range (86 kPa > 85 kPa)");
+    assert_eq!(
+        flags[7].1,
+        "tensiometer beyond working range (86 kPa > 85 kPa)"
+    );
     assert!((flags[7].2 - 86.0 / 85.0).abs() < 1e-12);
     assert_eq!(
         flags[8].1,
         "spike: a jump of +0.096 m3/m3 from 0.306 m3/m3 that comes back within 1 record"
     );
-    assert_eq!(flags[9].1, "tensiometer beyond working range (91.2 kPa > 85 kPa)");
+    assert_eq!(
+        flags[9].1,
+        "tensiometer beyond working range (91.2 kPa > 85 kPa)"
+    );
     // The import batch records the file and its row count.
     let (kind, rows): (String, i64) = conn
         .query_row("SELECT kind, rows FROM import_batch", [], |r| {
@@ -297,7 +311,10 @@ fn duplicates_are_errors_unless_skipped() {
          LV,30,tensiometer,LV-T30,2026-05-01T12:00:00+02:00,-93.0,kPa\n\
          LV,30,tensiometer,LV-T30,2026-05-01T12:00:00+02:00,-93.0,kPa\n",
     );
-    let out = stdout(&s.import("logger", &[&more], &["--skip-duplicates"]).success());
+    let out = stdout(
+        &s.import("logger", &[&more], &["--skip-duplicates"])
+            .success(),
+    );
     assert!(
         out.starts_with("added 1 logger record (1 tensiometer, 0 water content) of 1 sensor"),
         "{out}"
@@ -332,9 +349,8 @@ fn dry_runs_write_nothing_and_imports_are_not_repeated() {
         .code(1);
     let err = stderr(&again);
     assert!(
-        err.contains(
-            "valid/logger_station.csv: this content was already imported on 20"
-        ) && err.contains("use --force to import it again"),
+        err.contains("valid/logger_station.csv: this content was already imported on 20")
+            && err.contains("use --force to import it again"),
         "{err}"
     );
     assert_eq!(s.counts(), after);
@@ -364,7 +380,9 @@ fn out_of_order_rows_and_later_files_are_checked_over_the_whole_series() {
     let row = |hour: u32, value: f64| {
         format!("LV,30,water_content,LV-W30,2026-05-01T{hour:02}:00:00Z,{value},%\n")
     };
-    let values = [31.8, 31.4, 31.0, 31.0, 31.0, 31.0, 31.0, 31.0, 31.0, 30.6, 40.2, 30.4];
+    let values = [
+        31.8, 31.4, 31.0, 31.0, 31.0, 31.0, 31.0, 31.0, 31.0, 30.6, 40.2, 30.4,
+    ];
     let mut first = String::from(header);
     for h in (0..6).rev() {
         first.push_str(&row(h, values[h as usize]));

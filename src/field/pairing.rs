@@ -128,81 +128,95 @@ pub fn turning_swing(values: &[f64], smoothed: &[f64]) -> f64 {
     (SWING_PER_NOISE * sigma).max(MIN_SWING_THETA)
 }
 
+/// The peaks and troughs of a smoothed series whose rise or fall to the next one is at least
+/// `swing`, in order: `(index, is_peak)`, troughs and peaks alternating. The last extreme is
+/// left out (the series has not turned back from it by the swing).
+fn turning_points(s: &[f64], swing: f64) -> Vec<(usize, bool)> {
+    let mut turns = Vec::new();
+    let (mut lo, mut hi) = (0usize, 0usize);
+    // The direction since the last turning point (`true` = rising) and the extreme reached.
+    let mut rising: Option<bool> = None;
+    let mut ext = 0usize;
+    for (i, &v) in s.iter().enumerate() {
+        match rising {
+            None => {
+                if v < s[lo] {
+                    lo = i;
+                }
+                if v > s[hi] {
+                    hi = i;
+                }
+                if v - s[lo] >= swing {
+                    turns.push((lo, false));
+                    (rising, ext) = (Some(true), i);
+                } else if s[hi] - v >= swing {
+                    turns.push((hi, true));
+                    (rising, ext) = (Some(false), i);
+                }
+            }
+            Some(up) => {
+                if (up && v > s[ext]) || (!up && v < s[ext]) {
+                    ext = i;
+                }
+                let back = if up { s[ext] - v } else { v - s[ext] };
+                if back >= swing {
+                    turns.push((ext, up));
+                    (rising, ext) = (Some(!up), i);
+                }
+            }
+        }
+    }
+    turns
+}
+
 /// Label each record of a water-content series drying or wetting.
 ///
-/// The series is smoothed with a running median; then turning points are the peaks and
-/// troughs whose rise or fall to the next turning point is at least the turning swing
-/// ([`turning_swing`]). Records after a trough up to the next peak are wetting, after a peak
-/// up to the next trough drying. A series that never moves by the swing is all unknown.
+/// The series is smoothed with a running median; turning points are the peaks and troughs
+/// whose rise or fall to the next one is at least the turning swing ([`turning_swing`]).
+/// Records after a trough up to the next peak are wetting, after a peak up to the next trough
+/// drying. Wetting is the quick rise after rain; a flat stretch within one swing of an
+/// extreme (a soil too dry to dry further, or slow drainage after a rain) counts as drying, so
+/// a trough moves to the end of the flat before the rise and a peak to the start of the flat
+/// after it. A series that never moves by the swing is all unknown.
 pub fn label_branches(theta: &[Point], smoothing: usize) -> Vec<Branch> {
     let values: Vec<f64> = theta.iter().map(|p| p.value).collect();
     let s = running_median(&values, smoothing);
     let swing = turning_swing(&values, &s);
     let n = s.len();
     let mut labels = vec![Branch::Unknown; n];
-    if n == 0 {
+    let turns = turning_points(&s, swing);
+    if turns.is_empty() {
         return labels;
     }
-    // Before the first move: the lowest and highest points seen, and where.
-    let (mut lo, mut hi) = (0usize, 0usize);
-    // The direction since the last turning point (`true` = rising = wetting) and where it was.
-    let mut state: Option<(bool, usize)> = None;
-    // The extreme point of the current direction (peak when rising, trough when falling).
-    let mut ext = 0usize;
-    for i in 0..n {
-        match state {
-            None => {
-                if s[i] < s[lo] {
-                    lo = i;
-                }
-                if s[i] > s[hi] {
-                    hi = i;
-                }
-                // Before the first turning point the series moved the other way (when it
-                // moved at all before it).
-                if s[i] - s[lo] >= swing {
-                    if lo > 0 {
-                        fill(&mut labels, 0, lo, Branch::Drying);
-                    }
-                    state = Some((true, lo));
-                    ext = i;
-                } else if s[hi] - s[i] >= swing {
-                    if hi > 0 {
-                        fill(&mut labels, 0, hi, Branch::Wetting);
-                    }
-                    state = Some((false, hi));
-                    ext = i;
-                }
-            }
-            Some((rising, from)) => {
-                let further = if rising { s[i] > s[ext] } else { s[i] < s[ext] };
-                if further {
-                    ext = i;
-                }
-                let back = if rising { s[ext] - s[i] } else { s[i] - s[ext] };
-                if back >= swing {
-                    let branch = if rising {
-                        Branch::Wetting
-                    } else {
-                        Branch::Drying
-                    };
-                    fill(&mut labels, from + 1, ext, branch);
-                    state = Some((!rising, ext));
-                    ext = i;
-                }
-            }
-        }
+    let flat = swing;
+    let mut moved: Vec<(usize, bool)> = Vec::with_capacity(turns.len());
+    for (k, &(i, peak)) in turns.iter().enumerate() {
+        let j = if peak {
+            let from = moved.last().map_or(0, |&(t, _)| t);
+            (from..=i).find(|&j| s[j] >= s[i] - flat).unwrap_or(i)
+        } else {
+            let to = turns.get(k + 1).map_or(n - 1, |&(t, _)| t);
+            (i..=to).rev().find(|&j| s[j] <= s[i] + flat).unwrap_or(i)
+        };
+        moved.push((j, peak));
     }
-    if let Some((rising, from)) = state {
-        let branch = if rising {
+    // Each stretch ending at a peak rose (wetting); one ending at a trough fell (drying).
+    let branch_to = |peak: bool| {
+        if peak {
             Branch::Wetting
         } else {
             Branch::Drying
-        };
-        fill(&mut labels, from + 1, n - 1, branch);
+        }
+    };
+    let (first, first_peak) = moved[0];
+    fill(&mut labels, 0, first, branch_to(first_peak));
+    for pair in moved.windows(2) {
+        fill(&mut labels, pair[0].0 + 1, pair[1].0, branch_to(pair[1].1));
     }
+    let (last, last_peak) = moved[moved.len() - 1];
+    fill(&mut labels, last + 1, n - 1, branch_to(!last_peak));
     // A series that starts at its first turning point: the first record goes with the next.
-    if n > 1 && labels[0] == Branch::Unknown {
+    if first == 0 && n > 1 {
         labels[0] = labels[1];
     }
     labels
