@@ -144,7 +144,12 @@ fn the_drying_branch_lies_on_the_known_curve() {
             known.theta(r.h_cm)
         );
         sse += err * err;
-        assert_eq!(r.method.as_ref().map(|m| m.as_str()), Some("field pairing"));
+        assert_eq!(
+            r.method
+                .as_ref()
+                .map(porewise::model::domain::Method::as_str),
+            Some("field pairing")
+        );
         assert!(
             r.notes
                 .as_deref()
