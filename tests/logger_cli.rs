@@ -145,12 +145,12 @@ fn a_good_file_is_stored_in_canonical_units_and_utc_with_flags() {
     assert_eq!(time, "2026-04-30T22:00:00Z");
     assert!((h - 60.0 * 10.197_162_13).abs() < 1e-6, "{h}");
     let (_, theta) = record("LV-W30", 3);
-    assert!((theta - 0.318).abs() < 1e-12);
+    assert!((theta - 31.8 / 100.0).abs() < 1e-12);
     // Every unit of the format: hPa, cm, bar, MPa; m3/m3, fraction, percent, %.
     let units = [
         ("TR-T15", 26, 120.0 * 1.019_716_213),
         ("TR-T15", 27, 150.0),
-        ("TR-T15", 28, 0.13 * 1019.716_213),
+        ("TR-T15", 28, 0.13 * 1_019.716_213),
         ("TR-T15", 29, 0.014 * 10_197.162_13),
         ("TR-W15", 30, 0.25),
         ("TR-W15", 31, 0.255),
