@@ -71,8 +71,19 @@ fn write_file(path: &Path, steps: usize) -> usize {
     steps * sensors()
 }
 
-/// Wall time and peak resident memory (kB) of a command run under `/usr/bin/time -v`.
-fn measure(cmd: &Command, stdin: Option<&str>) -> (Duration, u64) {
+/// What one run of a command cost.
+#[derive(Debug, Clone, Copy)]
+struct Cost {
+    /// Wall-clock time.
+    wall: Duration,
+    /// User plus system CPU time (less disturbed than wall time by other work on the machine).
+    cpu: Duration,
+    /// Peak resident memory, kB.
+    peak_kb: u64,
+}
+
+/// The cost of a command run under `/usr/bin/time -v`.
+fn measure(cmd: &Command, stdin: Option<&str>) -> Cost {
     let mut timed = Command::new("/usr/bin/time");
     timed.arg("-v").arg(cmd.get_program()).args(cmd.get_args());
     if let Some(dir) = cmd.get_current_dir() {
@@ -99,15 +110,22 @@ fn measure(cmd: &Command, stdin: Option<&str>) -> (Duration, u64) {
         cmd.get_program().display(),
         String::from_utf8_lossy(&output.stdout)
     );
-    let peak = err
-        .lines()
-        .find_map(|l| l.trim().strip_prefix("Maximum resident set size (kbytes):"))
-        .and_then(|v| v.trim().parse().ok())
-        .unwrap_or(0);
-    (elapsed, peak)
+    let field = |name: &str| -> f64 {
+        err.lines()
+            .find_map(|l| l.trim().strip_prefix(name))
+            .and_then(|v| v.trim().parse().ok())
+            .unwrap_or(0.0)
+    };
+    Cost {
+        wall: elapsed,
+        cpu: Duration::from_secs_f64(
+            field("User time (seconds):") + field("System time (seconds):"),
+        ),
+        peak_kb: field("Maximum resident set size (kbytes):") as u64,
+    }
 }
 
-fn porewise_import(dir: &Path, file: &Path, name: &str, extra: &[&str]) -> (Duration, u64) {
+fn porewise_import(dir: &Path, file: &Path, name: &str, extra: &[&str]) -> Cost {
     let db = dir.join(format!("{name}.sqlite"));
     let status = Command::new(env!("CARGO_BIN_EXE_porewise"))
         .arg("init")
@@ -126,7 +144,7 @@ fn porewise_import(dir: &Path, file: &Path, name: &str, extra: &[&str]) -> (Dura
 
 /// The same CSV into a table with the same key, by the sqlite3 program's `.import`, with the
 /// campaign file's pragmas (WAL, synchronous FULL, 32 MiB page cache).
-fn sqlite3_import(dir: &Path, file: &Path, name: &str) -> (Duration, u64) {
+fn sqlite3_import(dir: &Path, file: &Path, name: &str) -> Cost {
     let db = dir.join(format!("{name}.sqlite"));
     let script = format!(
         "PRAGMA journal_mode = WAL;\nPRAGMA synchronous = FULL;\nPRAGMA cache_size = -32768;\n\
@@ -164,14 +182,18 @@ fn main() {
         bytes as f64 / 1e6
     );
     let (mut ours, mut theirs) = (Vec::new(), Vec::new());
-    let (mut our_peak, mut their_peak) = (0u64, 0u64);
     for round in 0..ROUNDS {
-        let (t, m) = sqlite3_import(dir.path(), &file, &format!("sqlite3-{round}"));
-        theirs.push(t);
-        their_peak = their_peak.max(m);
-        let (t, m) = porewise_import(dir.path(), &file, &format!("porewise-{round}"), &[]);
-        ours.push(t);
-        our_peak = our_peak.max(m);
+        theirs.push(sqlite3_import(
+            dir.path(),
+            &file,
+            &format!("sqlite3-{round}"),
+        ));
+        ours.push(porewise_import(
+            dir.path(),
+            &file,
+            &format!("porewise-{round}"),
+            &[],
+        ));
         for name in [format!("sqlite3-{round}"), format!("porewise-{round}")] {
             for suffix in ["", "-wal", "-shm"] {
                 let _ = std::fs::remove_file(dir.path().join(format!("{name}.sqlite{suffix}")));
@@ -179,42 +201,52 @@ fn main() {
         }
     }
     let rate = |d: Duration| rows as f64 / d.as_secs_f64();
-    let (o, t) = (median(ours.clone()), median(theirs.clone()));
+    let report = |name: &str, runs: &[Cost]| {
+        let wall = median(runs.iter().map(|c| c.wall).collect());
+        let cpu = median(runs.iter().map(|c| c.cpu).collect());
+        let peak = runs.iter().map(|c| c.peak_kb).max().unwrap_or(0);
+        println!(
+            "{name:<24} median wall {:.2} s = {:.0} rows/s (best {:.0}); median CPU {:.2} s = \
+             {:.0} rows per CPU-second; peak memory {:.1} MB",
+            wall.as_secs_f64(),
+            rate(wall),
+            rate(runs.iter().map(|c| c.wall).min().unwrap_or(wall)),
+            cpu.as_secs_f64(),
+            rate(cpu),
+            peak as f64 / 1024.0
+        );
+        (wall, cpu)
+    };
+    let (ow, oc) = report("porewise import logger:", &ours);
+    let (tw, tc) = report("sqlite3 .import:", &theirs);
     println!(
-        "porewise import logger: median {:.2} s = {:.0} rows/s (best {:.0}); peak memory {:.1} MB",
-        o.as_secs_f64(),
-        rate(o),
-        rate(*ours.iter().min().expect("rounds")),
-        our_peak as f64 / 1024.0
+        "ratio porewise / sqlite3: {:.2} by wall time, {:.2} by CPU time (target >= 1.00)",
+        tw.as_secs_f64() / ow.as_secs_f64(),
+        tc.as_secs_f64() / oc.as_secs_f64()
     );
+    let dry = porewise_import(dir.path(), &file, "dry-run", &["--dry-run"]);
     println!(
-        "sqlite3 .import:        median {:.2} s = {:.0} rows/s (best {:.0}); peak memory {:.1} MB",
-        t.as_secs_f64(),
-        rate(t),
-        rate(*theirs.iter().min().expect("rounds")),
-        their_peak as f64 / 1024.0
-    );
-    println!(
-        "ratio porewise / sqlite3 (median rates): {:.2} (target >= 1.00)",
-        rate(o) / rate(t)
-    );
-    let (d, m) = porewise_import(dir.path(), &file, "dry-run", &["--dry-run"]);
-    println!(
-        "porewise --dry-run:     {:.2} s = {:.0} rows/s; peak memory {:.1} MB",
-        d.as_secs_f64(),
-        rate(d),
-        m as f64 / 1024.0
+        "porewise --dry-run:      wall {:.2} s = {:.0} rows/s; peak memory {:.1} MB",
+        dry.wall.as_secs_f64(),
+        rate(dry.wall),
+        dry.peak_kb as f64 / 1024.0
     );
     // Twice the file: memory must stay flat.
     let big = dir.path().join("logger-4m.csv");
     let big_rows = write_file(&big, 20_000);
     let _ = std::fs::remove_file(&file);
-    let (d, m) = porewise_import(dir.path(), &big, "porewise-4m", &[]);
+    let mb = std::fs::metadata(&big).map_or(0, |x| x.len()) as f64 / 1e6;
+    let o = porewise_import(dir.path(), &big, "porewise-4m", &[]);
+    let t = sqlite3_import(dir.path(), &big, "sqlite3-4m");
+    let big_rate = |d: Duration| big_rows as f64 / d.as_secs_f64();
     println!(
-        "porewise, {big_rows} records ({:.1} MB): {:.2} s = {:.0} rows/s; peak memory {:.1} MB",
-        std::fs::metadata(&big).map_or(0, |x| x.len()) as f64 / 1e6,
-        d.as_secs_f64(),
-        big_rows as f64 / d.as_secs_f64(),
-        m as f64 / 1024.0
+        "{big_rows} records ({mb:.1} MB): porewise {:.0} rows/s (CPU {:.0}), peak memory {:.1} MB; \
+         sqlite3 {:.0} rows/s (CPU {:.0}), peak memory {:.1} MB",
+        big_rate(o.wall),
+        big_rate(o.cpu),
+        o.peak_kb as f64 / 1024.0,
+        big_rate(t.wall),
+        big_rate(t.cpu),
+        t.peak_kb as f64 / 1024.0
     );
 }

@@ -8,23 +8,9 @@ use std::fmt::Write as _;
 
 use common::{Scratch, stderr, stdout};
 
-/// Import logger `files` with `extra` options, expect exit 1 with each of `expected` and
-/// `problems` problems on stderr, and no row count changed.
+/// Import logger `files` with `extra` options and require a refusal that changes nothing.
 fn rejects(s: &Scratch, files: &[&str], extra: &[&str], expected: &[&str], problems: usize) {
-    let before = s.counts();
-    let assert = s.import("logger", files, extra).code(1);
-    let err = stderr(&assert);
-    for e in expected {
-        assert!(err.contains(e), "expected {e:?} in stderr:\n{err}");
-    }
-    let noun = if problems == 1 { "problem" } else { "problems" };
-    assert!(
-        err.contains(&format!("{problems} {noun} found; nothing was written")),
-        "expected {problems} {noun} in stderr:\n{err}"
-    );
-    assert!(!err.contains("panicked"), "{err}");
-    assert!(stdout(&assert).is_empty());
-    assert_eq!(s.counts(), before, "a refused import changed the campaign");
+    s.refused("logger", files, extra, expected, problems);
 }
 
 #[test]

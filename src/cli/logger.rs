@@ -1,12 +1,11 @@
 //! `porewise import logger`: stream field logger files into a campaign, with a progress bar
 //! on a terminal.
 
-use std::io::IsTerminal;
-use std::path::PathBuf;
-
 use clap::Args;
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+use std::io::IsTerminal;
 
+use super::import::ImportArgs;
 use crate::error::Outcome;
 use crate::field::quality::{
     DEFAULT_SPIKE_RECORDS, DEFAULT_TENSIOMETER_LIMIT_KPA, QualitySettings, SpikeJump, parse_spike,
@@ -18,17 +17,9 @@ use crate::model::units::CM_PER_KPA;
 /// The campaign file, the logger files and how to import them.
 #[derive(Debug, Args)]
 pub struct LoggerArgs {
-    /// The campaign file (made with `porewise init`).
-    pub db: PathBuf,
-    /// One or more logger CSV files (comma or semicolon separated, UTF-8, header row first).
-    #[arg(required = true, value_name = "FILE")]
-    pub files: Vec<PathBuf>,
-    /// Check everything and report what would be added, without writing.
-    #[arg(long)]
-    pub dry_run: bool,
-    /// Import a file even though the same content was imported before.
-    #[arg(long)]
-    pub force: bool,
+    /// The campaign, the files, --dry-run and --force, as for every import.
+    #[command(flatten)]
+    pub import: ImportArgs,
     /// Skip a record whose sensor already has one at that time (otherwise an error).
     #[arg(long)]
     pub skip_duplicates: bool,
@@ -106,8 +97,8 @@ impl LoggerArgs {
             }
         }
         LoggerOptions {
-            dry_run: self.dry_run,
-            force: self.force,
+            dry_run: self.import.dry_run,
+            force: self.import.force,
             skip_duplicates: self.skip_duplicates,
             utc_offset_s: self.utc_offset,
             quality,
@@ -164,9 +155,9 @@ impl Progress for Bar {
 /// The campaign cannot be opened, or the files are refused (every problem listed; nothing
 /// was written).
 pub fn run(args: &LoggerArgs) -> anyhow::Result<Outcome> {
-    let mut campaign = super::import::open(&args.db)?;
+    let mut campaign = super::import::open(&args.import.db)?;
     let mut bar = Bar::new();
-    let summary = import_logger_files(&mut campaign, &args.files, args.options(), &mut bar);
+    let summary = import_logger_files(&mut campaign, &args.import.files, args.options(), &mut bar);
     bar.done();
     println!("{}", summary?);
     Ok(Outcome::Success)

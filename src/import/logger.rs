@@ -711,22 +711,42 @@ impl Run<'_> {
         header: &super::table::Header,
         diags: &mut Diagnostics,
     ) -> Result<Option<usize>, StoreError> {
-        if let Some(&i) = self
+        // The depth and kind the sensor already has, and where that comes from.
+        let known = self
             .sites
             .get(row.site)
             .and_then(|s| s.sensors.get(row.sensor_id))
-        {
+            .copied();
+        let mut stored_history = false;
+        let mut site_id = 0;
+        let earlier = if let Some(i) = known {
             let state = &self.sensors[i];
-            let Some(col) = conflict(row, state.depth_cm, state.kind) else {
-                return Ok(Some(i));
+            Some((state.depth_cm, state.kind, Known::Row(state.first)))
+        } else {
+            site_id = self.site_id(row.site, self.batch_ids[file])?;
+            let stored = if site_id > 0 {
+                records::stored_sensor(self.conn, site_id, row.sensor_id)?
+            } else {
+                None
             };
-            let message = conflict_message(
-                row,
-                col,
-                state.depth_cm,
-                state.kind,
-                &self.place(state.first),
-            );
+            stored.map(|s| {
+                stored_history = true;
+                let from = match (&s.file_name, s.line) {
+                    (Some(f), Some(l)) => format!("the campaign (from {f}:{l})"),
+                    _ => "the campaign".to_string(),
+                };
+                (s.depth_cm, s.sensor, Known::Campaign(from))
+            })
+        };
+        if let Some((depth_cm, kind, where_)) = &earlier
+            && let Some(col) = conflict(row, *depth_cm, *kind)
+        {
+            // Where the sensor got its depth and kind: a row of this command, or the campaign.
+            let where_ = match where_ {
+                Known::Campaign(text) => text.clone(),
+                Known::Row(origin) => self.place(*origin),
+            };
+            let message = conflict_message(row, col, *depth_cm, *kind, &where_);
             diags.push(
                 &self.files[file],
                 row.line,
@@ -735,27 +755,8 @@ impl Run<'_> {
             );
             return Ok(None);
         }
-        let site_id = self.site_id(row.site, self.batch_ids[file])?;
-        let stored = if site_id > 0 {
-            records::stored_sensor(self.conn, site_id, row.sensor_id)?
-        } else {
-            None
-        };
-        if let Some(s) = &stored
-            && let Some(col) = conflict(row, s.depth_cm, s.sensor)
-        {
-            let from = match (&s.file_name, s.line) {
-                (Some(f), Some(l)) => format!("the campaign (from {f}:{l})"),
-                _ => "the campaign".to_string(),
-            };
-            let message = conflict_message(row, col, s.depth_cm, s.sensor, &from);
-            diags.push(
-                &self.files[file],
-                row.line,
-                header.name(pick(columns, col)),
-                message,
-            );
-            return Ok(None);
+        if known.is_some() {
+            return Ok(known);
         }
         let index = self.sensors.len();
         self.sensors.push(SensorState {
@@ -769,7 +770,7 @@ impl Run<'_> {
             },
             last_time: i64::MIN,
             // A sensor with stored records is checked over its whole series at the end.
-            inline: stored.is_none(),
+            inline: !stored_history,
             checker: SensorChecker::new(row.kind, self.options.quality),
             inline_marks: [0; 4],
         });
@@ -939,6 +940,15 @@ impl Run<'_> {
         }
         Ok(())
     }
+}
+
+/// Where the command learnt a sensor's depth and kind.
+#[derive(Debug)]
+enum Known {
+    /// A row of this command.
+    Row(Origin),
+    /// The campaign (with the place of its latest record).
+    Campaign(String),
 }
 
 /// Which of a row's columns a sensor conflict is about.
