@@ -29,7 +29,7 @@ use sha2::{Digest, Sha256};
 use super::batch::Origin;
 use super::diagnostic::Diagnostics;
 use super::fields::{Cells, HeaderCheck};
-use super::table::Table;
+use super::table::{Table, trim_cell};
 use super::{EarlierImport, FileSummary, ImportError};
 use crate::field::quality::{
     Mark, MarkKind, QualitySettings, SPIKE_PREFIX, STUCK_PREFIX, SensorChecker,
@@ -631,7 +631,7 @@ impl Run<'_> {
             let parsed = Cells::new(&name, line, &header, record, decimal_comma, diags)
                 .and_then(|mut cells| read_row(&mut cells, &columns, &mut times, offset));
             if let Some((row, utc)) = parsed {
-                let text = |col: usize| record.get(col).map_or("", str::trim);
+                let text = |col: usize| record.get(col).map_or("", trim_cell);
                 let row = Row {
                     site: text(columns.site),
                     sensor_id: text(columns.sensor_id),

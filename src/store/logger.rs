@@ -163,17 +163,18 @@ impl<'conn> RecordSink<'conn> {
                 Err(e) => Err(e.into()),
             };
         }
-        match self.insert.insert(params![
-            r.site_id,
-            r.depth_cm,
-            r.sensor,
-            r.sensor_id,
-            r.time,
-            r.value,
-            r.batch_id,
-            line
-        ]) {
-            Ok(id) => Ok(Added::Stored(id)),
+        // Bound one by one (no slice of trait objects): this runs millions of times.
+        let stmt = &mut self.insert;
+        stmt.raw_bind_parameter(1, r.site_id)?;
+        stmt.raw_bind_parameter(2, r.depth_cm)?;
+        stmt.raw_bind_parameter(3, r.sensor)?;
+        stmt.raw_bind_parameter(4, r.sensor_id)?;
+        stmt.raw_bind_parameter(5, r.time)?;
+        stmt.raw_bind_parameter(6, r.value)?;
+        stmt.raw_bind_parameter(7, r.batch_id)?;
+        stmt.raw_bind_parameter(8, line)?;
+        match stmt.raw_execute() {
+            Ok(_) => Ok(Added::Stored(self.conn.last_insert_rowid())),
             Err(e) if is_unique_violation(&e) => match existing(&mut self.find, r)? {
                 Some(found) => Ok(Added::Duplicate(found)),
                 None => Err(e.into()),
