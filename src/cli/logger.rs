@@ -38,7 +38,6 @@ pub struct LoggerArgs {
         long,
         value_name = "JUMP",
         value_delimiter = ',',
-        num_args = 1..,
         default_value = "10kpa,0.05",
         value_parser = parse_spike
     )]
