@@ -91,22 +91,25 @@ CREATE TABLE reading (
 CREATE INDEX reading_sample_suction ON reading (sample_id, h_cm);
 CREATE INDEX reading_batch ON reading (batch_id);
 
--- A field logger value: tensiometer suction (h, cm) or sensor water content (theta, m3/m3).
+-- A field logger value: tensiometer suction (h, cm, 0 or more) or sensor water content
+-- (theta, m3/m3). A sensor is (site, sensor_id), with one depth and one kind. No uid column:
+-- the key (site uid, sensor_id, time) is already stable across campaign files, and a random
+-- per-record index would cost a bulk import of millions of records dearly. Reads go through
+-- the key's index, sensor by sensor, in time order.
 CREATE TABLE logger_record (
     id INTEGER PRIMARY KEY,
-    uid TEXT NOT NULL UNIQUE CHECK (length(uid) = 36),
     site_id INTEGER NOT NULL REFERENCES site (id),
     depth_cm REAL NOT NULL CHECK (depth_cm >= 0),
     sensor TEXT NOT NULL CHECK (sensor IN ('tensiometer', 'water_content')),
-    sensor_id TEXT NOT NULL,
-    time TEXT NOT NULL CHECK (julianday(time) IS NOT NULL),  -- UTC
+    sensor_id TEXT NOT NULL CHECK (length(sensor_id) > 0),
+    time TEXT NOT NULL CHECK (julianday(time) IS NOT NULL),  -- UTC, YYYY-MM-DDTHH:MM:SSZ
     value REAL NOT NULL,
     batch_id INTEGER REFERENCES import_batch (id),
     source_line INTEGER CHECK (source_line >= 1),
     UNIQUE (site_id, sensor_id, time),
-    CHECK (sensor <> 'water_content' OR value BETWEEN 0 AND 1)
+    CHECK (sensor <> 'water_content' OR value BETWEEN 0 AND 1),
+    CHECK (sensor <> 'tensiometer' OR value BETWEEN 0 AND 1e7)
 ) STRICT;
-CREATE INDEX logger_record_site_depth_time ON logger_record (site_id, depth_cm, sensor, time);
 
 -- A mark on a reading or a logger record, with its review trail. Never deleted.
 CREATE TABLE flag (

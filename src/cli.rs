@@ -15,7 +15,9 @@ pub mod flag;
 pub mod import;
 pub mod init;
 pub mod list;
+pub mod logger;
 pub mod open;
+pub mod pair;
 pub mod review;
 pub mod set;
 pub mod unflag;
@@ -36,7 +38,7 @@ pub enum Command {
     Demo(demo::DemoArgs),
     /// Create an empty campaign file.
     Init(init::InitArgs),
-    /// Import sites, layers or lab retention readings from CSV files.
+    /// Import sites, layers, lab retention readings or field logger records from CSV files.
     #[command(subcommand)]
     Import(import::ImportCommand),
     /// List what a campaign file holds.
@@ -45,6 +47,8 @@ pub enum Command {
     Open(open::OpenArgs),
     /// Change campaign settings (field capacity and wilting point suctions).
     Set(set::SetArgs),
+    /// Pair tensiometer and water-content records into field retention readings.
+    Pair(pair::PairArgs),
     /// Fit retention models to a campaign's samples, or to a plain CSV file with --input.
     Fit(fit::FitArgs),
     /// Tabulate a retention curve for given parameters.
@@ -71,6 +75,7 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::List(args) => list::run(&args),
         Command::Open(args) => open::run(&args),
         Command::Set(args) => set::run(&args),
+        Command::Pair(args) => pair::run(&args),
         Command::Fit(args) => fit::run(&args),
         Command::Curve(args) => curve::run(&args),
         Command::Export(args) => export::run(&args),

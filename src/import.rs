@@ -4,7 +4,8 @@
 //! values and never touch the campaign file. [`import_files`] (used by the command line and
 //! the demo builder alike) reads the files, runs the readers, checks the batch against the
 //! campaign and writes it, all in one transaction: any problem in any file and nothing is
-//! written.
+//! written. Field logger files, which can hold millions of rows, have their own streaming
+//! path in [`logger`].
 
 use std::fmt::{self, Write as _};
 use std::path::{Path, PathBuf};
@@ -20,6 +21,7 @@ pub mod diagnostic;
 mod fields;
 pub mod lab;
 pub mod layers;
+pub mod logger;
 pub mod pairs;
 pub mod sites;
 pub mod table;

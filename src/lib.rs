@@ -11,6 +11,8 @@
 //! - [`model`]: units, domain values and the retention models with analytic derivatives.
 //!   Pure: no files, no SQLite, no terminal.
 //! - [`fit`]: the bounded least-squares driver, statistics and model choice. Pure.
+//! - [`field`]: field loggers: logger times, quality marks on logger series, and the
+//!   pairing of tensiometers with water-content sensors into retention points. Pure.
 //! - [`import`]: CSV files to validated batches of model values, with `FILE:LINE:COLUMN`
 //!   diagnostics. Reads files, writes nothing.
 //! - [`store`]: the SQLite campaign file: migrations, pragmas, one module per aggregate.
@@ -25,6 +27,7 @@ pub mod analysis;
 pub mod cli;
 pub mod demo;
 pub mod error;
+pub mod field;
 pub mod fit;
 pub mod import;
 pub mod model;

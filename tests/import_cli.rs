@@ -14,20 +14,7 @@ fn rejects(kind: &str, file: &str, setup: &[(&str, &str)], expected: &[&str], pr
     for (k, f) in setup {
         s.import_ok(k, &[f]);
     }
-    let before = s.counts();
-    let assert = s.import(kind, &[file], &[]).code(1);
-    let err = stderr(&assert);
-    for e in expected {
-        assert!(err.contains(e), "expected {e:?} in stderr:\n{err}");
-    }
-    let noun = if problems == 1 { "problem" } else { "problems" };
-    assert!(
-        err.contains(&format!("{problems} {noun} found; nothing was written")),
-        "expected {problems} {noun} in stderr:\n{err}"
-    );
-    assert!(!err.contains("panicked"), "{err}");
-    assert!(stdout(&assert).is_empty());
-    assert_eq!(s.counts(), before, "a refused import changed the campaign");
+    s.refused(kind, &[file], &[], expected, problems);
 }
 
 /// One test per class of bad input: name, kind, fixture, expected diagnostics, problem count.

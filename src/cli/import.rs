@@ -1,4 +1,4 @@
-//! `porewise import sites|layers|lab`: read CSV files into a campaign, all or nothing.
+//! `porewise import sites|layers|lab|logger`: read CSV files into a campaign, all or nothing.
 
 use std::path::PathBuf;
 
@@ -42,6 +42,21 @@ pub enum ImportCommand {
         after_help = "Example:\n  porewise import lab spring.sqlite plates-kpa.csv dewpoint-pf.csv"
     )]
     Lab(ImportArgs),
+    /// Field logger records: site,depth_cm,sensor,sensor_id,time,value,unit (streamed).
+    ///
+    /// sensor is tensiometer or water_content; unit (any case) is cm, hpa, kpa, mpa or bar for
+    /// suction (a negative value is a pressure, stored as suction) or fraction, m3/m3,
+    /// percent or % for water content. Times are ISO 8601 with an offset
+    /// (2026-05-01T12:00:00+02:00, ...Z), or give --utc-offset for times without one; they are
+    /// stored in UTC. Sites not in the campaign are created. Quality marks (beyond the
+    /// tensiometer's working range, stuck, spike, a sign against the sensor's convention) are
+    /// stored as suggested flags for review; no record is dropped.
+    #[command(
+        after_help = "Examples:\n  porewise import logger spring.sqlite station-a.csv\n  \
+         porewise import logger spring.sqlite local-times.csv --utc-offset +01:00 --dry-run\n  \
+         porewise import logger spring.sqlite may.csv --skip-duplicates --stuck-span 12h --spike 15kpa,5%"
+    )]
+    Logger(super::logger::LoggerArgs),
 }
 
 /// Run `porewise import`.
@@ -54,9 +69,9 @@ pub fn run(cmd: &ImportCommand) -> anyhow::Result<Outcome> {
         ImportCommand::Sites(a) => (ImportKind::Sites, a),
         ImportCommand::Layers(a) => (ImportKind::Layers, a),
         ImportCommand::Lab(a) => (ImportKind::Lab, a),
+        ImportCommand::Logger(a) => return super::logger::run(a),
     };
-    let mut campaign = Campaign::open(&args.db)
-        .with_context(|| format!("cannot open campaign {}", args.db.display()))?;
+    let mut campaign = open(&args.db)?;
     let options = ImportOptions {
         dry_run: args.dry_run,
         force: args.force,
@@ -64,4 +79,12 @@ pub fn run(cmd: &ImportCommand) -> anyhow::Result<Outcome> {
     let summary = import::import_files(&mut campaign, kind, &args.files, options)?;
     println!("{summary}");
     Ok(Outcome::Success)
+}
+
+/// Open the campaign file named on the command line.
+///
+/// # Errors
+/// The file is missing, not a campaign, or from a newer porewise.
+pub(crate) fn open(db: &std::path::Path) -> anyhow::Result<Campaign> {
+    Campaign::open(db).with_context(|| format!("cannot open campaign {}", db.display()))
 }

@@ -5,7 +5,7 @@ use chrono::NaiveDate;
 use csv::StringRecord;
 
 use super::diagnostic::Diagnostics;
-use super::table::{Header, parse_number};
+use super::table::{Header, parse_number, trim_cell};
 
 /// Checks a header row: required and optional columns, no name twice.
 pub(crate) struct HeaderCheck<'a> {
@@ -144,7 +144,12 @@ impl<'a> Cells<'a> {
     }
 
     fn raw(&self, col: usize) -> &str {
-        self.record.get(col).map_or("", str::trim)
+        self.cell(col)
+    }
+
+    /// The trimmed text of column `col`, borrowed from the record (no copy).
+    pub(crate) fn cell(&self, col: usize) -> &'a str {
+        self.record.get(col).map_or("", trim_cell)
     }
 
     /// Optional text: `None` when the column is absent or the cell empty.

@@ -92,10 +92,8 @@ impl<R: Read> Read for LineCounting<R> {
         let n = self.inner.read(buf)?;
         let mut nl = self.newlines.borrow_mut();
         let base = nl.offset;
-        for (i, &b) in buf[..n].iter().enumerate() {
-            if b == b'\n' || b == b'\r' {
-                nl.pending.push_back((base + i as u64, b == b'\n'));
-            }
+        for i in memchr::memchr2_iter(b'\n', b'\r', &buf[..n]) {
+            nl.pending.push_back((base + i as u64, buf[i] == b'\n'));
         }
         nl.offset += n as u64;
         Ok(n)
@@ -254,12 +252,22 @@ impl<R: Read> Table<R> {
     }
 }
 
+/// `text` without leading and trailing whitespace, as [`str::trim`] but without looking at
+/// every character when the text starts and ends with a printable ASCII byte (most cells).
+pub fn trim_cell(text: &str) -> &str {
+    let b = text.as_bytes();
+    match (b.first(), b.last()) {
+        (Some(f), Some(l)) if f.is_ascii_graphic() && l.is_ascii_graphic() => text,
+        _ => text.trim(),
+    }
+}
+
 /// Parse a finite number, optionally with a decimal comma.
 ///
 /// # Errors
 /// A message naming the text found: empty, not a number, or NaN / infinity.
 pub fn parse_number(text: &str, decimal_comma: bool) -> Result<f64, String> {
-    let t = text.trim();
+    let t = trim_cell(text);
     if t.is_empty() {
         return Err("found an empty cell, expected a number".to_string());
     }
@@ -335,6 +343,15 @@ mod tests {
                 .expect_err("text")
                 .contains("\"abc\"")
         );
+    }
+
+    #[test]
+    fn cells_are_trimmed_of_any_whitespace() {
+        assert_eq!(trim_cell("kPa"), "kPa");
+        assert_eq!(trim_cell(" kPa\t"), "kPa");
+        assert_eq!(trim_cell("\u{a0}30\u{2003}"), "30");
+        assert_eq!(trim_cell(""), "");
+        assert_eq!(trim_cell("é"), "é");
     }
 
     #[test]

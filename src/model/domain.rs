@@ -43,8 +43,8 @@ macro_rules! text_enum {
             type Err = String;
 
             fn from_str(s: &str) -> Result<Self, Self::Err> {
-                let lower = s.trim().to_ascii_lowercase();
-                $(if lower == $text {
+                let t = s.trim();
+                $(if t.eq_ignore_ascii_case($text) {
                     return Ok($name::$variant);
                 })+
                 let words: Vec<&str> = $name::ALL.iter().map(|v| v.as_str()).collect();
@@ -287,6 +287,16 @@ text_enum! {
         Wetting => "wetting",
         /// Not recorded.
         Unknown => "unknown",
+    }
+}
+
+text_enum! {
+    /// What a field logger sensor measures.
+    SensorKind, "a sensor" {
+        /// Matric suction: a tensiometer (stored as suction head h, cm).
+        Tensiometer => "tensiometer",
+        /// Volumetric water content: a dielectric or TDR probe (stored as theta, m3/m3).
+        WaterContent => "water_content",
     }
 }
 

@@ -494,6 +494,41 @@ pub fn flag_manual(
     Ok(id)
 }
 
+/// Rule of the flags that retire a derived reading replaced by a new computation.
+pub const RULE_SUPERSEDED: &str = "superseded";
+
+/// Retire a derived reading that a new computation replaces (a field pairing run again) but
+/// that cannot be deleted because flags point at it: its open suggestions are withdrawn by the
+/// checks and an accepted flag (origin auto, decided by the checks) with `reason` leaves it out
+/// of fits. Nothing is deleted, so the audit trail of its earlier flags stays whole. Returns the
+/// new flag's id, or `None` when the reading is already excluded.
+///
+/// # Errors
+/// An unknown target, or an SQLite error.
+pub fn retire(conn: &Connection, target: FlagTarget, reason: &str) -> Result<Option<i64>> {
+    check_target(conn, target)?;
+    let existing = of_target(conn, target)?;
+    let note = format!("withdrawn: {reason}");
+    for open in existing
+        .iter()
+        .filter(|f| f.flag.status == FlagStatus::Suggested && f.flag.origin == FlagOrigin::Auto)
+    {
+        change(conn, open, FlagStatus::Cleared, Actor::Checks, Some(&note))?;
+    }
+    if of_target(conn, target)?.iter().any(StoredFlag::excludes) {
+        return Ok(None);
+    }
+    let now = SqlTime::now();
+    let (reading, record) = target_ids(target);
+    conn.prepare_cached(
+        "INSERT INTO flag (reading_id, logger_record_id, reason, score, origin, status, note,
+             created_at, decided_at, rule, decided_by)
+         VALUES (?1, ?2, ?3, NULL, 'auto', 'accepted', NULL, ?4, ?4, ?5, 'checks')",
+    )?
+    .execute(params![reading, record, reason, now, RULE_SUPERSEDED])?;
+    Ok(Some(conn.last_insert_rowid()))
+}
+
 fn describe(target: FlagTarget) -> String {
     match target {
         FlagTarget::Reading(id) => format!("reading {id}"),
@@ -913,9 +948,8 @@ mod tests {
                      (1, '00000000-0000-4000-8000-000000000011', 1, 10, 0.40, 'sandbox'),
                      (2, '00000000-0000-4000-8000-000000000012', 1, 100, 0.30, 'pressure plate'),
                      (3, '00000000-0000-4000-8000-000000000013', 1, 1000, 0.20, 'pressure plate');
-                 INSERT INTO logger_record (id, uid, site_id, depth_cm, sensor, sensor_id, time, value)
-                     VALUES (1, '00000000-0000-4000-8000-000000000021', 1, 30, 'tensiometer', 'T1',
-                             '2026-06-01T10:00:00Z', 250);",
+                 INSERT INTO logger_record (id, site_id, depth_cm, sensor, sensor_id, time, value)
+                     VALUES (1, 1, 30, 'tensiometer', 'T1', '2026-06-01T10:00:00Z', 250);",
             )
             .expect("fixture");
         c

@@ -6,7 +6,7 @@
 use chrono::{DateTime, NaiveDate, SecondsFormat, Utc};
 use rusqlite::types::{FromSql, FromSqlError, FromSqlResult, ToSql, ToSqlOutput, ValueRef};
 
-use crate::model::domain::{Branch, FlagOrigin, FlagStatus, Method, SampleKind, Uid};
+use crate::model::domain::{Branch, FlagOrigin, FlagStatus, Method, SampleKind, SensorKind, Uid};
 
 /// ToSql/FromSql for the word enums of the domain (TEXT holding `as_str()`).
 macro_rules! sql_text_enum {
@@ -28,7 +28,7 @@ macro_rules! sql_text_enum {
     )+};
 }
 
-sql_text_enum!(Branch, SampleKind, FlagOrigin, FlagStatus);
+sql_text_enum!(Branch, SampleKind, SensorKind, FlagOrigin, FlagStatus);
 
 impl ToSql for Uid {
     fn to_sql(&self) -> rusqlite::Result<ToSqlOutput<'_>> {

@@ -70,6 +70,37 @@ impl Scratch {
             .assert()
     }
 
+    /// Run `porewise import KIND DB FILES... EXTRA...` and require a refusal: exit 1, each of
+    /// `expected` and the count of `problems` on stderr, nothing on stdout, no panic, and no
+    /// row count of the campaign changed.
+    pub fn refused(
+        &self,
+        kind: &str,
+        files: &[&str],
+        extra: &[&str],
+        expected: &[&str],
+        problems: usize,
+    ) {
+        let before = self.counts();
+        let assert = self.import(kind, files, extra).code(1);
+        let err = stderr(&assert);
+        for e in expected {
+            assert!(err.contains(e), "expected {e:?} in stderr:\n{err}");
+        }
+        let noun = if problems == 1 { "problem" } else { "problems" };
+        assert!(
+            err.contains(&format!("{problems} {noun} found; nothing was written")),
+            "expected {problems} {noun} in stderr:\n{err}"
+        );
+        assert!(!err.contains("panicked"), "{err}");
+        assert!(stdout(&assert).is_empty());
+        assert_eq!(
+            self.counts(),
+            before,
+            "a refused import changed the campaign"
+        );
+    }
+
     /// Import and require success.
     pub fn import_ok(&self, kind: &str, files: &[&str]) {
         self.import(kind, files, &[]).success();
