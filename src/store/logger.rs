@@ -5,6 +5,8 @@
 //! read goes through the table's key index `(site_id, sensor_id, time)`, so a sensor's series
 //! comes back in time order without a second index on a table of millions of rows.
 
+use std::collections::HashMap;
+
 use rusqlite::{CachedStatement, Connection, OptionalExtension, ffi, params};
 
 use super::Result;
@@ -447,8 +449,26 @@ pub fn series_between(
     from: i64,
     to: i64,
 ) -> Result<Vec<(i64, f64, u32)>> {
+    let mut out = Vec::new();
+    each_between(conn, site_id, sensor_id, from, to, |t, v, f| out.push((t, v, f)))?;
+    Ok(out)
+}
+
+/// [`series_between`] without collecting: `each(time, value, flags)` for every record in time
+/// order, so a view can thin a series of millions of records in flat memory.
+///
+/// # Errors
+/// An SQLite error.
+pub fn each_between(
+    conn: &Connection,
+    site_id: i64,
+    sensor_id: &str,
+    from: i64,
+    to: i64,
+    mut each: impl FnMut(i64, f64, u32),
+) -> Result<()> {
     let (Some(from), Some(to)) = (utc_text(from), utc_text(to)) else {
-        return Ok(Vec::new());
+        return Ok(());
     };
     let text = |b: [u8; 20]| b.iter().map(|&c| char::from(c)).collect::<String>();
     let mut stmt = conn.prepare_cached(
@@ -457,8 +477,49 @@ pub fn series_between(
          FROM logger_record r WHERE r.site_id = ?1 AND r.sensor_id = ?2
              AND r.time BETWEEN ?3 AND ?4 ORDER BY r.time",
     )?;
-    let rows = stmt.query_map(params![site_id, sensor_id, text(from), text(to)], |r| {
-        Ok((r.get(0)?, r.get(1)?, r.get(2)?))
+    let mut rows = stmt.query(params![site_id, sensor_id, text(from), text(to)])?;
+    while let Some(row) = rows.next()? {
+        each(row.get(0)?, row.get(1)?, row.get(2)?);
+    }
+    Ok(())
+}
+
+/// The first and last record time of a sensor (seconds since 1970 UTC), `None` without
+/// records. Two seeks on the key index, whatever the series' length.
+///
+/// # Errors
+/// An SQLite error.
+pub fn span(conn: &Connection, site_id: i64, sensor_id: &str) -> Result<Option<(i64, i64)>> {
+    let edge = |sql: &str| -> Result<Option<i64>> {
+        Ok(conn
+            .prepare_cached(sql)?
+            .query_row(params![site_id, sensor_id], |r| r.get(0))
+            .optional()?)
+    };
+    let first = edge(
+        "SELECT unixepoch(time) FROM logger_record WHERE site_id = ?1 AND sensor_id = ?2
+         ORDER BY time LIMIT 1",
+    )?;
+    let last = edge(
+        "SELECT unixepoch(time) FROM logger_record WHERE site_id = ?1 AND sensor_id = ?2
+         ORDER BY time DESC LIMIT 1",
+    )?;
+    Ok(first.zip(last))
+}
+
+/// Records with a live flag (accepted, or suggested and not yet decided), per site id and
+/// sensor id. Driven by the flag table, so it costs nothing for series without flags.
+///
+/// # Errors
+/// An SQLite error.
+pub fn flagged_by_sensor(conn: &Connection) -> Result<HashMap<(i64, String), usize>> {
+    let mut stmt = conn.prepare_cached(
+        "SELECT g.site_id, g.sensor_id, count(DISTINCT g.id) FROM flag f
+         JOIN logger_record g ON g.id = f.logger_record_id
+         WHERE f.status IN ('accepted', 'suggested') GROUP BY g.site_id, g.sensor_id",
+    )?;
+    let rows = stmt.query_map([], |r| {
+        Ok(((r.get(0)?, r.get(1)?), r.get::<_, i64>(2)?.max(0) as usize))
     })?;
     Ok(rows.collect::<rusqlite::Result<_>>()?)
 }
