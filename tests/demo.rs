@@ -2,6 +2,8 @@
 
 use std::path::Path;
 
+use porewise::demo::logger::{SPIKE, STUCK};
+
 #[test]
 fn committed_demo_files_match_the_generator() {
     let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-db");
@@ -69,7 +71,9 @@ fn demo_builds_from_scratch_and_a_second_run_reuses_it() {
         )
         .expect("prepare");
     let pairings: Vec<(String, f64, f64, i64, i64)> = stmt
-        .query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?)))
+        .query_map([], |r| {
+            Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+        })
         .expect("query")
         .collect::<Result<_, _>>()
         .expect("rows");
@@ -100,7 +104,6 @@ fn demo_builds_from_scratch_and_a_second_run_reuses_it() {
              WHERE f.status = 'suggested' AND f.reason LIKE '{prefix}%' AND g.sensor_id = '{sensor}'"
         ))
     };
-    use porewise::demo::logger::{SPIKE, STUCK};
     assert_eq!(marks("spike", SPIKE.sensor), 1);
     let stuck = marks("stuck", STUCK.sensor);
     assert!(

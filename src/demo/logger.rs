@@ -222,8 +222,10 @@ fn texture_at(depth_cm: f64) -> Texture {
                 .iter()
                 .find(|(top, bottom, ..)| (*top..*bottom).contains(&depth_cm))
         })
-        .map(|l| l.3)
-        .unwrap_or_else(|| unreachable!("the probes sit inside TER1's layers"))
+        .map_or_else(
+            || unreachable!("the probes sit inside TER1's layers"),
+            |l| l.3,
+        )
 }
 
 /// The local time of a record as the logger writes it: `2026-05-01T02:00+02:00`.
@@ -243,11 +245,11 @@ pub fn file() -> DemoFile {
     for (p, probe) in PROBES.iter().enumerate() {
         let truth = soil(probe, texture_at(probe.depth_cm), &rains);
         for (i, &(h, theta)) in truth.iter().enumerate() {
-            let mut h_log = (h * (1.0 + 0.01 * unit.sample(&mut rng))
-                + 0.3 * unit.sample(&mut rng))
-            .max(0.0);
+            let mut h_log =
+                (h * (1.0 + 0.01 * unit.sample(&mut rng)) + 0.3 * unit.sample(&mut rng)).max(0.0);
             let theta_log = (theta + 0.003 * unit.sample(&mut rng)).clamp(0.0, 1.0);
-            if probe.tensiometer.0 == SPIKE.sensor && (SPIKE.from..SPIKE.from + SPIKE.records).contains(&i)
+            if probe.tensiometer.0 == SPIKE.sensor
+                && (SPIKE.from..SPIKE.from + SPIKE.records).contains(&i)
             {
                 h_log += SPIKE_CM;
             }

@@ -319,9 +319,9 @@ impl Session {
                         "flag {flag_id} accepted: the record is left out of the next pairing \
                          (porewise pair)"
                     ),
-                    (false, FlagTarget::LoggerRecord(_)) => format!(
-                        "flag {flag_id} dismissed: the record is used by the next pairing"
-                    ),
+                    (false, FlagTarget::LoggerRecord(_)) => {
+                        format!("flag {flag_id} dismissed: the record is used by the next pairing")
+                    }
                 }),
             )),
             Effect::Export => Some(Action::ExportFinished(self.export())),

@@ -94,7 +94,11 @@ impl Theme {
 
     /// A logger series line.
     pub fn series(self) -> Color {
-        if self.color { Color::Cyan } else { Color::Reset }
+        if self.color {
+            Color::Cyan
+        } else {
+            Color::Reset
+        }
     }
 
     /// Flag marks and counts.

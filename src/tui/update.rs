@@ -375,7 +375,12 @@ fn on_series(state: &mut AppState, action: &Action) -> Vec<Effect> {
             request_series(state, false)
         }
         Action::PrevSite | Action::NextSite => {
-            let sites: Vec<String> = state.series.sites().iter().map(|s| (*s).to_string()).collect();
+            let sites: Vec<String> = state
+                .series
+                .sites()
+                .iter()
+                .map(|s| (*s).to_string())
+                .collect();
             if sites.is_empty() {
                 state.say(Tone::Info, "no logger series in this campaign");
                 return Vec::new();
@@ -646,8 +651,16 @@ fn series_pick(state: &AppState) -> Option<SensorPick> {
         SensorPick::Depth(layer.top_cm, layer.bottom_cm)
     };
     match (state.screen, state.tree.current()) {
-        (Screen::Browse, Some(TreeRow::Layer(s, l) | TreeRow::Sample(s, l, _))) => Some(layer(s, l)),
-        (Screen::Series, _) => None,
+        (Screen::Browse, Some(TreeRow::Layer(s, l) | TreeRow::Sample(s, l, _))) => {
+            Some(layer(s, l))
+        }
+        (Screen::Browse, Some(TreeRow::Site(_))) | (Screen::Series, _) => None,
+        (Screen::Depth, _) => {
+            let data = state.depth.data.as_ref()?;
+            let row = data.rows.get(state.depth.cursor)?;
+            let l = data.layers.get(row.layer)?;
+            Some(SensorPick::Depth(l.top_cm, l.bottom_cm))
+        }
         _ => state
             .detail
             .ready()
@@ -725,11 +738,17 @@ fn on_global(state: &mut AppState, action: &Action) -> Option<Vec<Effect>> {
             }
         }
         Action::ShowSeries => {
-            if let Some(site) = target_site(state) {
+            if state.screen == Screen::Review
+                && let Some(Suspect::Record { .. }) = state.review_item().map(|i| &i.suspect)
+            {
+                // The suspect record's own series, as Enter opens it.
+                on_review(state, &Action::Open)
+            } else if let Some(site) = target_site(state) {
                 let pick = series_pick(state);
-                let window = state.series.window.filter(|_| {
-                    state.series.site.as_deref() == Some(site.as_str())
-                });
+                let window = state
+                    .series
+                    .window
+                    .filter(|_| state.series.site.as_deref() == Some(site.as_str()));
                 show_series(state, site, pick, window, None)
             } else {
                 state.say(Tone::Warning, "no site to show: the campaign has none");
@@ -1160,8 +1179,8 @@ fn on_review(state: &mut AppState, action: &Action) -> Vec<Effect> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::tui::app::fixtures::{detail, tree};
     use crate::model::domain::{FlagTarget, SensorKind};
+    use crate::tui::app::fixtures::{detail, tree};
     use crate::tui::app::series::{MIN_WINDOW_S, SensorSeries};
     use crate::tui::app::{DepthData, ReviewItem, SensorInfo, SeriesData};
     use crate::tui::worker::JobId;
@@ -1584,7 +1603,11 @@ mod tests {
         let effects = update(&mut state, Action::Loaded(Loaded::Sensors(Ok(sensors()))));
         let first = series_of(&effects);
         assert_eq!(
-            (first.site.as_str(), first.sensor_id.as_str(), first.depth_cm),
+            (
+                first.site.as_str(),
+                first.sensor_id.as_str(),
+                first.depth_cm
+            ),
             ("AA", "T30", 30.0),
             "the tensiometer inside the layer"
         );
@@ -1592,9 +1615,15 @@ mod tests {
         // An answer for another request is dropped; the wanted one is kept.
         let mut other = first.clone();
         other.sensor_id = "W10".into();
-        update(&mut state, Action::Loaded(Loaded::Series(Box::new(answer(&other)))));
+        update(
+            &mut state,
+            Action::Loaded(Loaded::Series(Box::new(answer(&other)))),
+        );
         assert!(state.series.data.is_none());
-        update(&mut state, Action::Loaded(Loaded::Series(Box::new(answer(&first)))));
+        update(
+            &mut state,
+            Action::Loaded(Loaded::Series(Box::new(answer(&first)))),
+        );
         assert!(state.series.data.is_some());
         // Zoom in about the middle, pan, zoom out to everything, the whole span again.
         let zoomed = series_of(&update(&mut state, Action::ZoomIn));
@@ -1610,7 +1639,10 @@ mod tests {
         }
         let window = state.series.window.expect("a window");
         assert_eq!(window.1 - window.0, MIN_WINDOW_S);
-        assert_eq!(series_of(&update(&mut state, Action::WholeSpan)).window, None);
+        assert_eq!(
+            series_of(&update(&mut state, Action::WholeSpan)).window,
+            None
+        );
         // The next sensor keeps the window; a resize asks for as many columns as it has.
         let next = series_of(&update(&mut state, Action::Down));
         assert_eq!(next.sensor_id, "W30");
@@ -1642,14 +1674,15 @@ mod tests {
             reason: "stuck sensor".into(),
             score: Some(2.0),
         };
-        let effects = update(
-            &mut state,
-            Action::Loaded(Loaded::Review(Ok(vec![record]))),
-        );
+        let effects = update(&mut state, Action::Loaded(Loaded::Review(Ok(vec![record]))));
         let around = series_of(&effects);
         assert_eq!(around.window, Some((37 * 86_400, 43 * 86_400)));
         assert_eq!(around.mark, Some(("W10".to_string(), 40 * 86_400)));
-        assert_eq!(state.detail, Detail::Empty, "no sample to load for a record");
+        assert_eq!(
+            state.detail,
+            Detail::Empty,
+            "no sample to load for a record"
+        );
         update(
             &mut state,
             Action::Loaded(Loaded::Series(Box::new(answer(&around)))),
@@ -1663,7 +1696,11 @@ mod tests {
                 accept: false
             }]
         );
-        assert_eq!(update(&mut state, Action::Open), vec![Effect::LoadSensors]);
+        // 4 on a suspect record opens its series as Enter does (Enter: tests/tui.rs).
+        assert_eq!(
+            update(&mut state, Action::ShowSeries),
+            vec![Effect::LoadSensors]
+        );
         assert_eq!(state.screen, Screen::Series);
         let there = series_of(&update(
             &mut state,

@@ -287,7 +287,7 @@ impl SeriesState {
                 sensors
                     .iter()
                     .position(|s| within(s) && s.kind == SensorKind::Tensiometer)
-                    .or_else(|| sensors.iter().position(|s| within(s)))
+                    .or_else(|| sensors.iter().position(within))
             }
         };
         if let Some(i) = found {

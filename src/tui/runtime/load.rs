@@ -6,12 +6,12 @@ use std::collections::HashMap;
 use rusqlite::Connection;
 
 use crate::analysis::{derive_fit, profiles, sample_fits};
+use crate::field::time::parse_instant;
+use crate::model::domain::SensorKind;
 use crate::model::domain::{FlagStatus, FlagTarget};
 use crate::store::fits::{self, FitState, Selection};
 use crate::store::flags::{self, FlagFilter, Subject};
 use crate::store::outline::{self, outline};
-use crate::field::time::parse_instant;
-use crate::model::domain::SensorKind;
 use crate::store::{CampaignSettings, Result, StoreError, logger, readings};
 
 use super::super::app::series::{SensorSeries, Thinner};
@@ -243,17 +243,16 @@ pub fn series(conn: &Connection, request: &SeriesRequest) -> Result<SeriesData> 
         .into_iter()
         .map(pick)
         .collect();
-    let window = match request.window {
-        Some(w) => w,
-        None => {
-            let mut span: Option<(i64, i64)> = None;
-            for s in plotted.iter().flatten() {
-                if let Some((a, b)) = logger::span(conn, site.id, &s.sensor_id)? {
-                    span = Some(span.map_or((a, b), |(x, y)| (x.min(a), y.max(b))));
-                }
+    let window = if let Some(w) = request.window {
+        w
+    } else {
+        let mut span: Option<(i64, i64)> = None;
+        for s in plotted.iter().flatten() {
+            if let Some((a, b)) = logger::span(conn, site.id, &s.sensor_id)? {
+                span = Some(span.map_or((a, b), |(x, y)| (x.min(a), y.max(b))));
             }
-            span.unwrap_or((0, 0))
         }
+        span.unwrap_or((0, 0))
     };
     let mut out = Vec::new();
     for s in plotted {
@@ -268,12 +267,19 @@ pub fn series(conn: &Connection, request: &SeriesRequest) -> Result<SeriesData> 
             .map(|(_, t)| *t);
         let mut mark = None;
         let mut thinner = Thinner::new(window, request.columns);
-        logger::each_between(conn, site.id, &s.sensor_id, window.0, window.1, |t, v, f| {
-            if Some(t) == mark_time {
-                mark = Some((t, v));
-            }
-            thinner.push(t, v, f > 0);
-        })?;
+        logger::each_between(
+            conn,
+            site.id,
+            &s.sensor_id,
+            window.0,
+            window.1,
+            |t, v, f| {
+                if Some(t) == mark_time {
+                    mark = Some((t, v));
+                }
+                thinner.push(t, v, f > 0);
+            },
+        )?;
         let (buckets, records, flagged) = thinner.finish();
         out.push(Some(SensorSeries {
             sensor_id: s.sensor_id.clone(),
@@ -293,4 +299,64 @@ pub fn series(conn: &Connection, request: &SeriesRequest) -> Result<SeriesData> 
         suction,
         water,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    #![allow(clippy::float_cmp)]
+
+    use super::*;
+    use crate::store::Campaign;
+
+    #[test]
+    fn a_depth_series_brings_its_partner_thinned_with_the_record_marked() {
+        let c = Campaign::in_memory("t", 33.0, 1500.0).expect("campaign");
+        c.connection()
+            .execute_batch(
+                "INSERT INTO site (id, uid, code) VALUES (1, '00000000-0000-4000-8000-000000000001', 'S');
+                 INSERT INTO logger_record (id, site_id, depth_cm, sensor, sensor_id, time, value) VALUES
+                     (1, 1, 30, 'tensiometer', 'T30', '1970-01-01T00:00:00Z', 10),
+                     (2, 1, 30, 'tensiometer', 'T30', '1970-01-01T01:00:00Z', 900),
+                     (3, 1, 30, 'tensiometer', 'T30', '1970-01-01T02:00:00Z', 12),
+                     (4, 1, 30, 'water_content', 'W30', '1970-01-01T01:00:00Z', 0.3),
+                     (5, 1, 60, 'water_content', 'W60', '1970-01-01T01:00:00Z', 0.2);
+                 INSERT INTO flag (logger_record_id, reason, origin, status, created_at)
+                     VALUES (2, 'spike', 'auto', 'suggested', '2026-01-01T00:00:00Z');",
+            )
+            .expect("fixture");
+        let conn = c.connection();
+        let request = SeriesRequest {
+            site: "S".into(),
+            depth_cm: 30.0,
+            sensor_id: "W30".into(),
+            window: None,
+            columns: 3,
+            mark: Some(("T30".into(), 3600)),
+        };
+        let data = series(conn, &request).expect("series");
+        assert_eq!(data.window, (0, 7200));
+        let suction = data.suction.expect("the tensiometer at 30 cm");
+        assert_eq!(suction.sensor_id, "T30");
+        assert_eq!((suction.records, suction.flagged), (3, 1));
+        assert_eq!(suction.mark, Some((3600, 900.0)));
+        assert_eq!(suction.buckets.len(), 3);
+        assert_eq!(suction.buckets[1].flagged.map(|e| e.max), Some(900.0));
+        assert!(
+            suction.buckets[1].values.is_none(),
+            "flagged records stay off the line"
+        );
+        let water = data.water.expect("the probe asked for");
+        assert_eq!((water.sensor_id.as_str(), water.mark), ("W30", None));
+        let listed = sensors(conn).expect("sensors");
+        let ids: Vec<(&str, usize)> = listed
+            .iter()
+            .map(|s| (s.sensor_id.as_str(), s.flagged))
+            .collect();
+        assert_eq!(ids, [("T30", 1), ("W30", 0), ("W60", 0)]);
+        let unknown = SeriesRequest {
+            site: "X".into(),
+            ..request
+        };
+        assert!(series(conn, &unknown).is_err());
+    }
 }

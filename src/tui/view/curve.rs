@@ -177,10 +177,10 @@ impl Widget for CurvePlot<'_> {
             legend.push(Span::raw(format!(" {label} ")));
         }
         legend.extend([Span::raw(if d.curve.is_empty() {
-                "no fit"
-            } else {
-                "─ fit"
-            })]);
+            "no fit"
+        } else {
+            "─ fit"
+        })]);
         if show_band {
             legend.push(Span::raw(" ⠁⠂ 95 % band"));
         } else if state.band {

@@ -11,8 +11,8 @@ use ratatui::widgets::{Paragraph, Row, Widget};
 use super::super::app::{AppState, DepthData, LayerCurve, model_tag};
 use super::plot::{Axes, draw_dotted, draw_polyline, render_canvas};
 use super::{
-    FIELD_TAG, cursor_row, framed, kind_tag, kpa_text, num, opt_num, render_table,
-    scroll_offset, short_code,
+    FIELD_TAG, cursor_row, framed, kind_tag, kpa_text, num, opt_num, render_table, scroll_offset,
+    short_code,
 };
 use crate::model::units::CM_PER_KPA;
 

@@ -108,8 +108,7 @@ impl Widget for ReviewScreen<'_> {
                     _ => "Curve".to_string(),
                 };
                 let inner = framed(title, false, theme, curve_area, buf);
-                if let (Detail::Ready(detail), Some(item)) = (&state.detail, state.review_item())
-                {
+                if let (Detail::Ready(detail), Some(item)) = (&state.detail, state.review_item()) {
                     let selected = detail
                         .readings
                         .iter()
@@ -136,7 +135,10 @@ impl Widget for ReviewScreen<'_> {
 fn columns(item: &ReviewItem, state: &AppState, room: usize) -> [String; 3] {
     match &item.suspect {
         Suspect::Reading {
-            sample, h_cm, theta, ..
+            sample,
+            h_cm,
+            theta,
+            ..
         } => [
             sample.clone(),
             suction_text(*h_cm, state.units),
@@ -160,9 +162,7 @@ fn columns(item: &ReviewItem, state: &AppState, room: usize) -> [String; 3] {
                 format!("{sensor_id} {when}")
             };
             match kind {
-                SensorKind::Tensiometer => {
-                    [what, suction_text(*value, state.units), String::new()]
-                }
+                SensorKind::Tensiometer => [what, suction_text(*value, state.units), String::new()],
                 SensorKind::WaterContent => [what, String::new(), theta_text(*value)],
             }
         }
@@ -220,10 +220,7 @@ fn suspect_lines(item: &ReviewItem, state: &AppState) -> Vec<Line<'static>> {
         }
     };
     vec![
-        Line::from(vec![
-            Span::styled(head, theme.heading()),
-            Span::raw(rest),
-        ]),
+        Line::from(vec![Span::styled(head, theme.heading()), Span::raw(rest)]),
         Line::from(item.reason.clone()),
         Line::from(Span::styled(keys, theme.dim())),
     ]

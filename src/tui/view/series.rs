@@ -26,16 +26,14 @@ pub struct SeriesScreen<'a> {
 
 /// `1 May 2026`, in UTC.
 pub fn date_text(time: i64) -> String {
-    DateTime::from_timestamp(time, 0).map_or_else(String::new, |t| {
-        t.format("%-d %b %Y").to_string()
-    })
+    DateTime::from_timestamp(time, 0)
+        .map_or_else(String::new, |t| t.format("%-d %b %Y").to_string())
 }
 
 /// `2026-05-24 14:00 UTC`.
 pub fn time_text(time: i64) -> String {
-    DateTime::from_timestamp(time, 0).map_or_else(String::new, |t| {
-        t.format("%Y-%m-%d %H:%M UTC").to_string()
-    })
+    DateTime::from_timestamp(time, 0)
+        .map_or_else(String::new, |t| t.format("%Y-%m-%d %H:%M UTC").to_string())
 }
 
 /// The window for a title: `1 May – 31 Jul 2026`, or two full dates across a new year.
@@ -183,7 +181,12 @@ fn plotted(kind: SensorKind, value: f64) -> f64 {
 }
 
 /// Draw the thinned series on a canvas: each column's span, joined to the next column.
-fn draw_series(ctx: &mut Context<'_>, data: &SeriesData, series: &SensorSeries, color: ratatui::style::Color) {
+fn draw_series(
+    ctx: &mut Context<'_>,
+    data: &SeriesData,
+    series: &SensorSeries,
+    color: ratatui::style::Color,
+) {
     let y = |v: f64| plotted(series.kind, v);
     let mut previous: Option<(usize, f64, f64)> = None;
     for b in &series.buckets {
@@ -468,7 +471,11 @@ mod tests {
         assert_eq!(labels, ["May", "Jun", "Jul"]);
         let weeks = time_ticks(season, 200);
         assert_eq!(weeks[0].1, "4 May", "the first Monday");
-        assert!(weeks.windows(2).all(|w| (w[1].0 - w[0].0 - 7.0 * 86_400.0).abs() < 1e-6));
+        assert!(
+            weeks
+                .windows(2)
+                .all(|w| (w[1].0 - w[0].0 - 7.0 * 86_400.0).abs() < 1e-6)
+        );
         let day = time_ticks((may1 + 3600, may1 + 86_400 + 3600), 60);
         let labels: Vec<&str> = day.iter().map(|t| t.1.as_str()).collect();
         assert_eq!(labels, ["06:00", "12:00", "18:00", "2 May"]);
