@@ -9,7 +9,8 @@
 //! - per pane, the time to draw one frame into a `TestBackend` at 100x30 and 200x60
 //!   (target < 10 ms);
 //! - what a key costs when it loads data: selecting a sample, reloading the tree after a
-//!   refit, the depth view of a site, the review queue.
+//!   refit, the depth view of a site, the review queue, the logger series of a depth
+//!   (1,000,000 records of two sensors at the first site, thinned per column as they stream).
 //!
 //! Figures, not assertions: a shared 2-core machine is noisy, so each is the median of
 //! several runs with the minimum beside it.
@@ -35,6 +36,9 @@ const SITES: usize = 100;
 const LAYERS_PER_SITE: usize = 10;
 const SAMPLES_PER_LAYER: usize = 10;
 const READINGS_PER_SAMPLE: usize = 100;
+/// Logger records per sensor at the first site (a tensiometer and a water-content probe at
+/// 10 cm, one record a minute: about a year).
+const RECORDS_PER_SENSOR: i64 = 500_000;
 
 fn uid(kind: u32, n: i64) -> String {
     format!("00000000-0000-4{kind:03x}-8000-{n:012x}")
@@ -133,6 +137,40 @@ fn build(path: &Path) -> Duration {
             }
         }
         drop((site_stmt, layer_stmt, sample_stmt, reading_stmt));
+        let mut record_stmt = tx
+            .prepare(
+                "INSERT INTO logger_record (site_id, depth_cm, sensor, sensor_id, time, value)
+                 VALUES (1, 10, ?1, ?2, ?3, ?4)",
+            )
+            .expect("prepare");
+        let start = 1_767_225_600; // 2026-01-01T00:00:00Z
+        for i in 0..RECORDS_PER_SENSOR {
+            let time = porewise::field::time::utc_string(start + 60 * i);
+            // A daily cycle on a slow drying trend.
+            let day = i as f64 / 1440.0;
+            let h = 20.0
+                * (0.01 * (day % 40.0)).exp()
+                * (1.0 + 0.1 * (day * std::f64::consts::TAU).sin());
+            record_stmt
+                .execute(params!["tensiometer", "T10", time, h])
+                .expect("record");
+            record_stmt
+                .execute(params![
+                    "water_content",
+                    "W10",
+                    time,
+                    0.3 - 0.0004 * (day % 40.0)
+                ])
+                .expect("record");
+        }
+        drop(record_stmt);
+        tx.execute(
+            "INSERT INTO flag (logger_record_id, reason, origin, status, created_at)
+             SELECT id, 'bench mark', 'auto', 'suggested', '2026-01-01T00:00:00Z'
+             FROM logger_record WHERE id % 10000 = 7",
+            [],
+        )
+        .expect("logger flags");
         tx.commit().expect("commit");
     }
     // One real fit (with its diagnostics), copied as the current fit of every other sample.
@@ -241,6 +279,11 @@ fn main() {
         ("depth view (10 layers, 100 curves)", vec![Key::char('2')]),
         ("review queue (100 suspects) + curve", vec![Key::char('3')]),
         ("help", vec![Key::char('?')]),
+        ("logger series (1,000,000 records)", vec![Key::char('4')]),
+        (
+            "logger series zoomed in twice",
+            vec![Key::char('4'), Key::char('+'), Key::char('+')],
+        ),
     ];
     println!(
         "{:<40} {:>16} {:>16}",
@@ -279,6 +322,20 @@ fn main() {
     });
     let (depth, _) = time(7, || keys(&mut s, &[Key::char('2')]));
     let (review, _) = time(7, || keys(&mut s, &[Key::char('3')]));
+    // The series of the first site's logged depth (the tree cursor starts on that site).
+    let mut s = Session::open(&path, SessionOptions::scripted(100, 30)).expect("opens");
+    let (series, _) = time(5, || keys(&mut s, &[Key::char('1'), Key::char('4')]));
+    let records = s.state.series.data.as_ref().map_or(0, |d| {
+        d.suction.as_ref().map_or(0, |x| x.records) + d.water.as_ref().map_or(0, |x| x.records)
+    });
+    let mut zoom = false;
+    let (pan, _) = time(7, || {
+        zoom = !zoom;
+        keys(
+            &mut s,
+            &[if zoom { Key::char('+') } else { Key::char('w') }],
+        );
+    });
     let mut s = Session::open(&path, SessionOptions::scripted(100, 30)).expect("opens");
     keys(&mut s, &[Key::char('/')]);
     let mut typed = 0;
@@ -311,5 +368,13 @@ fn main() {
     println!(
         "  a filter keystroke over 10,000 samples:         {:.1} ms",
         ms(filter)
+    );
+    println!(
+        "  logger series, whole year ({records} records):  {:.1} ms",
+        ms(series)
+    );
+    println!(
+        "  logger series, zoom to half / back to whole:    {:.1} ms",
+        ms(pan)
     );
 }

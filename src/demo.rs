@@ -10,6 +10,8 @@
 //! The files are committed in `demo-db/`; a test checks that they equal what this generator
 //! writes, so they cannot drift. Nothing here is real: names, places and values are invented.
 
+pub mod logger;
+
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
@@ -502,6 +504,7 @@ pub fn generate() -> Vec<DemoFile> {
         lab_a.finish("lab-a-levee-terrace.csv"),
         lab_b.finish("lab-b-backswamp.csv"),
         lab_c.finish("lab-c-basin.csv"),
+        logger::file(),
     ]
 }
 

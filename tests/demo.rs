@@ -2,6 +2,8 @@
 
 use std::path::Path;
 
+use porewise::demo::logger::{SPIKE, STUCK};
+
 #[test]
 fn committed_demo_files_match_the_generator() {
     let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-db");
@@ -43,14 +45,77 @@ fn demo_builds_from_scratch_and_a_second_run_reuses_it() {
     let file = tmp.path().join("demo.sqlite");
     let campaign = porewise::store::Campaign::open(&file).expect("opens");
     let counts = porewise::store::overview::counts(campaign.connection()).expect("counts");
-    assert_eq!((counts.sites, counts.layers, counts.samples), (4, 14, 28));
-    // Every generated lab row became a reading.
+    // 14 layers with two lab cores each, and a field pairing at each of the two logged depths.
+    assert_eq!((counts.sites, counts.layers, counts.samples), (4, 14, 30));
+    let conn = campaign.connection();
+    let one = |sql: &str| -> i64 { conn.query_row(sql, [], |r| r.get(0)).expect(sql) };
+    // Every generated lab row became a reading; the rest are the field pairings' readings.
     let lab_rows: usize = porewise::demo::generate()
         .iter()
         .filter(|f| f.name.starts_with("lab-"))
         .map(|f| f.text.lines().count() - 1)
         .sum();
-    assert_eq!(counts.readings, lab_rows as u64);
+    let field = one(
+        "SELECT count(*) FROM reading r JOIN sample m ON m.id = r.sample_id
+         WHERE m.kind = 'field_pairing' AND r.method = 'field pairing'",
+    );
+    assert_eq!(counts.readings, lab_rows as u64 + field as u64);
+    // Each logged depth is paired into its layer, with both branches (demo-db/README.md).
+    let mut stmt = conn
+        .prepare(
+            "SELECT m.code, l.top_cm, l.bottom_cm,
+                 sum(r.branch = 'drying'), sum(r.branch = 'wetting')
+             FROM sample m JOIN layer l ON l.id = m.layer_id
+             JOIN reading r ON r.sample_id = m.id
+             WHERE m.kind = 'field_pairing' GROUP BY m.id ORDER BY m.code",
+        )
+        .expect("prepare");
+    let pairings: Vec<(String, f64, f64, i64, i64)> = stmt
+        .query_map([], |r| {
+            Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+        })
+        .expect("query")
+        .collect::<Result<_, _>>()
+        .expect("rows");
+    drop(stmt);
+    assert_eq!(pairings.len(), 2, "{pairings:?}");
+    assert_eq!(
+        (pairings[0].0.as_str(), pairings[0].1, pairings[0].2),
+        ("TER1-field-15cm", 0.0, 25.0)
+    );
+    assert_eq!(
+        (pairings[1].0.as_str(), pairings[1].1, pairings[1].2),
+        ("TER1-field-45cm", 25.0, 60.0)
+    );
+    assert!(
+        pairings.iter().all(|p| p.3 >= 5 && p.4 >= 3),
+        "drying and wetting points at both depths: {pairings:?}"
+    );
+    // The logger season: four sensors, hourly, every record stored.
+    assert_eq!(
+        one("SELECT count(*) FROM logger_record"),
+        4 * porewise::demo::logger::RECORDS as i64
+    );
+    // The planted problems are marked (and only they): the spike, the stuck stretch and the
+    // dry spell past the shallow tensiometer's working range.
+    let marks = |prefix: &str, sensor: &str| {
+        one(&format!(
+            "SELECT count(*) FROM flag f JOIN logger_record g ON g.id = f.logger_record_id
+             WHERE f.status = 'suggested' AND f.reason LIKE '{prefix}%' AND g.sensor_id = '{sensor}'"
+        ))
+    };
+    assert_eq!(marks("spike", SPIKE.sensor), 1);
+    let stuck = marks("stuck", STUCK.sensor);
+    assert!(
+        (STUCK.records as i64..=STUCK.records as i64 + 2).contains(&stuck),
+        "{stuck}"
+    );
+    let beyond = marks("tensiometer beyond", "T15");
+    assert!((15..=80).contains(&beyond), "{beyond}");
+    assert_eq!(
+        one("SELECT count(*) FROM flag WHERE logger_record_id IS NOT NULL"),
+        1 + stuck + beyond
+    );
     drop(campaign);
 
     let second = run();

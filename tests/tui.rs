@@ -107,7 +107,7 @@ fn buffer(s: &Session) -> ratatui::buffer::Buffer {
 }
 
 /// Keys that bring each pane up, from a fresh session.
-const PANES: [(&str, &str); 12] = [
+const PANES: [(&str, &str); 19] = [
     ("start", ""),
     ("site_open", "<enter>"),
     ("layer_summary", "<enter>j"),
@@ -120,6 +120,13 @@ const PANES: [(&str, &str); 12] = [
     ("help", "?"),
     ("filter", "/bt"),
     ("flag_prompt", "/TER1-A-a<enter>G<tab><tab>jjtplate leak"),
+    ("field_sample", "/TER1-field-15cm<enter>G"),
+    ("field_readings_kpa", "/TER1-field-45cm<enter>G<tab><tab>u"),
+    ("depth_field", "/TER1-A-a<enter>G2"),
+    ("series", "/TER1-field-45cm<enter>G4"),
+    ("series_zoomed_later", "/TER1-A-a<enter>G4++l"),
+    ("series_no_loggers", "4"),
+    ("review_logger_record", "3jjjjj"),
 ];
 
 #[test]
@@ -191,7 +198,10 @@ fn scripted_session_flags_refits_and_reviews() {
     );
     insta::assert_snapshot!("session_review_accepted_100x30", screen(&s, &copy));
     type_keys(&mut s, "1");
-    type_keys(&mut s, &format!("/{}<enter>G", worst.sample));
+    let porewise::tui::app::Suspect::Reading { sample, .. } = &worst.suspect else {
+        panic!("the worst suspect is a lab reading: {worst:?}");
+    };
+    type_keys(&mut s, &format!("/{sample}<enter>G"));
     assert!(screen(&s, &copy).contains("~ stale"));
     // Unflag: the reading is used again and the sample is stale again.
     type_keys(&mut s, "1");
@@ -292,7 +302,15 @@ fn meaning_carried_by_colour_is_also_in_glyphs_and_modifiers() {
 #[test]
 fn no_color_draws_every_screen_without_a_single_colour() {
     let copy = demo_copy();
-    for script in ["", "/LEV1-C2-b<enter>G<tab><tab>Gb", "2", "3", "?"] {
+    for script in [
+        "",
+        "/LEV1-C2-b<enter>G<tab><tab>Gb",
+        "2",
+        "3",
+        "?",
+        "/TER1-field-15cm<enter>G4",
+        "3jjjjj",
+    ] {
         let mut s = session(&copy, 100, 30);
         type_keys(&mut s, script);
         let buf = buffer(&s);
@@ -325,4 +343,113 @@ fn open_refuses_a_missing_or_foreign_file_before_touching_the_terminal() {
         .code(1);
     let stderr = String::from_utf8_lossy(&out.get_output().stderr).into_owned();
     assert!(stderr.contains("not a porewise campaign"), "{stderr}");
+}
+
+/// The field logger in keys: a suspect record of the review queue shown in its series, the
+/// series screen zoomed and widened, the record's flag accepted, then a layer's series and the
+/// field pairing of its depth.
+#[test]
+fn scripted_session_follows_a_logger_suspect_into_its_series() {
+    use porewise::tui::app::{Screen, Suspect};
+    let copy = demo_copy();
+    let mut s = session(&copy, 100, 30);
+    type_keys(&mut s, "3");
+    let at = s
+        .state
+        .review
+        .items
+        .iter()
+        .position(|i| matches!(i.suspect, Suspect::Record { .. }))
+        .expect("logger records wait in the queue");
+    let item = s.state.review.items[at].clone();
+    let Suspect::Record {
+        sensor_id, time, ..
+    } = item.suspect.clone()
+    else {
+        unreachable!()
+    };
+    type_keys(&mut s, &"j".repeat(at));
+    let reviewing = screen(&s, &copy);
+    assert!(
+        reviewing.contains(&format!("Series · TER1 {sensor_id}")),
+        "{reviewing}"
+    );
+    assert!(reviewing.contains('◆'), "the record is marked: {reviewing}");
+    // Enter: the series screen on that sensor, three days either side of the record.
+    type_keys(&mut s, "<enter>");
+    assert_eq!(s.state.screen, Screen::Series);
+    assert_eq!(
+        s.state.series.current().map(|c| c.sensor_id.clone()),
+        Some(sensor_id.clone())
+    );
+    let data = s.state.series.data.clone().expect("the series is loaded");
+    assert_eq!(data.window, (time - 3 * 86_400, time + 3 * 86_400));
+    insta::assert_snapshot!("session_series_of_a_record_100x30", screen(&s, &copy));
+    type_keys(&mut s, "-");
+    let wider = s.state.series.data.clone().expect("loaded").window;
+    assert_eq!(wider.1 - wider.0, 12 * 86_400);
+    type_keys(&mut s, "w");
+    assert!(screen(&s, &copy).contains("1 May – 31 Jul 2026"));
+    // Accept the record's flag from the queue: stored, and it leaves the queue.
+    type_keys(&mut s, "3");
+    let before = s.state.review.items.len();
+    type_keys(&mut s, &format!("g{}a", "j".repeat(at)));
+    assert_eq!(s.state.review.items.len(), before - 1);
+    assert!(
+        s.state.status.text.contains("left out of the next pairing"),
+        "{:?}",
+        s.state.status
+    );
+    assert_eq!(
+        count(
+            &copy,
+            &format!(
+                "SELECT count(*) FROM flag WHERE id = {} AND status = 'accepted'",
+                item.flag_id
+            )
+        ),
+        1
+    );
+    // From a layer of the tree, 4 lands on the tensiometer logging in it; Enter opens the
+    // field pairing of that depth.
+    type_keys(&mut s, "1/TER1-Bt-a<enter>G4");
+    assert_eq!(
+        s.state.series.current().map(|c| c.sensor_id.clone()),
+        Some("T45".to_string())
+    );
+    type_keys(&mut s, "<enter>");
+    assert_eq!(s.state.screen, Screen::Browse);
+    assert_eq!(
+        s.state.detail.ready().map(|d| d.code.clone()),
+        Some("TER1-field-45cm".to_string())
+    );
+}
+
+#[test]
+fn branches_field_samples_and_flagged_records_carry_glyphs_beside_colour() {
+    let copy = demo_copy();
+    let options = SessionOptions {
+        theme: Theme::default(),
+        ..SessionOptions::scripted(100, 30)
+    };
+    let mut s = Session::open(&copy.file, options).expect("opens");
+    type_keys(&mut s, "/TER1-field-15cm<enter>G");
+    let buf = buffer(&s);
+    let tree = ratatui::layout::Rect::new(1, 2, 24, 6);
+    let tag = find_cell(&buf, tree, "≈").expect("the field tag in the tree");
+    assert!(tag.modifier.contains(Modifier::BOLD));
+    assert_eq!(tag.fg, Color::Green);
+    let plot = ratatui::layout::Rect::new(26, 2, 40, 12);
+    for glyph in ["▼", "▲"] {
+        let cell = find_cell(&buf, plot, glyph).expect("both branches on the curve");
+        assert!(cell.modifier.contains(Modifier::BOLD), "{glyph}");
+    }
+    let readings = ratatui::layout::Rect::new(26, 16, 3, 12);
+    assert!(find_cell(&buf, readings, "▼").is_some() && find_cell(&buf, readings, "▲").is_some());
+    type_keys(&mut s, "4");
+    let buf = buffer(&s);
+    let series = ratatui::layout::Rect::new(26, 2, 74, 26);
+    let flagged = find_cell(&buf, series, "x").expect("the flagged dry spell");
+    assert_eq!(flagged.fg, Color::Red);
+    assert!(flagged.modifier.contains(Modifier::BOLD));
 }

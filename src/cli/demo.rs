@@ -10,9 +10,11 @@ use crate::analysis::review::{ReviewOptions, refresh};
 use crate::analysis::{ModelChoice, fit_campaign};
 use crate::error::Outcome;
 use crate::fit::FitOptions;
+use crate::import::logger::{LoggerOptions, import_logger_files};
 use crate::import::{ImportKind, ImportOptions, import_files};
 use crate::store::campaign::{DEFAULT_FC_KPA, DEFAULT_PWP_KPA, remove_with_journal};
 use crate::store::fits::Selection;
+use crate::store::pairing::{PairOptions, pair_campaign};
 use crate::store::{Campaign, migrate};
 
 /// Arguments of `porewise demo`.
@@ -63,35 +65,61 @@ pub fn demo_file(dir: &Path) -> PathBuf {
 /// File name of the built demo campaign inside the demo folder (ignored by git).
 const DEMO_FILE: &str = "demo.sqlite";
 
-/// The source files in import order: sites, layers, then the lab sheets.
-fn sources(dir: &Path) -> anyhow::Result<Vec<(ImportKind, Vec<PathBuf>)>> {
+/// The demo's source files: the tables in import order (sites, layers, then the lab sheets)
+/// and the field logger files.
+#[derive(Debug, Clone, PartialEq)]
+struct Sources {
+    tables: Vec<(ImportKind, Vec<PathBuf>)>,
+    loggers: Vec<PathBuf>,
+}
+
+impl Sources {
+    /// Every file, for the freshness check.
+    fn paths(&self) -> impl Iterator<Item = &PathBuf> {
+        self.tables
+            .iter()
+            .flat_map(|(_, paths)| paths)
+            .chain(&self.loggers)
+    }
+}
+
+/// The sources in `dir`: `sites.csv`, `layers.csv`, every `lab-*.csv` and every `logger-*.csv`.
+fn sources(dir: &Path) -> anyhow::Result<Sources> {
     let mut labs = Vec::new();
+    let mut loggers = Vec::new();
     for entry in std::fs::read_dir(dir).with_context(|| format!("cannot read {}", dir.display()))? {
         let path = entry?.path();
-        let is_lab = path
-            .file_name()
-            .is_some_and(|n| n.to_string_lossy().starts_with("lab-"));
         let is_csv = path
             .extension()
             .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
-        if is_lab && is_csv {
+        let name = path
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default();
+        if is_csv && name.starts_with("lab-") {
             labs.push(path);
+        } else if is_csv && name.starts_with("logger-") {
+            loggers.push(path);
         }
     }
     labs.sort();
-    Ok(vec![
-        (ImportKind::Sites, vec![dir.join("sites.csv")]),
-        (ImportKind::Layers, vec![dir.join("layers.csv")]),
-        (ImportKind::Lab, labs),
-    ])
+    loggers.sort();
+    Ok(Sources {
+        tables: vec![
+            (ImportKind::Sites, vec![dir.join("sites.csv")]),
+            (ImportKind::Layers, vec![dir.join("layers.csv")]),
+            (ImportKind::Lab, labs),
+        ],
+        loggers,
+    })
 }
 
 /// Why the demo file must be (re)built, or `None` when it is up to date.
-fn rebuild_reason(file: &Path, sources: &[(ImportKind, Vec<PathBuf>)]) -> Option<String> {
+fn rebuild_reason(file: &Path, sources: &Sources) -> Option<String> {
     let Ok(built) = std::fs::metadata(file).and_then(|m| m.modified()) else {
         return Some("it does not exist yet".to_string());
     };
-    for path in sources.iter().flat_map(|(_, paths)| paths) {
+    for path in sources.paths() {
         let newer = std::fs::metadata(path)
             .and_then(|m| m.modified())
             .is_ok_and(|t| t > built);
@@ -115,13 +143,14 @@ fn rebuild_reason(file: &Path, sources: &[(ImportKind, Vec<PathBuf>)]) -> Option
     }
 }
 
-/// Build the demo campaign into `file` from `sources`, through the normal import path, fit
-/// every sample (`auto`) so it opens with curves, and run the outlier review so the planted
-/// bad readings wait in the queue.
+/// Build the demo campaign into `file` from `sources`, through the normal import path: the
+/// tables, then the field logger files (with their quality marks), paired into a field
+/// sample per logged depth; fit every sample (`auto`) so it opens with curves, and run the
+/// outlier review so the planted bad readings wait in the queue.
 ///
 /// Builds into a temporary file beside it and renames it into place, so an interrupted build
 /// leaves no half-made campaign.
-fn build(file: &Path, sources: &[(ImportKind, Vec<PathBuf>)]) -> anyhow::Result<()> {
+fn build(file: &Path, sources: &Sources) -> anyhow::Result<()> {
     let building = file.with_extension("sqlite.building");
     remove_with_journal(&building);
     {
@@ -131,9 +160,31 @@ fn build(file: &Path, sources: &[(ImportKind, Vec<PathBuf>)]) -> anyhow::Result<
             DEFAULT_FC_KPA,
             DEFAULT_PWP_KPA,
         )?;
-        for (kind, paths) in sources {
+        for (kind, paths) in &sources.tables {
             import_files(&mut campaign, *kind, paths, ImportOptions::default())
                 .with_context(|| format!("cannot import the demo {} files", kind.as_str()))?;
+        }
+        if !sources.loggers.is_empty() {
+            let logged = import_logger_files(
+                &mut campaign,
+                &sources.loggers,
+                LoggerOptions::default(),
+                &mut (),
+            )
+            .context("cannot import the demo logger files")?;
+            let paired = pair_campaign(&mut campaign, &PairOptions::default())
+                .context("cannot pair the demo logger records")?;
+            eprintln!(
+                "logger: {} records, {} quality marks; paired into {}",
+                logged.records_added(),
+                logged.flags(),
+                paired
+                    .paired
+                    .iter()
+                    .map(|p| format!("{} ({} readings)", p.sample, p.readings))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            );
         }
         let fits = fit_campaign(
             &mut campaign,

@@ -5,6 +5,8 @@
 //! read goes through the table's key index `(site_id, sensor_id, time)`, so a sensor's series
 //! comes back in time order without a second index on a table of millions of rows.
 
+use std::collections::HashMap;
+
 use rusqlite::{CachedStatement, Connection, OptionalExtension, ffi, params};
 
 use super::Result;
@@ -447,18 +449,150 @@ pub fn series_between(
     from: i64,
     to: i64,
 ) -> Result<Vec<(i64, f64, u32)>> {
+    let mut out = Vec::new();
+    each_between(conn, site_id, sensor_id, from, to, |t, v, f| {
+        out.push((t, v, f));
+    })?;
+    Ok(out)
+}
+
+/// [`series_between`] without collecting: `each(time, value, flags)` for every record in time
+/// order, so a view can thin a series of millions of records in flat memory.
+///
+/// # Errors
+/// An SQLite error.
+pub fn each_between(
+    conn: &Connection,
+    site_id: i64,
+    sensor_id: &str,
+    from: i64,
+    to: i64,
+    mut each: impl FnMut(i64, f64, u32),
+) -> Result<()> {
     let (Some(from), Some(to)) = (utc_text(from), utc_text(to)) else {
-        return Ok(Vec::new());
+        return Ok(());
     };
     let text = |b: [u8; 20]| b.iter().map(|&c| char::from(c)).collect::<String>();
+    let (from, to) = (text(from), text(to));
+    // The live flags of the window first, driven by the flag table (CROSS JOIN keeps that
+    // order: flags are few, records many), so the records then stream without a lookup each.
+    let mut flags: HashMap<i64, u32> = HashMap::new();
     let mut stmt = conn.prepare_cached(
-        "SELECT unixepoch(r.time), r.value, (SELECT count(*) FROM flag f
-             WHERE f.logger_record_id = r.id AND f.status IN ('accepted', 'suggested'))
-         FROM logger_record r WHERE r.site_id = ?1 AND r.sensor_id = ?2
-             AND r.time BETWEEN ?3 AND ?4 ORDER BY r.time",
+        "SELECT g.id, count(*) FROM flag f CROSS JOIN logger_record g ON g.id = f.logger_record_id
+         WHERE f.status IN ('accepted', 'suggested') AND g.site_id = ?1 AND g.sensor_id = ?2
+             AND g.time BETWEEN ?3 AND ?4
+         GROUP BY g.id",
     )?;
-    let rows = stmt.query_map(params![site_id, sensor_id, text(from), text(to)], |r| {
-        Ok((r.get(0)?, r.get(1)?, r.get(2)?))
+    let mut rows = stmt.query(params![site_id, sensor_id, from, to])?;
+    while let Some(row) = rows.next()? {
+        flags.insert(row.get(0)?, row.get(1)?);
+    }
+    let mut stmt = conn.prepare_cached(
+        "SELECT r.id, unixepoch(r.time), r.value FROM logger_record r
+         WHERE r.site_id = ?1 AND r.sensor_id = ?2 AND r.time BETWEEN ?3 AND ?4 ORDER BY r.time",
+    )?;
+    let mut rows = stmt.query(params![site_id, sensor_id, from, to])?;
+    while let Some(row) = rows.next()? {
+        let id: i64 = row.get(0)?;
+        each(
+            row.get(1)?,
+            row.get(2)?,
+            flags.get(&id).copied().unwrap_or(0),
+        );
+    }
+    Ok(())
+}
+
+/// The first and last record time of a sensor (seconds since 1970 UTC), `None` without
+/// records. Two seeks on the key index, whatever the series' length.
+///
+/// # Errors
+/// An SQLite error.
+pub fn span(conn: &Connection, site_id: i64, sensor_id: &str) -> Result<Option<(i64, i64)>> {
+    let edge = |sql: &str| -> Result<Option<i64>> {
+        Ok(conn
+            .prepare_cached(sql)?
+            .query_row(params![site_id, sensor_id], |r| r.get(0))
+            .optional()?)
+    };
+    let first = edge(
+        "SELECT unixepoch(time) FROM logger_record WHERE site_id = ?1 AND sensor_id = ?2
+         ORDER BY time LIMIT 1",
+    )?;
+    let last = edge(
+        "SELECT unixepoch(time) FROM logger_record WHERE site_id = ?1 AND sensor_id = ?2
+         ORDER BY time DESC LIMIT 1",
+    )?;
+    Ok(first.zip(last))
+}
+
+/// Records with a live flag (accepted, or suggested and not yet decided), per site id and
+/// sensor id. Driven by the flag table, so it costs nothing for series without flags.
+///
+/// # Errors
+/// An SQLite error.
+pub fn flagged_by_sensor(conn: &Connection) -> Result<HashMap<(i64, String), usize>> {
+    let mut stmt = conn.prepare_cached(
+        "SELECT g.site_id, g.sensor_id, count(DISTINCT g.id) FROM flag f
+         JOIN logger_record g ON g.id = f.logger_record_id
+         WHERE f.status IN ('accepted', 'suggested') GROUP BY g.site_id, g.sensor_id",
+    )?;
+    let rows = stmt.query_map([], |r| {
+        Ok(((r.get(0)?, r.get(1)?), r.get::<_, i64>(2)?.max(0) as usize))
     })?;
     Ok(rows.collect::<rusqlite::Result<_>>()?)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::store::Campaign;
+
+    /// Site 1 with a tensiometer `T` (records at 0, 3600, 7200 s) and a probe `W` (one record at
+    /// 3600 s); a suggested flag on T's second record and a dismissed one on W's.
+    fn campaign() -> Campaign {
+        let c = Campaign::in_memory("t", 33.0, 1500.0).expect("campaign");
+        c.connection()
+            .execute_batch(
+                "INSERT INTO site (id, uid, code) VALUES (1, '00000000-0000-4000-8000-000000000001', 'S');
+                 INSERT INTO logger_record (id, site_id, depth_cm, sensor, sensor_id, time, value) VALUES
+                     (1, 1, 30, 'tensiometer', 'T', '1970-01-01T00:00:00Z', 10),
+                     (2, 1, 30, 'tensiometer', 'T', '1970-01-01T01:00:00Z', 900),
+                     (3, 1, 30, 'tensiometer', 'T', '1970-01-01T02:00:00Z', 12),
+                     (4, 1, 30, 'water_content', 'W', '1970-01-01T01:00:00Z', 0.3);
+                 INSERT INTO flag (logger_record_id, reason, origin, status, created_at)
+                     VALUES (2, 'spike', 'auto', 'suggested', '2026-01-01T00:00:00Z');
+                 INSERT INTO flag (logger_record_id, reason, origin, status, created_at, decided_at)
+                     VALUES (4, 'stuck', 'auto', 'dismissed', '2026-01-01T00:00:00Z',
+                             '2026-01-02T00:00:00Z');",
+            )
+            .expect("fixture");
+        c
+    }
+
+    #[test]
+    fn spans_flag_counts_and_windows_of_a_series() {
+        let c = campaign();
+        let conn = c.connection();
+        assert_eq!(span(conn, 1, "T").expect("span"), Some((0, 7200)));
+        assert_eq!(span(conn, 1, "W").expect("span"), Some((3600, 3600)));
+        assert_eq!(span(conn, 1, "none").expect("span"), None);
+        let flagged = flagged_by_sensor(conn).expect("flagged");
+        assert_eq!(flagged.get(&(1, "T".to_string())), Some(&1));
+        assert_eq!(
+            flagged.get(&(1, "W".to_string())),
+            None,
+            "a dismissal is no live flag"
+        );
+        let window = series_between(conn, 1, "T", 1, 7200).expect("series");
+        assert_eq!(window, vec![(3600, 900.0, 1), (7200, 12.0, 0)]);
+        let mut streamed = Vec::new();
+        each_between(conn, 1, "T", 1, 7200, |t, v, f| streamed.push((t, v, f))).expect("each");
+        assert_eq!(streamed, window);
+        assert!(
+            series_between(conn, 1, "T", -1_000_000_000_000, 0)
+                .expect("outside the years")
+                .is_empty()
+        );
+    }
 }

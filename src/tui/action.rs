@@ -7,7 +7,11 @@
 
 use crate::analysis::FitRunSummary;
 
-use super::app::{DepthData, ReviewItem, SampleDetail, Tree};
+use crate::model::domain::FlagTarget;
+
+use super::app::{
+    DepthData, ReviewItem, SampleDetail, SensorInfo, SeriesData, SeriesRequest, Tree,
+};
 use super::worker::{FitRequest, JobId};
 
 /// Data the runtime loaded from the campaign file.
@@ -21,6 +25,10 @@ pub enum Loaded {
     Depth(Box<DepthData>),
     /// The review queue, worst first, or why there is none.
     Review(Result<Vec<ReviewItem>, String>),
+    /// Every logger sensor of the campaign, or why they cannot be read.
+    Sensors(Result<Vec<SensorInfo>, String>),
+    /// The series of one depth in a window.
+    Series(Box<SeriesData>),
 }
 
 /// What can happen: a user intent from the key table, or a result from the runtime.
@@ -56,6 +64,18 @@ pub enum Action {
     ShowDepth,
     /// Show the review queue.
     ShowReview,
+    /// Show the logger series of the site under the cursor.
+    ShowSeries,
+    /// The previous site with logger series.
+    PrevSite,
+    /// The next site with logger series.
+    NextSite,
+    /// Show half the time window.
+    ZoomIn,
+    /// Show twice the time window.
+    ZoomOut,
+    /// Show everything logged.
+    WholeSpan,
     /// Show or hide the key help.
     ToggleHelp,
     /// Start typing the tree filter.
@@ -78,7 +98,7 @@ pub enum Action {
     ShallowerRootZone,
     /// Flag the selected reading, or clear its flag (asks for a reason).
     ToggleFlag,
-    /// Accept the review item under the cursor (exclude the reading).
+    /// Accept the review item under the cursor (exclude the reading or record).
     Accept,
     /// Dismiss it (keep the reading).
     Dismiss,
@@ -142,6 +162,10 @@ pub enum Effect {
     },
     /// Load the review queue.
     LoadReview,
+    /// Load the list of logger sensors.
+    LoadSensors,
+    /// Load a depth's logger series in a window.
+    LoadSeries(SeriesRequest),
     /// Start a fit job on the worker.
     StartFit {
         /// Its id.
@@ -167,6 +191,8 @@ pub enum Effect {
     DecideFlag {
         /// The flag.
         flag_id: i64,
+        /// What it is on (for the message).
+        target: FlagTarget,
         /// True to accept (exclude the reading), false to dismiss.
         accept: bool,
     },

@@ -11,7 +11,7 @@ use crate::analysis::{FitDerived, ModelChoice, SampleFit, SiteProfile};
 use crate::fit::ParamEstimate;
 use crate::fit::band::confidence_band;
 use crate::model::derived::DerivedValues;
-use crate::model::domain::SampleKind;
+use crate::model::domain::{Branch, SampleKind, SensorKind};
 use crate::model::retention::ModelKind;
 use crate::model::units::{CM_PER_KPA, SuctionUnit};
 use crate::store::fits::{FitState, FitSummary, Ranking, SampleInfo, StoredFit};
@@ -20,6 +20,10 @@ use crate::store::readings::StoredReading;
 
 use super::theme::Theme;
 use super::worker::JobBoard;
+
+pub mod series;
+
+pub use series::{SensorInfo, SensorSeries, SeriesData, SeriesRequest, SeriesState};
 
 /// Which screen fills the terminal.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
@@ -31,6 +35,8 @@ pub enum Screen {
     Depth,
     /// Suspected outliers across the campaign, worst first.
     Review,
+    /// A site's logger series: suction and water content against time.
+    Series,
     /// Every key, from the key table.
     Help,
 }
@@ -509,6 +515,8 @@ pub struct ReadingView {
     pub theta: f64,
     /// Measurement method.
     pub method: Option<String>,
+    /// Drying, wetting or not recorded (field pairings tell them apart).
+    pub branch: Branch,
     /// observed - fitted, from the current fit (for an excluded reading, against its curve).
     pub residual: Option<f64>,
     /// Internally studentized residual (readings the fit used).
@@ -670,6 +678,7 @@ impl SampleDetail {
                     h_cm: r.reading.h_cm,
                     theta: r.reading.theta,
                     method: r.reading.method.as_ref().map(|m| m.as_str().to_string()),
+                    branch: r.reading.branch,
                     residual,
                     studentized: fitted.and_then(|d| d.studentized),
                     excluded: flag.as_ref().is_some_and(|f| f.excludes),
@@ -768,6 +777,8 @@ pub struct DepthRow {
     pub sample_id: i64,
     /// Sample code.
     pub sample: String,
+    /// Lab core or field pairing.
+    pub kind: SampleKind,
     /// Index of its layer in [`DepthData::layers`].
     pub layer: usize,
     /// Model of the current fit.
@@ -799,10 +810,12 @@ pub struct DepthLayer {
     pub horizon: Option<String>,
     /// The legend mark drawn along its curves (so the legend needs no colour).
     pub mark: char,
-    /// Each fitted sample's curve as (sample id, points (log10 h, theta)).
-    pub curves: Vec<(i64, Vec<(f64, f64)>)>,
+    /// Each fitted sample's curve.
+    pub curves: Vec<LayerCurve>,
     /// Mean available water of its fitted lab cores, m3/m3.
     pub available_water: Option<f64>,
+    /// Mean available water of its field pairings, m3/m3 (beside the lab mean, not summed).
+    pub field_available_water: Option<f64>,
     /// Its part of the root zone, cm.
     pub depth_in_zone_cm: f64,
     /// Available water of that part, mm.
@@ -813,6 +826,17 @@ pub struct DepthLayer {
     pub fitted_cores: usize,
     /// Of those, stale.
     pub stale_cores: usize,
+}
+
+/// A fitted sample's curve in the depth view.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LayerCurve {
+    /// The sample.
+    pub sample_id: i64,
+    /// A field pairing (drawn dotted) rather than a lab core.
+    pub field: bool,
+    /// Points (log10 h, theta), left to right.
+    pub points: Vec<(f64, f64)>,
 }
 
 /// Legend marks of the depth view's layers, top down.
@@ -871,6 +895,7 @@ impl DepthData {
                     mark: LAYER_MARKS[layers.len() % LAYER_MARKS.len()],
                     curves: Vec::new(),
                     available_water: water.and_then(|w| w.available_water),
+                    field_available_water: water.and_then(|w| w.field_available_water),
                     depth_in_zone_cm: water.map_or(0.0, |w| w.depth_in_zone_cm),
                     water_mm: water.and_then(|w| w.water_mm),
                     lab_cores: water.map_or(0, |w| w.lab_cores),
@@ -884,7 +909,11 @@ impl DepthData {
             if let Some(stored) = &fit.fit {
                 let (points, _) = curve_points(stored, PLOT_X_MAX);
                 if !points.is_empty() {
-                    layers[li].curves.push((fit.sample.id, points));
+                    layers[li].curves.push(LayerCurve {
+                        sample_id: fit.sample.id,
+                        field: fit.sample.kind == SampleKind::FieldPairing,
+                        points,
+                    });
                 }
             }
             let curve = report.and_then(crate::analysis::water::curve_of);
@@ -905,6 +934,7 @@ impl DepthData {
             rows.push(DepthRow {
                 sample_id: fit.sample.id,
                 sample: fit.sample.code.clone(),
+                kind: fit.sample.kind,
                 layer: li,
                 model: fit.fit.as_ref().map(|f| f.model.clone()),
                 tag: FitTag::of(&fit.state),
@@ -954,25 +984,79 @@ impl Default for DepthState {
     }
 }
 
-/// A suspected outlier in the review queue.
+/// What a review item is about: a retention reading, or a field logger record.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Suspect {
+    /// A lab or field-pairing reading.
+    Reading {
+        /// Reading id.
+        reading_id: i64,
+        /// Sample id.
+        sample_id: i64,
+        /// Sample code.
+        sample: String,
+        /// Suction, cm.
+        h_cm: f64,
+        /// Water content, m3/m3.
+        theta: f64,
+    },
+    /// A logger record.
+    Record {
+        /// Logger record id.
+        record_id: i64,
+        /// Site code.
+        site: String,
+        /// Sensor depth, cm.
+        depth_cm: f64,
+        /// Tensiometer or water content.
+        kind: SensorKind,
+        /// The sensor's id.
+        sensor_id: String,
+        /// Seconds since 1970 UTC.
+        time: i64,
+        /// Suction head (cm) or water content (m3/m3).
+        value: f64,
+    },
+}
+
+/// A suspect in the review queue.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ReviewItem {
     /// Flag id.
     pub flag_id: i64,
-    /// Reading id.
-    pub reading_id: i64,
-    /// Sample id.
-    pub sample_id: i64,
-    /// Sample code.
-    pub sample: String,
-    /// Suction, cm.
-    pub h_cm: f64,
-    /// Water content, m3/m3.
-    pub theta: f64,
+    /// The reading or record.
+    pub suspect: Suspect,
     /// Why it was flagged.
     pub reason: String,
     /// How suspicious (larger is worse).
     pub score: Option<f64>,
+}
+
+impl ReviewItem {
+    /// The sample of a suspect reading.
+    pub fn sample_id(&self) -> Option<i64> {
+        match &self.suspect {
+            Suspect::Reading { sample_id, .. } => Some(*sample_id),
+            Suspect::Record { .. } => None,
+        }
+    }
+
+    /// The suspect reading's id.
+    pub fn reading_id(&self) -> Option<i64> {
+        match &self.suspect {
+            Suspect::Reading { reading_id, .. } => Some(*reading_id),
+            Suspect::Record { .. } => None,
+        }
+    }
+
+    /// The flag's target.
+    pub fn target(&self) -> crate::model::domain::FlagTarget {
+        use crate::model::domain::FlagTarget;
+        match &self.suspect {
+            Suspect::Reading { reading_id, .. } => FlagTarget::Reading(*reading_id),
+            Suspect::Record { record_id, .. } => FlagTarget::LoggerRecord(*record_id),
+        }
+    }
 }
 
 /// The review screen.
@@ -986,6 +1070,10 @@ pub struct ReviewState {
     pub loaded: bool,
     /// Why there is no queue (the flag store is missing), when there is none.
     pub unavailable: Option<String>,
+    /// The series around a suspect record: the request wanted and its answer.
+    pub series_wanted: Option<SeriesRequest>,
+    /// The loaded series (for `series_wanted`).
+    pub series: Option<SeriesData>,
 }
 
 /// A line of text being typed.
@@ -1053,6 +1141,8 @@ pub struct AppState {
     pub depth: DepthState,
     /// The review screen.
     pub review: ReviewState,
+    /// The logger series screen.
+    pub series: SeriesState,
     /// The screen shown.
     pub screen: Screen,
     /// The screen to go back to from help.
@@ -1162,6 +1252,7 @@ pub(crate) mod fixtures {
             h_cm: h,
             theta,
             method: Some("sandbox".into()),
+            branch: Branch::Unknown,
             residual: Some(0.001),
             studentized: Some(0.5),
             excluded,

@@ -21,6 +21,8 @@ pub enum Mode {
     Depth,
     /// The review queue.
     Review,
+    /// The logger series.
+    Series,
     /// The help screen.
     Help,
     /// Typing the tree filter.
@@ -33,10 +35,11 @@ pub enum Mode {
 
 impl Mode {
     /// Every mode, in the order the help screen lists them.
-    pub const ALL: [Mode; 7] = [
+    pub const ALL: [Mode; 8] = [
         Mode::Browse,
         Mode::Depth,
         Mode::Review,
+        Mode::Series,
         Mode::Help,
         Mode::Filter,
         Mode::Reason,
@@ -53,6 +56,7 @@ impl Mode {
                 Screen::Browse => Mode::Browse,
                 Screen::Depth => Mode::Depth,
                 Screen::Review => Mode::Review,
+                Screen::Series => Mode::Series,
                 Screen::Help => Mode::Help,
             },
         }
@@ -74,6 +78,7 @@ impl Mode {
             Mode::Browse => "Browsing (tree, curve, readings, fit card)",
             Mode::Depth => "Depth view",
             Mode::Review => "Review queue",
+            Mode::Series => "Logger series",
             Mode::Help => "This help",
             Mode::Filter => "Typing a filter",
             Mode::Reason => "Typing a flag reason",
@@ -307,6 +312,12 @@ impl Default for KeyTable {
                 Some("review"),
             ),
             bind(
+                &[Key::char('4')],
+                Action::ShowSeries,
+                "logger series of the selected site (the layer's depth first)",
+                Some("series"),
+            ),
+            bind(
                 &[Key::char('f')],
                 Action::RefitSample,
                 "refit the selected sample (in the background)",
@@ -439,19 +450,71 @@ impl Default for KeyTable {
             bind(
                 &[Key::char('a')],
                 Action::Accept,
-                "accept: leave the reading out of fits",
+                "accept: leave the reading out of fits (a record out of pairing)",
                 Some("accept"),
             ),
             bind(
                 &[Key::char('d')],
                 Action::Dismiss,
-                "dismiss: keep the reading in fits",
+                "dismiss: keep the reading (or record)",
                 Some("dismiss"),
             ),
             bind(
                 &[Key::plain(KeyCode::Enter)],
                 Action::Open,
-                "show the sample in the browser",
+                "show the sample in the browser (a record: its series)",
+                Some("open"),
+            ),
+            back_to_browsing(),
+        ]);
+        let mut series = moves();
+        series.extend([
+            bind(
+                &[Key::plain(KeyCode::Left), Key::char('h')],
+                Action::Left,
+                "earlier: move the window back by half its width",
+                Some("time"),
+            ),
+            bind(
+                &[Key::plain(KeyCode::Right), Key::char('l')],
+                Action::Right,
+                "later: move the window on by half its width",
+                None,
+            ),
+            bind(
+                &[Key::char('+'), Key::char('=')],
+                Action::ZoomIn,
+                "zoom in: half the time window",
+                Some("zoom"),
+            ),
+            bind(
+                &[Key::char('-')],
+                Action::ZoomOut,
+                "zoom out: twice the time window",
+                None,
+            ),
+            bind(
+                &[Key::char('w')],
+                Action::WholeSpan,
+                "the whole series",
+                Some("whole"),
+            ),
+            bind(
+                &[Key::char('[')],
+                Action::PrevSite,
+                "previous site with loggers",
+                Some("site"),
+            ),
+            bind(
+                &[Key::char(']')],
+                Action::NextSite,
+                "next site with loggers",
+                None,
+            ),
+            bind(
+                &[Key::plain(KeyCode::Enter)],
+                Action::Open,
+                "open the field pairing of this depth in the browser",
                 Some("open"),
             ),
             back_to_browsing(),
@@ -506,6 +569,7 @@ impl Default for KeyTable {
                 (Mode::Browse, browse),
                 (Mode::Depth, depth),
                 (Mode::Review, review),
+                (Mode::Series, series),
                 (Mode::Help, help),
                 (Mode::Filter, typing("keep filter", "clear filter")),
                 (Mode::Reason, typing("save", "abandon")),
@@ -638,6 +702,12 @@ mod tests {
             Action::ShowBrowse,
             Action::ShowDepth,
             Action::ShowReview,
+            Action::ShowSeries,
+            Action::PrevSite,
+            Action::NextSite,
+            Action::ZoomIn,
+            Action::ZoomOut,
+            Action::WholeSpan,
             Action::ToggleHelp,
             Action::StartFilter,
             Action::RefitSample,
@@ -677,6 +747,11 @@ mod tests {
         assert_eq!(map(Mode::Browse, &press('q'), &t), Some(Action::Quit));
         assert_eq!(map(Mode::Review, &press('a'), &t), Some(Action::Accept));
         assert_eq!(map(Mode::Browse, &press('a'), &t), None);
+        assert_eq!(map(Mode::Browse, &press('4'), &t), Some(Action::ShowSeries));
+        assert_eq!(map(Mode::Series, &press('+'), &t), Some(Action::ZoomIn));
+        assert_eq!(map(Mode::Series, &press('h'), &t), Some(Action::Left));
+        assert_eq!(map(Mode::Series, &press(']'), &t), Some(Action::NextSite));
+        assert_eq!(map(Mode::Depth, &press('w'), &t), None);
         assert_eq!(map(Mode::Filter, &press('q'), &t), Some(Action::Char('q')));
         assert_eq!(map(Mode::Reason, &press('F'), &t), Some(Action::Char('F')));
         assert_eq!(

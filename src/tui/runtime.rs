@@ -270,6 +270,12 @@ impl Session {
             Effect::LoadReview => Some(Action::Loaded(Loaded::Review(
                 load::review(conn).map_err(|e| e.to_string()),
             ))),
+            Effect::LoadSensors => Some(Action::Loaded(Loaded::Sensors(
+                load::sensors(conn).map_err(|e| e.to_string()),
+            ))),
+            Effect::LoadSeries(request) => {
+                loaded(load::series(conn, &request).map(|d| Loaded::Series(Box::new(d))))
+            }
             Effect::StartFit { job, request } => self.start_fit(job, request),
             Effect::SetFlag { reading_id, reason } => Some(Action::FlagChanged(
                 self.write(|tx| {
@@ -290,7 +296,11 @@ impl Session {
                     format!("flag on reading {reading_id} cleared; fits use it again: f refits")
                 }),
             )),
-            Effect::DecideFlag { flag_id, accept } => Some(Action::FlagChanged(
+            Effect::DecideFlag {
+                flag_id,
+                target,
+                accept,
+            } => Some(Action::FlagChanged(
                 self.write(|tx| {
                     if accept {
                         flags::accept(tx, flag_id, None)
@@ -298,11 +308,19 @@ impl Session {
                         flags::dismiss(tx, flag_id, None)
                     }
                 })
-                .map(|()| {
-                    if accept {
+                .map(|()| match (accept, target) {
+                    (true, FlagTarget::Reading(_)) => {
                         format!("flag {flag_id} accepted: the reading is left out of fits")
-                    } else {
+                    }
+                    (false, FlagTarget::Reading(_)) => {
                         format!("flag {flag_id} dismissed: the reading stays in")
+                    }
+                    (true, FlagTarget::LoggerRecord(_)) => format!(
+                        "flag {flag_id} accepted: the record is left out of the next pairing \
+                         (porewise pair)"
+                    ),
+                    (false, FlagTarget::LoggerRecord(_)) => {
+                        format!("flag {flag_id} dismissed: the record is used by the next pairing")
                     }
                 }),
             )),

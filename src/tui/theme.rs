@@ -87,6 +87,20 @@ impl Theme {
         }
     }
 
+    /// The tag of a field-pairing sample (`≈`).
+    pub fn field_tag(self) -> Style {
+        self.fg(Color::Green).add_modifier(Modifier::BOLD)
+    }
+
+    /// A logger series line.
+    pub fn series(self) -> Color {
+        if self.color {
+            Color::Cyan
+        } else {
+            Color::Reset
+        }
+    }
+
     /// Flag marks and counts.
     pub fn flag(self) -> Style {
         self.fg(Color::Magenta).add_modifier(Modifier::BOLD)

@@ -6,7 +6,10 @@ use crate::analysis::{FitRunSummary, ModelChoice};
 use crate::model::retention::ModelKind;
 
 use super::action::{Action, Effect, Loaded};
-use super::app::{AppState, Detail, Input, NodeKey, Pane, Screen, Tone, Tree, TreeRow};
+use super::app::series::{AROUND_S, SensorPick, panned, zoomed};
+use super::app::{
+    AppState, Detail, Input, NodeKey, Pane, Screen, SeriesRequest, Suspect, Tone, Tree, TreeRow,
+};
 use super::worker::{FitRequest, FitScope, Submitted};
 
 /// Shallowest and deepest root zone the depth view sums to, cm, and its step.
@@ -47,7 +50,11 @@ pub fn update(state: &mut AppState, action: Action) -> Vec<Effect> {
         }
         Action::Resize(w, h) => {
             state.size = (w, h);
-            Vec::new()
+            if state.screen == Screen::Series {
+                request_series(state, false)
+            } else {
+                Vec::new()
+            }
         }
         Action::ForceQuit => {
             state.quit = true;
@@ -129,6 +136,10 @@ fn reload(state: &AppState) -> Vec<Effect> {
     if state.review.loaded {
         out.push(Effect::LoadReview);
     }
+    if state.screen == Screen::Series {
+        // The sensors' flag counts, then the series itself (its flagged records).
+        out.push(Effect::LoadSensors);
+    }
     out
 }
 
@@ -201,7 +212,10 @@ fn on_loaded(state: &mut AppState, loaded: Loaded) -> Vec<Effect> {
                 let len = detail.readings.len();
                 if state.screen == Screen::Review
                     && let Some(item) = state.review_item()
-                    && let Some(pos) = detail.readings.iter().position(|r| r.id == item.reading_id)
+                    && let Some(pos) = detail
+                        .readings
+                        .iter()
+                        .position(|r| Some(r.id) == item.reading_id())
                 {
                     state.reading = pos;
                 }
@@ -236,6 +250,192 @@ fn on_loaded(state: &mut AppState, loaded: Loaded) -> Vec<Effect> {
             state.review.unavailable = Some(why);
             Vec::new()
         }
+        Loaded::Sensors(Ok(sensors)) => {
+            let series = &mut state.series;
+            series.sensors = sensors;
+            series.loaded = true;
+            series.unavailable = None;
+            if series.site.is_none() {
+                series.site = series.sites().first().map(|s| (*s).to_string());
+            }
+            if let Some(pick) = series.pick.take() {
+                series.apply(&pick);
+            }
+            series.cursor = series
+                .cursor
+                .min(series.site_sensors().len().saturating_sub(1));
+            if state.screen == Screen::Series {
+                request_series(state, true)
+            } else {
+                Vec::new()
+            }
+        }
+        Loaded::Sensors(Err(why)) => {
+            state.series.sensors.clear();
+            state.series.loaded = true;
+            state.series.unavailable = Some(why);
+            Vec::new()
+        }
+        Loaded::Series(data) => {
+            if state.review.series_wanted.as_ref() == Some(&data.request) {
+                state.review.series = Some((*data).clone());
+            }
+            if state.series.wanted.as_ref() == Some(&data.request) {
+                state.series.data = Some(*data);
+            }
+            Vec::new()
+        }
+    }
+}
+
+/// Buckets across a series window: two per terminal column (braille has two dots a cell).
+fn series_columns(state: &AppState) -> usize {
+    usize::from(state.size.0).max(20) * 2
+}
+
+/// Ask for the series of the sensor under the cursor (and its partner at the same depth),
+/// unless it is the one already wanted (`force` asks again, after a change in the file).
+fn request_series(state: &mut AppState, force: bool) -> Vec<Effect> {
+    let columns = series_columns(state);
+    let series = &mut state.series;
+    let Some(current) = series.current() else {
+        series.wanted = None;
+        series.data = None;
+        return Vec::new();
+    };
+    let request = SeriesRequest {
+        site: current.site.clone(),
+        depth_cm: current.depth_cm,
+        sensor_id: current.sensor_id.clone(),
+        window: series.window,
+        columns,
+        mark: series.mark.clone(),
+    };
+    if !force && series.wanted.as_ref() == Some(&request) {
+        return Vec::new();
+    }
+    series.wanted = Some(request.clone());
+    vec![Effect::LoadSeries(request)]
+}
+
+/// Show the series screen for `site` (the sensors are reloaded: their flag counts may have
+/// changed), landing where `pick` says, in `window`, with a record marked.
+fn show_series(
+    state: &mut AppState,
+    site: String,
+    pick: Option<SensorPick>,
+    window: Option<(i64, i64)>,
+    mark: Option<(String, i64)>,
+) -> Vec<Effect> {
+    let series = &mut state.series;
+    if series.site.as_deref() != Some(site.as_str()) {
+        series.cursor = 0;
+        series.data = None;
+        series.wanted = None;
+    }
+    series.site = Some(site);
+    series.pick = pick;
+    series.window = window;
+    series.mark = mark;
+    state.screen = Screen::Series;
+    vec![Effect::LoadSensors]
+}
+
+/// The window the series screen shows now (asked for, or loaded, or the depth's whole span).
+fn series_window(state: &AppState) -> Option<(i64, i64)> {
+    state
+        .series
+        .window
+        .or_else(|| state.series.data.as_ref().map(|d| d.window))
+        .or_else(|| state.series.depth_span())
+}
+
+fn on_series(state: &mut AppState, action: &Action) -> Vec<Effect> {
+    let len = state.series.site_sensors().len();
+    if let Some(cursor) = moved(state, state.series.cursor, len, action) {
+        state.series.cursor = cursor;
+        return request_series(state, false);
+    }
+    match action {
+        Action::Left | Action::Right | Action::ZoomIn | Action::ZoomOut => {
+            let (Some(window), Some(span)) = (series_window(state), state.series.depth_span())
+            else {
+                return Vec::new();
+            };
+            state.series.window = match action {
+                Action::Left => Some(panned(window, span, -1)),
+                Action::Right => Some(panned(window, span, 1)),
+                Action::ZoomIn => zoomed(window, span, 0.5),
+                _ => zoomed(window, span, 2.0),
+            };
+            request_series(state, false)
+        }
+        Action::WholeSpan => {
+            state.series.window = None;
+            request_series(state, false)
+        }
+        Action::PrevSite | Action::NextSite => {
+            let sites: Vec<String> = state
+                .series
+                .sites()
+                .iter()
+                .map(|s| (*s).to_string())
+                .collect();
+            if sites.is_empty() {
+                state.say(Tone::Info, "no logger series in this campaign");
+                return Vec::new();
+            }
+            let at = state
+                .series
+                .site
+                .as_ref()
+                .and_then(|c| sites.iter().position(|s| s == c));
+            let next = match (at, *action == Action::NextSite) {
+                (Some(i), true) => (i + 1) % sites.len(),
+                (Some(i), false) => (i + sites.len() - 1) % sites.len(),
+                (None, true) => 0,
+                (None, false) => sites.len() - 1,
+            };
+            let series = &mut state.series;
+            series.site = Some(sites[next].clone());
+            series.cursor = 0;
+            series.window = None;
+            series.mark = None;
+            series.data = None;
+            request_series(state, false)
+        }
+        Action::Open => {
+            let Some(sensor) = state.series.current().cloned() else {
+                return Vec::new();
+            };
+            let found = state
+                .tree
+                .sites
+                .iter()
+                .filter(|s| s.code == sensor.site)
+                .flat_map(|s| &s.layers)
+                .filter(|l| sensor.depth_cm >= l.top_cm && sensor.depth_cm < l.bottom_cm)
+                .flat_map(|l| &l.samples)
+                .find(|s| s.kind == crate::model::domain::SampleKind::FieldPairing)
+                .map(|s| s.id);
+            if let Some(id) = found {
+                open_in_browser(state, id)
+            } else {
+                state.say(
+                    Tone::Info,
+                    format!(
+                        "no field pairing at {} {} cm yet: `porewise pair` makes one",
+                        sensor.site, sensor.depth_cm
+                    ),
+                );
+                Vec::new()
+            }
+        }
+        Action::Back => {
+            state.screen = Screen::Browse;
+            follow_tree(state)
+        }
+        _ => Vec::new(),
     }
 }
 
@@ -431,6 +631,7 @@ fn target_sample(state: &AppState) -> Option<(i64, String, String)> {
 fn target_site(state: &AppState) -> Option<String> {
     match state.screen {
         Screen::Depth => state.depth.site.clone(),
+        Screen::Series if state.series.site.is_some() => state.series.site.clone(),
         Screen::Browse if state.focus == Pane::Tree => {
             state.tree.current_site().map(|s| s.code.clone())
         }
@@ -439,6 +640,31 @@ fn target_site(state: &AppState) -> Option<String> {
             .ready()
             .map(|d| d.site.clone())
             .or_else(|| state.tree.current_site().map(|s| s.code.clone())),
+    }
+}
+
+/// Where the series screen lands: the depth of the layer (or the sample's layer) under the
+/// tree cursor, or of the sample shown.
+fn series_pick(state: &AppState) -> Option<SensorPick> {
+    let layer = |s: usize, l: usize| {
+        let layer = &state.tree.sites[s].layers[l];
+        SensorPick::Depth(layer.top_cm, layer.bottom_cm)
+    };
+    match (state.screen, state.tree.current()) {
+        (Screen::Browse, Some(TreeRow::Layer(s, l) | TreeRow::Sample(s, l, _))) => {
+            Some(layer(s, l))
+        }
+        (Screen::Browse, Some(TreeRow::Site(_))) | (Screen::Series, _) => None,
+        (Screen::Depth, _) => {
+            let data = state.depth.data.as_ref()?;
+            let row = data.rows.get(state.depth.cursor)?;
+            let l = data.layers.get(row.layer)?;
+            Some(SensorPick::Depth(l.top_cm, l.bottom_cm))
+        }
+        _ => state
+            .detail
+            .ready()
+            .map(|d| SensorPick::Depth(d.top_cm, d.bottom_cm)),
     }
 }
 
@@ -511,6 +737,24 @@ fn on_global(state: &mut AppState, action: &Action) -> Option<Vec<Effect>> {
                 Vec::new()
             }
         }
+        Action::ShowSeries => {
+            if state.screen == Screen::Review
+                && let Some(Suspect::Record { .. }) = state.review_item().map(|i| &i.suspect)
+            {
+                // The suspect record's own series, as Enter opens it.
+                on_review(state, &Action::Open)
+            } else if let Some(site) = target_site(state) {
+                let pick = series_pick(state);
+                let window = state
+                    .series
+                    .window
+                    .filter(|_| state.series.site.as_deref() == Some(site.as_str()));
+                show_series(state, site, pick, window, None)
+            } else {
+                state.say(Tone::Warning, "no site to show: the campaign has none");
+                Vec::new()
+            }
+        }
         Action::ShowReview => {
             state.screen = Screen::Review;
             let mut effects = vec![Effect::LoadReview];
@@ -576,6 +820,7 @@ fn on_intent(state: &mut AppState, action: &Action) -> Vec<Effect> {
         Screen::Browse => on_browse(state, action),
         Screen::Depth => on_depth(state, action),
         Screen::Review => on_review(state, action),
+        Screen::Series => on_series(state, action),
         Screen::Help => {
             match action {
                 Action::Back => state.screen = state.back_to,
@@ -840,20 +1085,47 @@ fn open_in_browser(state: &mut AppState, sample_id: i64) -> Vec<Effect> {
     select_sample(state, sample_id)
 }
 
-/// After the review cursor moved: show the item's sample with its reading highlighted.
+/// After the review cursor moved: show the item's sample with its reading highlighted, or the
+/// series around a suspect record.
 fn follow_review(state: &mut AppState) -> Vec<Effect> {
     let Some(item) = state.review_item().cloned() else {
         return Vec::new();
     };
-    let effects = select_sample(state, item.sample_id);
-    if let Some(pos) = state
-        .detail
-        .ready()
-        .and_then(|d| d.readings.iter().position(|r| r.id == item.reading_id))
-    {
-        state.reading = pos;
+    match item.suspect {
+        Suspect::Reading {
+            reading_id,
+            sample_id,
+            ..
+        } => {
+            let effects = select_sample(state, sample_id);
+            if let Some(pos) = state
+                .detail
+                .ready()
+                .and_then(|d| d.readings.iter().position(|r| r.id == reading_id))
+            {
+                state.reading = pos;
+            }
+            effects
+        }
+        Suspect::Record {
+            site,
+            depth_cm,
+            sensor_id,
+            time,
+            ..
+        } => {
+            let request = SeriesRequest {
+                site,
+                depth_cm,
+                sensor_id: sensor_id.clone(),
+                window: Some((time - AROUND_S, time + AROUND_S)),
+                columns: series_columns(state),
+                mark: Some((sensor_id, time)),
+            };
+            state.review.series_wanted = Some(request.clone());
+            vec![Effect::LoadSeries(request)]
+        }
     }
-    effects
 }
 
 fn on_review(state: &mut AppState, action: &Action) -> Vec<Effect> {
@@ -868,6 +1140,7 @@ fn on_review(state: &mut AppState, action: &Action) -> Vec<Effect> {
             if let Some(item) = state.review_item() {
                 vec![Effect::DecideFlag {
                     flag_id: item.flag_id,
+                    target: item.target(),
                     accept: *action == Action::Accept,
                 }]
             } else {
@@ -875,12 +1148,24 @@ fn on_review(state: &mut AppState, action: &Action) -> Vec<Effect> {
                 Vec::new()
             }
         }
-        Action::Open => match state.review_item().cloned() {
-            Some(item) => {
-                let effects = open_in_browser(state, item.sample_id);
+        Action::Open => match state.review_item().map(|i| i.suspect.clone()) {
+            Some(Suspect::Reading { sample_id, .. }) => {
+                let effects = open_in_browser(state, sample_id);
                 state.focus = Pane::Readings;
                 effects
             }
+            Some(Suspect::Record {
+                site,
+                sensor_id,
+                time,
+                ..
+            }) => show_series(
+                state,
+                site,
+                Some(SensorPick::Sensor(sensor_id.clone())),
+                Some((time - AROUND_S, time + AROUND_S)),
+                Some((sensor_id, time)),
+            ),
             None => Vec::new(),
         },
         Action::Back => {
@@ -894,8 +1179,10 @@ fn on_review(state: &mut AppState, action: &Action) -> Vec<Effect> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::model::domain::{FlagTarget, SensorKind};
     use crate::tui::app::fixtures::{detail, tree};
-    use crate::tui::app::{DepthData, ReviewItem};
+    use crate::tui::app::series::{MIN_WINDOW_S, SensorSeries};
+    use crate::tui::app::{DepthData, ReviewItem, SensorInfo, SeriesData};
     use crate::tui::worker::JobId;
 
     /// A state with the fixture tree loaded.
@@ -1206,11 +1493,13 @@ mod tests {
         );
         let item = |flag_id, sample_id, reading_id| ReviewItem {
             flag_id,
-            reading_id,
-            sample_id,
-            sample: format!("S{sample_id}"),
-            h_cm: 100.0,
-            theta: 0.3,
+            suspect: Suspect::Reading {
+                reading_id,
+                sample_id,
+                sample: format!("S{sample_id}"),
+                h_cm: 100.0,
+                theta: 0.3,
+            },
             reason: "off".into(),
             score: Some(3.0),
         };
@@ -1228,6 +1517,7 @@ mod tests {
             update(&mut state, Action::Accept),
             vec![Effect::DecideFlag {
                 flag_id: 7,
+                target: FlagTarget::Reading(11),
                 accept: true
             }]
         );
@@ -1239,6 +1529,7 @@ mod tests {
             update(&mut state, Action::Dismiss),
             vec![Effect::DecideFlag {
                 flag_id: 8,
+                target: FlagTarget::Reading(40),
                 accept: false
             }]
         );
@@ -1248,6 +1539,179 @@ mod tests {
         assert_eq!(state.screen, Screen::Browse);
         assert_eq!(state.tree.current_sample().map(|s| s.id), Some(5));
         assert!(effects.is_empty(), "sample 5 is already loading");
+    }
+
+    /// Sensors of site AA: a tensiometer and a water-content probe at 10 and at 30 cm, logging
+    /// for 100 days from t = 0; and one of site BB.
+    fn sensors() -> Vec<SensorInfo> {
+        let s = |site: &str, id: &str, kind, depth| SensorInfo {
+            site: site.into(),
+            sensor_id: id.into(),
+            kind,
+            depth_cm: depth,
+            first: 0,
+            last: 100 * 86_400,
+            flagged: 0,
+        };
+        vec![
+            s("AA", "T10", SensorKind::Tensiometer, 10.0),
+            s("AA", "W10", SensorKind::WaterContent, 10.0),
+            s("AA", "T30", SensorKind::Tensiometer, 30.0),
+            s("AA", "W30", SensorKind::WaterContent, 30.0),
+            s("BB", "T5", SensorKind::Tensiometer, 5.0),
+        ]
+    }
+
+    fn series_of(effects: &[Effect]) -> SeriesRequest {
+        match effects {
+            [Effect::LoadSeries(r)] => r.clone(),
+            other => panic!("expected one series load: {other:?}"),
+        }
+    }
+
+    fn answer(request: &SeriesRequest) -> SeriesData {
+        SeriesData {
+            request: request.clone(),
+            window: request.window.unwrap_or((0, 100 * 86_400)),
+            columns: request.columns,
+            suction: Some(SensorSeries {
+                sensor_id: request.sensor_id.clone(),
+                kind: SensorKind::Tensiometer,
+                records: 0,
+                flagged: 0,
+                buckets: Vec::new(),
+                mark: None,
+            }),
+            water: None,
+        }
+    }
+
+    #[test]
+    fn the_series_screen_opens_at_the_layer_depth_and_moves_through_time() {
+        let mut state = loaded();
+        update(&mut state, Action::Open);
+        update(&mut state, Action::Down);
+        update(&mut state, Action::Down);
+        update(&mut state, Action::Down);
+        update(&mut state, Action::Down);
+        assert_eq!(state.tree.current(), Some(TreeRow::Layer(0, 1)), "AA 20-50");
+        assert_eq!(
+            update(&mut state, Action::ShowSeries),
+            vec![Effect::LoadSensors]
+        );
+        assert_eq!(state.screen, Screen::Series);
+        let effects = update(&mut state, Action::Loaded(Loaded::Sensors(Ok(sensors()))));
+        let first = series_of(&effects);
+        assert_eq!(
+            (
+                first.site.as_str(),
+                first.sensor_id.as_str(),
+                first.depth_cm
+            ),
+            ("AA", "T30", 30.0),
+            "the tensiometer inside the layer"
+        );
+        assert_eq!((first.window, first.columns), (None, 200));
+        // An answer for another request is dropped; the wanted one is kept.
+        let mut other = first.clone();
+        other.sensor_id = "W10".into();
+        update(
+            &mut state,
+            Action::Loaded(Loaded::Series(Box::new(answer(&other)))),
+        );
+        assert!(state.series.data.is_none());
+        update(
+            &mut state,
+            Action::Loaded(Loaded::Series(Box::new(answer(&first)))),
+        );
+        assert!(state.series.data.is_some());
+        // Zoom in about the middle, pan, zoom out to everything, the whole span again.
+        let zoomed = series_of(&update(&mut state, Action::ZoomIn));
+        assert_eq!(zoomed.window, Some((25 * 86_400, 75 * 86_400)));
+        let later = series_of(&update(&mut state, Action::Right));
+        assert_eq!(later.window, Some((50 * 86_400, 100 * 86_400)));
+        assert!(
+            update(&mut state, Action::Right).is_empty(),
+            "already at the end: the same window"
+        );
+        for _ in 0..20 {
+            update(&mut state, Action::ZoomIn);
+        }
+        let window = state.series.window.expect("a window");
+        assert_eq!(window.1 - window.0, MIN_WINDOW_S);
+        assert_eq!(
+            series_of(&update(&mut state, Action::WholeSpan)).window,
+            None
+        );
+        // The next sensor keeps the window; a resize asks for as many columns as it has.
+        let next = series_of(&update(&mut state, Action::Down));
+        assert_eq!(next.sensor_id, "W30");
+        let resized = series_of(&update(&mut state, Action::Resize(80, 24)));
+        assert_eq!(resized.columns, 160);
+        // Sites with loggers in turn; BB has one sensor.
+        let bb = series_of(&update(&mut state, Action::NextSite));
+        assert_eq!((bb.site.as_str(), bb.sensor_id.as_str()), ("BB", "T5"));
+        assert_eq!(series_of(&update(&mut state, Action::NextSite)).site, "AA");
+        update(&mut state, Action::Back);
+        assert_eq!(state.screen, Screen::Browse);
+    }
+
+    #[test]
+    fn a_suspect_record_shows_its_series_and_opens_the_series_screen_there() {
+        let mut state = loaded();
+        update(&mut state, Action::ShowReview);
+        let record = ReviewItem {
+            flag_id: 9,
+            suspect: Suspect::Record {
+                record_id: 77,
+                site: "AA".into(),
+                depth_cm: 10.0,
+                kind: SensorKind::WaterContent,
+                sensor_id: "W10".into(),
+                time: 40 * 86_400,
+                value: 0.31,
+            },
+            reason: "stuck sensor".into(),
+            score: Some(2.0),
+        };
+        let effects = update(&mut state, Action::Loaded(Loaded::Review(Ok(vec![record]))));
+        let around = series_of(&effects);
+        assert_eq!(around.window, Some((37 * 86_400, 43 * 86_400)));
+        assert_eq!(around.mark, Some(("W10".to_string(), 40 * 86_400)));
+        assert_eq!(
+            state.detail,
+            Detail::Empty,
+            "no sample to load for a record"
+        );
+        update(
+            &mut state,
+            Action::Loaded(Loaded::Series(Box::new(answer(&around)))),
+        );
+        assert!(state.review.series.is_some());
+        assert_eq!(
+            update(&mut state, Action::Dismiss),
+            vec![Effect::DecideFlag {
+                flag_id: 9,
+                target: FlagTarget::LoggerRecord(77),
+                accept: false
+            }]
+        );
+        // 4 on a suspect record opens its series as Enter does (Enter: tests/tui.rs).
+        assert_eq!(
+            update(&mut state, Action::ShowSeries),
+            vec![Effect::LoadSensors]
+        );
+        assert_eq!(state.screen, Screen::Series);
+        let there = series_of(&update(
+            &mut state,
+            Action::Loaded(Loaded::Sensors(Ok(sensors()))),
+        ));
+        assert_eq!(there.sensor_id, "W10");
+        assert_eq!(there.window, around.window);
+        assert_eq!(there.mark, around.mark);
+        // A flag decided on this screen reloads the sensors (and then the series).
+        let effects = update(&mut state, Action::FlagChanged(Ok("accepted".into())));
+        assert!(effects.contains(&Effect::LoadSensors), "{effects:?}");
     }
 
     #[test]

@@ -26,6 +26,7 @@ pub mod plot;
 pub mod prompt;
 pub mod readings;
 pub mod review;
+pub mod series;
 pub mod summary;
 pub mod tree;
 
@@ -97,6 +98,7 @@ pub fn draw(state: &AppState, keys: &KeyTable, area: Rect, buf: &mut Buffer) {
         Screen::Browse => draw_browse(state, body, buf),
         Screen::Depth => depth::DepthScreen { state }.render(body, buf),
         Screen::Review => review::ReviewScreen { state }.render(body, buf),
+        Screen::Series => series::SeriesScreen { state }.render(body, buf),
         Screen::Help => help::HelpScreen { state, keys }.render(body, buf),
     }
     chrome::StatusLine { state }.render(status, buf);
@@ -267,6 +269,27 @@ pub fn kpa_text(kpa: f64, unit: AxisUnit) -> String {
     }
 }
 
+/// The tag of a field-pairing sample beside its code (a lab core has none): in-situ sensors,
+/// not a core on a plate.
+pub const FIELD_TAG: &str = "≈";
+
+/// The kind tag of a sample: [`FIELD_TAG`] for a field pairing, a space for a lab core.
+pub fn kind_tag(kind: crate::model::domain::SampleKind) -> &'static str {
+    match kind {
+        crate::model::domain::SampleKind::FieldPairing => FIELD_TAG,
+        crate::model::domain::SampleKind::LabCore => " ",
+    }
+}
+
+/// A sample code without its site's prefix (`TER1-field-15cm` under `TER1` is `field-15cm`),
+/// where the site is shown already (the tree under its site row, the depth view of a site).
+pub fn short_code<'a>(site: &str, code: &'a str) -> &'a str {
+    code.strip_prefix(site)
+        .and_then(|rest| rest.strip_prefix('-'))
+        .filter(|rest| !rest.is_empty())
+        .unwrap_or(code)
+}
+
 /// Cut text to `width` characters, ending with `…` when cut.
 pub fn fit_width(text: &str, width: usize) -> String {
     let count = text.chars().count();
@@ -308,6 +331,9 @@ mod tests {
         assert_eq!(suction_text(33.0 * CM_PER_KPA, AxisUnit::Kpa), "33");
         assert_eq!(kpa_text(1500.0, AxisUnit::Kpa), "1500 kPa");
         assert_eq!(fit_width("abcdef", 4), "abc…");
+        assert_eq!(short_code("TER1", "TER1-field-15cm"), "field-15cm");
+        assert_eq!(short_code("TER1", "TER10-A-a"), "TER10-A-a");
+        assert_eq!(short_code("TER1", "TER1-"), "TER1-");
         assert_eq!(scroll_offset(50, 100, 10), 45);
         assert_eq!(scroll_offset(99, 100, 10), 90);
         assert_eq!(scroll_offset(3, 5, 10), 0);

@@ -6,13 +6,19 @@ use std::collections::HashMap;
 use rusqlite::Connection;
 
 use crate::analysis::{derive_fit, profiles, sample_fits};
+use crate::field::time::parse_instant;
+use crate::model::domain::SensorKind;
 use crate::model::domain::{FlagStatus, FlagTarget};
 use crate::store::fits::{self, FitState, Selection};
 use crate::store::flags::{self, FlagFilter, Subject};
 use crate::store::outline::{self, outline};
-use crate::store::{CampaignSettings, Result, StoreError, readings};
+use crate::store::{CampaignSettings, Result, StoreError, logger, readings};
 
-use super::super::app::{DepthData, FlagMark, ReviewItem, SampleDetail, SampleParts, Tree};
+use super::super::app::series::{SensorSeries, Thinner};
+use super::super::app::{
+    DepthData, FlagMark, ReviewItem, SampleDetail, SampleParts, SensorInfo, SeriesData,
+    SeriesRequest, Suspect, Tree,
+};
 
 /// The tree: outline, fit standings and flag counts.
 ///
@@ -131,33 +137,226 @@ pub fn depth(
     ))
 }
 
-/// The review queue: open suggestions on readings, worst first (logger records have their own
-/// pane, to come).
+/// The review queue: open suggestions on readings and logger records, worst first.
 ///
 /// # Errors
 /// An SQLite error.
 pub fn review(conn: &Connection) -> Result<Vec<ReviewItem>> {
     Ok(flags::queue(conn, &FlagFilter::default())?
         .into_iter()
-        .filter_map(|row| match row.subject {
-            Subject::Reading {
-                reading_id,
-                sample_id,
-                sample,
-                h_cm,
-                theta,
-                ..
-            } => Some(ReviewItem {
+        .filter_map(|row| {
+            let suspect = match row.subject {
+                Subject::Reading {
+                    reading_id,
+                    sample_id,
+                    sample,
+                    h_cm,
+                    theta,
+                    ..
+                } => Suspect::Reading {
+                    reading_id,
+                    sample_id,
+                    sample,
+                    h_cm,
+                    theta,
+                },
+                Subject::LoggerRecord {
+                    record_id,
+                    site,
+                    depth_cm,
+                    sensor,
+                    sensor_id,
+                    time,
+                    value,
+                } => Suspect::Record {
+                    record_id,
+                    site,
+                    depth_cm,
+                    kind: sensor.parse().ok()?,
+                    sensor_id,
+                    time: parse_instant(&time, Some(0)).ok()?,
+                    value,
+                },
+            };
+            Some(ReviewItem {
                 flag_id: row.stored.id,
-                reading_id,
-                sample_id,
-                sample,
-                h_cm,
-                theta,
+                suspect,
                 reason: row.stored.flag.reason,
                 score: row.stored.flag.score,
-            }),
-            Subject::LoggerRecord { .. } => None,
+            })
         })
         .collect())
+}
+
+/// Every logger sensor of the campaign with its first and last record and its flagged
+/// records: one index seek per sensor and end, whatever the series' length.
+///
+/// # Errors
+/// An SQLite error.
+pub fn sensors(conn: &Connection) -> Result<Vec<SensorInfo>> {
+    let flagged = logger::flagged_by_sensor(conn)?;
+    let mut out = Vec::new();
+    for s in logger::sensors(conn, None)? {
+        let Some((first, last)) = logger::span(conn, s.site_id, &s.sensor_id)? else {
+            continue;
+        };
+        out.push(SensorInfo {
+            flagged: flagged
+                .get(&(s.site_id, s.sensor_id.clone()))
+                .copied()
+                .unwrap_or(0),
+            site: s.site,
+            sensor_id: s.sensor_id,
+            kind: s.sensor,
+            depth_cm: s.depth_cm,
+            first,
+            last,
+        });
+    }
+    Ok(out)
+}
+
+/// The series of one depth in a window: the asked-for sensor and its partner of the other
+/// kind at the same depth, each streamed through a [`Thinner`] (memory stays flat however
+/// many records the window holds).
+///
+/// # Errors
+/// An unknown site, or an SQLite error.
+pub fn series(conn: &Connection, request: &SeriesRequest) -> Result<SeriesData> {
+    let Some(site) = crate::store::sites::find(conn, &request.site)? else {
+        return Err(StoreError::Unknown {
+            what: "site",
+            code: request.site.clone(),
+        });
+    };
+    let at_depth: Vec<_> = logger::sensors(conn, Some(site.id))?
+        .into_iter()
+        .filter(|s| (s.depth_cm - request.depth_cm).abs() < 1e-9)
+        .collect();
+    let pick = |kind: SensorKind| {
+        at_depth
+            .iter()
+            .find(|s| s.sensor == kind && s.sensor_id == request.sensor_id)
+            .or_else(|| at_depth.iter().find(|s| s.sensor == kind))
+    };
+    let plotted: Vec<_> = [SensorKind::Tensiometer, SensorKind::WaterContent]
+        .into_iter()
+        .map(pick)
+        .collect();
+    let window = if let Some(w) = request.window {
+        w
+    } else {
+        let mut span: Option<(i64, i64)> = None;
+        for s in plotted.iter().flatten() {
+            if let Some((a, b)) = logger::span(conn, site.id, &s.sensor_id)? {
+                span = Some(span.map_or((a, b), |(x, y)| (x.min(a), y.max(b))));
+            }
+        }
+        span.unwrap_or((0, 0))
+    };
+    let mut out = Vec::new();
+    for s in plotted {
+        let Some(s) = s else {
+            out.push(None);
+            continue;
+        };
+        let mark_time = request
+            .mark
+            .as_ref()
+            .filter(|(id, _)| *id == s.sensor_id)
+            .map(|(_, t)| *t);
+        let mut mark = None;
+        let mut thinner = Thinner::new(window, request.columns);
+        logger::each_between(
+            conn,
+            site.id,
+            &s.sensor_id,
+            window.0,
+            window.1,
+            |t, v, f| {
+                if Some(t) == mark_time {
+                    mark = Some((t, v));
+                }
+                thinner.push(t, v, f > 0);
+            },
+        )?;
+        let (buckets, records, flagged) = thinner.finish();
+        out.push(Some(SensorSeries {
+            sensor_id: s.sensor_id.clone(),
+            kind: s.sensor,
+            records,
+            flagged,
+            buckets,
+            mark,
+        }));
+    }
+    let water = out.pop().flatten();
+    let suction = out.pop().flatten();
+    Ok(SeriesData {
+        request: request.clone(),
+        window,
+        columns: request.columns.max(1),
+        suction,
+        water,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    #![allow(clippy::float_cmp)]
+
+    use super::*;
+    use crate::store::Campaign;
+
+    #[test]
+    fn a_depth_series_brings_its_partner_thinned_with_the_record_marked() {
+        let c = Campaign::in_memory("t", 33.0, 1500.0).expect("campaign");
+        c.connection()
+            .execute_batch(
+                "INSERT INTO site (id, uid, code) VALUES (1, '00000000-0000-4000-8000-000000000001', 'S');
+                 INSERT INTO logger_record (id, site_id, depth_cm, sensor, sensor_id, time, value) VALUES
+                     (1, 1, 30, 'tensiometer', 'T30', '1970-01-01T00:00:00Z', 10),
+                     (2, 1, 30, 'tensiometer', 'T30', '1970-01-01T01:00:00Z', 900),
+                     (3, 1, 30, 'tensiometer', 'T30', '1970-01-01T02:00:00Z', 12),
+                     (4, 1, 30, 'water_content', 'W30', '1970-01-01T01:00:00Z', 0.3),
+                     (5, 1, 60, 'water_content', 'W60', '1970-01-01T01:00:00Z', 0.2);
+                 INSERT INTO flag (logger_record_id, reason, origin, status, created_at)
+                     VALUES (2, 'spike', 'auto', 'suggested', '2026-01-01T00:00:00Z');",
+            )
+            .expect("fixture");
+        let conn = c.connection();
+        let request = SeriesRequest {
+            site: "S".into(),
+            depth_cm: 30.0,
+            sensor_id: "W30".into(),
+            window: None,
+            columns: 3,
+            mark: Some(("T30".into(), 3600)),
+        };
+        let data = series(conn, &request).expect("series");
+        assert_eq!(data.window, (0, 7200));
+        let suction = data.suction.expect("the tensiometer at 30 cm");
+        assert_eq!(suction.sensor_id, "T30");
+        assert_eq!((suction.records, suction.flagged), (3, 1));
+        assert_eq!(suction.mark, Some((3600, 900.0)));
+        assert_eq!(suction.buckets.len(), 3);
+        assert_eq!(suction.buckets[1].flagged.map(|e| e.max), Some(900.0));
+        assert!(
+            suction.buckets[1].values.is_none(),
+            "flagged records stay off the line"
+        );
+        let water = data.water.expect("the probe asked for");
+        assert_eq!((water.sensor_id.as_str(), water.mark), ("W30", None));
+        let listed = sensors(conn).expect("sensors");
+        let ids: Vec<(&str, usize)> = listed
+            .iter()
+            .map(|s| (s.sensor_id.as_str(), s.flagged))
+            .collect();
+        assert_eq!(ids, [("T30", 1), ("W30", 0), ("W60", 0)]);
+        let unknown = SeriesRequest {
+            site: "X".into(),
+            ..request
+        };
+        assert!(series(conn, &unknown).is_err());
+    }
 }

@@ -26,6 +26,7 @@ impl Widget for Header<'_> {
             (Screen::Browse, "1 Browse"),
             (Screen::Depth, "2 Depth"),
             (Screen::Review, "3 Review"),
+            (Screen::Series, "4 Series"),
             (Screen::Help, "? Help"),
         ];
         let mut right: Vec<Span<'static>> = Vec::new();

@@ -1,12 +1,15 @@
-//! The curve pane: measured points (`o` used, `x` excluded, `◆` the selected reading), the
-//! fitted curve, the 95 % band on request (dotted), field capacity and wilting point marked.
+//! The curve pane: measured points (`o` used, `▼` drying and `▲` wetting where the branch is
+//! known, `x` excluded, `◆` the selected reading), the fitted curve, the 95 % band on request
+//! (dotted), field capacity and wilting point marked.
 
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Paragraph, Widget};
 
-use super::super::app::{AppState, Detail, SampleDetail, plot_x};
+use crate::model::domain::Branch;
+
+use super::super::app::{AppState, Detail, ReadingView, SampleDetail, plot_x};
 use super::plot::{Axes, draw_dotted, draw_polyline, render_canvas};
 use super::{framed, theta_text};
 
@@ -16,6 +19,40 @@ pub const USED: &str = "o";
 pub const EXCLUDED: &str = "x";
 /// The glyph of the selected reading.
 pub const SELECTED: &str = "◆";
+/// The glyph of a used reading on the drying branch (suction rising).
+pub const DRYING: &str = "▼";
+/// The glyph of a used reading on the wetting branch (suction falling).
+pub const WETTING: &str = "▲";
+
+/// A reading's glyph: excluded, or its branch (`o` when not recorded).
+pub fn point_glyph(r: &ReadingView) -> &'static str {
+    if r.excluded {
+        return EXCLUDED;
+    }
+    match r.branch {
+        Branch::Drying => DRYING,
+        Branch::Wetting => WETTING,
+        Branch::Unknown => USED,
+    }
+}
+
+/// The legend's point entries: one per glyph the sample's used readings show, then excluded.
+fn point_legend(readings: &[ReadingView]) -> Vec<(&'static str, &'static str)> {
+    let has = |b: Branch| readings.iter().any(|r| !r.excluded && r.branch == b);
+    let branches = has(Branch::Drying) || has(Branch::Wetting);
+    let mut out = Vec::new();
+    if has(Branch::Drying) {
+        out.push((DRYING, "drying"));
+    }
+    if has(Branch::Wetting) {
+        out.push((WETTING, "wetting"));
+    }
+    if has(Branch::Unknown) || !branches {
+        out.push((USED, if branches { "other" } else { "used" }));
+    }
+    out.push((EXCLUDED, "excluded"));
+    out
+}
 
 /// The curve pane of the browse screen.
 pub struct CurvePane<'a> {
@@ -115,12 +152,12 @@ impl Widget for CurvePlot<'_> {
         for excluded in [false, true] {
             for r in d.readings.iter().filter(|r| r.excluded == excluded) {
                 if let Some((x, y)) = axes.cell(plot, plot_x(r.h_cm), r.theta) {
-                    let (glyph, style) = if excluded {
-                        (EXCLUDED, theme.excluded_point())
+                    let style = if excluded {
+                        theme.excluded_point()
                     } else {
-                        (USED, theme.point())
+                        theme.point()
                     };
-                    buf.set_string(x, y, glyph, style);
+                    buf.set_string(x, y, point_glyph(r), style);
                 }
             }
         }
@@ -129,17 +166,21 @@ impl Widget for CurvePlot<'_> {
         {
             buf.set_string(x, y, SELECTED, theme.selected_point());
         }
-        let mut legend = vec![
-            Span::styled(USED, theme.point()),
-            Span::raw(" used "),
-            Span::styled(EXCLUDED, theme.excluded_point()),
-            Span::raw(" excluded "),
-            Span::raw(if d.curve.is_empty() {
-                "no fit"
+        let mut legend = Vec::new();
+        for (glyph, label) in point_legend(&d.readings) {
+            let style = if glyph == EXCLUDED {
+                theme.excluded_point()
             } else {
-                "─ fit"
-            }),
-        ];
+                theme.point()
+            };
+            legend.push(Span::styled(glyph, style));
+            legend.push(Span::raw(format!(" {label} ")));
+        }
+        legend.extend([Span::raw(if d.curve.is_empty() {
+            "no fit"
+        } else {
+            "─ fit"
+        })]);
         if show_band {
             legend.push(Span::raw(" ⠁⠂ 95 % band"));
         } else if state.band {

@@ -1,15 +1,19 @@
 //! The depth view of one site: every layer's curves overlaid (each layer marked along its
-//! curves with its digit, so the legend reads without colour), the parameters by depth, and
-//! the profile's available water in mm down to the root-zone depth.
+//! curves with its digit, so the legend reads without colour; field pairings dotted), the
+//! parameters by depth (field pairings tagged `≈` beside the lab cores), and the profile's
+//! available water in mm down to the root-zone depth, with the field pairings' beside it.
 
 use ratatui::buffer::Buffer;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Paragraph, Row, Widget};
 
-use super::super::app::{AppState, DepthData, model_tag};
-use super::plot::{Axes, draw_polyline, render_canvas};
-use super::{cursor_row, framed, kpa_text, num, opt_num, render_table, scroll_offset};
+use super::super::app::{AppState, DepthData, LayerCurve, model_tag};
+use super::plot::{Axes, draw_dotted, draw_polyline, render_canvas};
+use super::{
+    FIELD_TAG, cursor_row, framed, kind_tag, kpa_text, num, opt_num, render_table, scroll_offset,
+    short_code,
+};
 use crate::model::units::CM_PER_KPA;
 
 /// The depth screen.
@@ -60,7 +64,7 @@ impl DepthScreen<'_> {
         let theta_max = data
             .layers
             .iter()
-            .flat_map(|l| l.curves.iter().flat_map(|(_, c)| c))
+            .flat_map(|l| l.curves.iter().flat_map(|c| &c.points))
             .map(|p| p.1)
             .fold(0.0_f64, f64::max);
         let axes = Axes::new(theta_max, super::super::app::PLOT_X_MAX, state.units);
@@ -83,8 +87,12 @@ impl DepthScreen<'_> {
         );
         let canvas = axes.canvas(|ctx| {
             for (i, layer) in data.layers.iter().enumerate() {
-                for (_, curve) in &layer.curves {
-                    draw_polyline(ctx, curve, theme.layer(i));
+                for curve in &layer.curves {
+                    if curve.field {
+                        draw_dotted(ctx, &curve.points, theme.layer(i));
+                    } else {
+                        draw_polyline(ctx, &curve.points, theme.layer(i));
+                    }
                 }
             }
         });
@@ -96,7 +104,12 @@ impl DepthScreen<'_> {
             let style = ratatui::style::Style::new()
                 .fg(theme.layer(li))
                 .add_modifier(ratatui::style::Modifier::BOLD);
-            for (sample_id, curve) in &layer.curves {
+            for LayerCurve {
+                sample_id,
+                points: curve,
+                ..
+            } in &layer.curves
+            {
                 let is_selected = selected.is_some_and(|r| r.sample_id == *sample_id);
                 for k in 0..3 {
                     let frac = (f64::from(k) + (li as f64 + 0.5) / n as f64) / 3.0;
@@ -155,6 +168,12 @@ impl DepthScreen<'_> {
                         .map_or_else(|| "–".to_string(), |v| format!("{v:.1}")),
                 )),
             ]));
+            if let Some(field) = l.field_available_water {
+                lines.push(Line::from(vec![
+                    Span::styled(format!("  {FIELD_TAG} "), theme.field_tag()),
+                    Span::raw(format!("{:<11}{field:>6.3}", "field")),
+                ]));
+            }
         }
         lines.push(Line::from(Span::styled(
             format!("total {:.1} mm to {} cm", data.total_mm, data.root_zone_cm),
@@ -171,7 +190,8 @@ impl DepthScreen<'_> {
         }
         lines.push(Line::from(Span::styled(
             format!(
-                "AW = θ(FC) − θ(PWP), m3/m3, mean of the lab cores; FC {}, PWP {}",
+                "AW = θ(FC) − θ(PWP), m3/m3, lab-core mean ({FIELD_TAG} field, not summed); \
+                 FC {}, PWP {}",
                 kpa_text(data.fc_kpa, state.units),
                 kpa_text(data.pwp_kpa, state.units)
             ),
@@ -224,7 +244,10 @@ impl DepthScreen<'_> {
                             ratatui::style::Style::new().fg(theme.layer(r.layer)),
                         )),
                         Line::from(format!("{}-{}", layer.top_cm, layer.bottom_cm)),
-                        Line::from(r.sample.clone()),
+                        Line::from(vec![
+                            Span::styled(kind_tag(r.kind), theme.field_tag()),
+                            Span::raw(format!(" {}", short_code(&data.site, &r.sample))),
+                        ]),
                         Line::from(Span::styled(
                             format!(
                                 "{} {}",

@@ -61,7 +61,11 @@ impl HelpScreen<'_> {
                 Span::styled("⚑", theme.flag()),
                 Span::raw(" flagged readings  ┆ FC, PWP  ⠁⠂ 95 % band"),
             ]),
-            Line::from("o used  x excluded  ◆ selected reading"),
+            Line::from("o used  ▼ drying  ▲ wetting  x excluded  ◆ selected reading"),
+            Line::from(vec![
+                Span::styled(super::FIELD_TAG, theme.field_tag()),
+                Span::raw(" field pairing (in place; dotted in the depth view)  ⡇ logger series"),
+            ]),
             Line::from(""),
         ];
         for (title, entries) in self.keys.help_sections() {

@@ -76,25 +76,30 @@ pub fn y_ticks(y: [f64; 2], rows: u16) -> Vec<f64> {
     out
 }
 
-impl Axes {
-    /// Axes for water contents up to `theta_max`, from 0.1 cm to 10^`x_max` cm.
-    pub fn new(theta_max: f64, x_max: f64, unit: AxisUnit) -> Axes {
-        let top = ((theta_max.max(0.05) + 0.02) * 10.0).ceil() / 10.0;
-        Axes {
-            x: [super::super::app::PLOT_X_MIN, x_max],
-            y: [0.0, top.min(1.0)],
-            unit,
-        }
-    }
+/// A plot window in data coordinates over part of the terminal, with room on the left for
+/// value labels and below for an axis line and its labels. Any axis can be drawn on it from a
+/// list of ticks at their true places.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Grid {
+    /// Data x at the left and right edges.
+    pub x: [f64; 2],
+    /// Data y at the bottom and top.
+    pub y: [f64; 2],
+    /// Columns left of the plot for the y labels and the axis.
+    pub label_width: u16,
+    /// Rows below the plot: 0, 1 (axis line) or 2 (axis line and labels).
+    pub bottom_rows: u16,
+}
 
-    /// The part of `area` the curves go in (room left for labels on the left and below).
+impl Grid {
+    /// The part of `area` the data go in.
     pub fn plot_area(&self, area: Rect) -> Rect {
-        let left = Y_LABEL_WIDTH.min(area.width);
+        let left = self.label_width.min(area.width);
         Rect {
             x: area.x + left,
             y: area.y,
             width: area.width.saturating_sub(left),
-            height: area.height.saturating_sub(2),
+            height: area.height.saturating_sub(self.bottom_rows),
         }
     }
 
@@ -113,44 +118,51 @@ impl Axes {
         Some((plot.x + col, plot.y + row))
     }
 
-    /// Draw the axes, ticks and labels around the plot area of `area`.
-    pub fn render_axes(&self, area: Rect, buf: &mut Buffer, theme: Theme) {
+    /// The y axis left of the plot, each tick's label on its row.
+    pub fn render_y_axis(&self, area: Rect, buf: &mut Buffer, theme: Theme, ticks: &[Tick]) {
         let plot = self.plot_area(area);
-        if plot.width < 4 || plot.height < 2 {
+        if plot.width < 4 || plot.height < 2 || plot.x == 0 {
+            return;
+        }
+        let dim = theme.dim();
+        let axis_col = plot.x - 1;
+        for row in plot.top()..plot.bottom() {
+            buf.set_string(axis_col, row, "│", dim);
+        }
+        for (v, text) in ticks {
+            if let Some((_, row)) = self.cell(plot, self.x[0], *v) {
+                let x = axis_col.saturating_sub(text.chars().count() as u16);
+                buf.set_string(x.max(area.x), row, text, dim);
+                buf.set_string(axis_col, row, "┤", dim);
+            }
+        }
+    }
+
+    /// The x axis below the plot with its ticks, and (when there is a row for them) each
+    /// tick's label centred on its true place, skipping labels that would collide.
+    pub fn render_x_axis(&self, area: Rect, buf: &mut Buffer, theme: Theme, ticks: &[Tick]) {
+        let plot = self.plot_area(area);
+        if plot.width < 4 || plot.height < 2 || plot.x == 0 || self.bottom_rows == 0 {
             return;
         }
         let dim = theme.dim();
         let axis_row = plot.bottom();
         let label_row = axis_row + 1;
-        // The y axis and its labels.
-        let axis_col = plot.x - 1;
-        for row in plot.top()..plot.bottom() {
-            buf.set_string(axis_col, row, "│", dim);
-        }
-        for v in y_ticks(self.y, plot.height) {
-            if let Some((_, row)) = self.cell(plot, self.x[0], v) {
-                let text = format!("{v:.1}");
-                let x = axis_col.saturating_sub(text.len() as u16);
-                buf.set_string(x.max(area.x), row, &text, dim);
-                buf.set_string(axis_col, row, "┤", dim);
-            }
-        }
-        // The x axis and its decade ticks, each label centred on its true place.
         if axis_row < area.bottom() {
-            buf.set_string(axis_col, axis_row, "└", dim);
+            buf.set_string(plot.x - 1, axis_row, "└", dim);
             for col in plot.left()..plot.right() {
                 buf.set_string(col, axis_row, "─", dim);
             }
         }
         let mut free_from = area.x;
-        for (x, text) in x_ticks(self.unit, self.x) {
-            let Some((col, _)) = self.cell(plot, x, self.y[0]) else {
+        for (x, text) in ticks {
+            let Some((col, _)) = self.cell(plot, *x, self.y[0]) else {
                 continue;
             };
             if axis_row < area.bottom() {
                 buf.set_string(col, axis_row, "┴", dim);
             }
-            if label_row >= area.bottom() {
+            if self.bottom_rows < 2 || label_row >= area.bottom() {
                 continue;
             }
             let width = text.chars().count() as u16;
@@ -159,13 +171,13 @@ impl Axes {
                 .max(area.x)
                 .min(area.right().saturating_sub(width));
             if start >= free_from {
-                buf.set_string(start, label_row, &text, dim);
+                buf.set_string(start, label_row, text, dim);
                 free_from = start + width + 1;
             }
         }
     }
 
-    /// A braille canvas over the plot area with these bounds.
+    /// A braille canvas with these bounds (to render into the plot area).
     pub fn canvas<F>(&self, paint: F) -> Canvas<'static, F>
     where
         F: Fn(&mut Context<'_>),
@@ -175,6 +187,58 @@ impl Axes {
             .x_bounds(self.x)
             .y_bounds(self.y)
             .paint(paint)
+    }
+}
+
+impl Axes {
+    /// Axes for water contents up to `theta_max`, from 0.1 cm to 10^`x_max` cm.
+    pub fn new(theta_max: f64, x_max: f64, unit: AxisUnit) -> Axes {
+        let top = ((theta_max.max(0.05) + 0.02) * 10.0).ceil() / 10.0;
+        Axes {
+            x: [super::super::app::PLOT_X_MIN, x_max],
+            y: [0.0, top.min(1.0)],
+            unit,
+        }
+    }
+
+    /// The grid these axes draw on.
+    pub fn grid(&self) -> Grid {
+        Grid {
+            x: self.x,
+            y: self.y,
+            label_width: Y_LABEL_WIDTH,
+            bottom_rows: 2,
+        }
+    }
+
+    /// The part of `area` the curves go in (room left for labels on the left and below).
+    pub fn plot_area(&self, area: Rect) -> Rect {
+        self.grid().plot_area(area)
+    }
+
+    /// The cell of a data point in the plot area, `None` outside the window.
+    pub fn cell(&self, plot: Rect, x: f64, y: f64) -> Option<(u16, u16)> {
+        self.grid().cell(plot, x, y)
+    }
+
+    /// Draw the axes, ticks and labels around the plot area of `area`.
+    pub fn render_axes(&self, area: Rect, buf: &mut Buffer, theme: Theme) {
+        let grid = self.grid();
+        let rows = grid.plot_area(area).height;
+        let y: Vec<Tick> = y_ticks(self.y, rows)
+            .into_iter()
+            .map(|v| (v, format!("{v:.1}")))
+            .collect();
+        grid.render_y_axis(area, buf, theme, &y);
+        grid.render_x_axis(area, buf, theme, &x_ticks(self.unit, self.x));
+    }
+
+    /// A braille canvas over the plot area with these bounds.
+    pub fn canvas<F>(&self, paint: F) -> Canvas<'static, F>
+    where
+        F: Fn(&mut Context<'_>),
+    {
+        self.grid().canvas(paint)
     }
 
     /// A vertical dashed marker line at `x` with a label at the top (FC, PWP).
@@ -196,6 +260,34 @@ impl Axes {
         };
         buf.set_string(start, plot.top(), label, style);
     }
+}
+
+/// Ticks every `step` (the smallest of 0.01, 0.02, 0.05, 0.1, 0.2, 0.5 and 1 that leaves a
+/// row and a half per tick) from the bottom to the top, labelled with as many decimals as the
+/// step needs.
+pub fn fine_ticks(y: [f64; 2], rows: u16) -> Vec<Tick> {
+    let span = y[1] - y[0];
+    let room = f64::from(rows.max(1)) / 1.5;
+    let (step, decimals) = [
+        (0.01, 2),
+        (0.02, 2),
+        (0.05, 2),
+        (0.1, 1),
+        (0.2, 1),
+        (0.5, 1),
+        (1.0, 0),
+    ]
+    .into_iter()
+    .find(|(step, _)| span / step <= room)
+    .unwrap_or((1.0, 0));
+    let mut out = Vec::new();
+    let mut k = (y[0] / step - 1e-9).ceil();
+    while k * step <= y[1] + 1e-9 {
+        let v = k * step;
+        out.push((v, format!("{v:.decimals$}")));
+        k += 1.0;
+    }
+    out
 }
 
 /// Draw a polyline of (x, theta) points on a canvas context.
@@ -280,5 +372,26 @@ mod tests {
     fn y_ticks_thin_out_on_short_plots() {
         assert_eq!(y_ticks([0.0, 0.5], 20).len(), 6);
         assert_eq!(y_ticks([0.0, 0.5], 4), vec![0.0, 0.2, 0.4]);
+        let fine = fine_ticks([0.12, 0.33], 10);
+        let labels: Vec<&str> = fine.iter().map(|t| t.1.as_str()).collect();
+        assert_eq!(labels, ["0.15", "0.20", "0.25", "0.30"]);
+        assert_eq!(fine_ticks([0.0, 0.5], 4).len(), 3);
+    }
+
+    #[test]
+    fn a_grid_without_label_rows_draws_no_x_labels() {
+        let grid = Grid {
+            x: [0.0, 10.0],
+            y: [0.0, 1.0],
+            label_width: 5,
+            bottom_rows: 1,
+        };
+        let area = Rect::new(0, 0, 30, 6);
+        assert_eq!(grid.plot_area(area), Rect::new(5, 0, 25, 5));
+        let mut buf = Buffer::empty(area);
+        grid.render_x_axis(area, &mut buf, Theme::monochrome(), &[(5.0, "mid".into())]);
+        assert_eq!(buf[(17, 5)].symbol(), "┴");
+        let text: String = (0..30).map(|x| buf[(x, 5)].symbol().to_string()).collect();
+        assert!(!text.contains("mid"), "{text}");
     }
 }

@@ -1,5 +1,6 @@
-//! The readings table: suction, water content, method, residual, studentized residual, flag
-//! and reason; the row under the cursor is the `◆` on the curve.
+//! The readings table: the point's glyph (branch or excluded, as on the curve), suction,
+//! water content, method, residual, studentized residual, flag and reason; the row under the
+//! cursor is the `◆` on the curve.
 
 use ratatui::buffer::Buffer;
 use ratatui::layout::{Constraint, Rect};
@@ -7,7 +8,7 @@ use ratatui::text::{Line, Span};
 use ratatui::widgets::{Paragraph, Row, Widget};
 
 use super::super::app::{AppState, Detail, ReadingView};
-use super::curve::{EXCLUDED, USED};
+use super::curve::point_glyph;
 use super::{cursor_row, framed, render_table, scroll_offset, suction_text, theta_text};
 
 /// The readings pane.
@@ -77,7 +78,7 @@ impl Widget for ReadingsPane<'_> {
             .skip(offset)
             .take(height)
             .map(|(i, r)| {
-                let glyph = if r.excluded { EXCLUDED } else { USED };
+                let glyph = point_glyph(r);
                 let row = Row::new(vec![
                     Line::from(Span::styled(
                         glyph,

@@ -1,13 +1,17 @@
-//! The review queue: suspected outliers across the campaign, worst first, with the suspect's
-//! sample curve beside it (the reading under review is the `◆`).
+//! The review queue: suspected outliers across the campaign (lab and field readings, logger
+//! records), worst first, with the suspect's sample curve beside it (the reading under review
+//! is the `◆`), or for a logger record the series around its time (the record is the `◆`).
 
 use ratatui::buffer::Buffer;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Paragraph, Row, Widget, Wrap};
 
-use super::super::app::{AppState, Detail};
+use crate::model::domain::SensorKind;
+
+use super::super::app::{AppState, Detail, ReviewItem, Suspect};
 use super::curve::CurvePlot;
+use super::series::{SeriesPlot, date_text, time_text};
 use super::{
     cursor_row, framed, num, opt_num, render_table, scroll_offset, suction_text, theta_text,
 };
@@ -46,13 +50,14 @@ impl Widget for ReviewScreen<'_> {
         } else if inner.height >= 2 {
             let header = Row::new(vec![
                 "score".to_string(),
-                "sample".to_string(),
+                "suspect".to_string(),
                 format!("h {}", state.units.symbol()),
                 "θ".to_string(),
             ])
             .style(theme.heading());
             let height = usize::from(inner.height - 1);
             let offset = scroll_offset(review.cursor, review.items.len(), height);
+            let room = usize::from(inner.width).saturating_sub(5 + 6 + 5 + 3);
             let rows = review
                 .items
                 .iter()
@@ -60,12 +65,8 @@ impl Widget for ReviewScreen<'_> {
                 .skip(offset)
                 .take(height)
                 .map(|(i, item)| {
-                    let row = Row::new(vec![
-                        opt_num(item.score, 3),
-                        item.sample.clone(),
-                        suction_text(item.h_cm, state.units),
-                        theta_text(item.theta),
-                    ]);
+                    let [what, h, theta] = columns(item, state, room);
+                    let row = Row::new(vec![opt_num(item.score, 3), what, h, theta]);
                     cursor_row(row, i == review.cursor, true, theme)
                 });
             let widths = [
@@ -78,43 +79,149 @@ impl Widget for ReviewScreen<'_> {
         }
         let [curve_area, detail_area] =
             Layout::vertical([Constraint::Fill(1), Constraint::Length(7)]).areas(right);
-        let title = match (&state.detail, state.review_item()) {
-            (Detail::Ready(d), Some(_)) => format!("Curve · {}", d.code),
-            _ => "Curve".to_string(),
-        };
-        let inner = framed(title, false, theme, curve_area, buf);
-        if let (Detail::Ready(detail), Some(item)) = (&state.detail, state.review_item()) {
-            let selected = detail.readings.iter().position(|r| r.id == item.reading_id);
-            CurvePlot {
-                state,
-                detail,
-                selected,
+        match state.review_item().map(|i| &i.suspect) {
+            Some(Suspect::Record {
+                site,
+                depth_cm,
+                sensor_id,
+                time,
+                ..
+            }) => {
+                let title = format!(
+                    "Series · {site} {sensor_id} · {} cm · around {}",
+                    num(*depth_cm, 4),
+                    date_text(*time)
+                );
+                let inner = framed(title, false, theme, curve_area, buf);
+                let loaded = review
+                    .series
+                    .as_ref()
+                    .filter(|d| Some(&d.request) == review.series_wanted.as_ref());
+                match loaded {
+                    Some(data) => SeriesPlot { state, data }.render(inner, buf),
+                    None => Paragraph::new("loading…").render(inner, buf),
+                }
             }
-            .render(inner, buf);
+            reading => {
+                let title = match (&state.detail, reading) {
+                    (Detail::Ready(d), Some(_)) => format!("Curve · {}", d.code),
+                    _ => "Curve".to_string(),
+                };
+                let inner = framed(title, false, theme, curve_area, buf);
+                if let (Detail::Ready(detail), Some(item)) = (&state.detail, state.review_item()) {
+                    let selected = detail
+                        .readings
+                        .iter()
+                        .position(|r| Some(r.id) == item.reading_id());
+                    CurvePlot {
+                        state,
+                        detail,
+                        selected,
+                    }
+                    .render(inner, buf);
+                }
+            }
         }
         let inner = framed("Suspect", false, theme, detail_area, buf);
         if let Some(item) = state.review_item() {
-            let lines = vec![
-                Line::from(vec![
-                    Span::styled(item.sample.clone(), theme.heading()),
-                    Span::raw(format!(
-                        " · reading {} · h {} {} · θ {} · score {}",
-                        item.reading_id,
-                        suction_text(item.h_cm, state.units),
-                        state.units.symbol(),
-                        theta_text(item.theta),
-                        item.score.map_or_else(|| "–".to_string(), |s| num(s, 3))
-                    )),
-                ]),
-                Line::from(item.reason.clone()),
-                Line::from(Span::styled(
-                    "a accepts (left out of fits) · d dismisses (kept) · Enter opens the sample",
-                    theme.dim(),
-                )),
-            ];
-            Paragraph::new(lines)
+            Paragraph::new(suspect_lines(item, state))
                 .wrap(Wrap { trim: true })
                 .render(inner, buf);
         }
     }
+}
+
+/// A suspect's list columns: what it is, its suction and its water content.
+fn columns(item: &ReviewItem, state: &AppState, room: usize) -> [String; 3] {
+    match &item.suspect {
+        Suspect::Reading {
+            sample,
+            h_cm,
+            theta,
+            ..
+        } => [
+            sample.clone(),
+            suction_text(*h_cm, state.units),
+            theta_text(*theta),
+        ],
+        Suspect::Record {
+            site,
+            kind,
+            sensor_id,
+            time,
+            value,
+            ..
+        } => {
+            let when = chrono::DateTime::from_timestamp(*time, 0)
+                .map(|t| t.format("%m-%d %H:%M").to_string())
+                .unwrap_or_default();
+            let full = format!("{site} {sensor_id} {when}");
+            let what = if full.chars().count() <= room {
+                full
+            } else {
+                format!("{sensor_id} {when}")
+            };
+            match kind {
+                SensorKind::Tensiometer => [what, suction_text(*value, state.units), String::new()],
+                SensorKind::WaterContent => [what, String::new(), theta_text(*value)],
+            }
+        }
+    }
+}
+
+/// The suspect box: what and where, the value, the reason and the keys.
+fn suspect_lines(item: &ReviewItem, state: &AppState) -> Vec<Line<'static>> {
+    let theme = state.theme;
+    let score = item.score.map_or_else(|| "–".to_string(), |s| num(s, 3));
+    let (head, rest, keys) = match &item.suspect {
+        Suspect::Reading {
+            reading_id,
+            sample,
+            h_cm,
+            theta,
+            ..
+        } => (
+            sample.clone(),
+            format!(
+                " · reading {reading_id} · h {} {} · θ {} · score {score}",
+                suction_text(*h_cm, state.units),
+                state.units.symbol(),
+                theta_text(*theta),
+            ),
+            "a accepts (left out of fits) · d dismisses (kept) · Enter opens the sample",
+        ),
+        Suspect::Record {
+            site,
+            depth_cm,
+            kind,
+            sensor_id,
+            time,
+            value,
+            ..
+        } => {
+            let value = match kind {
+                SensorKind::Tensiometer => format!(
+                    "h {} {}",
+                    suction_text(*value, state.units),
+                    state.units.symbol()
+                ),
+                SensorKind::WaterContent => format!("θ {}", theta_text(*value)),
+            };
+            (
+                format!("{site} {sensor_id}"),
+                format!(
+                    " · {} · {} cm · {} · {value} · score {score}",
+                    kind.as_str().replace('_', " "),
+                    num(*depth_cm, 4),
+                    time_text(*time),
+                ),
+                "a accepts (left out of pairing) · d dismisses · Enter opens the series",
+            )
+        }
+    };
+    vec![
+        Line::from(vec![Span::styled(head, theme.heading()), Span::raw(rest)]),
+        Line::from(item.reason.clone()),
+        Line::from(Span::styled(keys, theme.dim())),
+    ]
 }

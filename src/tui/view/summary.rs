@@ -74,7 +74,7 @@ impl Widget for SummaryPane<'_> {
                 }
                 lines.push(Line::from(""));
                 lines.push(Line::from(Span::styled(
-                    "Enter opens the site · 2 shows its depth view · F refits it",
+                    "Enter opens the site · 2 its depth view · 4 its logger series · F refits it",
                     theme.dim(),
                 )));
                 format!(

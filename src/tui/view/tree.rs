@@ -1,5 +1,6 @@
-//! The campaign tree: sites, their layers (depth range and horizon) and samples with model,
-//! fit standing (glyph and colour) and flag count. Only the visible rows are drawn.
+//! The campaign tree: sites, their layers (depth range and horizon) and samples (code without
+//! the site's prefix, `≈` before a field pairing) with model, fit standing (glyph and colour)
+//! and flag count. Only the visible rows are drawn.
 
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
@@ -8,7 +9,7 @@ use ratatui::text::{Line, Span};
 use ratatui::widgets::Widget;
 
 use super::super::app::{AppState, FitTag, Input, TreeRow, model_tag};
-use super::{fit_width, pane_block, scroll_offset};
+use super::{fit_width, kind_tag, pane_block, scroll_offset, short_code};
 
 /// The tree pane.
 pub struct TreePane<'a> {
@@ -123,8 +124,14 @@ impl TreePane<'_> {
                 } else {
                     Span::raw("   ")
                 });
+                let site = &tree.sites[s].code;
                 (
-                    vec![Span::raw("    "), Span::raw(sample.code.clone())],
+                    vec![
+                        Span::raw("   "),
+                        Span::styled(kind_tag(sample.kind), theme.field_tag()),
+                        Span::raw(" "),
+                        Span::raw(short_code(site, &sample.code).to_string()),
+                    ],
                     right,
                 )
             }
