@@ -9,6 +9,7 @@ mod driver;
 mod error;
 mod models;
 mod problem;
+mod projection;
 mod report;
 mod stats;
 mod transform;

@@ -48,6 +48,7 @@ pub fn fit_model(
     let hooks = Hooks {
         canonicalize: Some(canon),
         linear: index("theta_s").map(|s| (index("theta_r"), s)),
+        first_guess: None,
     };
     let mut report = fit_curve_with(kind.curve(), kind.id(), readings, &options, &hooks)?;
     if let Err(e) = kind.check_params(&report.values()) {
