@@ -8,7 +8,8 @@
 //! `POREWISE_BASELINE_SAMPLES` the baseline's (default all), `POREWISE_BENCH_RESTARTS` the random
 //! restarts per sample (default 40); `POREWISE_BENCH_TOL`, `_STEP`, `_PATIENCE` change the fit
 //! options; `POREWISE_TRACE=INDEX` fits one sample and prints it; `--breakdown` groups the fits
-//! by solver runs.
+//! by solver runs; `--one-core` stops after the one-core timing (for instruction counts under
+//! callgrind); `POREWISE_BENCH_DUMP=FILE` writes each sample's SSE and best restart SSE.
 //!
 //! Parameters are drawn around the Carsel & Parrish (1988) class means (Water Resour. Res.
 //! 24(5), values from memory, high confidence); noise sd 0.005-0.01 m3/m3. Seeded (ChaCha8).
@@ -204,40 +205,23 @@ fn main() {
     let t0 = Instant::now();
     let ours: Vec<_> = samples.iter().map(fit).collect();
     let one_core = t0.elapsed().as_secs_f64();
+    if std::env::args().any(|a| a == "--one-core") {
+        summary(&ours, count, one_core);
+        return;
+    }
     let threads = rayon::current_num_threads();
     let t0 = Instant::now();
     let par: Vec<_> = samples.par_iter().map(fit).collect();
     let all_cores = t0.elapsed().as_secs_f64();
     assert_eq!(par.len(), ours.len());
 
-    let per_fit_us = one_core / count as f64 * 1e6;
-    let (mut runs, mut evals, mut failed, mut not_conv) = (0usize, 0usize, 0usize, 0usize);
-    for r in &ours {
-        match r {
-            Ok(r) => {
-                runs += r.runs;
-                evals += r.evaluations;
-                not_conv += usize::from(!r.converged);
-            }
-            Err(_) => failed += 1,
-        }
-    }
-    println!(
-        "samples: {count} (6-14 readings, noise sd 0.005-0.01), CSV: {}",
-        csv_path.display()
-    );
-    println!(
-        "one core:  {:.0} fits/s, {per_fit_us:.2} us/fit (mean {:.2} solver runs, {:.1} evaluations per fit)",
-        count as f64 / one_core,
-        runs as f64 / count as f64,
-        evals as f64 / count as f64
-    );
+    let per_fit_us = summary(&ours, count, one_core);
+    println!("CSV: {}", csv_path.display());
     println!(
         "all cores ({threads} threads): {:.0} fits/s, {:.2} us/fit wall",
         count as f64 / all_cores,
         all_cores / count as f64 * 1e6
     );
-    println!("errors: {failed}, not converged: {not_conv}");
     if std::env::args().any(|a| a == "--breakdown") {
         breakdown(&ours);
     }
@@ -257,6 +241,13 @@ fn main() {
             good += 1;
         } else {
             worse.push((i, sse, best));
+        }
+    }
+    if let Ok(path) = std::env::var("POREWISE_BENCH_DUMP") {
+        let mut f = std::io::BufWriter::new(std::fs::File::create(path).expect("dump"));
+        for (r, best) in ours.iter().zip(&reference) {
+            let sse = r.as_ref().map_or(f64::INFINITY, |r| r.sse);
+            writeln!(f, "{sse:e} {best:e}").expect("write");
         }
     }
     println!(
@@ -310,8 +301,35 @@ fn main() {
     }
 }
 
+type Outcome = Result<porewise::fit::FitReport, porewise::fit::FitError>;
+
+/// Print the one-core figures (and the sample set); returns microseconds per fit.
+fn summary(ours: &[Outcome], count: usize, one_core: f64) -> f64 {
+    let per_fit_us = one_core / count as f64 * 1e6;
+    let (mut runs, mut evals, mut failed, mut not_conv) = (0usize, 0usize, 0usize, 0usize);
+    for r in ours {
+        match r {
+            Ok(r) => {
+                runs += r.runs;
+                evals += r.evaluations;
+                not_conv += usize::from(!r.converged);
+            }
+            Err(_) => failed += 1,
+        }
+    }
+    println!("samples: {count} (6-14 readings, noise sd 0.005-0.01)");
+    println!(
+        "one core:  {:.0} fits/s, {per_fit_us:.2} us/fit (mean {:.2} solver runs, {:.1} evaluations per fit)",
+        count as f64 / one_core,
+        runs as f64 / count as f64,
+        evals as f64 / count as f64
+    );
+    println!("errors: {failed}, not converged: {not_conv}");
+    per_fit_us
+}
+
 /// Where the work goes: solver runs and evaluations by kind of result (printed with --breakdown).
-fn breakdown(reports: &[Result<porewise::fit::FitReport, porewise::fit::FitError>]) {
+fn breakdown(reports: &[Outcome]) {
     let mut groups: std::collections::BTreeMap<String, (usize, usize, usize)> =
         std::collections::BTreeMap::new();
     for r in reports.iter().flatten() {

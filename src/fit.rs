@@ -11,6 +11,7 @@ mod error;
 mod models;
 pub mod outliers;
 mod problem;
+mod projection;
 mod report;
 mod stats;
 mod transform;

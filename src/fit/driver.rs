@@ -12,6 +12,7 @@ use nalgebra::{DMatrix, DVector};
 use super::config::{Domain, FitOptions};
 use super::error::FitError;
 use super::problem::{Data, Problem};
+use super::projection::{self, Linear};
 use super::report::{FitReport, ParamEstimate, ParamMatrix, ReadingFit, Termination};
 use super::stats::{self, Inversion};
 use super::transform::{Saturation, Side, Transform};
@@ -211,6 +212,8 @@ struct Context<'a> {
     model: &'a dyn CurveModel,
     data: Data<'a>,
     options: &'a FitOptions,
+    /// The linear parameters (theta_r, theta_s) solved inside each run, if the model has them.
+    linear: Option<(Option<usize>, usize)>,
     evaluations: usize,
     runs: usize,
 }
@@ -298,6 +301,16 @@ impl Context<'_> {
                 saturated: None,
             };
         }
+        let tol = self.options.tolerance;
+        let lm = LevenbergMarquardt::new()
+            .with_ftol(tol)
+            .with_xtol(tol)
+            .with_gtol(tol)
+            .with_patience(self.options.patience)
+            .with_stepbound(self.options.step_bound);
+        if let Some(run) = self.run_projected(&lm, &full, &free, &transforms, hold, lo, hi, watch) {
+            return run;
+        }
         let q0 = DVector::from_iterator(
             free.len(),
             free.iter()
@@ -305,14 +318,7 @@ impl Context<'_> {
                 .map(|(&k, t)| t.inverse_start(full[k].clamp(lo[k], hi[k]))),
         );
         let problem = Problem::new(self.model, self.data, &free, &transforms, full, q0, watch);
-        let tol = self.options.tolerance;
-        let (problem, report) = LevenbergMarquardt::new()
-            .with_ftol(tol)
-            .with_xtol(tol)
-            .with_gtol(tol)
-            .with_patience(self.options.patience)
-            .with_stepbound(self.options.step_bound)
-            .minimize(problem);
+        let (problem, report) = lm.minimize(problem);
         self.evaluations += report.number_of_evaluations;
         let p = problem.physical(problem.q());
         let saturated = problem.saturated().map(|(j, s)| (free[j], s));
@@ -335,6 +341,80 @@ impl Context<'_> {
             termination,
             saturated,
         }
+    }
+
+    /// A run with the linear parameters solved inside (see [`projection`]), or `None` when the
+    /// model has none free, no shape parameter is free, or the projection breaks down (the
+    /// caller then runs the full problem).
+    #[allow(clippy::too_many_arguments)]
+    fn run_projected(
+        &mut self,
+        lm: &LevenbergMarquardt<f64>,
+        full: &[f64],
+        free: &[usize],
+        transforms: &[Transform],
+        hold: &[Option<f64>],
+        lo: &[f64],
+        hi: &[f64],
+        watch: bool,
+    ) -> Option<Run> {
+        let (r, s) = self.linear?;
+        let linear = Linear {
+            r,
+            s,
+            r_free: r.is_some_and(|r| hold[r].is_none()),
+            s_free: hold[s].is_none(),
+            r_bounds: r.map_or((0.0, 0.0), |r| (lo[r], hi[r])),
+            s_bounds: (lo[s], hi[s]),
+        };
+        if !linear.r_free && !linear.s_free {
+            return None;
+        }
+        let is_linear = |k: usize| k == s || Some(k) == r;
+        let (shape, shape_transforms): (Vec<usize>, Vec<Transform>) = free
+            .iter()
+            .zip(transforms)
+            .filter(|(k, _)| !is_linear(**k))
+            .map(|(&k, &t)| (k, t))
+            .unzip();
+        if shape.is_empty() {
+            return None;
+        }
+        let q0: Vec<f64> = shape
+            .iter()
+            .zip(&shape_transforms)
+            .map(|(&k, t)| t.inverse_start(full[k].clamp(lo[k], hi[k])))
+            .collect();
+        let outcome = projection::minimize(
+            projection::Spec {
+                model: self.model,
+                data: self.data,
+                shape: &shape,
+                transforms: &shape_transforms,
+                linear,
+                full: full.to_vec(),
+                q0: &q0,
+                watch,
+            },
+            lm,
+        );
+        let (p, sse) = outcome.solution?;
+        if !sse.is_finite() {
+            return None;
+        }
+        self.evaluations += outcome.report.number_of_evaluations;
+        let saturated = outcome.saturated.map(|(j, s)| (shape[j], s));
+        let termination = match (&outcome.report.termination, saturated) {
+            (_, Some((_, Saturation::Runaway))) => Termination::Runaway,
+            (_, Some(_)) => Termination::Converged,
+            (reason, None) => termination_of(reason),
+        };
+        Some(Run {
+            p,
+            sse,
+            termination,
+            saturated,
+        })
     }
 
     /// Solve from `start` with an active set for parameters that reach a finite bound.
@@ -404,6 +484,18 @@ impl Context<'_> {
                 pinned,
             };
         }
+        // Linear parameters the inner least squares left on a bound count as held there.
+        if let Some((r, s)) = self.linear {
+            for k in r.into_iter().chain([s]) {
+                if fixed[k].is_none() && best.pinned[k].is_none() {
+                    if best.p[k] <= lo[k] {
+                        best.pinned[k] = Some(Side::Lower);
+                    } else if best.p[k] >= hi[k] {
+                        best.pinned[k] = Some(Side::Upper);
+                    }
+                }
+            }
+        }
         best
     }
 }
@@ -463,6 +555,9 @@ pub fn fit_curve(
     fit_curve_with(model, id, readings, options, &Hooks::default())
 }
 
+/// A cheap starting point from the readings (x, y), if they allow one.
+pub(crate) type FirstGuess = fn(&[f64], &[f64]) -> Option<Vec<f64>>;
+
 /// Model-specific knowledge a caller may lend the driver.
 #[derive(Debug, Clone, Copy, Default)]
 pub(crate) struct Hooks {
@@ -470,52 +565,19 @@ pub(crate) struct Hooks {
     /// (when nothing is fixed or on a bound) before the statistics.
     pub canonicalize: Option<fn(&mut [f64])>,
     /// Positions of parameters that enter the curve as f = a (1 - g) + b g (theta_r, theta_s)
-    /// or f = b g (theta_s alone): each start gets them by linear least squares first.
+    /// or f = b g (theta_s alone): each run solves them by linear least squares inside (see
+    /// [`projection`]) and moves only the others.
     pub linear: Option<(Option<usize>, usize)>,
+    /// A cheap first start, tried before the model's own guesses are computed (those are
+    /// then needed only for more starts).
+    pub first_guess: Option<FirstGuess>,
 }
 
-/// Improve a start: the linear parameters (see [`Hooks::linear`]) by least squares given the
-/// start's shape parameters. Leaves the start alone when the answer is not usable.
-fn refine_linear(ctx: &Context<'_>, setup: &Setup, linear: (Option<usize>, usize), p: &mut [f64]) {
-    let (r, s) = linear;
-    if setup.fixed[s].is_some() || r.is_some_and(|r| setup.fixed[r].is_some()) {
-        return;
-    }
-    let (r0, s0) = (r.map_or(0.0, |r| p[r]), p[s]);
-    if s0 - r0 <= 0.0 {
-        return;
-    }
-    // g_i: the shape term at the start; solve min sum w (a (1 - g) + b g - y)^2.
-    let (mut saa, mut sab, mut sbb, mut say, mut sby) = (0.0, 0.0, 0.0, 0.0, 0.0);
-    for (i, (&x, &y)) in ctx.data.x.iter().zip(ctx.data.y).enumerate() {
-        let w = ctx.data.sqrt_w.map_or(1.0, |w| w[i] * w[i]);
-        let g = (ctx.model.value(x, p) - r0) / (s0 - r0);
-        let a = if r.is_some() { 1.0 - g } else { 0.0 };
-        saa += w * a * a;
-        sab += w * a * g;
-        sbb += w * g * g;
-        say += w * a * y;
-        sby += w * g * y;
-    }
-    let (new_r, new_s) = if r.is_some() {
-        let det = saa * sbb - sab * sab;
-        if det.is_nan() || det.abs() <= 1e-12 * saa * sbb {
-            return;
-        }
-        ((say * sbb - sby * sab) / det, (saa * sby - sab * say) / det)
-    } else if sbb > 0.0 {
-        (0.0, sby / sbb)
-    } else {
-        return;
-    };
-    let inside = |k: usize, v: f64| v.is_finite() && v >= setup.lower[k] && v <= setup.upper[k];
-    if !inside(s, new_s) || r.is_some_and(|r| !inside(r, new_r) || new_r >= new_s) {
-        return;
-    }
-    p[s] = new_s;
-    if let Some(r) = r {
-        p[r] = new_r;
-    }
+/// Whether two starts agree to 1e-9 in every parameter.
+fn same_start(a: &[f64], b: &[f64]) -> bool {
+    a.iter()
+        .zip(b)
+        .all(|(x, y)| (x - y).abs() <= 1e-9 * x.abs().max(y.abs()).max(1.0))
 }
 
 /// [`fit_curve`] with model-specific [`Hooks`].
@@ -550,19 +612,34 @@ pub(crate) fn fit_curve_with(
         model,
         data,
         options,
+        linear: hooks.linear,
         evaluations: 0,
         runs: 0,
     };
     let sst = total_sum_of_squares(&data);
-    let mut guesses = model.initial_guesses(readings.x, readings.y);
-    guesses.retain(|g| g.len() == setup.lower.len());
-    if guesses.is_empty() {
-        guesses.push(default_start(&setup));
-    }
-    if let Some(linear) = hooks.linear {
-        refine_linear(&ctx, &setup, linear, &mut guesses[0]);
-    }
-    let mut best = solve_start(&mut ctx, &setup, &guesses[0]);
+    let np = setup.lower.len();
+    // The model's guesses, computed only when needed: after a cheap first guess, only for more
+    // starts.
+    let all_guesses = || {
+        let mut guesses = model.initial_guesses(readings.x, readings.y);
+        guesses.retain(|g| g.len() == np);
+        if guesses.is_empty() {
+            guesses.push(default_start(&setup));
+        }
+        guesses
+    };
+    let first = hooks
+        .first_guess
+        .and_then(|f| f(readings.x, readings.y))
+        .filter(|g| g.len() == np);
+    let (first, mut later) = if let Some(g) = first {
+        (g, None)
+    } else {
+        let mut guesses = all_guesses();
+        let first = guesses.remove(0);
+        (first, Some(guesses))
+    };
+    let mut best = solve_start(&mut ctx, &setup, &first);
     let failed = |c: &Candidate| !c.termination.is_optimum() || !c.sse.is_finite();
     let poor = |c: &Candidate| sst > 0.0 && 1.0 - c.sse / sst < DOUBTFUL_R2;
     // A failed run gets the full budget of extra starts; a poor fit (low R2, often just flat
@@ -577,21 +654,22 @@ pub(crate) fn fit_curve_with(
     };
     let mut perturbation = 0;
     let mut continued = false;
-    for extra in 0..budget {
+    let mut next_guess = 0;
+    for _ in 0..budget {
         // A run that stopped short (evaluation budget) first goes on from where it stopped.
-        let start = match guesses.get(extra + 1 - usize::from(continued)) {
-            _ if !continued && failed(&best) && best.sse.is_finite() => {
-                continued = true;
-                best.p.clone()
-            }
-            Some(g) => {
-                let mut g = g.clone();
-                if let Some(linear) = hooks.linear {
-                    refine_linear(&ctx, &setup, linear, &mut g);
-                }
-                g
-            }
-            None => {
+        let start = if !continued && failed(&best) && best.sse.is_finite() {
+            continued = true;
+            best.p.clone()
+        } else {
+            let later = later.get_or_insert_with(|| {
+                let mut guesses = all_guesses();
+                guesses.retain(|g| !same_start(g, &first));
+                guesses
+            });
+            next_guess += 1;
+            if let Some(g) = later.get(next_guess - 1) {
+                g.clone()
+            } else {
                 perturbation += 1;
                 perturbed_start(
                     &best.p,

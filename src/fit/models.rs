@@ -7,7 +7,7 @@ use super::config::FitOptions;
 use super::driver::{Hooks, Readings, fit_curve_with};
 use super::error::FitError;
 use super::report::FitReport;
-use crate::model::retention::ModelKind;
+use crate::model::retention::{ModelKind, van_genuchten};
 
 /// The parameter of a model that is a breakpoint in suction (a kink in the curve), if any.
 ///
@@ -48,6 +48,10 @@ pub fn fit_model(
     let hooks = Hooks {
         canonicalize: Some(canon),
         linear: index("theta_s").map(|s| (index("theta_r"), s)),
+        first_guess: match kind {
+            ModelKind::VanGenuchten => Some(van_genuchten::first_guess),
+            _ => None,
+        },
     };
     let mut report = fit_curve_with(kind.curve(), kind.id(), readings, &options, &hooks)?;
     if let Err(e) = kind.check_params(&report.values()) {

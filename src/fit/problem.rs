@@ -38,11 +38,62 @@ pub(crate) struct Problem<'a> {
     jacobian: RefCell<Option<(u64, DMatrix<f64>)>>,
     /// Bumped by every `set_params`.
     generation: u64,
-    /// Abort at an accepted step where a free parameter saturates (active set).
-    watch_saturation: bool,
+    watch: Watch,
+}
+
+/// Stops a run at an accepted step where a free parameter saturates (for the active set).
+pub(crate) struct Watch {
+    enabled: bool,
     saturated: Cell<Option<(usize, Saturation)>>,
     /// q at the previous accepted point, to tell a parameter heading for a bound.
-    previous: RefCell<Option<DVector<f64>>>,
+    previous: RefCell<Vec<f64>>,
+}
+
+impl Watch {
+    pub(crate) fn new(enabled: bool, n: usize) -> Self {
+        Self {
+            enabled,
+            saturated: Cell::new(None),
+            previous: RefCell::new(Vec::with_capacity(n)),
+        }
+    }
+
+    /// The free parameter (position among the solver's) that saturated, if a run was stopped.
+    pub(crate) fn saturated(&self) -> Option<(usize, Saturation)> {
+        self.saturated.get()
+    }
+
+    /// Called at each accepted point q: true when the run must stop because a parameter
+    /// saturated, or came close to a finite bound while still moving towards it (the driver
+    /// holds it on the bound and releases it if the gradient says so).
+    pub(crate) fn stops_at(&self, transforms: &[Transform], q: &[f64]) -> bool {
+        if !self.enabled {
+            return false;
+        }
+        let mut previous = self.previous.borrow_mut();
+        let have_previous = previous.len() == q.len();
+        for (j, (t, &qj)) in transforms.iter().zip(q).enumerate() {
+            let heading = |side: Side| {
+                have_previous
+                    && match side {
+                        Side::Lower => qj < previous[j],
+                        Side::Upper => qj > previous[j],
+                    }
+            };
+            let hit = t.saturation(qj).or_else(|| {
+                t.near_bound(qj)
+                    .filter(|&side| heading(side))
+                    .map(Saturation::Pinned)
+            });
+            if let Some(s) = hit {
+                self.saturated.set(Some((j, s)));
+                return true;
+            }
+        }
+        previous.clear();
+        previous.extend_from_slice(q);
+        false
+    }
 }
 
 impl<'a> Problem<'a> {
@@ -66,15 +117,13 @@ impl<'a> Problem<'a> {
             q,
             jacobian: RefCell::new(None),
             generation: 0,
-            watch_saturation,
-            saturated: Cell::new(None),
-            previous: RefCell::new(None),
+            watch: Watch::new(watch_saturation, free.len()),
         }
     }
 
     /// The free parameter (position in `free`) that saturated, if the run was stopped for it.
     pub(crate) fn saturated(&self) -> Option<(usize, Saturation)> {
-        self.saturated.get()
+        self.watch.saturated()
     }
 
     /// The current q.
@@ -167,27 +216,8 @@ impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_> {
 
     fn jacobian(&self) -> Option<DMatrix<f64>> {
         // The solver asks for the Jacobian only at accepted points: check saturation here.
-        // A parameter close to a finite bound and still moving towards it is stopped there too
-        // (the driver holds it on the bound and releases it if the gradient says so).
-        if self.watch_saturation {
-            let previous = self.previous.borrow_mut().replace(self.q.clone());
-            for (j, (t, &qj)) in self.transforms.iter().zip(self.q.iter()).enumerate() {
-                let heading = |side: Side| {
-                    previous.as_ref().is_some_and(|prev| match side {
-                        Side::Lower => qj < prev[j],
-                        Side::Upper => qj > prev[j],
-                    })
-                };
-                let hit = t.saturation(qj).or_else(|| {
-                    t.near_bound(qj)
-                        .filter(|&side| heading(side))
-                        .map(Saturation::Pinned)
-                });
-                if let Some(s) = hit {
-                    self.saturated.set(Some((j, s)));
-                    return None;
-                }
-            }
+        if self.watch.stops_at(self.transforms, self.q.as_slice()) {
+            return None;
         }
         let cached = self.jacobian.borrow_mut().take();
         match cached {

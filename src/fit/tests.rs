@@ -378,3 +378,241 @@ mod odd_data {
         }
     }
 }
+
+mod projection {
+    use levenberg_marquardt::{LeastSquaresProblem, differentiate_numerically};
+    use nalgebra::{Const, OVector, U1};
+
+    use super::{H, Vg, curve};
+    use crate::fit::problem::Data;
+    use crate::fit::projection::{Linear, Projected};
+    use crate::fit::transform::Transform;
+    use crate::fit::{FitOptions, Readings, Side, fit_curve, fit_model};
+    use crate::model::curve::CurveModel;
+    use crate::model::retention::ModelKind;
+
+    const SHAPE: [usize; 2] = [2, 3];
+
+    /// A linear set, its held values, and theta_r / theta_s expected on a bound or held.
+    type Case = (Linear, (f64, f64), Option<f64>, Option<f64>);
+
+    fn noisy() -> Vec<f64> {
+        let mut y = curve(&[0.065, 0.41, 0.075, 1.89]);
+        let wiggle = [
+            0.004, -0.003, 0.002, -0.004, 0.003, -0.002, 0.001, 0.003, -0.002,
+        ];
+        for (v, w) in y.iter_mut().zip(wiggle) {
+            *v += w;
+        }
+        y
+    }
+
+    /// The projected problem at alpha = 0.05, n = 1.7 (away from the optimum, so the second
+    /// term of the Jacobian matters), padded to 16 rows.
+    fn problem<'a>(
+        y: &'a [f64],
+        sqrt_w: Option<&'a [f64]>,
+        transforms: &'a [Transform],
+        linear: Linear,
+        held: (f64, f64),
+    ) -> Projected<'a, Const<16>, Const<2>> {
+        let q = OVector::<f64, Const<2>>::from_iterator_generic(
+            Const::<2>,
+            U1,
+            [0.05, 1.7]
+                .iter()
+                .zip(transforms)
+                .map(|(&p, t)| t.inverse_start(p)),
+        );
+        let data = Data { x: &H, y, sqrt_w };
+        let full = vec![held.0, held.1, 0.05, 1.7];
+        Projected::new(
+            &Vg,
+            data,
+            Const::<16>,
+            &SHAPE,
+            transforms,
+            linear,
+            full,
+            q,
+            false,
+        )
+    }
+
+    /// Golub-Pereyra Jacobian against central differences, for every way the linear
+    /// parameters can be free, held or on a bound, with and without weights.
+    #[test]
+    fn projected_jacobian_matches_finite_differences() {
+        let y = noisy();
+        let transforms = [
+            Transform::for_bounds(1e-5, 10.0),
+            Transform::for_bounds(1.01, 15.0),
+        ];
+        let sqrt_w: Vec<f64> = (0..H.len()).map(|i| 0.5 + 0.1 * i as f64).collect();
+        let base = Linear {
+            r: Some(0),
+            s: 1,
+            r_free: true,
+            s_free: true,
+            r_bounds: (0.0, 0.5),
+            s_bounds: (0.2, 0.7),
+        };
+        let cases: [Case; 6] = [
+            (base, (0.0, 0.0), None, None),
+            (
+                Linear {
+                    r_bounds: (0.1, 0.5),
+                    ..base
+                },
+                (0.0, 0.0),
+                Some(0.1),
+                None,
+            ),
+            (
+                Linear {
+                    s_bounds: (0.2, 0.35),
+                    ..base
+                },
+                (0.0, 0.0),
+                None,
+                Some(0.35),
+            ),
+            (
+                Linear {
+                    r_bounds: (0.1, 0.5),
+                    s_bounds: (0.2, 0.33),
+                    ..base
+                },
+                (0.0, 0.0),
+                None,
+                None,
+            ),
+            (
+                Linear {
+                    r_free: false,
+                    ..base
+                },
+                (0.03, 0.0),
+                Some(0.03),
+                None,
+            ),
+            (
+                Linear {
+                    s_free: false,
+                    ..base
+                },
+                (0.0, 0.43),
+                None,
+                Some(0.43),
+            ),
+        ];
+        for (linear, held, want_r, want_s) in cases {
+            for weights in [None, Some(sqrt_w.as_slice())] {
+                let mut p = problem(&y, weights, &transforms, linear, held);
+                let analytic = p.jacobian().expect("jacobian");
+                let numeric = differentiate_numerically(&mut p).expect("numeric");
+                for (a, n) in analytic.iter().zip(numeric.iter()) {
+                    assert!(
+                        (a - n).abs() <= 1e-6 * n.abs().max(1e-3),
+                        "{linear:?} {weights:?}: {a} vs {n}\n{analytic}\n{numeric}"
+                    );
+                }
+                let (full, sse) = p.solution().expect("solution");
+                let direct: f64 = H
+                    .iter()
+                    .zip(&y)
+                    .enumerate()
+                    .map(|(i, (&h, &t))| {
+                        let w = weights.map_or(1.0, |w| w[i] * w[i]);
+                        w * (Vg.value(h, &full) - t).powi(2)
+                    })
+                    .sum();
+                assert!((sse - direct).abs() <= 1e-12 * direct, "{sse} vs {direct}");
+                if let Some(r) = want_r {
+                    assert_eq!(full[0], r, "{linear:?}");
+                }
+                if let Some(s) = want_s {
+                    assert_eq!(full[1], s, "{linear:?}");
+                }
+                // No point of a grid over the box (held values kept) does better.
+                let (r_lo, r_hi) = if linear.r_free {
+                    linear.r_bounds
+                } else {
+                    (held.0, held.0)
+                };
+                let (s_lo, s_hi) = if linear.s_free {
+                    linear.s_bounds
+                } else {
+                    (held.1, held.1)
+                };
+                assert!((r_lo..=r_hi).contains(&full[0]) && (s_lo..=s_hi).contains(&full[1]));
+                for a in 0..=100 {
+                    for b in 0..=100 {
+                        let mut p = full.clone();
+                        p[0] = r_lo + (r_hi - r_lo) * f64::from(a) / 100.0;
+                        p[1] = s_lo + (s_hi - s_lo) * f64::from(b) / 100.0;
+                        let grid: f64 = H
+                            .iter()
+                            .zip(&y)
+                            .enumerate()
+                            .map(|(i, (&h, &t))| {
+                                let w = weights.map_or(1.0, |w| w[i] * w[i]);
+                                w * (Vg.value(h, &p) - t).powi(2)
+                            })
+                            .sum();
+                        assert!(
+                            grid >= sse * (1.0 - 1e-12),
+                            "{linear:?} {p:?}: {grid} < {sse}"
+                        );
+                    }
+                }
+            }
+        }
+    }
+
+    /// The projected fit (`fit_model`) and the full four-parameter fit (`fit_curve` on the
+    /// same curve, no projection) reach the same optimum, including one with theta_r on its
+    /// bound and one with theta_r fixed.
+    #[test]
+    fn projected_fit_agrees_with_the_full_problem() {
+        let interior = noisy();
+        let mut on_bound = curve(&[0.0, 0.41, 0.075, 1.89]);
+        for v in on_bound.iter_mut().skip(6) {
+            *v *= 0.6;
+        }
+        let kind = ModelKind::VanGenuchten;
+        let fixed = FitOptions::new().with_fixed("theta_r", 0.02);
+        for (y, opts) in [
+            (&interior, FitOptions::new()),
+            (&on_bound, FitOptions::new()),
+            (&interior, fixed),
+        ] {
+            let readings = Readings::new(&H, y);
+            let projected = fit_model(kind, &readings, &opts).unwrap();
+            let full = fit_curve(kind.curve(), kind.id(), &readings, &opts).unwrap();
+            assert!(projected.converged && full.converged);
+            assert!(
+                (projected.sse - full.sse).abs() <= 1e-9 * full.sse,
+                "{} vs {}",
+                projected.sse,
+                full.sse
+            );
+            for (a, b) in projected.parameters.iter().zip(&full.parameters) {
+                assert!(
+                    (a.value - b.value).abs() <= 1e-5 * b.value.abs().max(1e-3),
+                    "{a:?} {b:?}"
+                );
+                assert_eq!(a.at_bound, b.at_bound, "{a:?} {b:?}");
+                assert_eq!(a.se.is_some(), b.se.is_some());
+                if let (Some(x), Some(z)) = (a.se, b.se) {
+                    assert!((x - z).abs() <= 1e-4 * z, "{a:?} {b:?}");
+                }
+            }
+        }
+        let r = fit_model(kind, &Readings::new(&H, &on_bound), &FitOptions::new()).unwrap();
+        let theta_r = r.parameter("theta_r").unwrap();
+        assert_eq!(theta_r.value, 0.0);
+        assert_eq!(theta_r.at_bound, Some(Side::Lower));
+        assert!(theta_r.se.is_none());
+    }
+}

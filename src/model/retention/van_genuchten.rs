@@ -2,9 +2,12 @@
 
 use crate::model::curve::{CurveModel, ParamSpec};
 
-use super::van_genuchten_free_m::{VgTerm, term_neg_d_h, term_se, term_suction_at, vg_candidates};
+use super::van_genuchten_free_m::{
+    VgTerm, alpha_n_through_half, term_neg_d_h, term_se, term_suction_at, vg_candidates,
+};
 use super::{
-    DataShape, ModelKind, RetentionModel, THETA_R, THETA_S, alpha_spec, n_spec, rank_guesses,
+    DataShape, ModelKind, RetentionModel, THETA_R, THETA_S, alpha_spec, clamp_all, n_spec,
+    rank_guesses, theta_s_guess,
 };
 
 /// `theta_r, theta_s, alpha_per_cm, n`.
@@ -60,6 +63,19 @@ impl CurveModel for VanGenuchten {
             .collect();
         rank_guesses(self, x, y, candidates, 3)
     }
+}
+
+/// The cheap first start of a fit whose theta_r and theta_s are solved inside the solver:
+/// alpha and n of the curve through the data's halfway point with their slope there (the first
+/// of the [`initial_guesses`](CurveModel::initial_guesses) candidates, without the
+/// linearizations and their ranking). In the benchmark it reaches the best SSE as often as the
+/// ranked guesses, with as few evaluations.
+pub(crate) fn first_guess(x: &[f64], y: &[f64]) -> Option<Vec<f64>> {
+    let shape = DataShape::of(x, y)?;
+    let (alpha, n) = alpha_n_through_half(&shape, mualem_m);
+    let mut p = vec![0.5 * shape.theta_min, theta_s_guess(&shape), alpha, n];
+    clamp_all(&PARAMS, &mut p);
+    Some(p)
 }
 
 impl RetentionModel for VanGenuchten {

@@ -1,0 +1,529 @@
+//! Variable projection for curves linear in theta_r and theta_s.
+//!
+//! Every retention model is f = theta_r + (theta_s - theta_r) g(x; shape) (or theta_s g). For
+//! given shape parameters the best theta_r and theta_s follow from a weighted linear least
+//! squares fit, so the solver moves only the shape parameters and each evaluation solves the
+//! linear part exactly (Golub & Pereyra 1973, SIAM J. Numer. Anal. 10(2); the Jacobian below
+//! is their exact one, not Kaufman's approximation). The inner solve keeps theta_r and theta_s
+//! in their bounds (the best point of the box's edges when the free optimum is outside), so the
+//! sum of squares stays continuously differentiable in the shape parameters.
+//!
+//! The residual vector is padded with zero rows up to the solver's row count, which lets small
+//! problems use fixed-size storage (no allocation in the solver); zero rows change nothing.
+
+use std::cell::RefCell;
+
+use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt, MinimizationReport};
+use nalgebra::allocator::{Allocator, Reallocator};
+use nalgebra::{
+    Const, DefaultAllocator, Dim, DimMax, DimMaximum, DimMin, Dyn, OMatrix, OVector, Owned, U1,
+};
+
+use super::problem::{Data, Watch};
+use super::transform::{Saturation, Transform};
+use crate::model::curve::CurveModel;
+
+/// The linear parameters of a model and which of them the inner least squares solves.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Linear {
+    /// Position of theta_r in the full vector (`None`: f = theta_s g).
+    pub r: Option<usize>,
+    /// Position of theta_s.
+    pub s: usize,
+    /// Whether each is solved (otherwise held at its value in the full vector).
+    pub r_free: bool,
+    pub s_free: bool,
+    /// Bounds of each while solved.
+    pub r_bounds: (f64, f64),
+    pub s_bounds: (f64, f64),
+}
+
+/// Which linear parameters are free inside their bounds at the inner solution (the others
+/// held or on a bound): f = r + d g with d = s - r.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Mode {
+    /// Both free: the columns 1 and g.
+    Both,
+    /// theta_s alone: the column g (theta_r fixed).
+    Upper,
+    /// theta_r alone: the column 1 - g (theta_s fixed).
+    Lower,
+    /// Neither.
+    Neither,
+}
+
+/// Relative spread of the shape term below which the linear parameters are not separable.
+const DEGENERATE: f64 = 1e-13;
+
+/// The result of one evaluation.
+struct Evaluation<M: Dim, N: Dim>
+where
+    DefaultAllocator: Allocator<M> + Allocator<M, N>,
+{
+    residuals: OVector<f64, M>,
+    jacobian: OMatrix<f64, M, N>,
+    /// theta_r (or the held value, or 0) and theta_s.
+    ends: (f64, f64),
+}
+
+/// A value and the parameter generation it belongs to.
+struct Tagged<T> {
+    generation: u64,
+    value: T,
+}
+
+/// An evaluated point: q, theta_r and theta_s, SSE.
+struct Best<N: Dim>
+where
+    DefaultAllocator: Allocator<N>,
+{
+    q: OVector<f64, N>,
+    ends: (f64, f64),
+    sse: f64,
+}
+
+/// Per-point work buffers of the evaluations.
+struct Scratch {
+    /// Full parameter vector with theta_r = 0 and theta_s = 1, so the model returns g.
+    unit: Vec<f64>,
+    grad: Vec<f64>,
+    g: Vec<f64>,
+    /// d g_i / d q_j, column j at j * m.
+    dg: Vec<f64>,
+}
+
+/// A solver run's view of a projected problem: M residual rows (>= the readings), N shape
+/// parameters.
+pub(crate) struct Projected<'a, M: Dim, N: Dim>
+where
+    DefaultAllocator: Allocator<M> + Allocator<N> + Allocator<M, N>,
+{
+    model: &'a dyn CurveModel,
+    data: Data<'a>,
+    rows: M,
+    /// Index into the full parameter vector of each free shape parameter.
+    shape: &'a [usize],
+    transforms: &'a [Transform],
+    linear: Linear,
+    /// Full physical parameter vector: held entries keep their values.
+    full: Vec<f64>,
+    scratch: RefCell<Scratch>,
+    q: OVector<f64, N>,
+    /// The Jacobian at the current q (tagged with its generation), computed by `residuals`
+    /// for `jacobian`.
+    cached: RefCell<Option<Tagged<OMatrix<f64, M, N>>>>,
+    /// The lowest-SSE evaluation so far.
+    best: RefCell<Option<Best<N>>>,
+    generation: u64,
+    watch: Watch,
+}
+
+impl<'a, M: Dim, N: Dim> Projected<'a, M, N>
+where
+    DefaultAllocator: Allocator<M> + Allocator<N> + Allocator<M, N>,
+{
+    /// A problem over `shape` (free shape parameters with their maps), started at `full` (the
+    /// shape entries at their start values; linear entries are ignored unless held).
+    #[allow(clippy::too_many_arguments)]
+    pub(crate) fn new(
+        model: &'a dyn CurveModel,
+        data: Data<'a>,
+        rows: M,
+        shape: &'a [usize],
+        transforms: &'a [Transform],
+        linear: Linear,
+        full: Vec<f64>,
+        q: OVector<f64, N>,
+        watch_saturation: bool,
+    ) -> Self {
+        let m = data.x.len();
+        debug_assert!(rows.value() >= m);
+        let mut unit = full.clone();
+        if let Some(r) = linear.r {
+            unit[r] = 0.0;
+        }
+        unit[linear.s] = 1.0;
+        let scratch = Scratch {
+            grad: vec![0.0; full.len()],
+            unit,
+            g: vec![0.0; m],
+            dg: vec![0.0; m * shape.len()],
+        };
+        Self {
+            model,
+            data,
+            rows,
+            shape,
+            transforms,
+            linear,
+            full,
+            scratch: RefCell::new(scratch),
+            q,
+            cached: RefCell::new(None),
+            best: RefCell::new(None),
+            generation: 0,
+            watch: Watch::new(watch_saturation, shape.len()),
+        }
+    }
+
+    /// The shape parameter (position in `shape`) that saturated, if the run was stopped for it.
+    pub(crate) fn saturated(&self) -> Option<(usize, Saturation)> {
+        self.watch.saturated()
+    }
+
+    /// The full physical parameters and SSE at the current q (the solver's last accepted
+    /// point), or `None` when the linear parameters cannot be solved there.
+    pub(crate) fn solution(&self) -> Option<(Vec<f64>, f64)> {
+        let known = self
+            .best
+            .borrow()
+            .as_ref()
+            .filter(|b| b.q == self.q)
+            .map(|b| (b.ends, b.sse));
+        let (ends, sse) = if let Some(v) = known {
+            v
+        } else {
+            let e = self.evaluate()?;
+            (e.ends, e.residuals.norm_squared())
+        };
+        let mut full = self.full.clone();
+        for ((&k, t), &qk) in self.shape.iter().zip(self.transforms).zip(self.q.iter()) {
+            full[k] = t.forward(qk).0;
+        }
+        self.set_ends(&mut full, ends);
+        Some((full, sse))
+    }
+
+    fn set_ends(&self, full: &mut [f64], (r, s): (f64, f64)) {
+        if let Some(ri) = self.linear.r {
+            full[ri] = r;
+        }
+        full[self.linear.s] = s;
+    }
+
+    /// theta_r and theta_s minimizing sum w (r + (s - r) g - y)^2 within their bounds, and
+    /// which of them ended inside; `None` when the shape does not separate them.
+    fn solve_linear(&self, g: &[f64]) -> Option<(f64, f64, Mode)> {
+        let lin = &self.linear;
+        let y = self.data.y;
+        let m = g.len();
+        let w = |i: usize| self.data.sqrt_w.map_or(1.0, |s| s[i] * s[i]);
+        let sum_w: f64 = (0..m).map(w).sum();
+        let (r_lo, r_hi) = lin.r_bounds;
+        let (s_lo, s_hi) = lin.s_bounds;
+        let r_held = lin.r.map_or(0.0, |r| self.full[r]);
+        let s_held = self.full[lin.s];
+        // The best s for a given r (column g), and the best r for a given s (column 1 - g).
+        let s_given_r = |r0: f64| -> Option<f64> {
+            if !lin.s_free {
+                return Some(s_held);
+            }
+            let (mut a, mut b) = (0.0, 0.0);
+            for i in 0..m {
+                a += w(i) * g[i] * g[i];
+                b += w(i) * g[i] * (y[i] - r0);
+            }
+            (a > DEGENERATE * sum_w).then(|| (r0 + b / a).clamp(s_lo, s_hi))
+        };
+        let r_given_s = |s0: f64| -> Option<f64> {
+            if !lin.r_free {
+                return Some(r_held);
+            }
+            let (mut a, mut b) = (0.0, 0.0);
+            for i in 0..m {
+                let u = 1.0 - g[i];
+                a += w(i) * u * u;
+                b += w(i) * u * (s0 - y[i]);
+            }
+            (a > DEGENERATE * sum_w).then(|| (s0 - b / a).clamp(r_lo, r_hi))
+        };
+        let (r, s) = match (lin.r_free, lin.s_free) {
+            (true, true) => {
+                let (mut swg, mut swy) = (0.0, 0.0);
+                for i in 0..m {
+                    swg += w(i) * g[i];
+                    swy += w(i) * y[i];
+                }
+                let (gbar, ybar) = (swg / sum_w, swy / sum_w);
+                let (mut var, mut cov) = (0.0, 0.0);
+                for i in 0..m {
+                    let dgi = g[i] - gbar;
+                    var += w(i) * dgi * dgi;
+                    cov += w(i) * dgi * (y[i] - ybar);
+                }
+                let free = (var > DEGENERATE * sum_w).then(|| {
+                    let d = cov / var;
+                    (ybar - d * gbar, ybar + d * (1.0 - gbar))
+                });
+                match free {
+                    Some((r, s)) if (r_lo..=r_hi).contains(&r) && (s_lo..=s_hi).contains(&s) => {
+                        (r, s)
+                    }
+                    // The bounded optimum lies on an edge of the box: the best of the four.
+                    _ => {
+                        let sse = |r: f64, s: f64| -> f64 {
+                            (0..m)
+                                .map(|i| w(i) * (r + (s - r) * g[i] - y[i]).powi(2))
+                                .sum()
+                        };
+                        let edges = [
+                            s_given_r(r_lo).map(|s| (r_lo, s)),
+                            s_given_r(r_hi).map(|s| (r_hi, s)),
+                            r_given_s(s_lo).map(|r| (r, s_lo)),
+                            r_given_s(s_hi).map(|r| (r, s_hi)),
+                        ];
+                        edges
+                            .into_iter()
+                            .flatten()
+                            .map(|(r, s)| (sse(r, s), r, s))
+                            .min_by(|a, b| a.0.total_cmp(&b.0))
+                            .map(|(_, r, s)| (r, s))?
+                    }
+                }
+            }
+            (false, true) => (r_held, s_given_r(r_held)?),
+            (true, false) => (r_given_s(s_held)?, s_held),
+            (false, false) => (r_held, s_held),
+        };
+        let r_inside = lin.r_free && r > r_lo && r < r_hi;
+        let s_inside = lin.s_free && s > s_lo && s < s_hi;
+        let mode = match (r_inside, s_inside) {
+            (true, true) => Mode::Both,
+            (false, true) => Mode::Upper,
+            (true, false) => Mode::Lower,
+            (false, false) => Mode::Neither,
+        };
+        Some((r, s, mode))
+    }
+
+    /// Residuals, Jacobian and linear parameters at q; `None` where the model is not finite or
+    /// the linear parameters are not separable.
+    #[allow(clippy::many_single_char_names)]
+    fn evaluate(&self) -> Option<Evaluation<M, N>> {
+        let m = self.data.x.len();
+        let k = self.shape.len();
+        let mut guard = self.scratch.borrow_mut();
+        let Scratch { unit, grad, g, dg } = &mut *guard;
+        let mut dpdq = [0.0; 8];
+        let mut dpdq_vec;
+        let dpdq: &mut [f64] = if k <= dpdq.len() {
+            &mut dpdq[..k]
+        } else {
+            dpdq_vec = vec![0.0; k];
+            &mut dpdq_vec
+        };
+        for (j, ((&idx, t), &qj)) in self
+            .shape
+            .iter()
+            .zip(self.transforms)
+            .zip(self.q.iter())
+            .enumerate()
+        {
+            let (p, d) = t.forward(qj);
+            unit[idx] = p;
+            dpdq[j] = d;
+        }
+        let w = |i: usize| self.data.sqrt_w.map_or(1.0, |s| s[i] * s[i]);
+        for i in 0..m {
+            let gi = self.model.value_and_gradient(self.data.x[i], unit, grad);
+            if !gi.is_finite() {
+                return None;
+            }
+            g[i] = gi;
+            for (j, &idx) in self.shape.iter().enumerate() {
+                dg[j * m + i] = grad[idx] * dpdq[j];
+            }
+        }
+        let y = self.data.y;
+        let (r, s, mode) = self.solve_linear(&g[..m])?;
+        let d = s - r;
+        // The squared norm of the free linear columns (g - mean g when both are free).
+        let sum_w: f64 = (0..m).map(w).sum();
+        let mean_g = (0..m).map(|i| w(i) * g[i]).sum::<f64>() / sum_w;
+        let basis = |i: usize| match mode {
+            Mode::Both => g[i] - mean_g,
+            Mode::Upper => g[i],
+            Mode::Lower => 1.0 - g[i],
+            Mode::Neither => 0.0,
+        };
+        let basis_norm: f64 = (0..m).map(|i| w(i) * basis(i) * basis(i)).sum();
+        if mode != Mode::Neither && (basis_norm.is_nan() || basis_norm <= DEGENERATE * sum_w) {
+            return None;
+        }
+        let rows = self.rows;
+        let mut residuals = OVector::<f64, M>::zeros_generic(rows, U1);
+        for i in 0..m {
+            let sqrt_w = self.data.sqrt_w.map_or(1.0, |s| s[i]);
+            let e = sqrt_w * (r + d * g[i] - y[i]);
+            if !e.is_finite() {
+                return None;
+            }
+            residuals[i] = e;
+        }
+        // Jacobian column j: sqrt(w) (z - A N^-1 (A'z + dA' e)) with z = d * dg_j the model's
+        // derivative at fixed linear parameters, A the free linear columns and N = A'A.
+        let cols = N::from_usize(k);
+        let mut jacobian = OMatrix::<f64, M, N>::zeros_generic(rows, cols);
+        for j in 0..k {
+            let col = &dg[j * m..(j + 1) * m];
+            // t = sum w dg (f - y); az = sum w basis z; wz = sum w z.
+            let (mut t, mut az, mut wz) = (0.0, 0.0, 0.0);
+            for i in 0..m {
+                let z = d * col[i];
+                t += w(i) * col[i] * (r + d * g[i] - y[i]);
+                az += w(i) * z * basis(i);
+                wz += w(i) * z;
+            }
+            for i in 0..m {
+                let z = d * col[i];
+                let v = match mode {
+                    Mode::Both => z - wz / sum_w - (az + t) / basis_norm * basis(i),
+                    Mode::Upper => z - (az + t) / basis_norm * basis(i),
+                    Mode::Lower => z + (t - az) / basis_norm * basis(i),
+                    Mode::Neither => z,
+                };
+                let v = self.data.sqrt_w.map_or(1.0, |s| s[i]) * v;
+                if !v.is_finite() {
+                    return None;
+                }
+                jacobian[(i, j)] = v;
+            }
+        }
+        Some(Evaluation {
+            residuals,
+            jacobian,
+            ends: (r, s),
+        })
+    }
+}
+
+impl<M: Dim, N: Dim> LeastSquaresProblem<f64, M, N> for Projected<'_, M, N>
+where
+    DefaultAllocator: Allocator<M> + Allocator<N> + Allocator<M, N>,
+{
+    type ResidualStorage = Owned<f64, M>;
+    type JacobianStorage = Owned<f64, M, N>;
+    type ParameterStorage = Owned<f64, N>;
+
+    fn set_params(&mut self, q: &OVector<f64, N>) {
+        self.q.copy_from(q);
+        self.generation += 1;
+    }
+
+    fn params(&self) -> OVector<f64, N> {
+        self.q.clone()
+    }
+
+    fn residuals(&self) -> Option<OVector<f64, M>> {
+        let Some(e) = self.evaluate() else {
+            // A trial point where the model or the linear solve fails: a huge residual so the
+            // step is rejected rather than the run aborted (the crate aborts on `None`).
+            *self.cached.borrow_mut() = None;
+            let mut r = OVector::<f64, M>::zeros_generic(self.rows, U1);
+            r.rows_mut(0, self.data.x.len()).fill(f64::MAX.sqrt());
+            return Some(r);
+        };
+        let Evaluation {
+            residuals,
+            jacobian,
+            ends,
+        } = e;
+        let sse = residuals.norm_squared();
+        let mut best = self.best.borrow_mut();
+        if best.as_ref().is_none_or(|b| sse < b.sse) {
+            *best = Some(Best {
+                q: self.q.clone(),
+                ends,
+                sse,
+            });
+        }
+        *self.cached.borrow_mut() = Some(Tagged {
+            generation: self.generation,
+            value: jacobian,
+        });
+        Some(residuals)
+    }
+
+    fn jacobian(&self) -> Option<OMatrix<f64, M, N>> {
+        // Asked for at accepted points only: check saturation of the shape parameters here.
+        if self.watch.stops_at(self.transforms, self.q.as_slice()) {
+            return None;
+        }
+        let cached = self.cached.borrow_mut().take();
+        match cached {
+            Some(t) if t.generation == self.generation => Some(t.value),
+            _ => self.evaluate().map(|e| e.jacobian),
+        }
+    }
+}
+
+/// What a projected run needs: the problem and its start.
+pub(crate) struct Spec<'a> {
+    pub model: &'a dyn CurveModel,
+    pub data: Data<'a>,
+    pub shape: &'a [usize],
+    pub transforms: &'a [Transform],
+    pub linear: Linear,
+    /// Full physical start (held entries at their values).
+    pub full: Vec<f64>,
+    /// Unbounded start of each shape parameter.
+    pub q0: &'a [f64],
+    pub watch: bool,
+}
+
+/// A projected run's outcome.
+pub(crate) struct Outcome {
+    /// Full parameters and SSE at the last accepted point, unless the linear parameters could
+    /// not be solved there.
+    pub solution: Option<(Vec<f64>, f64)>,
+    /// The shape parameter (position in `shape`) that saturated, if the run was stopped for it.
+    pub saturated: Option<(usize, Saturation)>,
+    pub report: MinimizationReport<f64>,
+}
+
+/// Rows up to which the residuals are padded to fixed-size storage.
+const FIXED_ROWS: usize = 16;
+
+/// Run the solver on a projected problem, with fixed-size storage when it is small.
+pub(crate) fn minimize(spec: Spec<'_>, lm: &LevenbergMarquardt<f64>) -> Outcome {
+    if spec.data.x.len() <= FIXED_ROWS {
+        let rows = Const::<FIXED_ROWS>;
+        match spec.shape.len() {
+            1 => return run(spec, lm, rows, Const::<1>),
+            2 => return run(spec, lm, rows, Const::<2>),
+            3 => return run(spec, lm, rows, Const::<3>),
+            4 => return run(spec, lm, rows, Const::<4>),
+            5 => return run(spec, lm, rows, Const::<5>),
+            _ => {}
+        }
+    }
+    let (m, k) = (spec.data.x.len(), spec.shape.len());
+    run(spec, lm, Dyn(m), Dyn(k))
+}
+
+fn run<M, N>(spec: Spec<'_>, lm: &LevenbergMarquardt<f64>, rows: M, cols: N) -> Outcome
+where
+    M: DimMin<N> + DimMax<N>,
+    N: Dim,
+    DefaultAllocator:
+        Allocator<M> + Allocator<N> + Allocator<M, N> + Reallocator<f64, M, N, DimMaximum<M, N>, N>,
+{
+    let q0 = OVector::<f64, N>::from_iterator_generic(cols, U1, spec.q0.iter().copied());
+    let problem = Projected::new(
+        spec.model,
+        spec.data,
+        rows,
+        spec.shape,
+        spec.transforms,
+        spec.linear,
+        spec.full,
+        q0,
+        spec.watch,
+    );
+    let (problem, report) = lm.minimize(problem);
+    Outcome {
+        solution: problem.solution(),
+        saturated: problem.saturated(),
+        report,
+    }
+}
