@@ -450,7 +450,7 @@ impl Default for KeyTable {
             bind(
                 &[Key::char('a')],
                 Action::Accept,
-                "accept: leave the reading out of fits (a record out of pairing)",
+                "accept: leave the reading out and refit (a record out of pairing)",
                 Some("accept"),
             ),
             bind(

@@ -627,6 +627,16 @@ fn target_sample(state: &AppState) -> Option<(i64, String, String)> {
     }
 }
 
+/// The code of the site holding a sample (by database id), from the tree.
+fn site_of_sample(state: &AppState, sample_id: i64) -> Option<String> {
+    state
+        .tree
+        .sites
+        .iter()
+        .find(|site| site.samples().any(|s| s.id == sample_id))
+        .map(|site| site.code.clone())
+}
+
 /// The site a site refit or the depth view acts on.
 fn target_site(state: &AppState) -> Option<String> {
     match state.screen {
@@ -1137,12 +1147,33 @@ fn on_review(state: &mut AppState, action: &Action) -> Vec<Effect> {
     match action {
         Action::Accept | Action::Dismiss if refuse_while_fitting(state) => Vec::new(),
         Action::Accept | Action::Dismiss => {
-            if let Some(item) = state.review_item() {
-                vec![Effect::DecideFlag {
+            if let Some(item) = state.review_item().cloned() {
+                let accept = *action == Action::Accept;
+                let mut effects = vec![Effect::DecideFlag {
                     flag_id: item.flag_id,
                     target: item.target(),
-                    accept: *action == Action::Accept,
-                }]
+                    accept,
+                }];
+                // An accepted reading leaves the fit stale: refit its sample at once, after the
+                // decision is written (effects run in order).
+                if let (
+                    true,
+                    Suspect::Reading {
+                        sample_id, sample, ..
+                    },
+                ) = (accept, &item.suspect)
+                    && let Some(site) = site_of_sample(state, *sample_id)
+                {
+                    effects.extend(submit_fit(
+                        state,
+                        FitScope::Sample {
+                            id: *sample_id,
+                            code: sample.clone(),
+                            site,
+                        },
+                    ));
+                }
+                effects
             } else {
                 state.say(Tone::Info, "nothing to review");
                 Vec::new()
@@ -1513,13 +1544,36 @@ mod tests {
             Action::Loaded(Loaded::Sample(Box::new(detail(1, "AA-0-a")))),
         );
         assert_eq!(state.reading, 1, "the suspect reading is the selected one");
+        // Accepting writes the decision, then refits the suspect's sample.
+        let effects = update(&mut state, Action::Accept);
         assert_eq!(
-            update(&mut state, Action::Accept),
-            vec![Effect::DecideFlag {
+            effects.first(),
+            Some(&Effect::DecideFlag {
                 flag_id: 7,
                 target: FlagTarget::Reading(11),
                 accept: true
-            }]
+            })
+        );
+        let Some(Effect::StartFit { job, request }) = effects.get(1) else {
+            panic!("an accepted reading refits its sample: {effects:?}");
+        };
+        assert_eq!(
+            request.scope,
+            FitScope::Sample {
+                id: 1,
+                code: "S1".into(),
+                site: state.tree.sites[0].code.clone(),
+            }
+        );
+        assert_eq!(effects.len(), 2);
+        // The refit ends before the next decision (decisions wait for a running fit).
+        let job = *job;
+        update(
+            &mut state,
+            Action::FitFinished {
+                job,
+                result: Err("test".into()),
+            },
         );
         assert_eq!(
             update(&mut state, Action::Down),
