@@ -22,6 +22,7 @@ use nalgebra::{
 use super::problem::{Data, Watch};
 use super::transform::{Saturation, Transform};
 use crate::model::curve::CurveModel;
+use crate::model::retention::van_genuchten;
 
 /// The linear parameters of a model and which of them the inner least squares solves.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -50,6 +51,14 @@ enum Mode {
     Lower,
     /// Neither.
     Neither,
+}
+
+/// A shape function the evaluation calls directly instead of through [`CurveModel`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Kernel {
+    /// van Genuchten with m = 1 - 1/n: parameters `theta_r, theta_s, alpha, n`, used when
+    /// exactly alpha and n are the free shape parameters.
+    VanGenuchten,
 }
 
 /// Relative spread of the shape term below which the linear parameters are not separable.
@@ -137,6 +146,8 @@ where
     shape: &'a [usize],
     transforms: &'a [Transform],
     linear: Linear,
+    /// Whether the shape term is evaluated by [`Kernel::VanGenuchten`].
+    van_genuchten: bool,
     /// Full physical parameter vector: held entries keep their values.
     full: Vec<f64>,
     weights: Weights,
@@ -165,6 +176,7 @@ where
         shape: &'a [usize],
         transforms: &'a [Transform],
         linear: Linear,
+        kernel: Option<Kernel>,
         full: Vec<f64>,
         q: OVector<f64, N>,
         watch_saturation: bool,
@@ -191,6 +203,7 @@ where
             shape,
             transforms,
             linear,
+            van_genuchten: kernel == Some(Kernel::VanGenuchten) && shape == [2, 3],
             full,
             weights: Weights::of(&data),
             scratch: RefCell::new(scratch),
@@ -369,14 +382,30 @@ where
             unit[idx] = p;
             dpdq[j] = d;
         }
-        for i in 0..m {
-            let gi = self.model.value_and_gradient(self.data.x[i], unit, grad);
-            if !gi.is_finite() {
-                return None;
+        if self.van_genuchten {
+            // The same numbers as the model's value_and_gradient at theta_r = 0, theta_s = 1.
+            let (alpha, n) = (unit[2], unit[3]);
+            let (dg_alpha, dg_n) = dg.split_at_mut(m);
+            for (i, &x) in self.data.x.iter().enumerate() {
+                let (gi, d_alpha, d_n) =
+                    van_genuchten::se_and_gradient(x, alpha, n).unwrap_or((1.0, 0.0, 0.0));
+                if !gi.is_finite() {
+                    return None;
+                }
+                g[i] = gi;
+                dg_alpha[i] = d_alpha * dpdq[0];
+                dg_n[i] = d_n * dpdq[1];
             }
-            g[i] = gi;
-            for (j, &idx) in self.shape.iter().enumerate() {
-                dg[j * m + i] = grad[idx] * dpdq[j];
+        } else {
+            for i in 0..m {
+                let gi = self.model.value_and_gradient(self.data.x[i], unit, grad);
+                if !gi.is_finite() {
+                    return None;
+                }
+                g[i] = gi;
+                for (j, &idx) in self.shape.iter().enumerate() {
+                    dg[j * m + i] = grad[idx] * dpdq[j];
+                }
             }
         }
         let y = self.data.y;
@@ -522,6 +551,7 @@ pub(crate) struct Spec<'a> {
     pub shape: &'a [usize],
     pub transforms: &'a [Transform],
     pub linear: Linear,
+    pub kernel: Option<Kernel>,
     /// Full physical start (held entries at their values).
     pub full: Vec<f64>,
     /// Unbounded start of each shape parameter.
@@ -582,6 +612,7 @@ where
         spec.shape,
         spec.transforms,
         spec.linear,
+        spec.kernel,
         spec.full,
         q0,
         spec.watch,
