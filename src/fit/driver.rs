@@ -12,7 +12,7 @@ use nalgebra::{DMatrix, DVector};
 use super::config::{Domain, FitOptions};
 use super::error::FitError;
 use super::problem::{Data, Problem};
-use super::projection::{self, Linear};
+use super::projection::{self, Kernel, Linear};
 use super::report::{FitReport, ParamEstimate, ParamMatrix, ReadingFit, Termination};
 use super::stats::{self, Inversion};
 use super::transform::{Saturation, Side, Transform};
@@ -214,6 +214,7 @@ struct Context<'a> {
     options: &'a FitOptions,
     /// The linear parameters (theta_r, theta_s) solved inside each run, if the model has them.
     linear: Option<(Option<usize>, usize)>,
+    kernel: Option<Kernel>,
     evaluations: usize,
     runs: usize,
 }
@@ -392,6 +393,7 @@ impl Context<'_> {
                 shape: &shape,
                 transforms: &shape_transforms,
                 linear,
+                kernel: self.kernel,
                 full: full.to_vec(),
                 q0: &q0,
                 watch,
@@ -571,6 +573,8 @@ pub(crate) struct Hooks {
     /// A cheap first start, tried before the model's own guesses are computed (those are
     /// then needed only for more starts).
     pub first_guess: Option<FirstGuess>,
+    /// A shape function the projected solver may call directly (same numbers, no dynamic call).
+    pub kernel: Option<Kernel>,
 }
 
 /// Whether two starts agree to 1e-9 in every parameter.
@@ -613,6 +617,7 @@ pub(crate) fn fit_curve_with(
         data,
         options,
         linear: hooks.linear,
+        kernel: hooks.kernel,
         evaluations: 0,
         runs: 0,
     };

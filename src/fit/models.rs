@@ -6,6 +6,7 @@ use serde::{Deserialize, Serialize};
 use super::config::FitOptions;
 use super::driver::{Hooks, Readings, fit_curve_with};
 use super::error::FitError;
+use super::projection;
 use super::report::FitReport;
 use crate::model::retention::{ModelKind, van_genuchten};
 
@@ -52,6 +53,7 @@ pub fn fit_model(
             ModelKind::VanGenuchten => Some(van_genuchten::first_guess),
             _ => None,
         },
+        kernel: (kind == ModelKind::VanGenuchten).then_some(projection::Kernel::VanGenuchten),
     };
     let mut report = fit_curve_with(kind.curve(), kind.id(), readings, &options, &hooks)?;
     if let Err(e) = kind.check_params(&report.values()) {

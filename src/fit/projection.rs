@@ -22,6 +22,7 @@ use nalgebra::{
 use super::problem::{Data, Watch};
 use super::transform::{Saturation, Transform};
 use crate::model::curve::CurveModel;
+use crate::model::retention::van_genuchten;
 
 /// The linear parameters of a model and which of them the inner least squares solves.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -50,6 +51,14 @@ enum Mode {
     Lower,
     /// Neither.
     Neither,
+}
+
+/// A shape function the evaluation calls directly instead of through [`CurveModel`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Kernel {
+    /// van Genuchten with m = 1 - 1/n: parameters `theta_r, theta_s, alpha, n`, used when
+    /// exactly alpha and n are the free shape parameters.
+    VanGenuchten,
 }
 
 /// Relative spread of the shape term below which the linear parameters are not separable.
@@ -90,6 +99,38 @@ struct Scratch {
     g: Vec<f64>,
     /// d g_i / d q_j, column j at j * m.
     dg: Vec<f64>,
+    /// The free linear columns at each reading (g - mean g when both are free).
+    basis: Vec<f64>,
+    /// r + (s - r) g_i - y_i at each reading (the unweighted residual).
+    misfit: Vec<f64>,
+}
+
+/// The weights of the readings and what follows from them alone, computed once per run.
+struct Weights {
+    /// w_i (1 when unweighted).
+    w: Vec<f64>,
+    sum_w: f64,
+    /// Weighted mean of y.
+    y_mean: f64,
+}
+
+impl Weights {
+    fn of(data: &Data<'_>) -> Self {
+        let w: Vec<f64> = match data.sqrt_w {
+            Some(s) => s.iter().map(|v| v * v).collect(),
+            None => vec![1.0; data.x.len()],
+        };
+        let sum_w: f64 = w.iter().sum();
+        let mut swy = 0.0;
+        for (wi, yi) in w.iter().zip(data.y) {
+            swy += wi * yi;
+        }
+        Self {
+            w,
+            sum_w,
+            y_mean: swy / sum_w,
+        }
+    }
 }
 
 /// A solver run's view of a projected problem: M residual rows (>= the readings), N shape
@@ -105,8 +146,11 @@ where
     shape: &'a [usize],
     transforms: &'a [Transform],
     linear: Linear,
+    /// Whether the shape term is evaluated by [`Kernel::VanGenuchten`].
+    van_genuchten: bool,
     /// Full physical parameter vector: held entries keep their values.
     full: Vec<f64>,
+    weights: Weights,
     scratch: RefCell<Scratch>,
     q: OVector<f64, N>,
     /// The Jacobian at the current q (tagged with its generation), computed by `residuals`
@@ -132,6 +176,7 @@ where
         shape: &'a [usize],
         transforms: &'a [Transform],
         linear: Linear,
+        kernel: Option<Kernel>,
         full: Vec<f64>,
         q: OVector<f64, N>,
         watch_saturation: bool,
@@ -148,6 +193,8 @@ where
             unit,
             g: vec![0.0; m],
             dg: vec![0.0; m * shape.len()],
+            basis: vec![0.0; m],
+            misfit: vec![0.0; m],
         };
         Self {
             model,
@@ -156,7 +203,9 @@ where
             shape,
             transforms,
             linear,
+            van_genuchten: kernel == Some(Kernel::VanGenuchten) && shape == [2, 3],
             full,
+            weights: Weights::of(&data),
             scratch: RefCell::new(scratch),
             q,
             cached: RefCell::new(None),
@@ -207,8 +256,12 @@ where
         let lin = &self.linear;
         let y = self.data.y;
         let m = g.len();
-        let w = |i: usize| self.data.sqrt_w.map_or(1.0, |s| s[i] * s[i]);
-        let sum_w: f64 = (0..m).map(w).sum();
+        let Weights {
+            w,
+            sum_w,
+            y_mean: ybar,
+        } = &self.weights;
+        let (w, sum_w, ybar) = (&w[..m], *sum_w, *ybar);
         let (r_lo, r_hi) = lin.r_bounds;
         let (s_lo, s_hi) = lin.s_bounds;
         let r_held = lin.r.map_or(0.0, |r| self.full[r]);
@@ -220,8 +273,8 @@ where
             }
             let (mut a, mut b) = (0.0, 0.0);
             for i in 0..m {
-                a += w(i) * g[i] * g[i];
-                b += w(i) * g[i] * (y[i] - r0);
+                a += w[i] * g[i] * g[i];
+                b += w[i] * g[i] * (y[i] - r0);
             }
             (a > DEGENERATE * sum_w).then(|| (r0 + b / a).clamp(s_lo, s_hi))
         };
@@ -232,24 +285,23 @@ where
             let (mut a, mut b) = (0.0, 0.0);
             for i in 0..m {
                 let u = 1.0 - g[i];
-                a += w(i) * u * u;
-                b += w(i) * u * (s0 - y[i]);
+                a += w[i] * u * u;
+                b += w[i] * u * (s0 - y[i]);
             }
             (a > DEGENERATE * sum_w).then(|| (s0 - b / a).clamp(r_lo, r_hi))
         };
         let (r, s) = match (lin.r_free, lin.s_free) {
             (true, true) => {
-                let (mut swg, mut swy) = (0.0, 0.0);
+                let mut swg = 0.0;
                 for i in 0..m {
-                    swg += w(i) * g[i];
-                    swy += w(i) * y[i];
+                    swg += w[i] * g[i];
                 }
-                let (gbar, ybar) = (swg / sum_w, swy / sum_w);
+                let gbar = swg / sum_w;
                 let (mut var, mut cov) = (0.0, 0.0);
                 for i in 0..m {
                     let dgi = g[i] - gbar;
-                    var += w(i) * dgi * dgi;
-                    cov += w(i) * dgi * (y[i] - ybar);
+                    var += w[i] * dgi * dgi;
+                    cov += w[i] * dgi * (y[i] - ybar);
                 }
                 let free = (var > DEGENERATE * sum_w).then(|| {
                     let d = cov / var;
@@ -263,7 +315,7 @@ where
                     _ => {
                         let sse = |r: f64, s: f64| -> f64 {
                             (0..m)
-                                .map(|i| w(i) * (r + (s - r) * g[i] - y[i]).powi(2))
+                                .map(|i| w[i] * (r + (s - r) * g[i] - y[i]).powi(2))
                                 .sum()
                         };
                         let edges = [
@@ -303,7 +355,14 @@ where
         let m = self.data.x.len();
         let k = self.shape.len();
         let mut guard = self.scratch.borrow_mut();
-        let Scratch { unit, grad, g, dg } = &mut *guard;
+        let Scratch {
+            unit,
+            grad,
+            g,
+            dg,
+            basis,
+            misfit,
+        } = &mut *guard;
         let mut dpdq = [0.0; 8];
         let mut dpdq_vec;
         let dpdq: &mut [f64] = if k <= dpdq.len() {
@@ -323,38 +382,63 @@ where
             unit[idx] = p;
             dpdq[j] = d;
         }
-        let w = |i: usize| self.data.sqrt_w.map_or(1.0, |s| s[i] * s[i]);
-        for i in 0..m {
-            let gi = self.model.value_and_gradient(self.data.x[i], unit, grad);
-            if !gi.is_finite() {
-                return None;
+        if self.van_genuchten {
+            // The same numbers as the model's value_and_gradient at theta_r = 0, theta_s = 1.
+            let (alpha, n) = (unit[2], unit[3]);
+            let (dg_alpha, dg_n) = dg.split_at_mut(m);
+            for (i, &x) in self.data.x.iter().enumerate() {
+                let (gi, d_alpha, d_n) =
+                    van_genuchten::se_and_gradient(x, alpha, n).unwrap_or((1.0, 0.0, 0.0));
+                if !gi.is_finite() {
+                    return None;
+                }
+                g[i] = gi;
+                dg_alpha[i] = d_alpha * dpdq[0];
+                dg_n[i] = d_n * dpdq[1];
             }
-            g[i] = gi;
-            for (j, &idx) in self.shape.iter().enumerate() {
-                dg[j * m + i] = grad[idx] * dpdq[j];
+        } else {
+            for i in 0..m {
+                let gi = self.model.value_and_gradient(self.data.x[i], unit, grad);
+                if !gi.is_finite() {
+                    return None;
+                }
+                g[i] = gi;
+                for (j, &idx) in self.shape.iter().enumerate() {
+                    dg[j * m + i] = grad[idx] * dpdq[j];
+                }
             }
         }
         let y = self.data.y;
         let (r, s, mode) = self.solve_linear(&g[..m])?;
         let d = s - r;
-        // The squared norm of the free linear columns (g - mean g when both are free).
-        let sum_w: f64 = (0..m).map(w).sum();
-        let mean_g = (0..m).map(|i| w(i) * g[i]).sum::<f64>() / sum_w;
-        let basis = |i: usize| match mode {
-            Mode::Both => g[i] - mean_g,
-            Mode::Upper => g[i],
-            Mode::Lower => 1.0 - g[i],
-            Mode::Neither => 0.0,
+        let w = &self.weights.w[..m];
+        let sum_w = self.weights.sum_w;
+        // The free linear columns and their squared norm.
+        let mean_g = if mode == Mode::Both {
+            w.iter().zip(&g[..m]).map(|(wi, gi)| wi * gi).sum::<f64>() / sum_w
+        } else {
+            0.0
         };
-        let basis_norm: f64 = (0..m).map(|i| w(i) * basis(i) * basis(i)).sum();
+        let mut basis_norm = 0.0;
+        for ((b, &gi), &wi) in basis.iter_mut().zip(&g[..m]).zip(w) {
+            *b = match mode {
+                Mode::Both => gi - mean_g,
+                Mode::Upper => gi,
+                Mode::Lower => 1.0 - gi,
+                Mode::Neither => 0.0,
+            };
+            basis_norm += wi * *b * *b;
+        }
         if mode != Mode::Neither && (basis_norm.is_nan() || basis_norm <= DEGENERATE * sum_w) {
             return None;
         }
+        let sqrt_w = |i: usize| self.data.sqrt_w.map_or(1.0, |s| s[i]);
         let rows = self.rows;
         let mut residuals = OVector::<f64, M>::zeros_generic(rows, U1);
         for i in 0..m {
-            let sqrt_w = self.data.sqrt_w.map_or(1.0, |s| s[i]);
-            let e = sqrt_w * (r + d * g[i] - y[i]);
+            let f = r + d * g[i] - y[i];
+            misfit[i] = f;
+            let e = sqrt_w(i) * f;
             if !e.is_finite() {
                 return None;
             }
@@ -364,29 +448,32 @@ where
         // derivative at fixed linear parameters, A the free linear columns and N = A'A.
         let cols = N::from_usize(k);
         let mut jacobian = OMatrix::<f64, M, N>::zeros_generic(rows, cols);
+        let (basis, misfit) = (&basis[..m], &misfit[..m]);
         for j in 0..k {
             let col = &dg[j * m..(j + 1) * m];
             // t = sum w dg (f - y); az = sum w basis z; wz = sum w z.
             let (mut t, mut az, mut wz) = (0.0, 0.0, 0.0);
             for i in 0..m {
                 let z = d * col[i];
-                t += w(i) * col[i] * (r + d * g[i] - y[i]);
-                az += w(i) * z * basis(i);
-                wz += w(i) * z;
+                t += w[i] * col[i] * misfit[i];
+                az += w[i] * z * basis[i];
+                wz += w[i] * z;
             }
+            // v_i = z_i - shift - slope * basis_i.
+            let (shift, slope) = match mode {
+                Mode::Both => (wz / sum_w, (az + t) / basis_norm),
+                Mode::Upper => (0.0, (az + t) / basis_norm),
+                Mode::Lower => (0.0, -((t - az) / basis_norm)),
+                Mode::Neither => (0.0, 0.0),
+            };
+            let mut out = jacobian.column_mut(j);
             for i in 0..m {
                 let z = d * col[i];
-                let v = match mode {
-                    Mode::Both => z - wz / sum_w - (az + t) / basis_norm * basis(i),
-                    Mode::Upper => z - (az + t) / basis_norm * basis(i),
-                    Mode::Lower => z + (t - az) / basis_norm * basis(i),
-                    Mode::Neither => z,
-                };
-                let v = self.data.sqrt_w.map_or(1.0, |s| s[i]) * v;
+                let v = sqrt_w(i) * (z - shift - slope * basis[i]);
                 if !v.is_finite() {
                     return None;
                 }
-                jacobian[(i, j)] = v;
+                out[i] = v;
             }
         }
         Some(Evaluation {
@@ -464,6 +551,7 @@ pub(crate) struct Spec<'a> {
     pub shape: &'a [usize],
     pub transforms: &'a [Transform],
     pub linear: Linear,
+    pub kernel: Option<Kernel>,
     /// Full physical start (held entries at their values).
     pub full: Vec<f64>,
     /// Unbounded start of each shape parameter.
@@ -485,15 +573,23 @@ pub(crate) struct Outcome {
 const FIXED_ROWS: usize = 16;
 
 /// Run the solver on a projected problem, with fixed-size storage when it is small.
+///
+/// One or two shape parameters (the common case) pad to 8, 12 or 16 rows, so the solver's QR
+/// factorization does not work through many zero rows; more shape parameters pad to 16.
 pub(crate) fn minimize(spec: Spec<'_>, lm: &LevenbergMarquardt<f64>) -> Outcome {
-    if spec.data.x.len() <= FIXED_ROWS {
-        let rows = Const::<FIXED_ROWS>;
-        match spec.shape.len() {
-            1 => return run(spec, lm, rows, Const::<1>),
-            2 => return run(spec, lm, rows, Const::<2>),
-            3 => return run(spec, lm, rows, Const::<3>),
-            4 => return run(spec, lm, rows, Const::<4>),
-            5 => return run(spec, lm, rows, Const::<5>),
+    let m = spec.data.x.len();
+    if m <= FIXED_ROWS {
+        let (r16, r12, r8) = (Const::<FIXED_ROWS>, Const::<12>, Const::<8>);
+        match (spec.shape.len(), m) {
+            (1, 0..=8) => return run(spec, lm, r8, Const::<1>),
+            (1, 9..=12) => return run(spec, lm, r12, Const::<1>),
+            (1, _) => return run(spec, lm, r16, Const::<1>),
+            (2, 0..=8) => return run(spec, lm, r8, Const::<2>),
+            (2, 9..=12) => return run(spec, lm, r12, Const::<2>),
+            (2, _) => return run(spec, lm, r16, Const::<2>),
+            (3, _) => return run(spec, lm, r16, Const::<3>),
+            (4, _) => return run(spec, lm, r16, Const::<4>),
+            (5, _) => return run(spec, lm, r16, Const::<5>),
             _ => {}
         }
     }
@@ -516,6 +612,7 @@ where
         spec.shape,
         spec.transforms,
         spec.linear,
+        spec.kernel,
         spec.full,
         q0,
         spec.watch,

@@ -385,7 +385,7 @@ mod projection {
 
     use super::{H, Vg, curve};
     use crate::fit::problem::Data;
-    use crate::fit::projection::{Linear, Projected};
+    use crate::fit::projection::{Kernel, Linear, Projected};
     use crate::fit::transform::Transform;
     use crate::fit::{FitOptions, Readings, Side, fit_curve, fit_model};
     use crate::model::curve::CurveModel;
@@ -410,6 +410,8 @@ mod projection {
     /// The projected problem at alpha = 0.05, n = 1.7 (away from the optimum, so the second
     /// term of the Jacobian matters), padded to 16 rows.
     fn problem<'a>(
+        model: &'a dyn CurveModel,
+        kernel: Option<Kernel>,
         y: &'a [f64],
         sqrt_w: Option<&'a [f64]>,
         transforms: &'a [Transform],
@@ -427,16 +429,45 @@ mod projection {
         let data = Data { x: &H, y, sqrt_w };
         let full = vec![held.0, held.1, 0.05, 1.7];
         Projected::new(
-            &Vg,
+            model,
             data,
             Const::<16>,
             &SHAPE,
             transforms,
             linear,
+            kernel,
             full,
             q,
             false,
         )
+    }
+
+    /// The van Genuchten kernel gives the model's own numbers, bit for bit.
+    #[test]
+    #[allow(clippy::float_cmp)]
+    fn van_genuchten_kernel_matches_the_model() {
+        let y = noisy();
+        let transforms = [
+            Transform::for_bounds(1e-5, 10.0),
+            Transform::for_bounds(1.01, 15.0),
+        ];
+        let linear = Linear {
+            r: Some(0),
+            s: 1,
+            r_free: true,
+            s_free: true,
+            r_bounds: (0.0, 0.5),
+            s_bounds: (0.2, 0.7),
+        };
+        let model = ModelKind::VanGenuchten.curve();
+        let at = |kernel| {
+            let p = problem(model, kernel, &y, None, &transforms, linear, (0.0, 0.0));
+            let r = p.residuals().expect("residuals");
+            (r, p.jacobian().expect("jacobian"))
+        };
+        let (generic, kernel) = (at(None), at(Some(Kernel::VanGenuchten)));
+        assert!(generic.0.iter().any(|&v| v != 0.0));
+        assert_eq!(generic, kernel);
     }
 
     /// Golub-Pereyra Jacobian against central differences, for every way the linear
@@ -506,9 +537,14 @@ mod projection {
                 Some(0.43),
             ),
         ];
-        for (linear, held, want_r, want_s) in cases {
+        let combinations = cases.into_iter().flat_map(|case| {
+            [None, Some(Kernel::VanGenuchten)]
+                .into_iter()
+                .map(move |kernel| (case, kernel))
+        });
+        for ((linear, held, want_r, want_s), kernel) in combinations {
             for weights in [None, Some(sqrt_w.as_slice())] {
-                let mut p = problem(&y, weights, &transforms, linear, held);
+                let mut p = problem(&Vg, kernel, &y, weights, &transforms, linear, held);
                 let analytic = p.jacobian().expect("jacobian");
                 let numeric = differentiate_numerically(&mut p).expect("numeric");
                 for (a, n) in analytic.iter().zip(numeric.iter()) {

@@ -35,18 +35,16 @@ impl CurveModel for VanGenuchten {
 
     fn value_and_gradient(&self, h: f64, p: &[f64], grad: &mut [f64]) -> f64 {
         let (theta_r, theta_s, alpha, n) = (p[0], p[1], p[2], p[3]);
-        let m = mualem_m(n);
         let d = theta_s - theta_r;
-        let Some(t) = VgTerm::at(h, alpha, n, m) else {
+        let Some((se, d_alpha, d_n)) = se_and_gradient(h, alpha, n) else {
             grad[..4].copy_from_slice(&[0.0, 1.0, 0.0, 0.0]);
             return theta_s;
         };
-        grad[0] = 1.0 - t.se;
-        grad[1] = t.se;
-        grad[2] = d * t.d_alpha(alpha, n, m);
-        // dm/dn = 1/n^2.
-        grad[3] = d * (t.d_n(m) + t.d_m() / (n * n));
-        theta_r + d * t.se
+        grad[0] = 1.0 - se;
+        grad[1] = se;
+        grad[2] = d * d_alpha;
+        grad[3] = d * d_n;
+        theta_r + d * se
     }
 
     /// theta_s just above the wettest reading; theta_r at fractions of the driest reading, with
@@ -63,6 +61,17 @@ impl CurveModel for VanGenuchten {
             .collect();
         rank_guesses(self, x, y, candidates, 3)
     }
+}
+
+/// Se at suction h and its derivatives with respect to alpha and n (m = 1 - 1/n followed), or
+/// `None` at h <= 0 where Se = 1 and both derivatives vanish. The shape part of
+/// [`CurveModel::value_and_gradient`], which the projected solver calls directly.
+#[inline]
+pub(crate) fn se_and_gradient(h: f64, alpha: f64, n: f64) -> Option<(f64, f64, f64)> {
+    let m = mualem_m(n);
+    let t = VgTerm::at(h, alpha, n, m)?;
+    // dm/dn = 1/n^2.
+    Some((t.se, t.d_alpha(alpha, n, m), t.d_n(m) + t.d_m() / (n * n)))
 }
 
 /// The cheap first start of a fit whose theta_r and theta_s are solved inside the solver:
