@@ -372,12 +372,14 @@ impl Context<'_> {
             return None;
         }
         let is_linear = |k: usize| k == s || Some(k) == r;
-        let (shape, shape_transforms): (Vec<usize>, Vec<Transform>) = free
-            .iter()
-            .zip(transforms)
-            .filter(|(k, _)| !is_linear(**k))
-            .map(|(&k, &t)| (k, t))
-            .unzip();
+        let mut shape = Vec::with_capacity(free.len());
+        let mut shape_transforms = Vec::with_capacity(free.len());
+        for (&k, &t) in free.iter().zip(transforms) {
+            if !is_linear(k) {
+                shape.push(k);
+                shape_transforms.push(t);
+            }
+        }
         if shape.is_empty() {
             return None;
         }
@@ -894,7 +896,7 @@ fn build_report(
             });
             (
                 Some(ParamMatrix {
-                    names: names.clone(),
+                    names,
                     rows: cov_rows,
                 }),
                 corr,

@@ -80,11 +80,9 @@ impl Watch {
                         Side::Upper => qj > previous[j],
                     }
             };
-            let hit = t.saturation(qj).or_else(|| {
-                t.near_bound(qj)
-                    .filter(|&side| heading(side))
-                    .map(Saturation::Pinned)
-            });
+            let (saturation, near) = t.saturation_and_near_bound(qj);
+            let hit =
+                saturation.or_else(|| near.filter(|&side| heading(side)).map(Saturation::Pinned));
             if let Some(s) = hit {
                 self.saturated.set(Some((j, s)));
                 return true;

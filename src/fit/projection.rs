@@ -96,13 +96,10 @@ struct Scratch {
     /// Full parameter vector with theta_r = 0 and theta_s = 1, so the model returns g.
     unit: Vec<f64>,
     grad: Vec<f64>,
-    g: Vec<f64>,
-    /// d g_i / d q_j, column j at j * m.
-    dg: Vec<f64>,
-    /// The free linear columns at each reading (g - mean g when both are free).
-    basis: Vec<f64>,
-    /// r + (s - r) g_i - y_i at each reading (the unweighted residual).
-    misfit: Vec<f64>,
+    /// One allocation for the per-reading buffers, m values each, in this order: g; the free
+    /// linear columns (g - mean g when both are free); r + (s - r) g - y (the unweighted
+    /// residual); d g / d q_j for each shape parameter j.
+    per_reading: Vec<f64>,
 }
 
 /// The weights of the readings and what follows from them alone, computed once per run.
@@ -191,10 +188,7 @@ where
         let scratch = Scratch {
             grad: vec![0.0; full.len()],
             unit,
-            g: vec![0.0; m],
-            dg: vec![0.0; m * shape.len()],
-            basis: vec![0.0; m],
-            misfit: vec![0.0; m],
+            per_reading: vec![0.0; m * (3 + shape.len())],
         };
         Self {
             model,
@@ -358,11 +352,11 @@ where
         let Scratch {
             unit,
             grad,
-            g,
-            dg,
-            basis,
-            misfit,
+            per_reading,
         } = &mut *guard;
+        let (g, rest) = per_reading.split_at_mut(m);
+        let (basis, rest) = rest.split_at_mut(m);
+        let (misfit, dg) = rest.split_at_mut(m);
         let mut dpdq = [0.0; 8];
         let mut dpdq_vec;
         let dpdq: &mut [f64] = if k <= dpdq.len() {

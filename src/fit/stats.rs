@@ -63,7 +63,7 @@ pub(crate) fn inverse_normal_matrix(j: &DMatrix<f64>) -> Option<(DMatrix<f64>, I
         js.column_mut(k).scale_mut(s);
     }
     let a = js.tr_mul(&js);
-    let (inv_scaled, how) = match a.clone().cholesky() {
+    let (inv_scaled, how) = match a.cholesky() {
         Some(ch) => {
             let inv = ch.inverse();
             // Cholesky succeeds on some numerically singular matrices: check the condition.

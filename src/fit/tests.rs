@@ -442,23 +442,31 @@ mod projection {
         )
     }
 
+    /// The maps of alpha and n in the projected tests.
+    fn shape_transforms() -> [Transform; 2] {
+        [
+            Transform::for_bounds(1e-5, 10.0),
+            Transform::for_bounds(1.01, 15.0),
+        ]
+    }
+
+    /// theta_r and theta_s both solved, inside bounds that do not bind at the start.
+    const BOTH_FREE: Linear = Linear {
+        r: Some(0),
+        s: 1,
+        r_free: true,
+        s_free: true,
+        r_bounds: (0.0, 0.5),
+        s_bounds: (0.2, 0.7),
+    };
+
     /// The van Genuchten kernel gives the model's own numbers, bit for bit.
     #[test]
     #[allow(clippy::float_cmp)]
     fn van_genuchten_kernel_matches_the_model() {
         let y = noisy();
-        let transforms = [
-            Transform::for_bounds(1e-5, 10.0),
-            Transform::for_bounds(1.01, 15.0),
-        ];
-        let linear = Linear {
-            r: Some(0),
-            s: 1,
-            r_free: true,
-            s_free: true,
-            r_bounds: (0.0, 0.5),
-            s_bounds: (0.2, 0.7),
-        };
+        let transforms = shape_transforms();
+        let linear = BOTH_FREE;
         let model = ModelKind::VanGenuchten.curve();
         let at = |kernel| {
             let p = problem(model, kernel, &y, None, &transforms, linear, (0.0, 0.0));
@@ -475,19 +483,9 @@ mod projection {
     #[test]
     fn projected_jacobian_matches_finite_differences() {
         let y = noisy();
-        let transforms = [
-            Transform::for_bounds(1e-5, 10.0),
-            Transform::for_bounds(1.01, 15.0),
-        ];
+        let transforms = shape_transforms();
         let sqrt_w: Vec<f64> = (0..H.len()).map(|i| 0.5 + 0.1 * i as f64).collect();
-        let base = Linear {
-            r: Some(0),
-            s: 1,
-            r_free: true,
-            s_free: true,
-            r_bounds: (0.0, 0.5),
-            s_bounds: (0.2, 0.7),
-        };
+        let base = BOTH_FREE;
         let cases: [Case; 6] = [
             (base, (0.0, 0.0), None, None),
             (

@@ -114,16 +114,7 @@ impl Transform {
     pub(crate) fn saturation(self, q: f64) -> Option<Saturation> {
         match self {
             Transform::Identity => None,
-            Transform::Logistic { lo, hi } => {
-                let p = self.forward(q).0;
-                if q <= -LOGISTIC_SATURATION || p - lo <= AT_BOUND * self.scale(lo) {
-                    Some(Saturation::Pinned(Side::Lower))
-                } else if q >= LOGISTIC_SATURATION || hi - p <= AT_BOUND * self.scale(hi) {
-                    Some(Saturation::Pinned(Side::Upper))
-                } else {
-                    None
-                }
-            }
+            Transform::Logistic { .. } => self.logistic_saturation(q, self.forward(q).0),
             Transform::ExpLower { .. } | Transform::ExpUpper { .. } => {
                 let side = if matches!(self, Transform::ExpLower { .. }) {
                     Side::Lower
@@ -138,6 +129,48 @@ impl Transform {
                     None
                 }
             }
+        }
+    }
+}
+
+impl Transform {
+    /// [`saturation`](Self::saturation) and [`near_bound`](Self::near_bound) at q together,
+    /// with one evaluation of the map (the solver's bound watch asks both at every step).
+    pub(crate) fn saturation_and_near_bound(self, q: f64) -> (Option<Saturation>, Option<Side>) {
+        match self {
+            Transform::Logistic { .. } => {
+                let p = self.forward(q).0;
+                (self.logistic_saturation(q, p), self.logistic_near_bound(p))
+            }
+            _ => (self.saturation(q), None),
+        }
+    }
+
+    /// Saturation of a logistic parameter at q, with p = forward(q).
+    fn logistic_saturation(self, q: f64, p: f64) -> Option<Saturation> {
+        let Transform::Logistic { lo, hi } = self else {
+            return None;
+        };
+        if q <= -LOGISTIC_SATURATION || p - lo <= AT_BOUND * self.scale(lo) {
+            Some(Saturation::Pinned(Side::Lower))
+        } else if q >= LOGISTIC_SATURATION || hi - p <= AT_BOUND * self.scale(hi) {
+            Some(Saturation::Pinned(Side::Upper))
+        } else {
+            None
+        }
+    }
+
+    /// The bound a logistic parameter at p is close to, if any.
+    fn logistic_near_bound(self, p: f64) -> Option<Side> {
+        let Transform::Logistic { lo, hi } = self else {
+            return None;
+        };
+        if p - lo <= NEAR_BOUND * self.scale(lo) {
+            Some(Side::Lower)
+        } else if hi - p <= NEAR_BOUND * self.scale(hi) {
+            Some(Side::Upper)
+        } else {
+            None
         }
     }
 }
@@ -162,18 +195,9 @@ impl Transform {
     /// Close means within 1 % of the interval's width for a bound at 0, and within 1 % of
     /// min(width, |bound|) otherwise, so a parameter spanning decades (alpha in [1e-5, 10]
     /// 1/cm) is near its lower bound only below 1.01e-5, and n in [1.001, 15] below 1.011.
-    pub(crate) fn near_bound(self, q: f64) -> Option<Side> {
-        let Transform::Logistic { lo, hi } = self else {
-            return None;
-        };
-        let p = self.forward(q).0;
-        if p - lo <= NEAR_BOUND * self.scale(lo) {
-            Some(Side::Lower)
-        } else if hi - p <= NEAR_BOUND * self.scale(hi) {
-            Some(Side::Upper)
-        } else {
-            None
-        }
+    #[cfg(test)]
+    fn near_bound(self, q: f64) -> Option<Side> {
+        self.saturation_and_near_bound(q).1
     }
 }
 
@@ -211,6 +235,14 @@ mod tests {
         assert_eq!(t.near_bound(q_of(2e-5)), None);
         // A start on the bound is placed outside the near band.
         assert_eq!(t.near_bound(t.inverse_start(1e-5)), None);
+        // The combined check gives the same saturation as the separate one.
+        for q in [-40.0, -30.0, -12.0, -5.0, 0.0, 5.0, 12.0, 30.0, 40.0] {
+            assert_eq!(t.saturation_and_near_bound(q).0, t.saturation(q), "{q}");
+        }
+        assert_eq!(
+            t.saturation_and_near_bound(-40.0),
+            (Some(Saturation::Pinned(Side::Lower)), Some(Side::Lower))
+        );
     }
 
     #[test]

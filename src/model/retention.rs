@@ -578,12 +578,13 @@ pub(crate) struct DataShape {
 impl DataShape {
     /// Summarize readings; `None` when there are none with finite values.
     pub fn of(x: &[f64], y: &[f64]) -> Option<DataShape> {
-        let mut pts: Vec<(f64, f64)> = x
-            .iter()
-            .zip(y)
-            .filter(|(h, t)| h.is_finite() && t.is_finite() && **h >= 0.0)
-            .map(|(&h, &t)| (h, t))
-            .collect();
+        let mut pts: Vec<(f64, f64)> = Vec::with_capacity(x.len().min(y.len()));
+        pts.extend(
+            x.iter()
+                .zip(y)
+                .filter(|(h, t)| h.is_finite() && t.is_finite() && **h >= 0.0)
+                .map(|(&h, &t)| (h, t)),
+        );
         if pts.is_empty() {
             return None;
         }
