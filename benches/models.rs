@@ -15,7 +15,8 @@
 //! `POREWISE_BENCH_PER_MODEL` samples per generating model (default 80), `POREWISE_BENCH_SEED`
 //! the generator's seed (default 20261204; change it for a held-back set),
 //! `POREWISE_BENCH_RESTARTS` random restarts (default 40), `POREWISE_BENCH_MODELS` a comma list
-//! of model ids to fit (default all), `POREWISE_BENCH_SHOW` misses printed per model (default 8).
+//! of model ids to fit (default all), `POREWISE_BENCH_SHOW` misses printed per model (default 8),
+//! `POREWISE_BENCH_WRITE=FILE` writes every sample as a pairs file (`sample,suction_cm,theta`).
 //!
 //! Generating parameters are invented ranges around common values of each model (common
 //! practice), not published data.
@@ -34,8 +35,8 @@ use rayon::prelude::*;
 
 /// Lab suctions, cm (hanging column, sandbox, plates, dewpoint; common practice).
 const POOL: [f64; 16] = [
-    3.0, 10.0, 20.0, 31.6, 50.0, 63.0, 100.0, 200.0, 330.0, 500.0, 1000.0, 2000.0, 3000.0,
-    5000.0, 10000.0, 15000.0,
+    3.0, 10.0, 20.0, 31.6, 50.0, 63.0, 100.0, 200.0, 330.0, 500.0, 1000.0, 2000.0, 3000.0, 5000.0,
+    10000.0, 15000.0,
 ];
 
 struct Sample {
@@ -103,6 +104,19 @@ fn draw(kind: ModelKind, rng: &mut ChaCha8Rng) -> Vec<f64> {
     }
 }
 
+/// A short, distinct name prefix for the samples a model generated.
+fn prefix(kind: ModelKind) -> &'static str {
+    match kind {
+        ModelKind::VanGenuchten => "vg",
+        ModelKind::VanGenuchtenFreeM => "vgm",
+        ModelKind::BrooksCorey => "bc",
+        ModelKind::Kosugi => "kos",
+        ModelKind::FredlundXing => "fx",
+        ModelKind::Durner => "dur",
+        ModelKind::Campbell => "cam",
+    }
+}
+
 fn generate(per_model: usize, seed: u64) -> Vec<Sample> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let z = Normal::new(0.0, 1.0).expect("normal");
@@ -131,7 +145,7 @@ fn generate(per_model: usize, seed: u64) -> Vec<Sample> {
                 .map(|t: f64| t.clamp(0.0, 1.0))
                 .collect();
             out.push(Sample {
-                name: format!("{}{made:03}", &kind.id()[..3]),
+                name: format!("{}{made:03}", prefix(kind)),
                 h,
                 theta,
             });
@@ -206,7 +220,8 @@ fn breakpoint(kind: ModelKind) -> Option<&'static str> {
     porewise::fit::breakpoint_of(kind)
 }
 
-/// Best SSE over random restarts of the plain driver.
+/// Best SSE over random restarts of the plain driver (valid parameter sets only: theta_r
+/// below theta_s).
 fn reference(kind: ModelKind, s: &Sample, seed: u64, restarts: usize) -> (f64, Vec<f64>) {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let readings = Readings::new(&s.h, &s.theta);
@@ -224,6 +239,7 @@ fn reference(kind: ModelKind, s: &Sample, seed: u64, restarts: usize) -> (f64, V
         for opts in runs {
             if let Ok(r) = fit_curve(&model, kind.id(), &readings, &opts)
                 && r.sse < best.0
+                && kind.check_params(&r.values()).is_ok()
             {
                 best = (r.sse, r.values());
             }
@@ -254,7 +270,20 @@ fn main() {
     let show = env_usize("POREWISE_BENCH_SHOW", 8);
     let mut samples = generate(per_model, seed);
     let generated = samples.len();
-    samples.extend(files(&Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/regress")));
+    samples.extend(files(
+        &Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/regress"),
+    ));
+    if let Ok(path) = std::env::var("POREWISE_BENCH_WRITE") {
+        use std::fmt::Write as _;
+        let mut text = String::from("sample,suction_cm,theta\n");
+        for s in &samples {
+            for (h, t) in s.h.iter().zip(&s.theta) {
+                let _ = writeln!(text, "{},{h:?},{t:?}", s.name);
+            }
+        }
+        std::fs::write(&path, text).expect("write samples");
+        println!("samples written to {path}");
+    }
     let kinds: Vec<ModelKind> = match std::env::var("POREWISE_BENCH_MODELS") {
         Ok(list) => list
             .split(',')
@@ -267,8 +296,17 @@ fn main() {
         samples.len() - generated
     );
     println!(
-        "{:<22} {:>6} {:>9} {:>12} {:>8} {:>9} {:>10}",
-        "model", "fits", "at best", "worst miss", "silent", "warned", "us/fit"
+        "{:<22} {:>6} {:>9} {:>12} {:>8} {:>9} {:>10} {:>6} {:>7} {:>7}",
+        "model",
+        "fits",
+        "at best",
+        "worst miss",
+        "silent",
+        "warned",
+        "us/fit",
+        "runs",
+        "evals",
+        "flat"
     );
     for kind in kinds {
         let opts = FitOptions::new();
@@ -285,11 +323,17 @@ fn main() {
             .map(|(i, s)| reference(kind, s, seed ^ (i as u64 * 7919 + 13), restarts))
             .collect();
         let (mut fits, mut good, mut silent, mut warned) = (0usize, 0usize, 0usize, 0usize);
+        let (mut runs, mut evals, mut invalid_count) = (0usize, 0usize, 0usize);
         let mut worst: f64 = 1.0;
         let mut misses = Vec::new();
         for ((s, r), (best, best_p)) in samples.iter().zip(&ours).zip(&refs) {
             let Ok(r) = r else { continue };
             fits += 1;
+            runs += r.runs;
+            evals += r.evaluations;
+            // Not a valid curve (theta_r not below theta_s, flat data): reported not converged.
+            let invalid = kind.check_params(&r.values()).is_err();
+            invalid_count += usize::from(invalid);
             let best = best.min(r.sse);
             if r.sse <= best * (1.0 + 1e-6) + 1e-15 {
                 good += 1;
@@ -297,28 +341,40 @@ fn main() {
             }
             let ratio = r.sse / best;
             worst = worst.max(ratio);
-            if ratio > 1.01 {
+            if ratio > 1.01 || invalid {
                 if warns(r) {
                     warned += 1;
                 } else {
                     silent += 1;
                 }
             }
-            misses.push((ratio, s.name.clone(), r.sse, best, r.values(), best_p.clone()));
+            misses.push((
+                ratio,
+                s.name.clone(),
+                r.sse,
+                best,
+                r.values(),
+                best_p.clone(),
+            ));
         }
         println!(
-            "{:<22} {:>6} {:>8.2}% {:>11.4}x {:>8} {:>9} {:>10.1}",
+            "{:<22} {:>6} {:>8.2}% {:>11.4}x {:>8} {:>9} {:>10.1} {:>6.1} {:>7.1} {:>7}",
             kind.id(),
             fits,
             100.0 * good as f64 / fits.max(1) as f64,
             worst,
             silent,
             warned,
-            per_fit
+            per_fit,
+            runs as f64 / fits.max(1) as f64,
+            evals as f64 / fits.max(1) as f64,
+            invalid_count
         );
         misses.sort_by(|a, b| b.0.total_cmp(&a.0));
         for (ratio, name, sse, best, p, bp) in misses.iter().take(show) {
-            println!("    {name}: {ratio:.6}x  sse {sse:.6e} best {best:.6e}  ours {p:.5?}  best {bp:.5?}");
+            println!(
+                "    {name}: {ratio:.6}x  sse {sse:.6e} best {best:.6e}  ours {p:.5?}  best {bp:.5?}"
+            );
         }
     }
 }

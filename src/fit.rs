@@ -13,6 +13,7 @@ pub mod outliers;
 mod problem;
 mod projection;
 mod report;
+mod search;
 mod stats;
 mod transform;
 

@@ -14,6 +14,7 @@ use super::error::FitError;
 use super::problem::{Data, Problem};
 use super::projection::{self, Kernel, Linear};
 use super::report::{FitReport, ParamEstimate, ParamMatrix, ReadingFit, Termination};
+use super::search::{self, Axis, Factored, Limits, Mixture, MixtureGrid, PowerLaw};
 use super::stats::{self, Inversion};
 use super::transform::{Saturation, Side, Transform};
 use crate::model::curve::CurveModel;
@@ -24,6 +25,23 @@ const DOUBTFUL_R2: f64 = 0.9;
 const SSE_TIE: f64 = 1e-12;
 /// Extra starts for a converged fit with a low R2.
 const POOR_EXTRA_STARTS: usize = 2;
+/// Relative slack on a breakpoint interval's lower bound before it is skipped (the bound comes
+/// from a one-dimensional search that is itself refined only to about this precision).
+const INTERVAL_BOUND_SLACK: f64 = 1e-7;
+/// The solver's first-step factor from a screened start or a rough solution: they are
+/// already in their basin, and a long first step can leave it.
+const SCREENED_STEP_BOUND: f64 = 1.0;
+/// Tolerance and patience of the rough runs from screened starts.
+const ROUGH_TOLERANCE: f64 = 1e-4;
+const ROUGH_PATIENCE: usize = 5;
+/// Rough results whose SSEs agree this closely are taken to be one minimum (polished once).
+const SAME_ROUGH_MINIMUM: f64 = 1e-3;
+/// How many solutions' SSEs a fit keeps for the note on several minima (the lowest ones).
+const FOUND_KEPT: usize = 32;
+/// A minimum whose SSE is below this many times the best is a rival worth a note.
+const RIVAL_MINIMUM: f64 = 2.0;
+/// Relative SSE difference above which two solutions count as different minima.
+const DISTINCT_MINIMUM: f64 = 1e-6;
 
 /// The readings of one fit: x (suction, cm), y (water content) and optional weights.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -215,8 +233,18 @@ struct Context<'a> {
     /// The linear parameters (theta_r, theta_s) solved inside each run, if the model has them.
     linear: Option<(Option<usize>, usize)>,
     kernel: Option<Kernel>,
+    /// The power law beyond a breakpoint, for the interval search.
+    power_law: Option<PowerLaw>,
     evaluations: usize,
     runs: usize,
+    /// SSE of every solution reached from a start or in a breakpoint interval (for the note
+    /// on several minima); the first [`FOUND_KEPT`] are kept.
+    found: [f64; FOUND_KEPT],
+    found_count: usize,
+    /// Rough runs (screened starts): a loose tolerance and a small budget.
+    loose: bool,
+    /// Polishing a rough solution: starts are taken as they are, even next to a bound.
+    resume: bool,
 }
 
 /// A finished solution: full physical parameters and how it was reached.
@@ -248,6 +276,30 @@ fn termination_of(reason: &TerminationReason) -> Termination {
 }
 
 impl Context<'_> {
+    /// The solver's start for a parameter value (a guess kept off the bounds, a resumed
+    /// solution not).
+    fn inverse(&self, t: Transform, p: f64) -> f64 {
+        if self.resume {
+            t.inverse_resume(p)
+        } else {
+            t.inverse_start(p)
+        }
+    }
+
+    /// Remember a finished solution for the note on several minima.
+    fn record(&mut self, c: &Candidate) {
+        if !self.loose && c.termination.is_optimum() && c.sse.is_finite() {
+            if let Some(slot) = self.found.get_mut(self.found_count) {
+                *slot = c.sse;
+                self.found_count += 1;
+            } else if let Some(worst) = self.found.iter_mut().max_by(|a, b| a.total_cmp(b))
+                && c.sse < *worst
+            {
+                *worst = c.sse;
+            }
+        }
+    }
+
     /// Weighted SSE at full parameters p (infinite when the model is not finite there).
     fn sse(&self, p: &[f64]) -> f64 {
         let mut sse = 0.0;
@@ -302,13 +354,21 @@ impl Context<'_> {
                 saturated: None,
             };
         }
-        let tol = self.options.tolerance;
+        let (tol, patience) = if self.loose {
+            (ROUGH_TOLERANCE, ROUGH_PATIENCE.min(self.options.patience))
+        } else {
+            (self.options.tolerance, self.options.patience)
+        };
         let lm = LevenbergMarquardt::new()
             .with_ftol(tol)
             .with_xtol(tol)
             .with_gtol(tol)
-            .with_patience(self.options.patience)
-            .with_stepbound(self.options.step_bound);
+            .with_patience(patience)
+            .with_stepbound(if self.loose || self.resume {
+                SCREENED_STEP_BOUND.min(self.options.step_bound)
+            } else {
+                self.options.step_bound
+            });
         if let Some(run) = self.run_projected(&lm, &full, &free, &transforms, hold, lo, hi, watch) {
             return run;
         }
@@ -316,7 +376,7 @@ impl Context<'_> {
             free.len(),
             free.iter()
                 .zip(&transforms)
-                .map(|(&k, t)| t.inverse_start(full[k].clamp(lo[k], hi[k]))),
+                .map(|(&k, t)| self.inverse(*t, full[k].clamp(lo[k], hi[k]))),
         );
         let problem = Problem::new(self.model, self.data, &free, &transforms, full, q0, watch);
         let (problem, report) = lm.minimize(problem);
@@ -386,7 +446,7 @@ impl Context<'_> {
         let q0: Vec<f64> = shape
             .iter()
             .zip(&shape_transforms)
-            .map(|(&k, t)| t.inverse_start(full[k].clamp(lo[k], hi[k])))
+            .map(|(&k, t)| self.inverse(*t, full[k].clamp(lo[k], hi[k])))
             .collect();
         let outcome = projection::minimize(
             projection::Spec {
@@ -423,19 +483,53 @@ impl Context<'_> {
 
     /// Solve from `start` with an active set for parameters that reach a finite bound.
     fn solve(&mut self, start: &[f64], fixed: &[Option<f64>], lo: &[f64], hi: &[f64]) -> Candidate {
+        const FREE: [Option<Side>; 16] = [None; 16];
+        if start.len() <= FREE.len() {
+            self.solve_pinned(start, &FREE[..start.len()], fixed, lo, hi)
+        } else {
+            self.solve_pinned(start, &vec![None; start.len()], fixed, lo, hi)
+        }
+    }
+
+    /// [`Self::solve`] with some parameters starting held on a bound (as an earlier run left
+    /// them), so that a start on a bound is not moved inside it first.
+    fn solve_pinned(
+        &mut self,
+        start: &[f64],
+        pinned_at_start: &[Option<Side>],
+        fixed: &[Option<f64>],
+        lo: &[f64],
+        hi: &[f64],
+    ) -> Candidate {
         let n = start.len();
         let mut hold = fixed.to_vec();
         let mut pinned: Vec<Option<Side>> = vec![None; n];
-        let mut from = start.to_vec();
-        let mut run = self.run(&from, &hold, lo, hi, true);
+        for (k, side) in pinned_at_start.iter().enumerate() {
+            if let Some(side) = side
+                && hold[k].is_none()
+            {
+                hold[k] = Some(if *side == Side::Lower { lo[k] } else { hi[k] });
+                pinned[k] = Some(*side);
+            }
+        }
+        let mut run = self.run(start, &hold, lo, hi, true);
         for _ in 0..n {
             match run.saturated {
                 Some((k, Saturation::Pinned(side))) => {
                     let bound = if side == Side::Lower { lo[k] } else { hi[k] };
-                    hold[k] = Some(bound);
-                    pinned[k] = Some(side);
-                    from.clone_from(&run.p);
-                    run = self.run(&from, &hold, lo, hi, true);
+                    let mut trial_hold = hold.clone();
+                    trial_hold[k] = Some(bound);
+                    let trial = self.run(&run.p, &trial_hold, lo, hi, true);
+                    if trial.sse <= run.sse * (1.0 + SSE_TIE) {
+                        hold = trial_hold;
+                        pinned[k] = Some(side);
+                        run = trial;
+                    } else {
+                        // Held on the bound the fit is worse than where the parameter was
+                        // when it came near it: the optimum is inside, finish the run there.
+                        run = self.run(&run.p, &hold, lo, hi, false);
+                        break;
+                    }
                 }
                 _ => break,
             }
@@ -566,8 +660,8 @@ pub(crate) type FirstGuess = fn(&[f64], &[f64]) -> Option<Vec<f64>>;
 #[derive(Debug, Clone, Copy, Default)]
 pub(crate) struct Hooks {
     /// Map equivalent parameter sets onto one canonical form; applied to the kept solution
-    /// (when nothing is fixed or on a bound) before the statistics.
-    pub canonicalize: Option<fn(&mut [f64])>,
+    /// before the statistics.
+    pub canonicalize: Option<Canonical>,
     /// Positions of parameters that enter the curve as f = a (1 - g) + b g (theta_r, theta_s)
     /// or f = b g (theta_s alone): each run solves them by linear least squares inside (see
     /// [`projection`]) and moves only the others.
@@ -577,6 +671,137 @@ pub(crate) struct Hooks {
     pub first_guess: Option<FirstGuess>,
     /// A shape function the projected solver may call directly (same numbers, no dynamic call).
     pub kernel: Option<Kernel>,
+    /// The power law beyond the breakpoint (Brooks-Corey, Campbell): intervals are searched in
+    /// the order of a lower bound on their best fit, and those that cannot win are skipped.
+    pub power_law: Option<PowerLaw>,
+    /// A grid over the shape parameters screened before the solver runs (see
+    /// [`search::grid_starts`]); its best local minima are starts.
+    pub screen: Option<Screen>,
+}
+
+/// Two orders of a model's parts that describe the same curve (Durner's modes), and how to
+/// put a solution into the usual one.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Canonical {
+    /// Whether a solution is out of the usual order.
+    pub out_of_order: fn(&[f64]) -> bool,
+    /// Parameters that trade places.
+    pub swap: &'static [(usize, usize)],
+    /// Parameters p that become lower + upper - p (a weight w becoming 1 - w with symmetric
+    /// bounds).
+    pub complement: &'static [usize],
+    /// What the fit message says when a fixed parameter keeps the parts out of order.
+    pub note: &'static str,
+}
+
+/// How a model's starts are screened before the solver runs.
+#[derive(Debug, Clone, Copy)]
+pub(crate) enum Screen {
+    /// A grid over the shape parameters (axes from the readings); its `keep` best local
+    /// minima become starts.
+    Grid {
+        axes: fn(&[f64], &[f64]) -> Vec<Axis>,
+        keep: usize,
+    },
+    /// Only when the first fit leaves the curve's shape unresolved (a poor fit, or most of its
+    /// fall between two readings): starts derived from that fit (a steeper and a flatter curve
+    /// through the same middle), for a model whose first fit is usually right and must stay
+    /// cheap.
+    Probes { probes: fn(&[f64]) -> Vec<Vec<f64>> },
+    /// Pairs of modes of a two-mode mixture (see [`search::mixture_starts`]): `mode(h, a, b)`
+    /// is one mode's curve, `grids` the values of a and b from the readings.
+    Mixture {
+        mix: Mixture,
+        mode: fn(f64, f64, f64) -> f64,
+        grids: fn(&[f64], &[f64]) -> Vec<MixtureGrid>,
+        keep: usize,
+    },
+    /// A correction times a power of a core (see [`search::factored_starts`]), with the grid
+    /// values of the core's two parameters, the power and the correction's parameter.
+    Factored {
+        model: Factored,
+        values: fn(&[f64], &[f64]) -> [Vec<f64>; 4],
+        keep: usize,
+    },
+}
+
+impl Screen {
+    /// How many of the rough solutions from the screened starts are solved fully.
+    fn polish(self) -> usize {
+        match self {
+            Screen::Grid { .. } => 2,
+            Screen::Probes { .. } => 1,
+            Screen::Mixture { .. } | Screen::Factored { .. } => 3,
+        }
+    }
+
+    /// Whether the screen runs only after a first fit that looks unresolved.
+    fn only_when_doubtful(self) -> bool {
+        matches!(self, Screen::Probes { .. })
+    }
+}
+
+/// A first fit (of a model probed only when doubtful) is probed further when more than
+/// [`UNRESOLVED_DROP`] of the readings' fall lies inside one gap between consecutive readings
+/// a factor [`UNRESOLVED_GAP`] or more apart in suction; or when its R2 is below
+/// [`UNRESOLVED_R2`] and a gap that wide holds more than [`POOR_FIT_DROP`] of the fitted
+/// curve's fall over the readings.
+const UNRESOLVED_DROP: f64 = 0.7;
+const UNRESOLVED_GAP: f64 = 10.0;
+const UNRESOLVED_R2: f64 = 0.95;
+const POOR_FIT_DROP: f64 = 0.3;
+
+/// Whether a first fit leaves the curve's shape open (see [`UNRESOLVED_DROP`]): there another
+/// steepness fits the readings about as well, and the sum of squares often has a second
+/// minimum. Runs that did not stop at an optimum count as open.
+fn unresolved(ctx: &Context<'_>, c: &Candidate, sst: f64) -> bool {
+    if !c.termination.is_optimum() || !c.sse.is_finite() {
+        return true;
+    }
+    // The wide gaps between consecutive readings (index pairs, wetter first). Most readings
+    // have none, and then nothing more is computed.
+    let (x, y) = (ctx.data.x, ctx.data.y);
+    let mut wide: Vec<(usize, usize)> = Vec::new();
+    for (i, &a) in x.iter().enumerate().filter(|(_, a)| **a > 0.0) {
+        // The next larger suction after a (its first reading).
+        let next = x
+            .iter()
+            .enumerate()
+            .filter(|(_, b)| **b > a)
+            .min_by(|p, q| p.1.total_cmp(q.1));
+        if let Some((j, &b)) = next
+            && b >= UNRESOLVED_GAP * a
+        {
+            wide.push((i, j));
+        }
+    }
+    if wide.is_empty() {
+        return false;
+    }
+    let range = |v: &mut dyn Iterator<Item = f64>| {
+        let (lo, hi) = v.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), t| {
+            (lo.min(t), hi.max(t))
+        });
+        hi - lo
+    };
+    let span = range(&mut y.iter().copied());
+    if span > 0.0
+        && wide
+            .iter()
+            .any(|&(i, j)| y[i] - y[j] > UNRESOLVED_DROP * span)
+    {
+        return true;
+    }
+    let poor = sst > 0.0 && 1.0 - c.sse / sst < UNRESOLVED_R2;
+    if !poor {
+        return false;
+    }
+    let f = |h: f64| ctx.model.value(h, &c.p);
+    let fitted_span = range(&mut x.iter().map(|&h| f(h)));
+    fitted_span > 0.0
+        && wide
+            .iter()
+            .any(|&(i, j)| f(x[i]) - f(x[j]) > POOR_FIT_DROP * fitted_span)
 }
 
 /// Whether two starts agree to 1e-9 in every parameter.
@@ -620,8 +845,13 @@ pub(crate) fn fit_curve_with(
         options,
         linear: hooks.linear,
         kernel: hooks.kernel,
+        power_law: hooks.power_law,
         evaluations: 0,
         runs: 0,
+        found: [f64::INFINITY; FOUND_KEPT],
+        found_count: 0,
+        loose: false,
+        resume: false,
     };
     let sst = total_sum_of_squares(&data);
     let np = setup.lower.len();
@@ -647,6 +877,136 @@ pub(crate) fn fit_curve_with(
         (first, Some(guesses))
     };
     let mut best = solve_start(&mut ctx, &setup, &first);
+    let screen = hooks
+        .screen
+        .filter(|screen| !screen.only_when_doubtful() || unresolved(&ctx, &best, sst));
+    if let (Some(screen), Some((r, s))) = (screen, hooks.linear) {
+        let limits = Limits {
+            lower: &setup.lower,
+            upper: &setup.upper,
+            fixed: &setup.fixed,
+        };
+        let linear = Linear {
+            r,
+            s,
+            r_free: r.is_some_and(|r| setup.fixed[r].is_none()),
+            s_free: setup.fixed[s].is_none(),
+            r_bounds: r.map_or((0.0, 0.0), |r| (setup.lower[r], setup.upper[r])),
+            s_bounds: (setup.lower[s], setup.upper[s]),
+        };
+        let starts = match screen {
+            Screen::Probes { probes } => {
+                probes(&best.p).into_iter().map(|p| (f64::NAN, p)).collect()
+            }
+            Screen::Grid { axes, keep } => {
+                let axes = axes(readings.x, readings.y);
+                search::grid_starts(model, &data, linear, limits, &axes, &first, keep)
+            }
+            Screen::Mixture {
+                mix,
+                mode,
+                grids,
+                keep,
+            } => {
+                let grids = grids(readings.x, readings.y);
+                search::mixture_starts(&mode, mix, &data, limits, &grids, &first, keep)
+            }
+            Screen::Factored {
+                model: factored,
+                values,
+                keep,
+            } => {
+                let v = values(readings.x, readings.y);
+                search::factored_starts(
+                    factored,
+                    &data,
+                    limits,
+                    [&v[0], &v[1], &v[2], &v[3]],
+                    &first,
+                    keep,
+                )
+            }
+        };
+        // A rough solve from every start, then a full one from the best few that ended in
+        // different places.
+        ctx.loose = true;
+        ctx.resume = true;
+        let mut rough: Vec<Candidate> = starts
+            .iter()
+            .map(|(_, start)| solve_start(&mut ctx, &setup, start))
+            .filter(|c| c.sse.is_finite())
+            .collect();
+        ctx.loose = false;
+        ctx.resume = false;
+        rough.sort_by(|a, b| a.sse.total_cmp(&b.sse));
+        let mut polished: Vec<f64> = Vec::new();
+        for c in rough {
+            if polished.len() >= screen.polish() {
+                break;
+            }
+            if polished
+                .iter()
+                .any(|&v| (v - c.sse).abs() <= SAME_ROUGH_MINIMUM * v.max(c.sse))
+            {
+                continue;
+            }
+            // A probe that came back to the first fit's minimum (or above it) needs no polish.
+            if screen.only_when_doubtful() && c.sse >= best.sse * (1.0 - DISTINCT_MINIMUM) {
+                break;
+            }
+            polished.push(c.sse);
+            ctx.resume = true;
+            let full = ctx.solve_pinned(&c.p, &c.pinned, &setup.fixed, &setup.lower, &setup.upper);
+            ctx.resume = false;
+            ctx.record(&full);
+            best = better(best, full);
+        }
+        // In the flat valleys of a steep part (a mode or a power on its bound) a run can stop
+        // while the sum of squares still falls slowly: one more run from the best, with a
+        // fresh trust region, finishes it.
+        if !screen.only_when_doubtful() && best.sse.is_finite() {
+            ctx.resume = true;
+            let again = ctx.solve_pinned(
+                &best.p,
+                &best.pinned,
+                &setup.fixed,
+                &setup.lower,
+                &setup.upper,
+            );
+            ctx.resume = false;
+            if again.sse < best.sse {
+                best = again;
+            }
+            // A steep part's steepness (or a scale beyond the readings) often gains a little
+            // all the way to its bound with almost no slope on the way: try each free
+            // parameter on its bounds.
+            for k in 0..best.p.len() {
+                if setup.fixed[k].is_some() || best.pinned[k].is_some() {
+                    continue;
+                }
+                for (side, bound) in [(Side::Lower, setup.lower[k]), (Side::Upper, setup.upper[k])]
+                {
+                    if !bound.is_finite() {
+                        continue;
+                    }
+                    let mut p = best.p.clone();
+                    p[k] = bound;
+                    if ctx.sse(&p) >= best.sse {
+                        continue;
+                    }
+                    let mut pinned = best.pinned.clone();
+                    pinned[k] = Some(side);
+                    ctx.resume = true;
+                    let there =
+                        ctx.solve_pinned(&p, &pinned, &setup.fixed, &setup.lower, &setup.upper);
+                    ctx.resume = false;
+                    if there.sse < best.sse {
+                        best = there;
+                    }
+                }
+            }
+        }
+    }
     let failed = |c: &Candidate| !c.termination.is_optimum() || !c.sse.is_finite();
     let poor = |c: &Candidate| sst > 0.0 && 1.0 - c.sse / sst < DOUBTFUL_R2;
     // A failed run gets the full budget of extra starts; a poor fit (low R2, often just flat
@@ -698,13 +1058,92 @@ pub(crate) fn fit_curve_with(
             reason: best.termination.to_string(),
         });
     }
+    let mut extra_notes = Vec::new();
     if let Some(canon) = hooks.canonicalize
-        && setup.fixed.iter().all(Option::is_none)
-        && best.pinned.iter().all(Option::is_none)
+        && (canon.out_of_order)(&best.p)
     {
-        canon(&mut best.p);
+        let moved = |k: usize| {
+            canon.complement.contains(&k) || canon.swap.iter().any(|&(a, b)| a == k || b == k)
+        };
+        let held: Vec<&str> = (0..setup.fixed.len())
+            .filter(|&k| setup.fixed[k].is_some() && moved(k))
+            .map(|k| model.params()[k].name)
+            .collect();
+        if held.is_empty() {
+            for &(a, b) in canon.swap {
+                best.p.swap(a, b);
+                best.pinned.swap(a, b);
+            }
+            for &k in canon.complement {
+                best.p[k] = setup.lower[k] + setup.upper[k] - best.p[k];
+                best.pinned[k] = best.pinned[k].map(|side| match side {
+                    Side::Lower => Side::Upper,
+                    Side::Upper => Side::Lower,
+                });
+            }
+        } else {
+            extra_notes.push(format!(
+                "{} (fixed {}: the parts cannot be swapped into their usual order)",
+                canon.note,
+                held.join(", ")
+            ));
+        }
     }
-    Ok(build_report(&ctx, id, &setup, &best, sst))
+    let mut report = build_report(&ctx, id, &setup, &best, sst);
+    if !extra_notes.is_empty() {
+        let mut all = extra_notes;
+        all.extend(report.message.take());
+        report.message = Some(all.join("; "));
+    }
+    Ok(report)
+}
+
+/// The note on a sum of squares with several minima, when the search reached another one
+/// whose SSE is within [`RIVAL_MINIMUM`] times the best: then the readings hardly tell the two
+/// fits apart, and which one a fit ends in depends on where it starts. A much worse minimum
+/// is no rival and not mentioned.
+fn several_minima_note(found: &[f64], best: f64) -> Option<String> {
+    let distinct = |v: f64| v > best * (1.0 + DISTINCT_MINIMUM) + f64::MIN_POSITIVE;
+    let mut rivals: Vec<f64> = found
+        .iter()
+        .copied()
+        .filter(|&v| distinct(v) && v < RIVAL_MINIMUM * best)
+        .collect();
+    rivals.sort_by(f64::total_cmp);
+    rivals.dedup_by(|a, b| *a <= *b * (1.0 + DISTINCT_MINIMUM));
+    let next = *rivals.first()?;
+    let others = if rivals.len() > 1 {
+        format!(
+            " (and {} more within {RIVAL_MINIMUM} times)",
+            rivals.len() - 1
+        )
+    } else {
+        String::new()
+    };
+    Some(format!(
+        "several minima: another fit with an SSE {} higher{others} also matches the readings; the best was kept",
+        percent_above(next, best)
+    ))
+}
+
+/// How much higher `value` is than `base`, as a short percentage or factor.
+fn percent_above(value: f64, base: f64) -> String {
+    if base <= 0.0 {
+        return "(best SSE 0)".to_string();
+    }
+    let ratio = value / base;
+    if ratio >= 10.0 {
+        format!("{ratio:.0} times")
+    } else if ratio >= 2.0 {
+        format!("{ratio:.1} times")
+    } else {
+        let pct = (ratio - 1.0) * 100.0;
+        if pct >= 1.0 {
+            format!("{pct:.0} %")
+        } else {
+            format!("{pct:.2} %")
+        }
+    }
 }
 
 /// A start for a model with no guesses: the middle of each interval (1 when unbounded).
@@ -725,7 +1164,9 @@ fn default_start(setup: &Setup) -> Vec<f64> {
 /// Solve from one start, interval by interval when the model has a free breakpoint.
 fn solve_start(ctx: &mut Context<'_>, setup: &Setup, start: &[f64]) -> Candidate {
     let Some(b) = setup.breakpoint.filter(|&b| setup.fixed[b].is_none()) else {
-        return ctx.solve(start, &setup.fixed, &setup.lower, &setup.upper);
+        let c = ctx.solve(start, &setup.fixed, &setup.lower, &setup.upper);
+        ctx.record(&c);
+        return c;
     };
     let (lo_b, hi_b) = (setup.lower[b], setup.upper[b]);
     let mut edges: Vec<f64> = ctx
@@ -741,26 +1182,71 @@ fn solve_start(ctx: &mut Context<'_>, setup: &Setup, start: &[f64]) -> Candidate
     edges.push(hi_b);
     let mut lo = setup.lower.clone();
     let mut hi = setup.upper.clone();
+    // With a power law beyond the breakpoint, each interval has a start near its optimum and a
+    // lower bound on it: solve the intervals best bound first, and stop when no bound is below
+    // the best fit found (allowing for the bound's own rounding).
+    let plans: Vec<(f64, f64, f64, Vec<Vec<f64>>)> = match ctx.power_law {
+        Some(law) => search::interval_plans(
+            law,
+            b,
+            &ctx.data,
+            Limits {
+                lower: &setup.lower,
+                upper: &setup.upper,
+                fixed: &setup.fixed,
+            },
+            &edges,
+            start,
+        )
+        .into_iter()
+        .map(|p| (p.lower_bound, p.edges.0, p.edges.1, p.starts))
+        .collect(),
+        None => edges
+            .windows(2)
+            .map(|w| {
+                let (a, z) = (w[0], w[1]);
+                let mut s = start.to_vec();
+                s[b] = if a > 0.0 && z.is_finite() {
+                    (a * z).sqrt()
+                } else if z.is_finite() {
+                    0.5 * (a + z)
+                } else {
+                    2.0 * a.max(1.0)
+                };
+                (f64::NEG_INFINITY, a, z, vec![s])
+            })
+            .collect(),
+    };
     let mut best: Option<Candidate> = None;
-    for w in edges.windows(2) {
-        let (a, z) = (w[0], w[1]);
+    for (bound, a, z, starts) in plans {
+        if let Some(best) = &best
+            && best.termination.is_optimum()
+            && bound * (1.0 - INTERVAL_BOUND_SLACK) > best.sse
+        {
+            break;
+        }
         lo[b] = a;
         hi[b] = z;
-        let mut s = start.to_vec();
-        s[b] = if a > 0.0 && z.is_finite() {
-            (a * z).sqrt()
-        } else if z.is_finite() {
-            0.5 * (a + z)
-        } else {
-            2.0 * a.max(1.0)
-        };
-        let mut c = ctx.solve(&s, &setup.fixed, &lo, &hi);
-        // Held on an interval edge is a kink, not a bound, unless the edge is the bound.
-        c.pinned[b] = match c.pinned[b] {
-            Some(Side::Lower) if a <= lo_b => Some(Side::Lower),
-            Some(Side::Upper) if z >= hi_b => Some(Side::Upper),
-            _ => None,
-        };
+        let mut interval_best: Option<Candidate> = None;
+        for s in &starts {
+            // A planned start is next to its interval's optimum: take it as it is, short
+            // steps.
+            ctx.resume = ctx.power_law.is_some();
+            let mut c = ctx.solve(s, &setup.fixed, &lo, &hi);
+            ctx.resume = false;
+            // Held on an interval edge is a kink, not a bound, unless the edge is the bound.
+            c.pinned[b] = match c.pinned[b] {
+                Some(Side::Lower) if a <= lo_b => Some(Side::Lower),
+                Some(Side::Upper) if z >= hi_b => Some(Side::Upper),
+                _ => None,
+            };
+            interval_best = Some(match interval_best {
+                Some(prev) => better(prev, c),
+                None => c,
+            });
+        }
+        let Some(c) = interval_best else { continue };
+        ctx.record(&c);
         best = Some(match best {
             Some(prev) => better(prev, c),
             None => c,
@@ -878,6 +1364,9 @@ fn build_report(
             fixed: setup.fixed[j].is_some(),
             at_bound: best.pinned[j],
         });
+    }
+    if let Some(note) = several_minima_note(&ctx.found[..ctx.found_count], best.sse) {
+        notes.push(note);
     }
     let names: Vec<String> = cov_params
         .iter()

@@ -103,16 +103,16 @@ struct Scratch {
 }
 
 /// The weights of the readings and what follows from them alone, computed once per run.
-struct Weights {
+pub(crate) struct Weights {
     /// w_i (1 when unweighted).
-    w: Vec<f64>,
+    pub w: Vec<f64>,
     sum_w: f64,
     /// Weighted mean of y.
     y_mean: f64,
 }
 
 impl Weights {
-    fn of(data: &Data<'_>) -> Self {
+    pub(crate) fn of(data: &Data<'_>) -> Self {
         let w: Vec<f64> = match data.sqrt_w {
             Some(s) => s.iter().map(|v| v * v).collect(),
             None => vec![1.0; data.x.len()],
@@ -244,104 +244,6 @@ where
         full[self.linear.s] = s;
     }
 
-    /// theta_r and theta_s minimizing sum w (r + (s - r) g - y)^2 within their bounds, and
-    /// which of them ended inside; `None` when the shape does not separate them.
-    fn solve_linear(&self, g: &[f64]) -> Option<(f64, f64, Mode)> {
-        let lin = &self.linear;
-        let y = self.data.y;
-        let m = g.len();
-        let Weights {
-            w,
-            sum_w,
-            y_mean: ybar,
-        } = &self.weights;
-        let (w, sum_w, ybar) = (&w[..m], *sum_w, *ybar);
-        let (r_lo, r_hi) = lin.r_bounds;
-        let (s_lo, s_hi) = lin.s_bounds;
-        let r_held = lin.r.map_or(0.0, |r| self.full[r]);
-        let s_held = self.full[lin.s];
-        // The best s for a given r (column g), and the best r for a given s (column 1 - g).
-        let s_given_r = |r0: f64| -> Option<f64> {
-            if !lin.s_free {
-                return Some(s_held);
-            }
-            let (mut a, mut b) = (0.0, 0.0);
-            for i in 0..m {
-                a += w[i] * g[i] * g[i];
-                b += w[i] * g[i] * (y[i] - r0);
-            }
-            (a > DEGENERATE * sum_w).then(|| (r0 + b / a).clamp(s_lo, s_hi))
-        };
-        let r_given_s = |s0: f64| -> Option<f64> {
-            if !lin.r_free {
-                return Some(r_held);
-            }
-            let (mut a, mut b) = (0.0, 0.0);
-            for i in 0..m {
-                let u = 1.0 - g[i];
-                a += w[i] * u * u;
-                b += w[i] * u * (s0 - y[i]);
-            }
-            (a > DEGENERATE * sum_w).then(|| (s0 - b / a).clamp(r_lo, r_hi))
-        };
-        let (r, s) = match (lin.r_free, lin.s_free) {
-            (true, true) => {
-                let mut swg = 0.0;
-                for i in 0..m {
-                    swg += w[i] * g[i];
-                }
-                let gbar = swg / sum_w;
-                let (mut var, mut cov) = (0.0, 0.0);
-                for i in 0..m {
-                    let dgi = g[i] - gbar;
-                    var += w[i] * dgi * dgi;
-                    cov += w[i] * dgi * (y[i] - ybar);
-                }
-                let free = (var > DEGENERATE * sum_w).then(|| {
-                    let d = cov / var;
-                    (ybar - d * gbar, ybar + d * (1.0 - gbar))
-                });
-                match free {
-                    Some((r, s)) if (r_lo..=r_hi).contains(&r) && (s_lo..=s_hi).contains(&s) => {
-                        (r, s)
-                    }
-                    // The bounded optimum lies on an edge of the box: the best of the four.
-                    _ => {
-                        let sse = |r: f64, s: f64| -> f64 {
-                            (0..m)
-                                .map(|i| w[i] * (r + (s - r) * g[i] - y[i]).powi(2))
-                                .sum()
-                        };
-                        let edges = [
-                            s_given_r(r_lo).map(|s| (r_lo, s)),
-                            s_given_r(r_hi).map(|s| (r_hi, s)),
-                            r_given_s(s_lo).map(|r| (r, s_lo)),
-                            r_given_s(s_hi).map(|r| (r, s_hi)),
-                        ];
-                        edges
-                            .into_iter()
-                            .flatten()
-                            .map(|(r, s)| (sse(r, s), r, s))
-                            .min_by(|a, b| a.0.total_cmp(&b.0))
-                            .map(|(_, r, s)| (r, s))?
-                    }
-                }
-            }
-            (false, true) => (r_held, s_given_r(r_held)?),
-            (true, false) => (r_given_s(s_held)?, s_held),
-            (false, false) => (r_held, s_held),
-        };
-        let r_inside = lin.r_free && r > r_lo && r < r_hi;
-        let s_inside = lin.s_free && s > s_lo && s < s_hi;
-        let mode = match (r_inside, s_inside) {
-            (true, true) => Mode::Both,
-            (false, true) => Mode::Upper,
-            (true, false) => Mode::Lower,
-            (false, false) => Mode::Neither,
-        };
-        Some((r, s, mode))
-    }
-
     /// Residuals, Jacobian and linear parameters at q; `None` where the model is not finite or
     /// the linear parameters are not separable.
     #[allow(clippy::many_single_char_names)]
@@ -403,7 +305,10 @@ where
             }
         }
         let y = self.data.y;
-        let (r, s, mode) = self.solve_linear(&g[..m])?;
+        let r_held = self.linear.r.map_or(0.0, |r| self.full[r]);
+        let s_held = self.full[self.linear.s];
+        let (r, s, mode) =
+            solve_linear_mode(&self.linear, r_held, s_held, &self.weights, y, &g[..m])?;
         let d = s - r;
         let w = &self.weights.w[..m];
         let sum_w = self.weights.sum_w;
@@ -536,6 +441,130 @@ where
             _ => self.evaluate().map(|e| e.jacobian),
         }
     }
+}
+
+/// theta_r and theta_s minimizing sum w (r + (s - r) g - y)^2 within their bounds, and
+/// which of them ended inside; `None` when the shape does not separate them.
+#[allow(clippy::inline_always)] // called once per evaluation in the hot loop
+#[inline(always)]
+fn solve_linear_mode(
+    lin: &Linear,
+    r_held: f64,
+    s_held: f64,
+    weights: &Weights,
+    y: &[f64],
+    g: &[f64],
+) -> Option<(f64, f64, Mode)> {
+    let m = g.len();
+    let Weights {
+        w,
+        sum_w,
+        y_mean: ybar,
+    } = weights;
+    let (w, sum_w, ybar) = (&w[..m], *sum_w, *ybar);
+    let (r_lo, r_hi) = lin.r_bounds;
+    let (s_lo, s_hi) = lin.s_bounds;
+    // The best s for a given r (column g), and the best r for a given s (column 1 - g).
+    let s_given_r = |r0: f64| -> Option<f64> {
+        if !lin.s_free {
+            return Some(s_held);
+        }
+        let (mut a, mut b) = (0.0, 0.0);
+        for i in 0..m {
+            a += w[i] * g[i] * g[i];
+            b += w[i] * g[i] * (y[i] - r0);
+        }
+        // theta_s not below theta_r: at s = r the curve is flat, the diagonal below.
+        (a > DEGENERATE * sum_w).then(|| (r0 + b / a).clamp(s_lo, s_hi).max(r0))
+    };
+    let r_given_s = |s0: f64| -> Option<f64> {
+        if !lin.r_free {
+            return Some(r_held);
+        }
+        let (mut a, mut b) = (0.0, 0.0);
+        for i in 0..m {
+            let u = 1.0 - g[i];
+            a += w[i] * u * u;
+            b += w[i] * u * (s0 - y[i]);
+        }
+        (a > DEGENERATE * sum_w).then(|| (s0 - b / a).clamp(r_lo, r_hi).min(s0))
+    };
+    let (r, s) = match (lin.r_free, lin.s_free) {
+        (true, true) => {
+            let mut swg = 0.0;
+            for i in 0..m {
+                swg += w[i] * g[i];
+            }
+            let gbar = swg / sum_w;
+            let (mut var, mut cov) = (0.0, 0.0);
+            for i in 0..m {
+                let dgi = g[i] - gbar;
+                var += w[i] * dgi * dgi;
+                cov += w[i] * dgi * (y[i] - ybar);
+            }
+            let free = (var > DEGENERATE * sum_w).then(|| {
+                let d = cov / var;
+                (ybar - d * gbar, ybar + d * (1.0 - gbar))
+            });
+            match free {
+                Some((r, s))
+                    if (r_lo..=r_hi).contains(&r) && (s_lo..=s_hi).contains(&s) && r <= s =>
+                {
+                    (r, s)
+                }
+                // The bounded optimum lies on an edge of the box or on the diagonal r = s (a
+                // flat curve at the mean; theta_r above theta_s is no retention curve): the
+                // best of those.
+                _ => {
+                    let sse = |r: f64, s: f64| -> f64 {
+                        (0..m)
+                            .map(|i| w[i] * (r + (s - r) * g[i] - y[i]).powi(2))
+                            .sum()
+                    };
+                    let flat = ybar.clamp(r_lo.max(s_lo), r_hi.min(s_hi));
+                    let edges = [
+                        s_given_r(r_lo).map(|s| (r_lo, s)),
+                        s_given_r(r_hi).map(|s| (r_hi, s)),
+                        r_given_s(s_lo).map(|r| (r, s_lo)),
+                        r_given_s(s_hi).map(|r| (r, s_hi)),
+                        (r_lo.max(s_lo) <= r_hi.min(s_hi)).then_some((flat, flat)),
+                    ];
+                    edges
+                        .into_iter()
+                        .flatten()
+                        .filter(|(r, s)| r <= s && (s_lo..=s_hi).contains(s))
+                        .map(|(r, s)| (sse(r, s), r, s))
+                        .min_by(|a, b| a.0.total_cmp(&b.0))
+                        .map(|(_, r, s)| (r, s))?
+                }
+            }
+        }
+        (false, true) => (r_held, s_given_r(r_held)?),
+        (true, false) => (r_given_s(s_held)?, s_held),
+        (false, false) => (r_held, s_held),
+    };
+    let r_inside = lin.r_free && r > r_lo && r < r_hi;
+    let s_inside = lin.s_free && s > s_lo && s < s_hi;
+    let mode = match (r_inside, s_inside) {
+        (true, true) => Mode::Both,
+        (false, true) => Mode::Upper,
+        (true, false) => Mode::Lower,
+        (false, false) => Mode::Neither,
+    };
+    Some((r, s, mode))
+}
+
+/// theta_r and theta_s minimizing sum w (r + (s - r) g - y)^2 within their bounds (`r_held`,
+/// `s_held` where the linear parameters are not free); `None` when g does not separate them.
+pub(crate) fn solve_linear(
+    lin: &Linear,
+    r_held: f64,
+    s_held: f64,
+    weights: &Weights,
+    y: &[f64],
+    g: &[f64],
+) -> Option<(f64, f64)> {
+    solve_linear_mode(lin, r_held, s_held, weights, y, g).map(|(r, s, _)| (r, s))
 }
 
 /// What a projected run needs: the problem and its start.

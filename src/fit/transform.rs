@@ -16,6 +16,8 @@ pub(crate) const EXP_RUNAWAY: f64 = 40.0;
 /// Starting points are kept this fraction of the bound's scale inside a finite bound: outside
 /// the band where a parameter heading for its bound is held there ([`NEAR_BOUND`]).
 const START_MARGIN: f64 = 2e-2;
+/// Margin inside a finite bound, as a fraction of the interval, of a resumed start.
+const RESUME_MARGIN: f64 = 1e-12;
 
 /// Which end of its interval a parameter sits on.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
@@ -107,6 +109,20 @@ impl Transform {
             }
             Transform::ExpLower { lo } => (p - lo).max(start_gap(lo)).ln(),
             Transform::ExpUpper { hi } => (hi - p).max(start_gap(hi)).ln(),
+        }
+    }
+
+    /// q for a value an earlier run reached: as [`Self::inverse_start`], but only a hair
+    /// inside a finite bound, so that polishing a solution does not move it first.
+    pub(crate) fn inverse_resume(self, p: f64) -> f64 {
+        match self {
+            Transform::Logistic { lo, hi } => {
+                let margin = RESUME_MARGIN * (hi - lo);
+                let p = p.clamp(lo + margin, hi - margin);
+                let s = (p - lo) / (hi - lo);
+                (s / (1.0 - s)).ln()
+            }
+            _ => self.inverse_start(p),
         }
     }
 
