@@ -952,6 +952,7 @@ fn build_report(
         bic,
         n_points: n,
         n_free_params: k,
+        n_criteria_params: stats::criteria_parameters(k),
         converged,
         message: (!problems.is_empty()).then(|| problems.join("; ")),
         termination: best.termination,

@@ -8,6 +8,7 @@ use super::driver::{Hooks, Readings, fit_curve_with};
 use super::error::FitError;
 use super::projection;
 use super::report::FitReport;
+use super::stats::min_points_for_aicc;
 use crate::model::retention::{ModelKind, van_genuchten};
 
 /// The parameter of a model that is a breakpoint in suction (a kink in the curve), if any.
@@ -105,8 +106,8 @@ impl AutoFit {
     }
 }
 
-/// Fit every model in `kinds` that the readings allow (more readings than free parameters + 1,
-/// so AICc exists) and rank the converged fits by AICc.
+/// Fit every model in `kinds` that the readings allow (more readings than free parameters + 2,
+/// so AICc, which counts the error variance too, exists) and rank the converged fits by AICc.
 ///
 /// Fixed values in `options` apply to the models that have those parameters.
 pub fn fit_auto(kinds: &[ModelKind], readings: &Readings<'_>, options: &FitOptions) -> AutoFit {
@@ -121,12 +122,12 @@ pub fn fit_auto(kinds: &[ModelKind], readings: &Readings<'_>, options: &FitOptio
             .iter()
             .filter(|s| !options.fixed.iter().any(|(name, _)| name == s.name))
             .count();
-        if n < free + 2 {
+        if n < min_points_for_aicc(free) {
             skipped.push(SkippedModel {
                 model: kind.id().to_string(),
                 reason: format!(
                     "{n} readings for {free} free parameters: auto needs at least {}",
-                    free + 2
+                    min_points_for_aicc(free)
                 ),
             });
             continue;

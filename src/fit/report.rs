@@ -118,9 +118,10 @@ pub struct ReadingFit {
 ///
 /// With n readings, k free parameters (estimated, bounds included; fixed ones excluded) and
 /// SSE = sum w_i (y_i - f_i)^2 (w_i = 1 without weights), the information criteria are from the
-/// Gaussian likelihood with its constants dropped and without counting the variance as a
-/// parameter (so AICc exists whenever n > k + 1, the rule `auto` uses):
-/// AIC = n ln(SSE/n) + 2k, AICc = AIC + 2k(k+1)/(n-k-1), BIC = n ln(SSE/n) + k ln n.
+/// Gaussian likelihood with its constants dropped. The error variance is estimated too, so
+/// they count K = k + 1 parameters (Burnham & Anderson 2002, section 2.2, for least squares):
+/// AIC = n ln(SSE/n) + 2K, AICc = AIC + 2K(K+1)/(n-K-1), BIC = n ln(SSE/n) + K ln n. AICc
+/// exists when n > K + 1 = k + 2, the rule `auto` uses.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct FitReport {
     /// Model identifier (`van-genuchten`, ...).
@@ -145,6 +146,10 @@ pub struct FitReport {
     pub n_points: usize,
     /// Number of free (estimated) parameters k.
     pub n_free_params: usize,
+    /// Parameters counted by AIC, AICc and BIC: K = k + 1 (the error variance is estimated
+    /// too). 0 in a report stored before the variance was counted; see [`Self::recount_criteria`].
+    #[serde(default)]
+    pub n_criteria_params: usize,
     /// The fit passed every check: the solver stopped at an optimum, the SSE is finite and
     /// no better than a horizontal line is not the result, no parameter ran away.
     pub converged: bool,
@@ -173,5 +178,54 @@ impl FitReport {
     /// The parameter values in model order.
     pub fn values(&self) -> Vec<f64> {
         self.parameters.iter().map(|p| p.value).collect()
+    }
+
+    /// Bring a report stored before the error variance was counted (`n_criteria_params` 0)
+    /// to the current convention: AIC, AICc and BIC recomputed from n, k and SSE. Returns
+    /// whether anything changed.
+    pub fn recount_criteria(&mut self) -> bool {
+        if self.n_criteria_params != 0 {
+            return false;
+        }
+        let (aic, aicc, bic) =
+            super::stats::information_criteria(self.n_points, self.n_free_params, self.sse);
+        self.aic = aic;
+        self.aicc = aicc;
+        self.bic = bic;
+        self.n_criteria_params = super::stats::criteria_parameters(self.n_free_params);
+        true
+    }
+}
+
+#[cfg(test)]
+#[allow(clippy::float_cmp)]
+mod tests {
+    use crate::fit::{FitOptions, Readings, fit_model};
+    use crate::model::retention::ModelKind;
+
+    #[test]
+    fn reports_stored_before_the_variance_was_counted_are_recounted() {
+        let h = [0.0, 10.0, 30.0, 100.0, 330.0, 1000.0, 3000.0, 15000.0];
+        let y = [0.41, 0.40, 0.36, 0.27, 0.19, 0.14, 0.11, 0.09];
+        let report = fit_model(
+            ModelKind::VanGenuchten,
+            &Readings::new(&h, &y),
+            &FitOptions::new(),
+        )
+        .expect("fits");
+        assert_eq!(report.n_criteria_params, report.n_free_params + 1);
+        assert!(report.aicc.is_some());
+        // The same report as stored before: no n_criteria_params, criteria counting k only.
+        let mut json = serde_json::to_value(&report).expect("encodes");
+        let obj = json.as_object_mut().expect("object");
+        obj.remove("n_criteria_params");
+        for key in ["aic", "aicc", "bic"] {
+            obj.insert(key.to_string(), serde_json::json!(-1.0));
+        }
+        let mut old: super::FitReport = serde_json::from_value(json).expect("decodes");
+        assert_eq!(old.n_criteria_params, 0);
+        assert!(old.recount_criteria());
+        assert_eq!(old, report);
+        assert!(!old.recount_criteria());
     }
 }

@@ -109,7 +109,13 @@ fn pseudo_inverse(js: &DMatrix<f64>) -> Option<(DMatrix<f64>, Inversion)> {
     Some((inv, Inversion::PseudoInverse))
 }
 
-/// AIC, AICc and BIC as documented on [`FitReport`](super::FitReport).
+/// AIC, AICc and BIC as documented on [`FitReport`](super::FitReport), for `n` readings, `k`
+/// free parameters and the (weighted) sum of squares `sse`.
+///
+/// The error variance is estimated too (sigma^2 = SSE / n at the maximum of the Gaussian
+/// likelihood), so the criteria count K = k + 1 parameters, as Burnham & Anderson (2002,
+/// section 2.2) do for least squares: AIC = n ln(SSE/n) + 2K, AICc = AIC + 2K(K+1)/(n-K-1)
+/// (`None` unless n > K + 1 = k + 2), BIC = n ln(SSE/n) + K ln n.
 pub(crate) fn information_criteria(
     n: usize,
     k: usize,
@@ -118,13 +124,30 @@ pub(crate) fn information_criteria(
     if n == 0 || sse.is_nan() || sse <= 0.0 || !sse.is_finite() {
         return (None, None, None);
     }
+    let kk = criteria_parameters(k);
     let nf = n as f64;
-    let kf = k as f64;
+    let kf = kk as f64;
     let core = nf * (sse / nf).ln();
     let aic = core + 2.0 * kf;
-    let aicc = (n > k + 1).then(|| aic + 2.0 * kf * (kf + 1.0) / (nf - kf - 1.0));
+    let aicc = (n > kk + 1).then(|| aic + 2.0 * kf * (kf + 1.0) / (nf - kf - 1.0));
     let bic = core + kf * nf.ln();
     (Some(aic), aicc, Some(bic))
+}
+
+/// AICc alone (see [`information_criteria`]): for recounting a stored ranking.
+pub fn aicc(n: usize, k: usize, sse: f64) -> Option<f64> {
+    information_criteria(n, k, sse).1
+}
+
+/// The parameters AIC, AICc and BIC count for `k` free ones: k + 1, the error variance being
+/// estimated too (Burnham & Anderson 2002, section 2.2).
+pub fn criteria_parameters(k: usize) -> usize {
+    k + 1
+}
+
+/// The fewest readings for which AICc exists with `k` free parameters (n > k + 2).
+pub fn min_points_for_aicc(k: usize) -> usize {
+    criteria_parameters(k) + 2
 }
 
 /// Leverage, studentized residuals (internal, external) and Cook's distance of one reading.
@@ -212,13 +235,17 @@ mod tests {
     }
 
     #[test]
-    fn information_criteria_formulas() {
+    fn information_criteria_count_the_error_variance() {
+        // K = k + 1 = 5 (Burnham & Anderson 2002, section 2.2, least squares).
         let (aic, aicc, bic) = information_criteria(10, 4, 0.01);
         let core = 10.0 * (0.001f64).ln();
-        assert!((aic.unwrap() - (core + 8.0)).abs() < 1e-12);
-        assert!((aicc.unwrap() - (core + 8.0 + 40.0 / 5.0)).abs() < 1e-12);
-        assert!((bic.unwrap() - (core + 4.0 * 10f64.ln())).abs() < 1e-12);
-        assert_eq!(information_criteria(5, 4, 0.01).1, None);
+        assert!((aic.unwrap() - (core + 10.0)).abs() < 1e-12);
+        assert!((aicc.unwrap() - (core + 10.0 + 60.0 / 4.0)).abs() < 1e-12);
+        assert!((bic.unwrap() - (core + 5.0 * 10f64.ln())).abs() < 1e-12);
+        // n = 6 readings, k = 4: n - K - 1 = 0, no AICc; n = 7 has one.
+        assert_eq!(information_criteria(6, 4, 0.01).1, None);
+        assert!(information_criteria(7, 4, 0.01).1.is_some());
+        assert_eq!(min_points_for_aicc(4), 7);
         assert_eq!(information_criteria(5, 2, 0.0), (None, None, None));
     }
 }

@@ -713,8 +713,9 @@ fn methods(out: &mut String, s: &Snapshot) {
          <p>With n readings, k free parameters and weights w<sub>i</sub> (1 without weights): \
          SSE = Σ w<sub>i</sub> (θ<sub>i</sub> − θ̂<sub>i</sub>)²; RMSE = √(SSE / n); \
          R² = 1 − SSE / SST, SST = Σ w<sub>i</sub> (θ<sub>i</sub> − θ̄)²; \
-         AIC = n ln(SSE / n) + 2k; AICc = AIC + 2k(k + 1) / (n − k − 1); \
-         BIC = n ln(SSE / n) + k ln n.</p>\n\
+         AIC = n ln(SSE / n) + 2K; AICc = AIC + 2K(K + 1) / (n − K − 1); \
+         BIC = n ln(SSE / n) + K ln n, where K = k + 1 counts the error variance as a \
+         parameter (Burnham &amp; Anderson 2002, for least squares); AICc needs n &gt; k + 2.</p>\n\
          <p>A fit is <span class=\"stale\">stale</span> when the sample's readings (or the \
          flags on them) changed after it was made, or a later refit failed; it is still shown \
          and used, and marked.</p>\n\

@@ -3,7 +3,7 @@
 //! Layout (schema version [`SCHEMA_VERSION`]):
 //!
 //! ```text
-//! { "format": "porewise-campaign", "schema_version": 1,
+//! { "format": "porewise-campaign", "schema_version": 2,
 //!   "program": {"name", "version"}, "exported_at", "fingerprint_sha256",
 //!   "data": { "campaign", "scope", "imports": [..],
 //!             "sites": [ { ..., "profile", "layers": [ { ..., "water", "samples": [
@@ -43,7 +43,7 @@ use crate::model::number::hex;
 use crate::store::fits::{FitState, Ranking, StoredFit};
 
 /// The version of this document layout; bumped on any change to it.
-pub const SCHEMA_VERSION: u32 = 1;
+pub const SCHEMA_VERSION: u32 = 2;
 
 /// The value of the `format` member, naming what the document is.
 pub const FORMAT: &str = "porewise-campaign";
@@ -379,6 +379,8 @@ pub struct FitStatistics {
     pub n_points: usize,
     /// Free parameters, k.
     pub n_free_params: usize,
+    /// Parameters counted by AIC, AICc and BIC: K = k + 1, the error variance included.
+    pub n_criteria_params: usize,
     /// Passed every check of the fit engine.
     pub converged: bool,
     /// Why the solver stopped.
@@ -611,6 +613,7 @@ fn statistics(r: &FitReport) -> FitStatistics {
         bic: r.bic,
         n_points: r.n_points,
         n_free_params: r.n_free_params,
+        n_criteria_params: r.n_criteria_params,
         converged: r.converged,
         termination: r.termination,
     }

@@ -89,6 +89,14 @@ pub fn card_lines(state: &AppState, d: &SampleDetail, theme: Theme) -> Vec<Line<
         opt_num(fit.aicc, 4),
         opt_num(fit.bic, 4)
     )));
+    let free = fit.parameters.iter().filter(|p| !p.fixed).count();
+    lines.push(Line::from(Span::styled(
+        format!(
+            "  K = {free} free + σ² = {}",
+            crate::fit::criteria_parameters(free)
+        ),
+        theme.dim(),
+    )));
     if let Some(message) = &fit.message {
         lines.push(Line::from(Span::styled(message.clone(), theme.dim())));
     }
