@@ -234,3 +234,23 @@ fn usage_errors_are_clap_errors_and_help_has_an_example() {
         .stdout(predicate::str::contains("Example:"))
         .stdout(predicate::str::contains("fredlund-xing"));
 }
+
+#[test]
+fn effective_saturation_is_printed_with_its_relative_precision() {
+    // mpmath 1.3.0, 50 digits (tests/data/high_precision.py): Se = 1.5999999999999958e-19
+    // for these invented parameters at 10^6 cm; from theta it used to print 0.
+    let text = stdout_of(&[
+        "--model",
+        "van-genuchten",
+        "--set",
+        "theta_r=0.05,theta_s=0.4,alpha_per_cm=0.05,n=5",
+        "--suction-cm",
+        "1e6",
+    ]);
+    let row = text.lines().nth(1).expect("one row");
+    let se = cell(row, 2);
+    assert!(
+        (se / 1.5999999999999958008e-19 - 1.0).abs() < 1e-13,
+        "{row}"
+    );
+}

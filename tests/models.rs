@@ -758,3 +758,79 @@ fn guesses_never_panic_on_odd_readings() {
         }
     }
 }
+
+// ---------------------------------------------------------------------------------------------
+// Relative precision far from saturation.
+
+#[test]
+fn effective_saturation_keeps_its_relative_precision_far_from_saturation() {
+    // mpmath 1.3.0, 50 digits (tests/data/high_precision.py), from the published formulas
+    // with these (invented) parameters passed as the same doubles. Computed from theta as
+    // (theta - theta_r) / (theta_s - theta_r), the first ones would be 0 or noise.
+    let cases: [(ModelKind, &[f64], f64, f64); 10] = [
+        (
+            ModelKind::VanGenuchten,
+            &[0.05, 0.4, 0.05, 5.0],
+            1e6,
+            1.5999999999999958008e-19,
+        ),
+        (
+            ModelKind::VanGenuchten,
+            &[0.05, 0.4, 0.02, 1.5],
+            1e5,
+            0.022360596442285678556,
+        ),
+        (
+            ModelKind::VanGenuchtenFreeM,
+            &[0.05, 0.4, 0.02, 3.0, 2.0],
+            1e5,
+            1.5624999996093748049e-20,
+        ),
+        (
+            ModelKind::BrooksCorey,
+            &[0.05, 0.4, 10.0, 3.0],
+            1e7,
+            1.0e-18,
+        ),
+        (
+            ModelKind::Kosugi,
+            &[0.05, 0.4, 100.0, 0.8],
+            1e6,
+            5.6779792968410468465e-31,
+        ),
+        (
+            ModelKind::Kosugi,
+            &[0.05, 0.4, 100.0, 1.5],
+            1e5,
+            2.060643395971720144e-6,
+        ),
+        (
+            ModelKind::FredlundXing,
+            &[0.4, 100.0, 3.0, 2.0, 1500.0],
+            1e7,
+            1.8544115809663184651e-6,
+        ),
+        (
+            ModelKind::FredlundXing,
+            &[0.4, 100.0, 3.0, 2.0, 1500.0],
+            H_DRY_CM - 1.0,
+            9.2827950121522074367e-12,
+        ),
+        (
+            ModelKind::Durner,
+            &[0.05, 0.4, 0.4, 0.1, 3.0, 0.005, 4.0],
+            1e6,
+            4.479999999999986262e-11,
+        ),
+        (ModelKind::Campbell, &[0.4, 5.0, 0.5], 1e7, 2.5e-13),
+    ];
+    for (kind, p, h, want) in cases {
+        let curve = RetentionCurve::new(kind, p.to_vec()).expect("valid parameters");
+        assert_rel(
+            curve.effective_saturation(h),
+            want,
+            1e-13,
+            &format!("{kind} Se({h})"),
+        );
+    }
+}
