@@ -16,6 +16,7 @@ use sha2::{Digest, Sha256};
 use super::sql_types::SqlTime;
 use super::{Result, StoreError};
 use crate::fit::{AutoFit, FitReport, SkippedModel};
+use crate::model::conductivity::ConductivityForm;
 use crate::model::domain::{LayerRef, SampleKind};
 use crate::model::number::hex;
 
@@ -373,6 +374,8 @@ pub struct NewFit<'a> {
     pub ranking: Option<&'a Ranking>,
     /// `Some(reason)` for a failed attempt.
     pub failure: Option<&'a str>,
+    /// The conductivity form asked for (`None`: the model's usual pairing).
+    pub conductivity: Option<ConductivityForm>,
 }
 
 fn json<T: Serialize + ?Sized>(value: &T) -> Result<String> {
@@ -428,8 +431,9 @@ pub fn record(conn: &Connection, fit: &NewFit<'_>) -> Result<i64> {
     conn.prepare_cached(
         "INSERT INTO fit (sample_id, model, parameters, standard_errors, covariance, statistics,
              n_points, readings_fingerprint, created_at, is_current, status, message, requested,
-             fixed, report, ranking, reading_ids, sample_rev)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18)",
+             fixed, report, ranking, reading_ids, sample_rev, conductivity)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18,
+             ?19)",
     )?
     .execute(params![
         fit.input.sample.id,
@@ -453,6 +457,7 @@ pub fn record(conn: &Connection, fit: &NewFit<'_>) -> Result<i64> {
         fit.ranking.map(json).transpose()?,
         json(&fit.input.reading_ids)?,
         fit.input.sample.revision,
+        fit.conductivity.map(ConductivityForm::id),
     ])?;
     Ok(conn.last_insert_rowid())
 }
@@ -490,11 +495,13 @@ pub struct StoredFit {
     pub created_at: DateTime<Utc>,
     /// The sample's current fit.
     pub is_current: bool,
+    /// The conductivity form asked for when it was made (`None`: the model's usual pairing).
+    pub conductivity: Option<ConductivityForm>,
 }
 
 const FIT_COLUMNS: &str = "f.id, f.sample_id, f.model, f.requested, f.status, f.message, \
      f.fixed, f.report, f.ranking, f.reading_ids, f.n_points, f.readings_fingerprint, \
-     f.sample_rev, f.created_at, f.is_current";
+     f.sample_rev, f.created_at, f.is_current, f.conductivity";
 
 fn decode<T: for<'de> Deserialize<'de>>(text: Option<String>, what: &str) -> Result<Option<T>> {
     text.map(|t| {
@@ -521,6 +528,7 @@ struct RawFit {
     sample_rev: Option<i64>,
     created_at: SqlTime,
     is_current: bool,
+    conductivity: Option<String>,
 }
 
 fn raw(r: &Row<'_>) -> rusqlite::Result<RawFit> {
@@ -540,6 +548,7 @@ fn raw(r: &Row<'_>) -> rusqlite::Result<RawFit> {
         sample_rev: r.get(12)?,
         created_at: r.get(13)?,
         is_current: r.get(14)?,
+        conductivity: r.get(15)?,
     })
 }
 
@@ -576,6 +585,10 @@ impl RawFit {
             sample_revision: self.sample_rev,
             created_at: self.created_at.0,
             is_current: self.is_current,
+            conductivity: self
+                .conductivity
+                .map(|c| c.parse().map_err(StoreError::Corrupt))
+                .transpose()?,
         })
     }
 }
