@@ -55,6 +55,26 @@ impl std::fmt::Display for Termination {
     }
 }
 
+/// The scale a 95 % interval was formed on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum IntervalScale {
+    /// value -+ t se.
+    Linear,
+    /// exp(ln value -+ t se / value): the Wald interval of ln p (delta method), for positive
+    /// scale parameters (suctions and inverse suctions), so it never includes impossible values.
+    Log,
+}
+
+impl std::fmt::Display for IntervalScale {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            IntervalScale::Linear => "linear scale",
+            IntervalScale::Log => "log scale",
+        })
+    }
+}
+
 /// One parameter's estimate.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct ParamEstimate {
@@ -67,8 +87,19 @@ pub struct ParamEstimate {
     /// Standard error sqrt(Cov_kk); `None` when fixed, on a bound, with no degrees of freedom
     /// or with a singular Jacobian.
     pub se: Option<f64>,
-    /// 95 % confidence interval value -+ t(0.975, dof) * se (Student t), when se is known.
+    /// 95 % Wald interval with t(0.975, dof) (Student t), when se is known; on the scale
+    /// `ci95_scale` says: value -+ t se, or for positive scale parameters (alpha, h_b, h_e,
+    /// h_m, a, h_r) exp(ln value -+ t se / value).
     pub ci95: Option<[f64; 2]>,
+    /// The scale of `ci95` (`None` when there is no interval, and in reports stored before
+    /// intervals stated their scale, which were all linear).
+    #[serde(default)]
+    pub ci95_scale: Option<IntervalScale>,
+    /// The measured suction (cm) a breakpoint parameter (h_b, h_e) sits on, if it does: the
+    /// curve has a kink there, the derivative is one-sided, and `se` and `ci95` are
+    /// approximate.
+    #[serde(default)]
+    pub kink_cm: Option<f64>,
     /// Fixed by the caller (not estimated).
     pub fixed: bool,
     /// The estimate ended on this bound and was refitted held there (active set).

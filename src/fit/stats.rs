@@ -1,5 +1,10 @@
 //! Statistics at the optimum: covariance, intervals, information criteria, influence.
 //!
+//! 95 % intervals are Wald intervals with Student's t; for positive scale parameters (suctions
+//! and inverse suctions: alpha, h_b, h_e, h_m, a, h_r) they are formed on the log scale (see
+//! [`interval95`]). A breakpoint sitting exactly on a measured suction is flagged
+//! ([`kink_suction`]): its standard error comes from a one-sided derivative.
+//!
 //! Cov = s^2 (J' W J)^-1 with J the Jacobian in the physical parameters, s^2 = SSE / (n - k).
 //! (J' W J) is inverted by Cholesky after scaling its columns to unit length (the scaling keeps
 //! badly scaled problems, such as the NIST ones, accurate); when Cholesky fails the SVD of the
@@ -10,6 +15,9 @@ use std::sync::OnceLock;
 
 use nalgebra::DMatrix;
 use statrs::distribution::{ContinuousCDF, StudentsT};
+
+use super::report::IntervalScale;
+use crate::model::curve::ParamSpec;
 
 /// Student t quantiles t(0.975, dof) for dof 1..=TABLE, computed once.
 const T_TABLE: usize = 400;
@@ -150,6 +158,59 @@ pub fn min_points_for_aicc(k: usize) -> usize {
     criteria_parameters(k) + 2
 }
 
+/// Whether a parameter is a suction or an inverse suction (unit `cm` or `1/cm`, lower bound
+/// above 0): a positive scale parameter, whose 95 % interval is formed on the log scale.
+pub(crate) fn positive_scale(spec: &ParamSpec) -> bool {
+    spec.lower > 0.0 && matches!(spec.unit, "cm" | "1/cm")
+}
+
+/// The 95 % interval of an estimate `value` with standard error `se` and t(0.975, n - k) `t`.
+///
+/// On the original scale, value -+ t se. For a positive scale parameter (`log_scale`) the
+/// Wald interval is formed for ln p, whose standard error is se / p by the delta method, and
+/// mapped back: [p exp(-t se / p), p exp(t se / p)], which stays positive (a Wald interval on
+/// the original scale can include impossible negative suctions). `None` without se or t.
+pub(crate) fn interval95(
+    value: f64,
+    se: Option<f64>,
+    t: Option<f64>,
+    log_scale: bool,
+) -> Option<([f64; 2], IntervalScale)> {
+    let (se, t) = (se?, t?);
+    let interval = if log_scale && value > 0.0 {
+        let half = t * se / value;
+        (
+            [value * (-half).exp(), value * half.exp()],
+            IntervalScale::Log,
+        )
+    } else {
+        ([value - t * se, value + t * se], IntervalScale::Linear)
+    };
+    interval.0.iter().all(|v| v.is_finite()).then_some(interval)
+}
+
+/// Relative distance within which a breakpoint counts as sitting on a measured suction.
+pub(crate) const KINK_TOLERANCE: f64 = 1e-9;
+
+/// The measured suction a breakpoint parameter (Brooks-Corey's h_b, Campbell's h_e) sits on,
+/// within [`KINK_TOLERANCE`] relative, if any. There the sum of squares has a kink: the model
+/// takes its saturated branch at h = h_b, so the Jacobian holds the derivative from one side
+/// only, and the standard error built from it is not the two-sided one the theory assumes.
+pub(crate) fn kink_suction(value: f64, suctions: &[f64]) -> Option<f64> {
+    suctions
+        .iter()
+        .copied()
+        .find(|&x| x > 0.0 && (value - x).abs() <= KINK_TOLERANCE * x)
+}
+
+/// The fit's note for a breakpoint on a measured suction (see [`kink_suction`]).
+pub(crate) fn kink_note(name: &str, suction_cm: f64) -> String {
+    format!(
+        "{name} sits on the measured suction {suction_cm} cm, a kink of the curve: its \
+         standard error and interval use a one-sided derivative and are approximate"
+    )
+}
+
 /// Leverage, studentized residuals (internal, external) and Cook's distance of one reading.
 pub(crate) struct Influence {
     pub leverage: Option<f64>,
@@ -232,6 +293,48 @@ mod tests {
         // (J'J) = [[2,1],[1,2]], inverse [[2,-1],[-1,2]]/3.
         assert!((inv[(0, 0)] - 2.0 / 3.0).abs() < 1e-14);
         assert!((inv[(0, 1)] + 1.0 / 3.0).abs() < 1e-14);
+    }
+
+    #[test]
+    fn intervals_of_positive_scale_parameters_stay_positive() {
+        // The review's case: h_e = 10 cm with SE 10.5 and t(0.975, 5) = 2.5706 gives
+        // [-17, 37] cm on the original scale; on the log scale (delta method, se(ln p) = se / p)
+        // it is 10 exp(-+2.5706 * 1.05).
+        let t = t975(5);
+        let (ci, scale) = interval95(10.0, Some(10.5), t, true).expect("interval");
+        assert_eq!(scale, IntervalScale::Log);
+        let half = t.unwrap() * 1.05;
+        assert!((ci[0] - 10.0 * (-half).exp()).abs() < 1e-12, "{ci:?}");
+        assert!((ci[1] - 10.0 * half.exp()).abs() < 1e-9, "{ci:?}");
+        assert!(ci[0] > 0.0);
+        // The geometric midpoint is the estimate.
+        assert!(((ci[0] * ci[1]).sqrt() - 10.0).abs() < 1e-12);
+        let (lin, scale) = interval95(10.0, Some(10.5), t, false).expect("interval");
+        assert_eq!(scale, IntervalScale::Linear);
+        assert!(lin[0] < 0.0 && (lin[1] - lin[0] - 2.0 * half * 10.0).abs() < 1e-9);
+        assert_eq!(interval95(10.0, None, t, true), None);
+        assert_eq!(interval95(10.0, Some(1.0), None, true), None);
+        let spec = |unit: &'static str, lower: f64| ParamSpec {
+            name: "p",
+            unit,
+            lower,
+            upper: 1e5,
+        };
+        assert!(positive_scale(&spec("cm", 0.01)));
+        assert!(positive_scale(&spec("1/cm", 1e-5)));
+        assert!(!positive_scale(&spec("-", 1.001)));
+        assert!(!positive_scale(&spec("m3/m3", 0.0)));
+        assert!(!positive_scale(&spec("cm", 0.0)));
+    }
+
+    #[test]
+    fn a_breakpoint_on_a_measured_suction_is_a_kink() {
+        let x = [0.0, 10.0, 30.0, 100.0];
+        assert_eq!(kink_suction(30.0, &x), Some(30.0));
+        assert_eq!(kink_suction(30.0 * (1.0 + 1e-12), &x), Some(30.0));
+        assert_eq!(kink_suction(30.0 * (1.0 + 1e-6), &x), None);
+        assert_eq!(kink_suction(0.0, &x), None);
+        assert_eq!(kink_suction(55.0, &x), None);
     }
 
     #[test]
