@@ -133,6 +133,20 @@ fn a_breakpoint_on_a_measured_suction_is_marked_as_a_kink() {
             && message.contains("one-sided derivative and are approximate"),
         "{message}"
     );
+    // A report stored by an earlier version (no criteria count, intervals on the original
+    // scale without a scale, no kink) reads back as the current one.
+    let mut json = serde_json::to_value(&r).expect("encodes");
+    let obj = json.as_object_mut().expect("object");
+    obj.remove("n_criteria_params");
+    obj.insert("message".into(), serde_json::Value::Null);
+    for p in obj["parameters"].as_array_mut().expect("parameters") {
+        let p = p.as_object_mut().expect("parameter");
+        p.remove("ci95_scale");
+        p.remove("kink_cm");
+    }
+    let mut old: FitReport = serde_json::from_value(json).expect("decodes");
+    assert!(old.upgrade_stored());
+    assert_eq!(old, r);
     // The other parameters are not breakpoints.
     assert!(
         r.parameters

@@ -178,7 +178,7 @@ pub struct FitReport {
     /// Number of free (estimated) parameters k.
     pub n_free_params: usize,
     /// Parameters counted by AIC, AICc and BIC: K = k + 1 (the error variance is estimated
-    /// too). 0 in a report stored before the variance was counted; see [`Self::recount_criteria`].
+    /// too). 0 in a report stored before the variance was counted; see [`Self::upgrade_stored`].
     #[serde(default)]
     pub n_criteria_params: usize,
     /// The fit passed every check: the solver stopped at an optimum, the SSE is finite and
@@ -211,10 +211,12 @@ impl FitReport {
         self.parameters.iter().map(|p| p.value).collect()
     }
 
-    /// Bring a report stored before the error variance was counted (`n_criteria_params` 0)
-    /// to the current convention: AIC, AICc and BIC recomputed from n, k and SSE. Returns
-    /// whether anything changed.
-    pub fn recount_criteria(&mut self) -> bool {
+    /// Bring a report stored by an earlier version (`n_criteria_params` 0) to the current
+    /// conventions: AIC, AICc and BIC recomputed from n, k and SSE with the error variance
+    /// counted; 95 % intervals recomputed from the standard errors, on the log scale for
+    /// suctions and inverse suctions (unit `cm` or `1/cm`), with their scale; a breakpoint on
+    /// a measured suction marked as a kink. Returns whether anything changed.
+    pub fn upgrade_stored(&mut self) -> bool {
         if self.n_criteria_params != 0 {
             return false;
         }
@@ -224,6 +226,31 @@ impl FitReport {
         self.aicc = aicc;
         self.bic = bic;
         self.n_criteria_params = super::stats::criteria_parameters(self.n_free_params);
+        let t = super::stats::t975(self.n_points.saturating_sub(self.n_free_params));
+        let breakpoint = self
+            .model
+            .parse()
+            .ok()
+            .and_then(super::models::breakpoint_of);
+        let suctions: Vec<f64> = self.readings.iter().map(|r| r.x).collect();
+        let mut notes = Vec::new();
+        for p in &mut self.parameters {
+            let log = matches!(p.unit.as_str(), "cm" | "1/cm") && p.value > 0.0;
+            let interval = super::stats::interval95(p.value, p.se, t, log);
+            p.ci95 = interval.map(|i| i.0);
+            p.ci95_scale = interval.map(|i| i.1);
+            if !p.fixed && breakpoint == Some(p.name.as_str()) {
+                p.kink_cm = super::stats::kink_suction(p.value, &suctions);
+                if let Some(h) = p.kink_cm {
+                    notes.push(super::stats::kink_note(&p.name, h));
+                }
+            }
+        }
+        if !notes.is_empty() {
+            let mut all: Vec<String> = self.message.take().into_iter().collect();
+            all.extend(notes);
+            self.message = Some(all.join("; "));
+        }
         true
     }
 }
@@ -235,7 +262,7 @@ mod tests {
     use crate::model::retention::ModelKind;
 
     #[test]
-    fn reports_stored_before_the_variance_was_counted_are_recounted() {
+    fn reports_stored_by_an_earlier_version_are_upgraded() {
         let h = [0.0, 10.0, 30.0, 100.0, 330.0, 1000.0, 3000.0, 15000.0];
         let y = [0.41, 0.40, 0.36, 0.27, 0.19, 0.14, 0.11, 0.09];
         let report = fit_model(
@@ -246,17 +273,25 @@ mod tests {
         .expect("fits");
         assert_eq!(report.n_criteria_params, report.n_free_params + 1);
         assert!(report.aicc.is_some());
-        // The same report as stored before: no n_criteria_params, criteria counting k only.
+        // The same report as stored before: no n_criteria_params, criteria counting k only,
+        // intervals on the original scale without their scale.
         let mut json = serde_json::to_value(&report).expect("encodes");
         let obj = json.as_object_mut().expect("object");
         obj.remove("n_criteria_params");
         for key in ["aic", "aicc", "bic"] {
             obj.insert(key.to_string(), serde_json::json!(-1.0));
         }
+        for p in obj["parameters"].as_array_mut().expect("parameters") {
+            let p = p.as_object_mut().expect("parameter");
+            p.remove("ci95_scale");
+            p.remove("kink_cm");
+            p.insert("ci95".into(), serde_json::json!([-1.0, 1.0]));
+        }
         let mut old: super::FitReport = serde_json::from_value(json).expect("decodes");
         assert_eq!(old.n_criteria_params, 0);
-        assert!(old.recount_criteria());
+        assert!(old.parameters.iter().all(|p| p.ci95_scale.is_none()));
+        assert!(old.upgrade_stored());
         assert_eq!(old, report);
-        assert!(!old.recount_criteria());
+        assert!(!old.upgrade_stored());
     }
 }

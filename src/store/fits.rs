@@ -556,10 +556,10 @@ impl RawFit {
     fn decode(self) -> Result<StoredFit> {
         let fixed: BTreeMap<String, f64> =
             decode(self.fixed, "fixed parameters")?.unwrap_or_default();
-        // Fits stored before AIC, AICc and BIC counted the error variance: recount them.
+        // Fits stored by an earlier version: criteria, intervals and kinks as now.
         let mut report: Option<FitReport> = decode(self.report, "report")?;
         if let Some(r) = &mut report {
-            r.recount_criteria();
+            r.upgrade_stored();
         }
         let mut ranking: Option<Ranking> = decode(self.ranking, "ranking")?;
         if let Some(r) = &mut ranking {
