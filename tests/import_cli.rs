@@ -730,3 +730,53 @@ fn usage_errors_exit_2_and_every_command_has_an_example() {
     let version = stdout(&porewise().arg("--version").assert().success());
     assert!(version.starts_with("porewise "), "{version}");
 }
+
+#[test]
+fn the_oven_dry_suction_imports_in_every_unit_and_nothing_drier() {
+    // 10^6 kPa, oven-dry soil, the dry end of Fredlund & Xing (1994): 1.0197e7 cm, pF 7.008479.
+    let cases = [
+        ("suction_kpa", "1000000"),
+        ("suction_mpa", "1000"),
+        ("suction_bar", "10000"),
+        ("suction_hpa", "1e7"),
+        ("suction_cm", "10197162.12"),
+        ("pf", "7.008479"),
+    ];
+    let s = Scratch::new();
+    let mut files = Vec::new();
+    for (column, value) in cases {
+        let text = format!(
+            "site,top_cm,bottom_cm,sample,method,{column},theta\nU,0,10,{column},oven,{value},0\n"
+        );
+        files.push(s.write(&format!("{column}.csv"), &text));
+    }
+    let refs: Vec<&str> = files.iter().map(String::as_str).collect();
+    s.import_ok("lab", &refs);
+    let conn = s.connect();
+    let h_dry = porewise::model::retention::fredlund_xing::H_DRY_CM;
+    for (column, _) in cases {
+        let h: f64 = conn
+            .query_row(
+                "SELECT r.h_cm FROM reading r JOIN sample m ON r.sample_id = m.id
+                 WHERE m.code = ?1",
+                [column],
+                |r| r.get(0),
+            )
+            .expect("stored");
+        assert!(((h - h_dry) / h_dry).abs() < 1e-6, "{column}: {h}");
+    }
+    let drier = s.write(
+        "drier.csv",
+        "site,top_cm,bottom_cm,sample,method,suction_kpa,theta\nU,0,10,D,oven,1000001,0\n",
+    );
+    s.refused(
+        "lab",
+        &[&drier],
+        &[],
+        &[
+            "drier.csv:2:suction_kpa: found \"1000001\", expected a suction of at most 10^6 kPa \
+           = 1.0197e7 cm (pF 7.01, oven dry)",
+        ],
+        1,
+    );
+}
