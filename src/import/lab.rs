@@ -251,9 +251,10 @@ impl LabReader {
     }
 }
 
-/// The suction cell in cm: 0 or more (pF may be any number), at most [`MAX_SUCTION_CM`].
+/// The suction cell in cm: 0 or more (pF may be any number, `-inf` being 0 cm), at most
+/// [`MAX_SUCTION_CM`].
 fn read_suction(cells: &mut Cells<'_>, col: usize, unit: SuctionUnit) -> Option<f64> {
-    let v = cells.number(col)?;
+    let (v, h) = cells.suction(col, unit)?;
     if unit != SuctionUnit::Pf && v < 0.0 {
         let found = cells.found(col);
         cells.fail(
@@ -264,7 +265,6 @@ fn read_suction(cells: &mut Cells<'_>, col: usize, unit: SuctionUnit) -> Option<
         );
         return None;
     }
-    let h = unit.to_cm(v);
     if h > MAX_SUCTION_CM * (1.0 + 4.0 * f64::EPSILON) {
         let found = cells.found(col);
         cells.fail(

@@ -15,7 +15,7 @@ Parameters are invented; the formulas are the published ones:
   Campbell (1974)       Se = theta / theta_s = (h_e / h)^(1/b) above h_e
   Mualem (1976)         Kr = Se^L [int_0^Se dS / h(S) / int_0^1 dS / h(S)]^2
 """
-from mpmath import mp, mpf, erfc, sqrt, log, exp, e, betainc, quad, inf
+from mpmath import mp, mpf, erfc, sqrt, log, exp, e, betainc, quad, power
 
 mp.dps = 50
 
@@ -111,7 +111,18 @@ def mualem_values():
          mualem_free_m(f(50), f("0.05"), f(3), f(2), f("0.5")))
 
 
+def conversion_values():
+    print("# double-double suction conversions (src/model/units/exact.rs)")
+    show40 = lambda label, v: print(f"{label}: {mp.nstr(v, 40)}")
+    show40("ln 2", log(2))
+    show40("ln 10", log(10))
+    print(f"e: {mp.nstr(e, 47)}")
+    print(f"cm per kPa = 10^7 / 980665: {mp.nstr(mpf(10) ** 7 / 980665, 50)}")
+    print(f"10^2.526993264 (the double): {mp.nstr(power(10, f('2.526993264')), 50)}")
+
+
 if __name__ == "__main__":
+    conversion_values()
     se_values()
     erfc_values()
     beta_values()
