@@ -1,5 +1,9 @@
 //! `porewise curve` through the real binary: exit codes, header, values, error messages.
-#![allow(clippy::unreadable_literal, clippy::float_cmp)]
+#![allow(
+    clippy::unreadable_literal,
+    clippy::float_cmp,
+    clippy::excessive_precision
+)]
 
 use assert_cmd::Command;
 use predicates::prelude::*;

@@ -4,7 +4,11 @@
 //! Outside values come from `tests/data/reference/soil_reference_tables.json` (see the README
 //! there): Carsel & Parrish (1988) parameters (from memory, high) with values computed
 //! independently (mpmath, 50 digits), tables T1, T2, T3 and T9 of the project's reference notes.
-#![allow(clippy::float_cmp, clippy::unreadable_literal)]
+#![allow(
+    clippy::float_cmp,
+    clippy::unreadable_literal,
+    clippy::excessive_precision
+)]
 
 use std::sync::OnceLock;
 

@@ -323,17 +323,17 @@ fn sample_of(conn: &rusqlite::Connection, reading: i64) -> Result<i64> {
 /// # Errors
 /// An SQLite error.
 pub fn refit_samples(campaign: &mut Campaign, sample_ids: &[i64]) -> Result<FitRunSummary> {
-    let wanted: HashSet<i64> = sample_ids.iter().copied().collect();
-    if wanted.is_empty() {
-        return Ok(FitRunSummary::default());
-    }
-    // Group the samples by (requested model, fixed values, conductivity) so each group is one run.
     type Group = (
         ModelChoice,
         FitOptions,
         Option<ConductivityForm>,
         Vec<String>,
     );
+    let wanted: HashSet<i64> = sample_ids.iter().copied().collect();
+    if wanted.is_empty() {
+        return Ok(FitRunSummary::default());
+    }
+    // Group the samples by (requested model, fixed values, conductivity) so each group is one run.
     let mut groups: BTreeMap<(String, String, Option<ConductivityForm>), Group> = BTreeMap::new();
     for sample in fits::samples(campaign.connection(), &Selection::all())? {
         if !wanted.contains(&sample.id) {

@@ -89,7 +89,11 @@ fn continued_fraction(a: f64, b: f64, x: f64) -> Option<f64> {
 }
 
 #[cfg(test)]
-#[allow(clippy::unreadable_literal, clippy::float_cmp)]
+#[allow(
+    clippy::unreadable_literal,
+    clippy::float_cmp,
+    clippy::excessive_precision
+)]
 mod tests {
     use super::*;
 

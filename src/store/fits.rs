@@ -797,6 +797,7 @@ pub fn readings_fingerprint(conn: &Connection, sample_id: i64) -> Result<String>
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)]
 mod tests {
     use super::*;
 

@@ -174,7 +174,11 @@ impl RetentionModel for Kosugi {
 }
 
 #[cfg(test)]
-#[allow(clippy::unreadable_literal)]
+#[allow(
+    clippy::unreadable_literal,
+    clippy::excessive_precision,
+    clippy::float_cmp
+)]
 mod tests {
     use super::*;
 

@@ -21,13 +21,13 @@ struct Dd {
 
 /// ln 2 as a double-double (mpmath 1.3.0, 60 digits: 0.69314718055994530941723212145817657).
 const LN2: Dd = Dd {
-    hi: 0.693_147_180_559_945_3,
+    hi: std::f64::consts::LN_2,
     lo: 2.319_046_813_846_299_6e-17,
 };
 
 /// ln 10 as a double-double (mpmath 1.3.0, 60 digits: 2.3025850929940456840179914546843642).
 const LN10: Dd = Dd {
-    hi: 2.302_585_092_994_046,
+    hi: std::f64::consts::LN_10,
     lo: -2.170_756_223_382_249_4e-16,
 };
 
@@ -324,7 +324,11 @@ fn shortest(v: f64) -> String {
 }
 
 #[cfg(test)]
-#[allow(clippy::float_cmp, clippy::unreadable_literal)]
+#[allow(
+    clippy::float_cmp,
+    clippy::unreadable_literal,
+    clippy::excessive_precision
+)]
 mod tests {
     use super::*;
 
