@@ -1003,3 +1003,25 @@ fn mualem_brooks_corey_matches_numerical_integration() {
         assert_rel(kr, want, 1e-12, &format!("Kr({h})"));
     }
 }
+
+#[test]
+fn mualem_free_m_is_bounded_and_decreasing_over_the_parameter_space() {
+    for alpha in [1e-4, 0.02, 2.0] {
+        for n in [1.001, 1.05, 1.5, 3.0, 14.0] {
+            for m in [0.001, 0.1, 1.0, 9.0] {
+                let p = [0.05, 0.4, alpha, n, m];
+                let mut last = 1.0;
+                for h in log_grid(1e-6, 1.1e7, 8) {
+                    let kr = ConductivityModel::MualemVanGenuchtenFreeM
+                        .relative(h, &p, 0.5)
+                        .unwrap_or_else(|| panic!("no Kr at {h} for {p:?}"));
+                    assert!(
+                        (0.0..=1.0).contains(&kr) && kr <= last * (1.0 + 1e-12),
+                        "Kr({h}) = {kr} after {last} for {p:?}"
+                    );
+                    last = kr;
+                }
+            }
+        }
+    }
+}
