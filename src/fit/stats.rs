@@ -297,7 +297,7 @@ mod tests {
 
     #[test]
     fn intervals_of_positive_scale_parameters_stay_positive() {
-        // The review's case: h_e = 10 cm with SE 10.5 and t(0.975, 5) = 2.5706 gives
+        // A poorly determined h_e: 10 cm with SE 10.5 and t(0.975, 5) = 2.5706 gives
         // [-17, 37] cm on the original scale; on the log scale (delta method, se(ln p) = se / p)
         // it is 10 exp(-+2.5706 * 1.05).
         let t = t975(5);
