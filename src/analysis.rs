@@ -7,6 +7,8 @@ pub mod fitting;
 pub mod review;
 pub mod water;
 
-pub use current::{SampleFit, sample_fits};
-pub use fitting::{FitAttempt, FitRunSummary, ModelChoice, fit_campaign, fit_choice, fit_input};
+pub use current::{SampleFit, sample_fits, sample_fits_with};
+pub use fitting::{
+    FitAttempt, FitRunSummary, ModelChoice, fit_campaign, fit_campaign_with, fit_choice, fit_input,
+};
 pub use water::{FitDerived, LayerWater, SiteProfile, derive_fit, profiles};

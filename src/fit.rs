@@ -21,7 +21,10 @@ pub use config::{Domain, FitOptions};
 pub use driver::{Readings, fit_curve};
 pub use error::FitError;
 pub use models::{AutoFit, RankedFit, SkippedModel, breakpoint_of, fit_auto, fit_model};
-pub use report::{FitReport, ParamEstimate, ParamMatrix, ReadingFit, Side, Termination};
+pub use report::{
+    FitReport, IntervalScale, ParamEstimate, ParamMatrix, ReadingFit, Side, Termination,
+};
+pub use stats::{aicc, criteria_parameters, min_points_for_aicc};
 
 #[cfg(test)]
 mod tests;

@@ -1,5 +1,9 @@
 //! `porewise curve` through the real binary: exit codes, header, values, error messages.
-#![allow(clippy::unreadable_literal, clippy::float_cmp)]
+#![allow(
+    clippy::unreadable_literal,
+    clippy::float_cmp,
+    clippy::excessive_precision
+)]
 
 use assert_cmd::Command;
 use predicates::prelude::*;
@@ -81,9 +85,9 @@ fn conductivity_columns_with_ks_match_table_t3() {
     let lines: Vec<&str> = text.lines().collect();
     assert_eq!(
         lines[0],
-        "suction_cm,theta,effective_saturation,capacity_per_cm,relative_conductivity,conductivity_cm_per_day"
+        "suction_cm,theta,effective_saturation,capacity_per_cm,relative_conductivity,conductivity_cm_per_day,conductivity_model"
     );
-    assert_eq!(lines[1], "0,0.43,1,0,1,24.96");
+    assert_eq!(lines[1], "0,0.43,1,0,1,24.96,mualem-van-genuchten");
     assert!((cell(lines[2], 4) / 0.001359075334 - 1.0).abs() < 1e-9);
     assert!((cell(lines[2], 5) / 0.03392252035 - 1.0).abs() < 1e-9);
 }
@@ -233,4 +237,124 @@ fn usage_errors_are_clap_errors_and_help_has_an_example() {
         .success()
         .stdout(predicate::str::contains("Example:"))
         .stdout(predicate::str::contains("fredlund-xing"));
+}
+
+#[test]
+fn effective_saturation_is_printed_with_its_relative_precision() {
+    // mpmath 1.3.0, 50 digits (tests/data/high_precision.py): Se = 1.5999999999999958e-19
+    // for these invented parameters at 10^6 cm; from theta it used to print 0.
+    let text = stdout_of(&[
+        "--model",
+        "van-genuchten",
+        "--set",
+        "theta_r=0.05,theta_s=0.4,alpha_per_cm=0.05,n=5",
+        "--suction-cm",
+        "1e6",
+    ]);
+    let row = text.lines().nth(1).expect("one row");
+    let se = cell(row, 2);
+    assert!(
+        (se / 1.5999999999999958008e-19 - 1.0).abs() < 1e-13,
+        "{row}"
+    );
+}
+
+#[test]
+fn brooks_corey_conductivity_is_burdine_or_mualem_and_says_which() {
+    // Invented parameters h_b 7.26 cm, lambda 0.592. At 100 cm Se = (7.26/100)^0.592; Burdine
+    // (1953) Kr = Se^(3 + 2/lambda), Mualem (1976) Kr = Se^(L + 2 + 2/lambda) with L = 0.5.
+    let bc = "theta_r=0.02,theta_s=0.437,h_b_cm=7.26,lambda=0.592";
+    let run = |extra: &[&str]| {
+        let mut args = vec![
+            "--model",
+            "brooks-corey",
+            "--set",
+            bc,
+            "--suction-cm",
+            "100",
+            "--ks-cm-per-day",
+            "504",
+        ];
+        args.extend_from_slice(extra);
+        let text = stdout_of(&args);
+        text.lines().nth(1).expect("one row").to_string()
+    };
+    let se: f64 = (7.26_f64 / 100.0).powf(0.592);
+    let burdine = run(&[]);
+    assert!(burdine.ends_with(",burdine-brooks-corey"), "{burdine}");
+    assert!((cell(&burdine, 4) / se.powf(3.0 + 2.0 / 0.592) - 1.0).abs() < 1e-12);
+    let same = run(&["--conductivity", "burdine"]);
+    assert_eq!(same, burdine);
+    let mualem = run(&["--conductivity", "mualem"]);
+    assert!(mualem.ends_with(",mualem-brooks-corey"), "{mualem}");
+    assert!((cell(&mualem, 4) / se.powf(2.5 + 2.0 / 0.592) - 1.0).abs() < 1e-12);
+    let l1 = run(&["--conductivity", "mualem", "--pore-connectivity", "1"]);
+    assert!((cell(&l1, 4) / se.powf(3.0 + 2.0 / 0.592) - 1.0).abs() < 1e-12);
+    // Burdine has no L; van Genuchten has no Burdine form here; the form needs Ks.
+    curve()
+        .args([
+            "--model",
+            "brooks-corey",
+            "--set",
+            bc,
+            "--ks-cm-per-day",
+            "504",
+        ])
+        .args(["--pore-connectivity", "1"])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("no pore-connectivity exponent"));
+    curve()
+        .args([
+            "--model",
+            "van-genuchten",
+            "--set",
+            LOAM,
+            "--ks-cm-per-day",
+            "24.96",
+        ])
+        .args(["--conductivity", "burdine"])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains(
+            "van-genuchten has no burdine conductivity here; it pairs with Mualem-van Genuchten",
+        ));
+    curve()
+        .args([
+            "--model",
+            "brooks-corey",
+            "--set",
+            bc,
+            "--conductivity",
+            "mualem",
+        ])
+        .assert()
+        .code(2);
+}
+
+#[test]
+fn van_genuchten_with_free_m_has_mualem_conductivity() {
+    // Kr(100 cm) = 0.0085246891413815262158 for theta_r 0.05, theta_s 0.4, alpha 0.02 1/cm,
+    // n 1.5, m 0.3, L 0.5: mpmath 1.3.0, 50 digits, by quadrature of Mualem's integral
+    // (tests/data/high_precision.py).
+    let text = stdout_of(&[
+        "--model",
+        "van-genuchten-free-m",
+        "--set",
+        "theta_r=0.05,theta_s=0.4,alpha_per_cm=0.02,n=1.5,m=0.3",
+        "--suction-cm",
+        "100",
+        "--ks-cm-per-day",
+        "10",
+    ]);
+    let row = text.lines().nth(1).expect("one row");
+    assert!(row.ends_with(",mualem-van-genuchten-free-m"), "{row}");
+    assert!(
+        (cell(row, 4) / 0.0085246891413815262158 - 1.0).abs() < 1e-12,
+        "{row}"
+    );
+    assert!(
+        (cell(row, 5) / 0.085246891413815262158 - 1.0).abs() < 1e-12,
+        "{row}"
+    );
 }

@@ -929,3 +929,126 @@ fn the_demo_campaign_exports_every_sample() {
 fn is_code_cell(n: &roxmltree::Node<'_, '_>) -> bool {
     n.tag_name().name() == "td" && n.attribute("class") == Some("code")
 }
+
+/// The `derived` member of a sample's fit in an exported campaign.json.
+fn exported_derived(dir: &Path, sample: &str) -> (serde_json::Value, serde_json::Value) {
+    let text = std::fs::read_to_string(dir.join(CAMPAIGN_FILE)).expect("campaign.json");
+    let doc: serde_json::Value = serde_json::from_str(&text).expect("json");
+    let fit = doc["data"]["sites"]
+        .as_array()
+        .expect("sites")
+        .iter()
+        .flat_map(|s| s["layers"].as_array().expect("layers"))
+        .flat_map(|l| l["samples"].as_array().expect("samples"))
+        .find(|m| m["code"] == sample)
+        .map(|m| m["fit"].clone())
+        .expect("sample");
+    (fit, doc["data"]["scope"].clone())
+}
+
+#[test]
+fn brooks_corey_fits_carry_their_conductivity_form_into_the_export() {
+    let tmp = tempfile::tempdir().expect("temp dir");
+    let db = fixture(tmp.path());
+    // XSS 0-30 cm has Ks 20 cm/day; refit one of its cores with Brooks-Corey and Mualem.
+    porewise()
+        .arg("fit")
+        .arg(&db)
+        .args(["--sample", "XSS-A-b", "--model", "brooks-corey"])
+        .args(["--conductivity", "mualem"])
+        .assert()
+        .success();
+    let export = |name: &str, extra: &[&str]| {
+        let out = tmp.path().join(name);
+        porewise()
+            .arg("export")
+            .arg(&db)
+            .arg("--to")
+            .arg(&out)
+            .args(["--format", "json"])
+            .args(extra)
+            .assert()
+            .success();
+        exported_derived(&out, "XSS-A-b")
+    };
+    // K = Ks (h_b / h)^e above h_b: Mualem e = 2 + (L + 2) lambda with L = 0.5 (Mualem 1976),
+    // Burdine e = 2 + 3 lambda (Burdine 1953), at field capacity 33 kPa.
+    let check = |fit: &serde_json::Value, model: &str, exponent: &dyn Fn(f64) -> f64| {
+        let derived = &fit["derived"];
+        assert_eq!(derived["conductivity_model"], model, "{derived}");
+        let param = |name: &str| {
+            fit["parameters"]
+                .as_array()
+                .expect("parameters")
+                .iter()
+                .find(|p| p["name"] == name)
+                .and_then(|p| p["value"].as_f64())
+                .expect("parameter")
+        };
+        let (h_b, lambda) = (param("h_b_cm"), param("lambda"));
+        let h = 33.0 * porewise::model::units::CM_PER_KPA;
+        let want = 20.0 * (h_b / h).powf(exponent(lambda));
+        let k = derived["k_field_capacity_cm_per_day"].as_f64().expect("K");
+        assert!((k / want - 1.0).abs() < 1e-12, "{k} vs {want}");
+    };
+    let (fit, scope) = export("recorded", &[]);
+    assert!(scope["conductivity"].is_null());
+    check(&fit, "mualem-brooks-corey", &|l| 2.0 + 2.5 * l);
+    // A refit after a review decision keeps the form the fit was made with.
+    {
+        let mut c = Campaign::open(&db).expect("open");
+        let id: i64 = c
+            .connection()
+            .query_row("SELECT id FROM sample WHERE code = 'XSS-A-b'", [], |r| {
+                r.get(0)
+            })
+            .expect("sample");
+        porewise::analysis::review::refit_samples(&mut c, &[id]).expect("refit");
+        let current = fits::current(c.connection(), id)
+            .expect("read")
+            .expect("fit");
+        assert_eq!(current.model, "brooks-corey");
+        assert_eq!(
+            current.conductivity,
+            Some(porewise::model::conductivity::ConductivityForm::Mualem)
+        );
+    }
+    // The export may ask for the other form; van Genuchten fits keep Mualem's.
+    let (fit, scope) = export("burdine", &["--conductivity", "burdine"]);
+    assert_eq!(scope["conductivity"], "burdine");
+    check(&fit, "burdine-brooks-corey", &|l| 2.0 + 3.0 * l);
+    let other = exported_derived(&tmp.path().join("burdine"), "XSS-A-a").0;
+    assert_eq!(
+        other["derived"]["conductivity_model"], "mualem-van-genuchten",
+        "{other}"
+    );
+    // A form the model does not have is refused before anything is fitted.
+    let fit_rows = || -> i64 {
+        Campaign::open(&db)
+            .expect("open")
+            .connection()
+            .query_row("SELECT count(*) FROM fit", [], |r| r.get(0))
+            .expect("count")
+    };
+    let before = fit_rows();
+    let refused = porewise()
+        .arg("fit")
+        .arg(&db)
+        .args(["--sample", "XSS-A-a", "--model", "van-genuchten"])
+        .args(["--conductivity", "burdine"])
+        .assert()
+        .code(1);
+    assert!(
+        stderr(&refused).contains("van-genuchten has no burdine conductivity here"),
+        "{}",
+        stderr(&refused)
+    );
+    assert_eq!(fit_rows(), before);
+    // Plain-file fits have no conductivity values to choose for.
+    let plain = porewise()
+        .args(["fit", "--input", "valid/pairs_two_samples.csv"])
+        .args(["--conductivity", "mualem"])
+        .assert()
+        .code(1);
+    assert!(stderr(&plain).contains("--conductivity applies to the fits of a campaign"));
+}

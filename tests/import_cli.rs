@@ -556,22 +556,151 @@ fn csv_listings_parse_back_and_readings_reimport_as_a_lab_file() {
     let rows: Vec<csv::StringRecord> = reader.records().collect::<Result<_, _>>().expect("rows");
     assert_eq!(rows.len(), 13);
     let pf = header.iter().position(|h| h == "pf").expect("pf column");
-    // 0 cm has no pF: an empty cell, never NaN or -inf.
-    assert!(rows.iter().any(|r| r[pf].is_empty()));
-    assert!(!text.contains("NaN") && !text.contains("inf"));
+    // 0 cm is pF minus infinity, written `-inf` (a pF column reads it back as saturation);
+    // never an empty cell or NaN.
+    assert!(rows.iter().any(|r| &r[pf] == "-inf"));
+    assert!(rows.iter().all(|r| !r[pf].is_empty()));
+    assert!(!text.contains("NaN"));
     // 33 kPa is pF 2.526993264 (reference table).
     let want = reference("pF_at_33_kpa");
     assert!(
         rows.iter()
             .any(|r| r[pf].parse::<f64>().is_ok_and(|v| (v - want).abs() < 1e-8))
     );
-    // In a unit that can state 0 cm, the listing is a lab file: a fresh campaign takes it whole.
-    let text = s.list(&["readings", "--format", "csv", "--units", "kpa"]);
-    let other = Scratch::new();
-    let exported = other.write("exported.csv", &text);
-    other.import_ok("lab", &[&exported]);
-    assert_eq!(other.count("reading"), 13);
-    assert_eq!(other.count("sample"), 3);
+    // The listing is a lab file: a fresh campaign takes it whole, in pF too.
+    for unit in ["kpa", "pf"] {
+        let text = s.list(&["readings", "--format", "csv", "--units", unit]);
+        let other = Scratch::new();
+        let exported = other.write("exported.csv", &text);
+        other.import_ok("lab", &[&exported]);
+        assert_eq!(other.count("reading"), 13);
+        assert_eq!(other.count("sample"), 3);
+    }
+}
+
+/// Every reading of a campaign as (sample, suction, water content, weight) with the exact
+/// bits of each number, sorted.
+fn stored_bits(s: &Scratch) -> Vec<(String, u64, u64, Option<u64>, u64, u64)> {
+    let conn = s.connect();
+    let mut rows: Vec<(String, u64, u64, Option<u64>, u64, u64)> = conn
+        .prepare(
+            "SELECT m.code, r.h_cm, r.theta, r.weight, l.top_cm, l.bottom_cm
+             FROM reading r JOIN sample m ON m.id = r.sample_id JOIN layer l ON l.id = m.layer_id",
+        )
+        .expect("prepare")
+        .query_map([], |r| {
+            Ok((
+                r.get::<_, String>(0)?,
+                r.get::<_, f64>(1)?.to_bits(),
+                r.get::<_, f64>(2)?.to_bits(),
+                r.get::<_, Option<f64>>(3)?.map(f64::to_bits),
+                r.get::<_, f64>(4)?.to_bits(),
+                r.get::<_, f64>(5)?.to_bits(),
+            ))
+        })
+        .expect("query")
+        .collect::<Result<_, _>>()
+        .expect("rows");
+    rows.sort();
+    rows
+}
+
+#[test]
+fn a_readings_listing_in_any_unit_imports_to_the_same_stored_values() {
+    // Readings written in every unit with awkward decimals, saturation and the oven-dry
+    // suction; listed in each unit and imported into a fresh campaign, every stored number
+    // must come back bit for bit.
+    let s = Scratch::new();
+    let files = [
+        (
+            "kpa.csv",
+            "site,top_cm,bottom_cm,sample,method,suction_kpa,theta,weight
+             U,0,12.5,K1,plate,0,0.4321,1
+             U,0,12.5,K1,plate,33,0.30000000000000004,2.5
+             U,0,12.5,K1,plate,1500.123456789,0.1234567890123456,
+             U,0,12.5,K1,oven,1000000,0,
+",
+        ),
+        (
+            "cm.csv",
+            "site,top_cm,bottom_cm,sample,method,suction_cm,theta
+             U,12.5,33.3,C1,column,0.1,0.45
+             U,12.5,33.3,C1,column,336.5063503,0.3
+             U,12.5,33.3,C1,plate,12345.678901234567,0.2
+             U,12.5,33.3,C1,plate,7e-3,0.451
+",
+        ),
+        (
+            "pf.csv",
+            "site,top_cm,bottom_cm,sample,method,pf,theta
+             V,0,20,P1,column,-inf,0.5
+             V,0,20,P1,plate,2.52699,0.33
+             V,0,20,P1,plate,4.2,0.12
+             V,0,20,P1,dew point,6.123456789,0.02
+",
+        ),
+        (
+            "hpa.csv",
+            "site;top_cm;bottom_cm;sample;method;suction_hpa;theta_pct
+             V;20;40;H1;plate;0,5;41,3
+             V;20;40;H1;plate;330;30,7
+",
+        ),
+        (
+            "mpa_bar.csv",
+            "site,top_cm,bottom_cm,sample,method,suction_mpa,theta
+             V,40,60,M1,plate,0.0033,0.31
+             V,40,60,M1,plate,1.5,0.11
+",
+        ),
+        (
+            "bar.csv",
+            "site,top_cm,bottom_cm,sample,method,suction_bar,theta
+             V,60,90,B1,plate,0.33,0.29
+             V,60,90,B1,plate,15,0.1
+",
+        ),
+    ];
+    let paths: Vec<String> = files.iter().map(|(n, t)| s.write(n, t)).collect();
+    let refs: Vec<&str> = paths.iter().map(String::as_str).collect();
+    s.import_ok("lab", &refs);
+    let want = stored_bits(&s);
+    assert_eq!(want.len(), 18);
+    for unit in ["cm", "hpa", "kpa", "mpa", "bar", "pf"] {
+        let text = s.list(&["readings", "--format", "csv", "--units", unit]);
+        assert!(!text.contains("NaN"), "{unit}:\n{text}");
+        let other = Scratch::new();
+        let listed = other.write(&format!("listed-{unit}.csv"), &text);
+        other.import_ok("lab", &[&listed]);
+        assert_eq!(stored_bits(&other), want, "{unit}:\n{text}");
+    }
+    // Values imported in a unit are listed in it as they were written.
+    let kpa = s.list(&[
+        "readings", "--format", "csv", "--units", "kpa", "--sample", "K1",
+    ]);
+    assert!(kpa.contains(",33,0.30000000000000004,"), "{kpa}");
+    assert!(kpa.contains(",1500.123456789,"), "{kpa}");
+    let pf = s.list(&[
+        "readings", "--format", "csv", "--units", "pf", "--sample", "P1",
+    ]);
+    assert!(
+        pf.contains(",-inf,0.5,") && pf.contains(",2.52699,"),
+        "{pf}"
+    );
+    // `-inf` means saturation in a pF column only.
+    let bad = s.write(
+        "inf-kpa.csv",
+        "site,top_cm,bottom_cm,sample,method,suction_kpa,theta
+U,0,12.5,K2,plate,-inf,0.4
+",
+    );
+    s.refused(
+        "lab",
+        &[&bad],
+        &[],
+        &["inf-kpa.csv:2:suction_kpa: found \"-inf\", expected a finite number"],
+        1,
+    );
 }
 
 #[test]
@@ -729,4 +858,54 @@ fn usage_errors_exit_2_and_every_command_has_an_example() {
     }
     let version = stdout(&porewise().arg("--version").assert().success());
     assert!(version.starts_with("porewise "), "{version}");
+}
+
+#[test]
+fn the_oven_dry_suction_imports_in_every_unit_and_nothing_drier() {
+    // 10^6 kPa, oven-dry soil, the dry end of Fredlund & Xing (1994): 1.0197e7 cm, pF 7.008479.
+    let cases = [
+        ("suction_kpa", "1000000"),
+        ("suction_mpa", "1000"),
+        ("suction_bar", "10000"),
+        ("suction_hpa", "1e7"),
+        ("suction_cm", "10197162.12"),
+        ("pf", "7.008479"),
+    ];
+    let s = Scratch::new();
+    let mut files = Vec::new();
+    for (column, value) in cases {
+        let text = format!(
+            "site,top_cm,bottom_cm,sample,method,{column},theta\nU,0,10,{column},oven,{value},0\n"
+        );
+        files.push(s.write(&format!("{column}.csv"), &text));
+    }
+    let refs: Vec<&str> = files.iter().map(String::as_str).collect();
+    s.import_ok("lab", &refs);
+    let conn = s.connect();
+    let h_dry = porewise::model::retention::fredlund_xing::H_DRY_CM;
+    for (column, _) in cases {
+        let h: f64 = conn
+            .query_row(
+                "SELECT r.h_cm FROM reading r JOIN sample m ON r.sample_id = m.id
+                 WHERE m.code = ?1",
+                [column],
+                |r| r.get(0),
+            )
+            .expect("stored");
+        assert!(((h - h_dry) / h_dry).abs() < 1e-6, "{column}: {h}");
+    }
+    let drier = s.write(
+        "drier.csv",
+        "site,top_cm,bottom_cm,sample,method,suction_kpa,theta\nU,0,10,D,oven,1000001,0\n",
+    );
+    s.refused(
+        "lab",
+        &[&drier],
+        &[],
+        &[
+            "drier.csv:2:suction_kpa: found \"1000001\", expected a suction of at most 10^6 kPa \
+           = 1.0197e7 cm (pF 7.01, oven dry)",
+        ],
+        1,
+    );
 }

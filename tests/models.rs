@@ -4,7 +4,11 @@
 //! Outside values come from `tests/data/reference/soil_reference_tables.json` (see the README
 //! there): Carsel & Parrish (1988) parameters (from memory, high) with values computed
 //! independently (mpmath, 50 digits), tables T1, T2, T3 and T9 of the project's reference notes.
-#![allow(clippy::float_cmp, clippy::unreadable_literal)]
+#![allow(
+    clippy::float_cmp,
+    clippy::unreadable_literal,
+    clippy::excessive_precision
+)]
 
 use std::sync::OnceLock;
 
@@ -380,10 +384,10 @@ fn free_m_van_genuchten_matches_the_burdine_set_of_table_t9() {
         1e-9,
         "linear-h inflection",
     );
-    // No closed-form conductivity with free m.
+    // Mualem's conductivity with free m goes through the incomplete beta function.
     assert_eq!(
         ConductivityModel::for_model(ModelKind::VanGenuchtenFreeM),
-        None
+        Some(ConductivityModel::MualemVanGenuchtenFreeM)
     );
 }
 
@@ -755,6 +759,269 @@ fn guesses_never_panic_on_odd_readings() {
             .collect();
         for kind in porewise::model::retention::ModelKind::ALL {
             let _ = kind.curve().initial_guesses(&x, &y);
+        }
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Relative precision far from saturation.
+
+#[test]
+fn effective_saturation_keeps_its_relative_precision_far_from_saturation() {
+    // mpmath 1.3.0, 50 digits (tests/data/high_precision.py), from the published formulas
+    // with these (invented) parameters passed as the same doubles. Computed from theta as
+    // (theta - theta_r) / (theta_s - theta_r), the first ones would be 0 or noise.
+    let cases: [(ModelKind, &[f64], f64, f64); 10] = [
+        (
+            ModelKind::VanGenuchten,
+            &[0.05, 0.4, 0.05, 5.0],
+            1e6,
+            1.5999999999999958008e-19,
+        ),
+        (
+            ModelKind::VanGenuchten,
+            &[0.05, 0.4, 0.02, 1.5],
+            1e5,
+            0.022360596442285678556,
+        ),
+        (
+            ModelKind::VanGenuchtenFreeM,
+            &[0.05, 0.4, 0.02, 3.0, 2.0],
+            1e5,
+            1.5624999996093748049e-20,
+        ),
+        (
+            ModelKind::BrooksCorey,
+            &[0.05, 0.4, 10.0, 3.0],
+            1e7,
+            1.0e-18,
+        ),
+        (
+            ModelKind::Kosugi,
+            &[0.05, 0.4, 100.0, 0.8],
+            1e6,
+            5.6779792968410468465e-31,
+        ),
+        (
+            ModelKind::Kosugi,
+            &[0.05, 0.4, 100.0, 1.5],
+            1e5,
+            2.060643395971720144e-6,
+        ),
+        (
+            ModelKind::FredlundXing,
+            &[0.4, 100.0, 3.0, 2.0, 1500.0],
+            1e7,
+            1.8544115809663184651e-6,
+        ),
+        (
+            ModelKind::FredlundXing,
+            &[0.4, 100.0, 3.0, 2.0, 1500.0],
+            H_DRY_CM - 1.0,
+            9.2827950121522074367e-12,
+        ),
+        (
+            ModelKind::Durner,
+            &[0.05, 0.4, 0.4, 0.1, 3.0, 0.005, 4.0],
+            1e6,
+            4.479999999999986262e-11,
+        ),
+        (ModelKind::Campbell, &[0.4, 5.0, 0.5], 1e7, 2.5e-13),
+    ];
+    for (kind, p, h, want) in cases {
+        let curve = RetentionCurve::new(kind, p.to_vec()).expect("valid parameters");
+        assert_rel(
+            curve.effective_saturation(h),
+            want,
+            1e-13,
+            &format!("{kind} Se({h})"),
+        );
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Mualem's integral, evaluated numerically: an independent check of the closed forms.
+
+/// int_lo^hi f(s) ds by tanh-sinh (double exponential) quadrature (Takahasi & Mori 1974),
+/// which copes with integrable singularities at the ends; `f` gets s and its distance to the
+/// upper end (hi - s), computed without cancellation near it.
+fn tanh_sinh(lo: f64, hi: f64, f: impl Fn(f64, f64) -> f64) -> f64 {
+    use std::f64::consts::FRAC_PI_2;
+    let half = 0.5 * (hi - lo);
+    let mut previous = f64::NAN;
+    let mut sum = 0.0;
+    // The trapezoidal rule in t with step 1, then halved: each level adds the new nodes only.
+    for level in 0..12 {
+        let step = 0.5_f64.powi(level);
+        let (mut k, stride) = if level == 0 { (0, 1) } else { (1, 2) };
+        loop {
+            let t = f64::from(k) * step;
+            // x = tanh(u) >= 0; near = 1 - x without cancellation; weight dx/dt.
+            let u = FRAC_PI_2 * t.sinh();
+            let e = (-2.0 * u).exp();
+            let near = 2.0 * e / (1.0 + e);
+            let w = FRAC_PI_2 * t.cosh() / u.cosh().powi(2);
+            if near == 0.0 || w * half < 1e-300 {
+                break;
+            }
+            // The node at +x (close to hi) and, for t > 0, its mirror at -x (close to lo).
+            let mut node = |to_lo: f64, to_hi: f64| {
+                let v = f(lo + to_lo, to_hi);
+                if v.is_finite() {
+                    sum += w * v;
+                }
+            };
+            node(half * (2.0 - near), half * near);
+            if k != 0 {
+                node(half * near, half * (2.0 - near));
+            }
+            k += stride;
+        }
+        let estimate = sum * step * half;
+        if (estimate - previous).abs() <= 1e-15 * estimate.abs() {
+            return estimate;
+        }
+        previous = estimate;
+    }
+    previous
+}
+
+/// Kr of Mualem (1976) for van Genuchten's curve with m free, by quadrature of
+/// Se^L [int_0^Se dS / h(S) / int_0^1 dS / h(S)]^2 with 1/h(S) proportional to
+/// (S^(-1/m) - 1)^(-1/n) (alpha cancels).
+fn mualem_by_quadrature(h: f64, alpha: f64, n: f64, m: f64, l: f64) -> f64 {
+    let ln_b = (alpha * h).powf(n).ln_1p();
+    let se = (-m * ln_b).exp();
+    let one_minus_se = -(-m * ln_b).exp_m1();
+    // S^(-1/m) - 1 from ln S, taken from 1 - S near 1 where that is the exact one.
+    let inv_h = |s: f64, one_minus: f64| {
+        let ln_s = if one_minus < 0.5 {
+            (-one_minus).ln_1p()
+        } else {
+            s.ln()
+        };
+        (-ln_s / m).exp_m1().powf(-1.0 / n)
+    };
+    let num = tanh_sinh(0.0, se, |s, to_hi| inv_h(s, one_minus_se + to_hi));
+    let den = tanh_sinh(0.0, 1.0, inv_h);
+    se.powf(l) * (num / den).powi(2)
+}
+
+#[test]
+fn mualem_free_m_closed_form_matches_high_precision_values() {
+    // mpmath 1.3.0, 50 digits, by quadrature of Mualem's integral in Se
+    // (tests/data/high_precision.py). The first is also the value the review gave
+    // (0.00852468914138).
+    let cases = [
+        (100.0, [0.02, 1.5, 0.3], 0.0085246891413815262158),
+        (1.0, [0.02, 1.5, 0.3], 0.74071994270221618678),
+        (1e4, [0.02, 1.5, 0.3], 7.4319803675642231084e-9),
+        (50.0, [0.05, 3.0, 2.0], 3.5162118734305423497e-8),
+    ];
+    for (h, [alpha, n, m], want) in cases {
+        let p = [0.05, 0.4, alpha, n, m];
+        let kr = ConductivityModel::MualemVanGenuchtenFreeM
+            .relative(h, &p, 0.5)
+            .expect("Kr");
+        assert_rel(
+            kr,
+            want,
+            1e-12,
+            &format!("Kr({h}) alpha {alpha} n {n} m {m}"),
+        );
+    }
+    let kr = ConductivityModel::MualemVanGenuchtenFreeM
+        .relative(100.0, &[0.05, 0.4, 0.02, 1.5, 0.3], 0.5)
+        .expect("Kr");
+    assert!((kr - 0.00852468914138).abs() < 1e-14, "{kr}");
+}
+
+#[test]
+fn mualem_free_m_closed_form_matches_numerical_integration() {
+    let mut worst: f64 = 0.0;
+    for &(alpha, n, m) in &[
+        (0.02, 1.5, 0.3),
+        (0.02, 1.2, 0.9),
+        (0.1, 2.5, 0.4),
+        (0.005, 4.0, 1.5),
+        (0.05, 1.1, 0.05),
+        (0.01, 8.0, 3.0),
+    ] {
+        for h in [0.5, 10.0, 100.0, 1000.0, 15000.0] {
+            for l in [0.5, -1.0] {
+                let p = [0.05, 0.4, alpha, n, m];
+                let kr = ConductivityModel::MualemVanGenuchtenFreeM
+                    .relative(h, &p, l)
+                    .expect("Kr");
+                let q = mualem_by_quadrature(h, alpha, n, m, l);
+                let rel = (kr - q).abs() / q;
+                worst = worst.max(rel);
+                assert!(
+                    rel < 1e-10,
+                    "alpha {alpha} n {n} m {m} h {h} L {l}: closed form {kr:e}, quadrature {q:e}"
+                );
+            }
+        }
+    }
+    println!("largest relative difference from the quadrature: {worst:e}");
+}
+
+#[test]
+fn mualem_free_m_with_m_one_minus_one_over_n_is_van_genuchten() {
+    for (alpha, n) in [(0.036, 1.56), (0.145, 2.68), (0.008, 1.09)] {
+        let m = 1.0 - 1.0 / n;
+        for h in [1.0, 30.0, 330.0, 15000.0] {
+            let free = ConductivityModel::MualemVanGenuchtenFreeM
+                .relative(h, &[0.05, 0.4, alpha, n, m], 0.5)
+                .expect("Kr");
+            let restricted =
+                relative_conductivity(ModelKind::VanGenuchten, h, &[0.05, 0.4, alpha, n], 0.5)
+                    .expect("Kr");
+            assert_rel(
+                free,
+                restricted,
+                1e-12,
+                &format!("alpha {alpha} n {n} h {h}"),
+            );
+        }
+    }
+}
+
+#[test]
+fn mualem_brooks_corey_matches_numerical_integration() {
+    // 1/h(S) = S^(1/lambda) / h_b for Brooks-Corey; Mualem's ratio of integrals by quadrature.
+    let (h_b, lambda) = (7.26, 0.592);
+    let inv_h = |s: f64| s.powf(1.0 / lambda) / h_b;
+    let den = tanh_sinh(0.0, 1.0, |s, _| inv_h(s));
+    for h in [10.0, 100.0, 1000.0, 15000.0] {
+        let se = (h_b / h).powf(lambda);
+        let num = tanh_sinh(0.0, se, |s, _| inv_h(s));
+        let want = se.sqrt() * (num / den).powi(2);
+        let kr = ConductivityModel::MualemBrooksCorey
+            .relative(h, &[0.02, 0.437, h_b, lambda], 0.5)
+            .expect("Kr");
+        assert_rel(kr, want, 1e-12, &format!("Kr({h})"));
+    }
+}
+
+#[test]
+fn mualem_free_m_is_bounded_and_decreasing_over_the_parameter_space() {
+    for alpha in [1e-4, 0.02, 2.0] {
+        for n in [1.001, 1.05, 1.5, 3.0, 14.0] {
+            for m in [0.001, 0.1, 1.0, 9.0] {
+                let p = [0.05, 0.4, alpha, n, m];
+                let mut last = 1.0;
+                for h in log_grid(1e-6, 1.1e7, 8) {
+                    let kr = ConductivityModel::MualemVanGenuchtenFreeM
+                        .relative(h, &p, 0.5)
+                        .unwrap_or_else(|| panic!("no Kr at {h} for {p:?}"));
+                    assert!(
+                        (0.0..=1.0).contains(&kr) && kr <= last * (1.0 + 1e-12),
+                        "Kr({h}) = {kr} after {last} for {p:?}"
+                    );
+                    last = kr;
+                }
+            }
         }
     }
 }

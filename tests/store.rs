@@ -281,7 +281,9 @@ fn a_version_1_file_upgrades_with_its_data_intact() {
         })
         .expect("rev")
     };
+    // Version 6 rebuilt the reading table: the copy fired no trigger (no revision moved).
     let before = rev(conn);
+    assert_eq!(before, 0);
     conn.execute(
         "INSERT INTO reading (uid, sample_id, h_cm, theta)
          VALUES ('00000000-0000-4000-8000-000000000005', 1, 1000.0, 0.25)",
@@ -289,6 +291,30 @@ fn a_version_1_file_upgrades_with_its_data_intact() {
     )
     .expect("insert");
     assert_eq!(rev(conn), before + 1);
+    // Version 6: a reading at the oven-dry suction, 10^6 kPa (Fredlund & Xing 1994), is
+    // stored; one beyond it is not. The flag still points at its reading.
+    conn.execute(
+        "INSERT INTO reading (uid, sample_id, h_cm, theta)
+         VALUES ('00000000-0000-4000-8000-000000000006', 1, ?1, 0.0)",
+        [porewise::model::retention::fredlund_xing::H_DRY_CM],
+    )
+    .expect("oven-dry reading");
+    assert!(
+        conn.execute(
+            "INSERT INTO reading (uid, sample_id, h_cm, theta)
+             VALUES ('00000000-0000-4000-8000-000000000007', 1, 1.1e7, 0.0)",
+            [],
+        )
+        .is_err()
+    );
+    let flagged: i64 = conn
+        .query_row("SELECT reading_id FROM flag", [], |r| r.get(0))
+        .expect("flag");
+    assert_eq!(flagged, 1);
+    let fk: i64 = conn
+        .pragma_query_value(None, "foreign_keys", |r| r.get(0))
+        .expect("pragma");
+    assert_eq!(fk, 1, "foreign keys back on after the upgrade");
     // Version 3: the old flag has its decision in the audit trail, and new changes add events.
     let trail = store::flags::events(conn, 1).expect("events");
     assert_eq!(trail.len(), 1, "{trail:?}");

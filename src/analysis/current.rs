@@ -6,6 +6,7 @@ use std::collections::HashMap;
 use rusqlite::Connection;
 
 use super::water::{FitDerived, derive_fit};
+use crate::model::conductivity::ConductivityForm;
 use crate::store::fits::{self, FitState, SampleInfo, Selection, StoredFit};
 use crate::store::{CampaignSettings, Result, layers};
 
@@ -31,6 +32,20 @@ pub fn sample_fits(
     settings: &CampaignSettings,
     selection: &Selection,
 ) -> Result<Vec<SampleFit>> {
+    sample_fits_with(conn, settings, selection, None)
+}
+
+/// As [`sample_fits`], with the derived conductivity in `conductivity` form where a model has
+/// it (`None`: the form recorded with each fit).
+///
+/// # Errors
+/// As [`sample_fits`].
+pub fn sample_fits_with(
+    conn: &Connection,
+    settings: &CampaignSettings,
+    selection: &Selection,
+    conductivity: Option<ConductivityForm>,
+) -> Result<Vec<SampleFit>> {
     let samples = fits::samples(conn, selection)?;
     let summaries = fits::summaries(conn, &samples)?;
     let ks: HashMap<i64, Option<f64>> = layers::list(conn, selection.site.as_deref())?
@@ -43,10 +58,14 @@ pub fn sample_fits(
             .get(&sample.id)
             .map_or(FitState::None, |s| s.state.clone());
         let fit = fits::current(conn, sample.id)?;
-        let derived = fit
-            .as_ref()
-            .and_then(|f| f.report.as_ref())
-            .and_then(|r| derive_fit(r, settings, ks.get(&sample.layer_id).copied().flatten()));
+        let derived = fit.as_ref().and_then(|f| {
+            derive_fit(
+                f.report.as_ref()?,
+                settings,
+                ks.get(&sample.layer_id).copied().flatten(),
+                conductivity.or(f.conductivity),
+            )
+        });
         out.push(SampleFit {
             sample,
             state,

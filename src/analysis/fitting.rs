@@ -11,6 +11,7 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 use rayon::prelude::*;
 
 use crate::fit::{AutoFit, FitOptions, FitReport, Readings, fit_auto, fit_model};
+use crate::model::conductivity::ConductivityForm;
 use crate::model::retention::ModelKind;
 use crate::store::fits::{self, FitInput, NewFit, Ranking, Selection};
 use crate::store::{Campaign, StoreError};
@@ -162,6 +163,23 @@ pub fn fit_campaign(
     options: &FitOptions,
     progress: &(dyn Fn(usize, usize) + Sync),
 ) -> Result<FitRunSummary, StoreError> {
+    fit_campaign_with(campaign, selection, choice, options, None, progress)
+}
+
+/// As [`fit_campaign`], recording with every fit the conductivity form asked for (`None`:
+/// the model's usual pairing), which its derived conductivity then uses where the model has
+/// that form.
+///
+/// # Errors
+/// As [`fit_campaign`].
+pub fn fit_campaign_with(
+    campaign: &mut Campaign,
+    selection: &Selection,
+    choice: ModelChoice,
+    options: &FitOptions,
+    conductivity: Option<ConductivityForm>,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<FitRunSummary, StoreError> {
     let tx = campaign.transaction()?;
     selection.check(&tx)?;
     let inputs = fits::inputs(&tx, selection)?;
@@ -191,6 +209,7 @@ pub fn fit_campaign(
                 report: attempt.report.as_ref(),
                 ranking: ranking.as_ref(),
                 failure: failure.as_deref(),
+                conductivity,
             },
         )?;
         match failure {

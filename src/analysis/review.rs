@@ -8,9 +8,10 @@
 
 use std::collections::{BTreeMap, HashMap, HashSet};
 
-use super::fitting::{FitRunSummary, ModelChoice, fit_campaign};
+use super::fitting::{FitRunSummary, ModelChoice, fit_campaign_with};
 use crate::fit::FitOptions;
 use crate::fit::outliers::{Noise, OutlierOptions, OutlierSample, review};
+use crate::model::conductivity::ConductivityForm;
 use crate::model::domain::{Branch, FlagOrigin, FlagStatus, FlagTarget};
 use crate::model::retention::ModelKind;
 use crate::store::fits::{self, Selection};
@@ -315,19 +316,25 @@ fn sample_of(conn: &rusqlite::Connection, reading: i64) -> Result<i64> {
         .query_row([reading], |r| r.get(0))?)
 }
 
-/// Refit samples (database ids) through [`fit_campaign`], each with what its current fit
-/// asked for (a model or `auto`, and its fixed parameters), `auto` when it has none.
+/// Refit samples (database ids) through [`fit_campaign_with`], each with what its current fit
+/// asked for (a model or `auto`, its fixed parameters and conductivity form), `auto` when it
+/// has none.
 ///
 /// # Errors
 /// An SQLite error.
 pub fn refit_samples(campaign: &mut Campaign, sample_ids: &[i64]) -> Result<FitRunSummary> {
+    type Group = (
+        ModelChoice,
+        FitOptions,
+        Option<ConductivityForm>,
+        Vec<String>,
+    );
     let wanted: HashSet<i64> = sample_ids.iter().copied().collect();
     if wanted.is_empty() {
         return Ok(FitRunSummary::default());
     }
-    // Group the samples by (requested model, fixed values) so each group is one run.
-    let mut groups: BTreeMap<(String, String), (ModelChoice, FitOptions, Vec<String>)> =
-        BTreeMap::new();
+    // Group the samples by (requested model, fixed values, conductivity) so each group is one run.
+    let mut groups: BTreeMap<(String, String, Option<ConductivityForm>), Group> = BTreeMap::new();
     for sample in fits::samples(campaign.connection(), &Selection::all())? {
         if !wanted.contains(&sample.id) {
             continue;
@@ -338,6 +345,7 @@ pub fn refit_samples(campaign: &mut Campaign, sample_ids: &[i64]) -> Result<FitR
             .and_then(|f| f.requested.as_deref())
             .and_then(|r| r.parse::<ModelChoice>().ok())
             .unwrap_or_default();
+        let conductivity = current.as_ref().and_then(|f| f.conductivity);
         let fixed = current.map(|f| f.fixed).unwrap_or_default();
         let key = (
             choice.to_string(),
@@ -346,22 +354,30 @@ pub fn refit_samples(campaign: &mut Campaign, sample_ids: &[i64]) -> Result<FitR
                 .map(|(n, v)| format!("{n}={v}"))
                 .collect::<Vec<_>>()
                 .join(","),
+            conductivity,
         );
         let entry = groups.entry(key).or_insert_with(|| {
             let options = fixed
                 .iter()
                 .fold(FitOptions::new(), |o, (n, v)| o.with_fixed(n, *v));
-            (choice, options, Vec::new())
+            (choice, options, conductivity, Vec::new())
         });
-        entry.2.push(sample.code);
+        entry.3.push(sample.code);
     }
     let mut summary = FitRunSummary::default();
-    for (choice, options, codes) in groups.into_values() {
+    for (choice, options, conductivity, codes) in groups.into_values() {
         let selection = Selection {
             samples: codes,
             ..Selection::default()
         };
-        let run = fit_campaign(campaign, &selection, choice, &options, &|_, _| {})?;
+        let run = fit_campaign_with(
+            campaign,
+            &selection,
+            choice,
+            &options,
+            conductivity,
+            &|_, _| {},
+        )?;
         summary.fitted.extend(run.fitted);
         summary.failed.extend(run.failed);
     }

@@ -12,7 +12,7 @@ use rusqlite::Connection;
 use serde::Serialize;
 
 use crate::fit::FitReport;
-use crate::model::conductivity::{DEFAULT_PORE_CONNECTIVITY, conductivity};
+use crate::model::conductivity::{ConductivityForm, ConductivityModel, DEFAULT_PORE_CONNECTIVITY};
 use crate::model::derived::{DerivedValues, derive};
 use crate::model::domain::{LayerRef, SampleKind};
 use crate::model::retention::{ModelKind, RetentionCurve};
@@ -31,6 +31,8 @@ pub struct FitDerived {
     pub values: DerivedValues,
     /// Saturated conductivity of the sample's layer, cm/day, when known.
     pub ks_cm_per_day: Option<f64>,
+    /// The conductivity model of the K values (`None` for a model without a closed form).
+    pub conductivity_model: Option<ConductivityModel>,
     /// K at field capacity, cm/day (needs Ks and a model with a conductivity form).
     pub k_field_capacity_cm_per_day: Option<f64>,
     /// K at the wilting point, cm/day.
@@ -43,28 +45,41 @@ pub fn curve_of(report: &FitReport) -> Option<RetentionCurve> {
     RetentionCurve::new(kind, report.values()).ok()
 }
 
-/// Derived values of a fit under the campaign's field capacity and wilting point.
+/// The conductivity model for a fit of `kind` with the form asked for: that form where the
+/// model has it (Brooks-Corey has Burdine's and Mualem's), otherwise the model's usual pairing.
+pub fn conductivity_model_for(
+    kind: ModelKind,
+    form: Option<ConductivityForm>,
+) -> Option<ConductivityModel> {
+    ConductivityModel::select(kind, form)
+        .or_else(|_| ConductivityModel::select(kind, None))
+        .ok()
+}
+
+/// Derived values of a fit under the campaign's field capacity and wilting point; the
+/// conductivity in the form asked for (see [`conductivity_model_for`]).
 pub fn derive_fit(
     report: &FitReport,
     settings: &CampaignSettings,
     ks_cm_per_day: Option<f64>,
+    form: Option<ConductivityForm>,
 ) -> Option<FitDerived> {
     let curve = curve_of(report)?;
     let values = derive(&curve, settings.fc_kpa, settings.pwp_kpa);
+    let model = conductivity_model_for(curve.kind(), form);
     let k_at = |kpa: f64| {
-        ks_cm_per_day.and_then(|ks| {
-            conductivity(
-                curve.kind(),
-                kpa * CM_PER_KPA,
-                curve.params(),
-                ks,
-                DEFAULT_PORE_CONNECTIVITY,
-            )
-        })
+        let (model, ks) = (model?, ks_cm_per_day?);
+        model.conductivity(
+            kpa * CM_PER_KPA,
+            curve.params(),
+            ks,
+            DEFAULT_PORE_CONNECTIVITY,
+        )
     };
     Some(FitDerived {
         values,
         ks_cm_per_day,
+        conductivity_model: model,
         k_field_capacity_cm_per_day: k_at(settings.fc_kpa),
         k_wilting_point_cm_per_day: k_at(settings.pwp_kpa),
     })
@@ -168,7 +183,7 @@ pub fn profiles(
             let aw = fit
                 .report
                 .as_ref()
-                .and_then(|r| derive_fit(r, settings, None))
+                .and_then(|r| derive_fit(r, settings, None, None))
                 .and_then(|d| d.values.plant_available_water);
             let Some(aw) = aw else { continue };
             match s.kind {

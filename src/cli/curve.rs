@@ -7,6 +7,7 @@ use anyhow::Context;
 use clap::Args;
 
 use crate::error::Outcome;
+use crate::model::conductivity::ConductivityForm;
 use crate::model::retention::{ModelKind, RetentionCurve, parse_assignment};
 use crate::model::units::SuctionUnit;
 use crate::report::curve_table::{
@@ -25,7 +26,10 @@ fn after_help() -> String {
         let _ = writeln!(text, "  {:<22}{}", kind.id(), names.join(","));
     }
     text.push_str(
-        "\nEmpty cells mark values that do not apply (C(h) at a Brooks-Corey or Campbell break \
+        "\nWith Ks the table adds Kr, K and the conductivity model used: Mualem (1976) for the van\n\
+         Genuchten family, Kosugi and Durner, Burdine (1953) for Brooks-Corey unless\n\
+         --conductivity mualem, Campbell's own form for Campbell; none for Fredlund-Xing.\n\
+         \nEmpty cells mark values that do not apply (C(h) at a Brooks-Corey or Campbell break \
          point).\nCurves beyond the measured suction range are extrapolations; design uses \
          (irrigation,\nslope stability, covers) defer to local codes and licensed practice.",
     );
@@ -75,6 +79,15 @@ pub struct CurveArgs {
         allow_negative_numbers = true
     )]
     pub pore_connectivity: Option<f64>,
+
+    /// Conductivity model: mualem or burdine (Brooks-Corey has both, Burdine by default; the
+    /// van Genuchten family, Kosugi and Durner have Mualem's). The table names the one used.
+    #[arg(long, value_name = "FORM", requires = "ks_cm_per_day", value_parser = parse_form)]
+    pub conductivity: Option<ConductivityForm>,
+}
+
+fn parse_form(s: &str) -> Result<ConductivityForm, String> {
+    s.parse()
 }
 
 /// Run `porewise curve`: print the table as CSV on stdout.
@@ -99,9 +112,10 @@ pub fn run(args: &CurveArgs) -> anyhow::Result<Outcome> {
     };
     let spec = args
         .ks_cm_per_day
-        .map(|ks| ConductivitySpec::new(kind, ks, args.pore_connectivity))
+        .map(|ks| ConductivitySpec::new(kind, ks, args.pore_connectivity, args.conductivity))
         .transpose()?;
     let rows = curve_rows(&curve, &suctions, spec);
-    write_curve_csv(io::stdout().lock(), &rows, spec.is_some()).context("writing the table")?;
+    write_curve_csv(io::stdout().lock(), &rows, spec.map(|s| s.model))
+        .context("writing the table")?;
     Ok(Outcome::Success)
 }

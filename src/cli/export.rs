@@ -1,6 +1,7 @@
 //! `porewise export`: write the campaign summary (tables, JSON, GeoJSON, HTML report) into a
 //! folder.
 
+use crate::model::conductivity::ConductivityForm;
 use std::path::PathBuf;
 
 use anyhow::Context;
@@ -43,6 +44,14 @@ pub struct ExportArgs {
     /// The depth down to which profile available water is summed, cm.
     #[arg(long, value_name = "CM", default_value_t = DEFAULT_ROOT_ZONE_CM)]
     pub root_zone_cm: f64,
+    /// Conductivity form for K values where a fit's model has it (Brooks-Corey: burdine or
+    /// mualem); default: the form each fit was made with. campaign.json names the model used.
+    #[arg(long, value_name = "FORM", value_parser = parse_form)]
+    pub conductivity: Option<ConductivityForm>,
+}
+
+fn parse_form(s: &str) -> Result<ConductivityForm, String> {
+    s.parse()
 }
 
 fn parse_format(s: &str) -> Result<ExportFormat, String> {
@@ -60,7 +69,8 @@ pub fn run(args: &ExportArgs) -> anyhow::Result<Outcome> {
     let options = ExportOptions::new(&args.to)
         .with_formats(&args.format)
         .with_site(args.site.clone())
-        .with_root_zone_cm(args.root_zone_cm);
+        .with_root_zone_cm(args.root_zone_cm)
+        .with_conductivity(args.conductivity);
     let bar = ProgressBar::new(0).with_style(
         ProgressStyle::with_template("exporting {bar:30} {pos}/{len}")
             .unwrap_or_else(|_| ProgressStyle::default_bar()),

@@ -8,11 +8,12 @@ use rayon::prelude::*;
 
 use indicatif::{ProgressBar, ProgressStyle};
 
-use crate::analysis::{ModelChoice, fit_campaign, fit_choice};
+use crate::analysis::{ModelChoice, fit_campaign_with, fit_choice};
 use crate::error::Outcome;
 use crate::fit::outliers::{OutlierOptions, OutlierSample, review};
 use crate::fit::{FitOptions, Readings};
 use crate::import::pairs::{PairSample, PairsFile, read_pairs_path};
+use crate::model::conductivity::{ConductivityForm, ConductivityModel};
 use crate::model::domain::LayerRef;
 use crate::model::number::plural;
 use crate::model::retention::{ModelKind, parse_assignment};
@@ -28,6 +29,7 @@ Examples:
   porewise fit spring.sqlite --site LEV1 --model brooks-corey --fix theta_r=0
   porewise fit --input lab.csv --model auto --fix theta_r=0 --output fits.csv
   porewise fit --input lab.csv --flag-outliers --flags-output suspects.csv
+  porewise fit spring.sqlite --model brooks-corey --conductivity mualem
 
 With a campaign file, each new fit becomes its sample's current one (older fits stay as
 history: porewise list DB fits --sample CODE --all); a failed refit is recorded with its
@@ -80,6 +82,14 @@ pub struct FitArgs {
     /// (sample,line,suction_cm,theta,reason,score; line = physical line of the input).
     #[arg(long, value_name = "FILE", requires = "flag_outliers")]
     pub flags_output: Option<PathBuf>,
+    /// With DB: the conductivity form recorded with each fit and used for its derived K where
+    /// the model has it (Brooks-Corey: burdine, the default, or mualem); the export names it.
+    #[arg(long, value_name = "FORM", requires = "db", value_parser = parse_form)]
+    pub conductivity: Option<ConductivityForm>,
+}
+
+fn parse_form(s: &str) -> Result<ConductivityForm, String> {
+    s.parse()
 }
 
 fn parse_layer(s: &str) -> Result<LayerRef, String> {
@@ -104,11 +114,16 @@ fn run_campaign(
         ProgressStyle::with_template("fitting {bar:30} {pos}/{len} samples ({eta} left)")
             .unwrap_or_else(|_| ProgressStyle::default_bar()),
     );
-    let summary = fit_campaign(
+    if let (ModelChoice::One(kind), Some(form)) = (choice, args.conductivity) {
+        ConductivityModel::select(kind, Some(form))
+            .map_err(|e| anyhow::anyhow!("--conductivity {form}: {e}"))?;
+    }
+    let summary = fit_campaign_with(
         &mut campaign,
         &selection,
         choice,
         options,
+        args.conductivity,
         &|done, total| {
             bar.set_length(total as u64);
             bar.set_position(done as u64);
@@ -293,6 +308,12 @@ pub fn run(args: &FitArgs) -> anyhow::Result<Outcome> {
     let options = fixes(args, choice)?;
     if let Some(db) = &args.db {
         return run_campaign(args, db, choice, &options);
+    }
+    if args.conductivity.is_some() {
+        bail!(
+            "--conductivity applies to the fits of a campaign (porewise fit DB), whose derived \
+             conductivity uses it; a plain file's fits have no conductivity values"
+        );
     }
     let Some(input) = &args.input else {
         bail!(

@@ -1335,10 +1335,13 @@ fn build_report(
             .and_then(|c| cov.as_ref().map(|m| m[(c, c)]))
             .filter(|v| v.is_finite() && *v >= 0.0)
             .map(f64::sqrt);
-        let ci95 = match (se, t) {
-            (Some(se), Some(t)) => Some([value - t * se, value + t * se]),
-            _ => None,
-        };
+        let interval = stats::interval95(value, se, t, stats::positive_scale(spec));
+        let kink = (setup.breakpoint == Some(j) && setup.fixed[j].is_none())
+            .then(|| stats::kink_suction(value, ctx.data.x))
+            .flatten();
+        if let Some(h) = kink {
+            notes.push(stats::kink_note(spec.name, h));
+        }
         if let Some(side) = best.pinned[j] {
             let bound = if side == Side::Lower {
                 setup.lower[j]
@@ -1360,7 +1363,9 @@ fn build_report(
             unit: spec.unit.to_string(),
             value,
             se,
-            ci95,
+            ci95: interval.map(|i| i.0),
+            ci95_scale: interval.map(|i| i.1),
+            kink_cm: kink,
             fixed: setup.fixed[j].is_some(),
             at_bound: best.pinned[j],
         });
@@ -1441,6 +1446,7 @@ fn build_report(
         bic,
         n_points: n,
         n_free_params: k,
+        n_criteria_params: stats::criteria_parameters(k),
         converged,
         message: (!problems.is_empty()).then(|| problems.join("; ")),
         termination: best.termination,

@@ -9,6 +9,7 @@ use super::error::FitError;
 use super::projection;
 use super::report::FitReport;
 use super::search::{Axis, Factored, Mixture, MixtureGrid, PowerLaw, log_values};
+use super::stats::min_points_for_aicc;
 use crate::model::retention::fredlund_xing::{self, H_DRY_CM};
 use crate::model::retention::{ModelKind, van_genuchten};
 
@@ -365,8 +366,8 @@ impl AutoFit {
     }
 }
 
-/// Fit every model in `kinds` that the readings allow (more readings than free parameters + 1,
-/// so AICc exists) and rank the converged fits by AICc.
+/// Fit every model in `kinds` that the readings allow (more readings than free parameters + 2,
+/// so AICc, which counts the error variance too, exists) and rank the converged fits by AICc.
 ///
 /// Fixed values in `options` apply to the models that have those parameters.
 pub fn fit_auto(kinds: &[ModelKind], readings: &Readings<'_>, options: &FitOptions) -> AutoFit {
@@ -381,12 +382,12 @@ pub fn fit_auto(kinds: &[ModelKind], readings: &Readings<'_>, options: &FitOptio
             .iter()
             .filter(|s| !options.fixed.iter().any(|(name, _)| name == s.name))
             .count();
-        if n < free + 2 {
+        if n < min_points_for_aicc(free) {
             skipped.push(SkippedModel {
                 model: kind.id().to_string(),
                 reason: format!(
                     "{n} readings for {free} free parameters: auto needs at least {}",
-                    free + 2
+                    min_points_for_aicc(free)
                 ),
             });
             continue;

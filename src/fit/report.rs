@@ -55,6 +55,26 @@ impl std::fmt::Display for Termination {
     }
 }
 
+/// The scale a 95 % interval was formed on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum IntervalScale {
+    /// value -+ t se.
+    Linear,
+    /// exp(ln value -+ t se / value): the Wald interval of ln p (delta method), for positive
+    /// scale parameters (suctions and inverse suctions), so it never includes impossible values.
+    Log,
+}
+
+impl std::fmt::Display for IntervalScale {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            IntervalScale::Linear => "linear scale",
+            IntervalScale::Log => "log scale",
+        })
+    }
+}
+
 /// One parameter's estimate.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct ParamEstimate {
@@ -67,8 +87,19 @@ pub struct ParamEstimate {
     /// Standard error sqrt(Cov_kk); `None` when fixed, on a bound, with no degrees of freedom
     /// or with a singular Jacobian.
     pub se: Option<f64>,
-    /// 95 % confidence interval value -+ t(0.975, dof) * se (Student t), when se is known.
+    /// 95 % Wald interval with t(0.975, dof) (Student t), when se is known; on the scale
+    /// `ci95_scale` says: value -+ t se, or for positive scale parameters (alpha, h_b, h_e,
+    /// h_m, a, h_r) exp(ln value -+ t se / value).
     pub ci95: Option<[f64; 2]>,
+    /// The scale of `ci95` (`None` when there is no interval, and in reports stored before
+    /// intervals stated their scale, which were all linear).
+    #[serde(default)]
+    pub ci95_scale: Option<IntervalScale>,
+    /// The measured suction (cm) a breakpoint parameter (h_b, h_e) sits on, if it does: the
+    /// curve has a kink there, the derivative is one-sided, and `se` and `ci95` are
+    /// approximate.
+    #[serde(default)]
+    pub kink_cm: Option<f64>,
     /// Fixed by the caller (not estimated).
     pub fixed: bool,
     /// The estimate ended on this bound and was refitted held there (active set).
@@ -118,9 +149,10 @@ pub struct ReadingFit {
 ///
 /// With n readings, k free parameters (estimated, bounds included; fixed ones excluded) and
 /// SSE = sum w_i (y_i - f_i)^2 (w_i = 1 without weights), the information criteria are from the
-/// Gaussian likelihood with its constants dropped and without counting the variance as a
-/// parameter (so AICc exists whenever n > k + 1, the rule `auto` uses):
-/// AIC = n ln(SSE/n) + 2k, AICc = AIC + 2k(k+1)/(n-k-1), BIC = n ln(SSE/n) + k ln n.
+/// Gaussian likelihood with its constants dropped. The error variance is estimated too, so
+/// they count K = k + 1 parameters (Burnham & Anderson 2002, section 2.2, for least squares):
+/// AIC = n ln(SSE/n) + 2K, AICc = AIC + 2K(K+1)/(n-K-1), BIC = n ln(SSE/n) + K ln n. AICc
+/// exists when n > K + 1 = k + 2, the rule `auto` uses.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct FitReport {
     /// Model identifier (`van-genuchten`, ...).
@@ -145,6 +177,10 @@ pub struct FitReport {
     pub n_points: usize,
     /// Number of free (estimated) parameters k.
     pub n_free_params: usize,
+    /// Parameters counted by AIC, AICc and BIC: K = k + 1 (the error variance is estimated
+    /// too). 0 in a report stored before the variance was counted; see [`Self::upgrade_stored`].
+    #[serde(default)]
+    pub n_criteria_params: usize,
     /// The fit passed every check: the solver stopped at an optimum, the SSE is finite and
     /// no better than a horizontal line is not the result, no parameter ran away.
     pub converged: bool,
@@ -173,5 +209,89 @@ impl FitReport {
     /// The parameter values in model order.
     pub fn values(&self) -> Vec<f64> {
         self.parameters.iter().map(|p| p.value).collect()
+    }
+
+    /// Bring a report stored by an earlier version (`n_criteria_params` 0) to the current
+    /// conventions: AIC, AICc and BIC recomputed from n, k and SSE with the error variance
+    /// counted; 95 % intervals recomputed from the standard errors, on the log scale for
+    /// suctions and inverse suctions (unit `cm` or `1/cm`), with their scale; a breakpoint on
+    /// a measured suction marked as a kink. Returns whether anything changed.
+    pub fn upgrade_stored(&mut self) -> bool {
+        if self.n_criteria_params != 0 {
+            return false;
+        }
+        let (aic, aicc, bic) =
+            super::stats::information_criteria(self.n_points, self.n_free_params, self.sse);
+        self.aic = aic;
+        self.aicc = aicc;
+        self.bic = bic;
+        self.n_criteria_params = super::stats::criteria_parameters(self.n_free_params);
+        let t = super::stats::t975(self.n_points.saturating_sub(self.n_free_params));
+        let breakpoint = self
+            .model
+            .parse()
+            .ok()
+            .and_then(super::models::breakpoint_of);
+        let suctions: Vec<f64> = self.readings.iter().map(|r| r.x).collect();
+        let mut notes = Vec::new();
+        for p in &mut self.parameters {
+            let log = matches!(p.unit.as_str(), "cm" | "1/cm") && p.value > 0.0;
+            let interval = super::stats::interval95(p.value, p.se, t, log);
+            p.ci95 = interval.map(|i| i.0);
+            p.ci95_scale = interval.map(|i| i.1);
+            if !p.fixed && breakpoint == Some(p.name.as_str()) {
+                p.kink_cm = super::stats::kink_suction(p.value, &suctions);
+                if let Some(h) = p.kink_cm {
+                    notes.push(super::stats::kink_note(&p.name, h));
+                }
+            }
+        }
+        if !notes.is_empty() {
+            let mut all: Vec<String> = self.message.take().into_iter().collect();
+            all.extend(notes);
+            self.message = Some(all.join("; "));
+        }
+        true
+    }
+}
+
+#[cfg(test)]
+#[allow(clippy::float_cmp)]
+mod tests {
+    use crate::fit::{FitOptions, Readings, fit_model};
+    use crate::model::retention::ModelKind;
+
+    #[test]
+    fn reports_stored_by_an_earlier_version_are_upgraded() {
+        let h = [0.0, 10.0, 30.0, 100.0, 330.0, 1000.0, 3000.0, 15000.0];
+        let y = [0.41, 0.40, 0.36, 0.27, 0.19, 0.14, 0.11, 0.09];
+        let report = fit_model(
+            ModelKind::VanGenuchten,
+            &Readings::new(&h, &y),
+            &FitOptions::new(),
+        )
+        .expect("fits");
+        assert_eq!(report.n_criteria_params, report.n_free_params + 1);
+        assert!(report.aicc.is_some());
+        // The same report as stored before: no n_criteria_params, criteria counting k only,
+        // intervals on the original scale without their scale.
+        let mut json = serde_json::to_value(&report).expect("encodes");
+        let obj = json.as_object_mut().expect("object");
+        obj.remove("n_criteria_params");
+        for key in ["aic", "aicc", "bic"] {
+            obj.insert(key.to_string(), serde_json::json!(-1.0));
+        }
+        for p in obj["parameters"].as_array_mut().expect("parameters") {
+            let p = p.as_object_mut().expect("parameter");
+            p.remove("ci95_scale");
+            p.remove("kink_cm");
+            p.insert("ci95".into(), serde_json::json!([-1.0, 1.0]));
+        }
+        let mut old: super::FitReport = serde_json::from_value(json).expect("decodes");
+        assert_eq!(old.n_criteria_params, 0);
+        assert!(old.parameters.iter().all(|p| p.ci95_scale.is_none()));
+        assert!(old.upgrade_stored());
+        assert_eq!(old, report);
+        assert!(!old.upgrade_stored());
     }
 }

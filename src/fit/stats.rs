@@ -1,5 +1,10 @@
 //! Statistics at the optimum: covariance, intervals, information criteria, influence.
 //!
+//! 95 % intervals are Wald intervals with Student's t; for positive scale parameters (suctions
+//! and inverse suctions: alpha, h_b, h_e, h_m, a, h_r) they are formed on the log scale (see
+//! [`interval95`]). A breakpoint sitting exactly on a measured suction is flagged
+//! ([`kink_suction`]): its standard error comes from a one-sided derivative.
+//!
 //! Cov = s^2 (J' W J)^-1 with J the Jacobian in the physical parameters, s^2 = SSE / (n - k).
 //! (J' W J) is inverted by Cholesky after scaling its columns to unit length (the scaling keeps
 //! badly scaled problems, such as the NIST ones, accurate); when Cholesky fails the SVD of the
@@ -10,6 +15,9 @@ use std::sync::OnceLock;
 
 use nalgebra::DMatrix;
 use statrs::distribution::{ContinuousCDF, StudentsT};
+
+use super::report::IntervalScale;
+use crate::model::curve::ParamSpec;
 
 /// Student t quantiles t(0.975, dof) for dof 1..=TABLE, computed once.
 const T_TABLE: usize = 400;
@@ -109,7 +117,13 @@ fn pseudo_inverse(js: &DMatrix<f64>) -> Option<(DMatrix<f64>, Inversion)> {
     Some((inv, Inversion::PseudoInverse))
 }
 
-/// AIC, AICc and BIC as documented on [`FitReport`](super::FitReport).
+/// AIC, AICc and BIC as documented on [`FitReport`](super::FitReport), for `n` readings, `k`
+/// free parameters and the (weighted) sum of squares `sse`.
+///
+/// The error variance is estimated too (sigma^2 = SSE / n at the maximum of the Gaussian
+/// likelihood), so the criteria count K = k + 1 parameters, as Burnham & Anderson (2002,
+/// section 2.2) do for least squares: AIC = n ln(SSE/n) + 2K, AICc = AIC + 2K(K+1)/(n-K-1)
+/// (`None` unless n > K + 1 = k + 2), BIC = n ln(SSE/n) + K ln n.
 pub(crate) fn information_criteria(
     n: usize,
     k: usize,
@@ -118,13 +132,83 @@ pub(crate) fn information_criteria(
     if n == 0 || sse.is_nan() || sse <= 0.0 || !sse.is_finite() {
         return (None, None, None);
     }
+    let kk = criteria_parameters(k);
     let nf = n as f64;
-    let kf = k as f64;
+    let kf = kk as f64;
     let core = nf * (sse / nf).ln();
     let aic = core + 2.0 * kf;
-    let aicc = (n > k + 1).then(|| aic + 2.0 * kf * (kf + 1.0) / (nf - kf - 1.0));
+    let aicc = (n > kk + 1).then(|| aic + 2.0 * kf * (kf + 1.0) / (nf - kf - 1.0));
     let bic = core + kf * nf.ln();
     (Some(aic), aicc, Some(bic))
+}
+
+/// AICc alone (see [`information_criteria`]): for recounting a stored ranking.
+pub fn aicc(n: usize, k: usize, sse: f64) -> Option<f64> {
+    information_criteria(n, k, sse).1
+}
+
+/// The parameters AIC, AICc and BIC count for `k` free ones: k + 1, the error variance being
+/// estimated too (Burnham & Anderson 2002, section 2.2).
+pub fn criteria_parameters(k: usize) -> usize {
+    k + 1
+}
+
+/// The fewest readings for which AICc exists with `k` free parameters (n > k + 2).
+pub fn min_points_for_aicc(k: usize) -> usize {
+    criteria_parameters(k) + 2
+}
+
+/// Whether a parameter is a suction or an inverse suction (unit `cm` or `1/cm`, lower bound
+/// above 0): a positive scale parameter, whose 95 % interval is formed on the log scale.
+pub(crate) fn positive_scale(spec: &ParamSpec) -> bool {
+    spec.lower > 0.0 && matches!(spec.unit, "cm" | "1/cm")
+}
+
+/// The 95 % interval of an estimate `value` with standard error `se` and t(0.975, n - k) `t`.
+///
+/// On the original scale, value -+ t se. For a positive scale parameter (`log_scale`) the
+/// Wald interval is formed for ln p, whose standard error is se / p by the delta method, and
+/// mapped back: [p exp(-t se / p), p exp(t se / p)], which stays positive (a Wald interval on
+/// the original scale can include impossible negative suctions). `None` without se or t.
+pub(crate) fn interval95(
+    value: f64,
+    se: Option<f64>,
+    t: Option<f64>,
+    log_scale: bool,
+) -> Option<([f64; 2], IntervalScale)> {
+    let (se, t) = (se?, t?);
+    let interval = if log_scale && value > 0.0 {
+        let half = t * se / value;
+        (
+            [value * (-half).exp(), value * half.exp()],
+            IntervalScale::Log,
+        )
+    } else {
+        ([value - t * se, value + t * se], IntervalScale::Linear)
+    };
+    interval.0.iter().all(|v| v.is_finite()).then_some(interval)
+}
+
+/// Relative distance within which a breakpoint counts as sitting on a measured suction.
+pub(crate) const KINK_TOLERANCE: f64 = 1e-9;
+
+/// The measured suction a breakpoint parameter (Brooks-Corey's h_b, Campbell's h_e) sits on,
+/// within [`KINK_TOLERANCE`] relative, if any. There the sum of squares has a kink: the model
+/// takes its saturated branch at h = h_b, so the Jacobian holds the derivative from one side
+/// only, and the standard error built from it is not the two-sided one the theory assumes.
+pub(crate) fn kink_suction(value: f64, suctions: &[f64]) -> Option<f64> {
+    suctions
+        .iter()
+        .copied()
+        .find(|&x| x > 0.0 && (value - x).abs() <= KINK_TOLERANCE * x)
+}
+
+/// The fit's note for a breakpoint on a measured suction (see [`kink_suction`]).
+pub(crate) fn kink_note(name: &str, suction_cm: f64) -> String {
+    format!(
+        "{name} sits on the measured suction {suction_cm} cm, a kink of the curve: its \
+         standard error and interval use a one-sided derivative and are approximate"
+    )
 }
 
 /// Leverage, studentized residuals (internal, external) and Cook's distance of one reading.
@@ -212,13 +296,59 @@ mod tests {
     }
 
     #[test]
-    fn information_criteria_formulas() {
+    fn intervals_of_positive_scale_parameters_stay_positive() {
+        // A poorly determined h_e: 10 cm with SE 10.5 and t(0.975, 5) = 2.5706 gives
+        // [-17, 37] cm on the original scale; on the log scale (delta method, se(ln p) = se / p)
+        // it is 10 exp(-+2.5706 * 1.05).
+        let t = t975(5);
+        let (ci, scale) = interval95(10.0, Some(10.5), t, true).expect("interval");
+        assert_eq!(scale, IntervalScale::Log);
+        let half = t.unwrap() * 1.05;
+        assert!((ci[0] - 10.0 * (-half).exp()).abs() < 1e-12, "{ci:?}");
+        assert!((ci[1] - 10.0 * half.exp()).abs() < 1e-9, "{ci:?}");
+        assert!(ci[0] > 0.0);
+        // The geometric midpoint is the estimate.
+        assert!(((ci[0] * ci[1]).sqrt() - 10.0).abs() < 1e-12);
+        let (lin, scale) = interval95(10.0, Some(10.5), t, false).expect("interval");
+        assert_eq!(scale, IntervalScale::Linear);
+        assert!(lin[0] < 0.0 && (lin[1] - lin[0] - 2.0 * half * 10.0).abs() < 1e-9);
+        assert_eq!(interval95(10.0, None, t, true), None);
+        assert_eq!(interval95(10.0, Some(1.0), None, true), None);
+        let spec = |unit: &'static str, lower: f64| ParamSpec {
+            name: "p",
+            unit,
+            lower,
+            upper: 1e5,
+        };
+        assert!(positive_scale(&spec("cm", 0.01)));
+        assert!(positive_scale(&spec("1/cm", 1e-5)));
+        assert!(!positive_scale(&spec("-", 1.001)));
+        assert!(!positive_scale(&spec("m3/m3", 0.0)));
+        assert!(!positive_scale(&spec("cm", 0.0)));
+    }
+
+    #[test]
+    fn a_breakpoint_on_a_measured_suction_is_a_kink() {
+        let x = [0.0, 10.0, 30.0, 100.0];
+        assert_eq!(kink_suction(30.0, &x), Some(30.0));
+        assert_eq!(kink_suction(30.0 * (1.0 + 1e-12), &x), Some(30.0));
+        assert_eq!(kink_suction(30.0 * (1.0 + 1e-6), &x), None);
+        assert_eq!(kink_suction(0.0, &x), None);
+        assert_eq!(kink_suction(55.0, &x), None);
+    }
+
+    #[test]
+    fn information_criteria_count_the_error_variance() {
+        // K = k + 1 = 5 (Burnham & Anderson 2002, section 2.2, least squares).
         let (aic, aicc, bic) = information_criteria(10, 4, 0.01);
         let core = 10.0 * (0.001f64).ln();
-        assert!((aic.unwrap() - (core + 8.0)).abs() < 1e-12);
-        assert!((aicc.unwrap() - (core + 8.0 + 40.0 / 5.0)).abs() < 1e-12);
-        assert!((bic.unwrap() - (core + 4.0 * 10f64.ln())).abs() < 1e-12);
-        assert_eq!(information_criteria(5, 4, 0.01).1, None);
+        assert!((aic.unwrap() - (core + 10.0)).abs() < 1e-12);
+        assert!((aicc.unwrap() - (core + 10.0 + 60.0 / 4.0)).abs() < 1e-12);
+        assert!((bic.unwrap() - (core + 5.0 * 10f64.ln())).abs() < 1e-12);
+        // n = 6 readings, k = 4: n - K - 1 = 0, no AICc; n = 7 has one.
+        assert_eq!(information_criteria(6, 4, 0.01).1, None);
+        assert!(information_criteria(7, 4, 0.01).1.is_some());
+        assert_eq!(min_points_for_aicc(4), 7);
         assert_eq!(information_criteria(5, 2, 0.0), (None, None, None));
     }
 }

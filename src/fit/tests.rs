@@ -275,18 +275,35 @@ mod retention {
         for w in auto.ranked.windows(2) {
             assert!(w[0].report.aicc <= w[1].report.aicc);
         }
-        // Durner (7 parameters) needs 9 readings: with 10 it is tried, with 8 it is skipped.
-        let few = fit_auto(
+        // Durner (7 free parameters, K = 8 with the error variance) needs 10 readings for
+        // AICc: with 10 it is tried, with 9 it is skipped, and so is Fredlund-Xing (5 free)
+        // with 7.
+        assert!(!auto.skipped.iter().any(|s| s.reason.contains("auto needs")));
+        let nine = fit_auto(
             &ModelKind::ALL,
-            &Readings::new(&H[..8], &y[..8]),
+            &Readings::new(&H[..9], &y[..9]),
             &FitOptions::new(),
         );
-        let durner = few.skipped.iter().find(|s| s.model == "durner").unwrap();
+        let durner = nine.skipped.iter().find(|s| s.model == "durner").unwrap();
         assert!(
-            durner.reason.contains("auto needs at least 9"),
+            durner
+                .reason
+                .contains("9 readings for 7 free parameters: auto needs at least 10"),
             "{}",
             durner.reason
         );
+        let few = fit_auto(
+            &ModelKind::ALL,
+            &Readings::new(&H[..7], &y[..7]),
+            &FitOptions::new(),
+        );
+        let fx = few
+            .skipped
+            .iter()
+            .find(|s| s.model == "fredlund-xing")
+            .unwrap();
+        assert!(fx.reason.contains("auto needs at least 8"), "{}", fx.reason);
+        assert!(few.ranked.iter().any(|r| r.report.model == "van-genuchten"));
         // A fixed theta_r applies to the models that have one.
         let fixed = fit_auto(
             &[ModelKind::VanGenuchten, ModelKind::Campbell],

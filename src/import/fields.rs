@@ -5,7 +5,8 @@ use chrono::NaiveDate;
 use csv::StringRecord;
 
 use super::diagnostic::Diagnostics;
-use super::table::{Header, parse_number, trim_cell};
+use super::table::{Header, number_text, parse_number, trim_cell};
+use crate::model::units::SuctionUnit;
 
 /// Checks a header row: required and optional columns, no name twice.
 pub(crate) struct HeaderCheck<'a> {
@@ -166,6 +167,21 @@ impl<'a> Cells<'a> {
             return None;
         }
         Some(t.to_string())
+    }
+
+    /// A suction cell written in `unit`: the number as written and the suction in cm,
+    /// converted from the cell's decimal text and rounded once
+    /// ([`SuctionUnit::decimal_to_cm`]), so a listing in any unit imports to the very values
+    /// it lists. In a pF column `-inf` is saturation (0 cm, log10 0 being minus infinity).
+    pub(crate) fn suction(&mut self, col: usize, unit: SuctionUnit) -> Option<(f64, f64)> {
+        if unit == SuctionUnit::Pf && trim_cell(self.raw(col)).eq_ignore_ascii_case("-inf") {
+            return Some((f64::NEG_INFINITY, 0.0));
+        }
+        let v = self.number(col)?;
+        let h = unit
+            .decimal_to_cm(&number_text(self.raw(col), self.decimal_comma))
+            .unwrap_or_else(|| unit.to_cm(v));
+        Some((v, h))
     }
 
     /// A number that must be there.

@@ -14,14 +14,17 @@ use super::fields::{Cells, HeaderCheck, depths, finish_file, read_rows};
 use super::layers::{BULK_DENSITY_EXPECTED, BULK_DENSITY_RANGE, name_site};
 use super::table::{Header, Table};
 use crate::model::domain::{Branch, Layer, LayerRef, Method, Sample, SampleKind, Uid};
+use crate::model::retention::fredlund_xing::H_DRY_CM;
 use crate::model::units::{SuctionUnit, WaterUnit};
 
 /// The columns of a lab file, for messages.
 pub const COLUMNS: &str = "site,top_cm,bottom_cm,sample,method,suction_<unit>|pf,\
      theta|theta_pct|water_g_per_g[,measured_on,bulk_density_g_cm3,weight,notes,branch]";
 
-/// The driest suction accepted, cm: pF 7, oven-dry soil (common practice).
-pub const MAX_SUCTION_CM: f64 = 1.0e7;
+/// The driest suction accepted, cm: 10^6 kPa = 1.0197e7 cm (pF 7.01), where soil is oven dry,
+/// the dry end of the Fredlund & Xing (1994) curve ([`H_DRY_CM`]). A value written as 10^6 kPa
+/// in any unit is accepted even when its conversion rounds a few units in the last place above.
+pub const MAX_SUCTION_CM: f64 = H_DRY_CM;
 
 /// Every suction column name, for messages.
 fn suction_names() -> String {
@@ -248,9 +251,10 @@ impl LabReader {
     }
 }
 
-/// The suction cell in cm: 0 or more (pF may be any number), at most [`MAX_SUCTION_CM`].
+/// The suction cell in cm: 0 or more (pF may be any number, `-inf` being 0 cm), at most
+/// [`MAX_SUCTION_CM`].
 fn read_suction(cells: &mut Cells<'_>, col: usize, unit: SuctionUnit) -> Option<f64> {
-    let v = cells.number(col)?;
+    let (v, h) = cells.suction(col, unit)?;
     if unit != SuctionUnit::Pf && v < 0.0 {
         let found = cells.found(col);
         cells.fail(
@@ -261,12 +265,14 @@ fn read_suction(cells: &mut Cells<'_>, col: usize, unit: SuctionUnit) -> Option<
         );
         return None;
     }
-    let h = unit.to_cm(v);
-    if h > MAX_SUCTION_CM {
+    if h > MAX_SUCTION_CM * (1.0 + 4.0 * f64::EPSILON) {
         let found = cells.found(col);
         cells.fail(
             col,
-            format!("found {found}, expected a suction of at most 1e7 cm (pF 7, oven dry)"),
+            format!(
+                "found {found}, expected a suction of at most 10^6 kPa = 1.0197e7 cm \
+                 (pF 7.01, oven dry)"
+            ),
         );
         return None;
     }

@@ -9,7 +9,7 @@ use std::io::Read;
 use std::path::Path;
 
 use super::diagnostic::Diagnostics;
-use super::table::{Table, parse_number};
+use super::table::{Table, number_text, parse_number};
 use crate::model::units::{SuctionUnit, WaterUnit};
 
 /// One reading of a pairs file, in canonical units.
@@ -225,9 +225,24 @@ pub fn read_pairs<R: Read>(file: &str, reader: R) -> Result<PairsFile, Diagnosti
                 }
             },
         };
-        let suction = number(cols.suction.0, &suction_col, &mut problems);
+        // In a pF column `-inf` is saturation (0 cm); every suction is converted from its
+        // decimal text, rounded once (as the lab import does).
+        let unit = cols.suction.1;
+        let saturated = unit == SuctionUnit::Pf
+            && field(cols.suction.0).is_some_and(|t| t.eq_ignore_ascii_case("-inf"));
+        let suction = if saturated {
+            Some(f64::NEG_INFINITY)
+        } else {
+            number(cols.suction.0, &suction_col, &mut problems)
+        };
         let water = number(cols.water.0, &water_col, &mut problems);
-        let h_cm = suction.map(|v| cols.suction.1.to_cm(v));
+        let h_cm = suction.map(|v| match field(cols.suction.0) {
+            _ if saturated => 0.0,
+            Some(text) => unit
+                .decimal_to_cm(&number_text(text, decimal_comma))
+                .unwrap_or_else(|| unit.to_cm(v)),
+            None => unit.to_cm(v),
+        });
         if let (Some(h), Some(v)) = (h_cm, suction)
             && h < 0.0
         {
@@ -281,6 +296,27 @@ pub fn read_pairs<R: Read>(file: &str, reader: R) -> Result<PairsFile, Diagnosti
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn pf_minus_infinity_is_saturation_and_values_round_once() {
+        let text = "sample,pf,theta\nA,-inf,0.41\nA,2,0.3\nA,-INF,0.4\n";
+        let file = read_pairs("p.csv", text.as_bytes()).expect("reads");
+        assert_eq!(file.samples[0].suctions(), vec![0.0, 100.0, 0.0]);
+        let text = "sample,suction_kpa,theta\nA,33,0.3\nA,-inf,0.4\n";
+        let err = read_pairs("p.csv", text.as_bytes())
+            .expect_err("no -inf in kPa")
+            .to_string();
+        assert!(
+            err.contains("p.csv:3:suction_kpa: found \"-inf\", expected a finite number"),
+            "{err}"
+        );
+        // 33 kPa is stored as the double nearest 33 x 10^7 / 980665 cm (the same as the lab
+        // import), within 1e-9 of the reference notes' 336.5063503 cm (table T10).
+        let text = "sample,suction_kpa,theta\nA,33,0.3\n";
+        let h = read_pairs("p.csv", text.as_bytes()).expect("reads").samples[0].suctions()[0];
+        assert_eq!(Some(h), SuctionUnit::Kpa.decimal_to_cm("33"));
+        assert!((h / 336.506_350_3 - 1.0).abs() < 1e-9);
+    }
 
     #[test]
     fn reads_units_groups_samples_and_keeps_lines() {

@@ -262,22 +262,26 @@ pub fn trim_cell(text: &str) -> &str {
     }
 }
 
+/// A number cell as text with a decimal point: trimmed, a decimal comma (where the file
+/// writes them) replaced.
+pub fn number_text(text: &str, decimal_comma: bool) -> std::borrow::Cow<'_, str> {
+    let t = trim_cell(text);
+    if decimal_comma && t.contains(',') && !t.contains('.') {
+        std::borrow::Cow::Owned(t.replace(',', "."))
+    } else {
+        std::borrow::Cow::Borrowed(t)
+    }
+}
+
 /// Parse a finite number, optionally with a decimal comma.
 ///
 /// # Errors
 /// A message naming the text found: empty, not a number, or NaN / infinity.
 pub fn parse_number(text: &str, decimal_comma: bool) -> Result<f64, String> {
-    let t = trim_cell(text);
+    let t = number_text(text, decimal_comma);
     if t.is_empty() {
         return Err("found an empty cell, expected a number".to_string());
     }
-    let owned;
-    let t = if decimal_comma && t.contains(',') && !t.contains('.') {
-        owned = t.replace(',', ".");
-        owned.as_str()
-    } else {
-        t
-    };
     match t.parse::<f64>() {
         Ok(v) if v.is_finite() => Ok(v),
         Ok(_) => Err(format!(

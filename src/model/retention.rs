@@ -416,10 +416,10 @@ pub trait RetentionModel: CurveModel {
     fn theta_s(&self, p: &[f64]) -> f64;
 
     /// Effective saturation Se = (theta - theta_r) / (theta_s - theta_r), in [0, 1].
-    fn effective_saturation(&self, h: f64, p: &[f64]) -> f64 {
-        let (theta_r, theta_s) = (self.theta_r(p), self.theta_s(p));
-        ((self.value(h, p) - theta_r) / (theta_s - theta_r)).clamp(0.0, 1.0)
-    }
+    ///
+    /// Computed from the model's shape function itself, not from theta: far from saturation
+    /// theta - theta_r cancels and would lose every digit of a small Se.
+    fn effective_saturation(&self, h: f64, p: &[f64]) -> f64;
 
     /// Specific water capacity C(h) = -d theta / dh, per cm of suction (>= 0).
     ///

@@ -9,6 +9,8 @@ use std::str::FromStr;
 
 use serde::{Deserialize, Serialize};
 
+mod exact;
+
 /// Standard gravity in m/s2 (CGPM 1901), which fixes 1 cm of water = 98.0665 Pa.
 pub const STANDARD_GRAVITY: f64 = 9.806_65;
 
@@ -109,6 +111,21 @@ impl SuctionUnit {
             SuctionUnit::Bar => value * CM_PER_BAR,
             SuctionUnit::Pf => 10f64.powf(value),
         }
+    }
+
+    /// The suction in cm that a decimal written in this unit stands for, rounded once to the
+    /// nearest double (see `units/exact.rs`): what imports store. In pF, `-inf` (any case)
+    /// is saturation, 0 cm. `None` when the text is not a decimal number or the value is not
+    /// finite in cm; the sign is the caller's to check.
+    pub fn decimal_to_cm(self, text: &str) -> Option<f64> {
+        exact::decimal_to_cm(self, text)
+    }
+
+    /// The shortest decimal in this unit that [`Self::decimal_to_cm`] turns back into exactly
+    /// `h_cm` (`-inf` for 0 cm in pF), so a listing imports to the very values it lists.
+    /// `None` for a value that is not finite, or negative in pF.
+    pub fn cm_to_decimal(self, h_cm: f64) -> Option<String> {
+        exact::cm_to_decimal(self, h_cm)
     }
 
     /// Convert a suction head in cm to this unit (pF of 0 cm is minus infinity).

@@ -133,7 +133,10 @@ pub fn samples_listing(rows: &[SampleRow]) -> Listing {
 /// Readings with suction in `unit`, first column the reading id.
 ///
 /// The columns include those of a lab file (`site,top_cm,bottom_cm,sample,method,
-/// suction_<unit>,theta_m3_m3,...`), so a CSV listing can be imported into another campaign.
+/// suction_<unit>,theta_m3_m3,...`), so a CSV listing can be imported into another campaign;
+/// its numbers are written in full (the suction as the shortest decimal in `unit` that the
+/// import converts back to the stored value, `-inf` for 0 cm in pF), so that campaign holds
+/// the very same values.
 pub fn readings_listing(rows: &[ReadingRow], unit: SuctionUnit) -> Listing {
     readings_table(rows, unit, None)
 }
@@ -183,14 +186,16 @@ fn readings_table(
             .source_file
             .as_ref()
             .map(|f| format!("{f}:{}", x.provenance.line));
+        // Measurements in full (the suction as the shortest decimal in `unit` that converts
+        // back to the stored value, `-inf` for 0 cm in pF): the CSV imports to the same values.
         let mut row = vec![
             r.stored.id.into(),
             Cell::text(&x.sample),
             Cell::text(&r.layer.site),
-            r.layer.top_cm.into(),
-            r.layer.bottom_cm.into(),
-            unit.from_cm(x.h_cm).into(),
-            x.theta.into(),
+            Cell::exact(Some(r.layer.top_cm)),
+            Cell::exact(Some(r.layer.bottom_cm)),
+            Cell::Decimal(unit.cm_to_decimal(x.h_cm), unit.from_cm(x.h_cm)),
+            Cell::exact(Some(x.theta)),
         ];
         if let Some(marks) = marks {
             row.push(
@@ -204,7 +209,7 @@ fn readings_table(
             x.method.as_ref().map(ToString::to_string).into(),
             Cell::text(x.branch.as_str()),
             x.measured_on.map(|d| d.to_string()).into(),
-            x.weight.into(),
+            Cell::exact(x.weight),
             x.notes.clone().into(),
             source.into(),
             Cell::text(x.uid.as_str()),

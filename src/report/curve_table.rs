@@ -3,7 +3,7 @@
 use std::io::Write;
 
 use crate::model::conductivity::{
-    ConductivityModel, DEFAULT_PORE_CONNECTIVITY, conductivity, relative_conductivity,
+    ConductivityChoiceError, ConductivityForm, ConductivityModel, DEFAULT_PORE_CONNECTIVITY,
 };
 use crate::model::retention::{ModelKind, RetentionCurve};
 use crate::model::units::SuctionUnit;
@@ -17,8 +17,12 @@ pub const RETENTION_COLUMNS: [&str; 4] = [
     "effective_saturation",
     "capacity_per_cm",
 ];
-/// Columns added when Ks is given.
-pub const CONDUCTIVITY_COLUMNS: [&str; 2] = ["relative_conductivity", "conductivity_cm_per_day"];
+/// Columns added when Ks is given: Kr, K and the conductivity model they come from.
+pub const CONDUCTIVITY_COLUMNS: [&str; 3] = [
+    "relative_conductivity",
+    "conductivity_cm_per_day",
+    "conductivity_model",
+];
 
 /// What is wrong with the options of a curve table.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -43,11 +47,9 @@ pub enum CurveTableError {
     /// The pore-connectivity exponent is NaN or infinite.
     #[error("pore connectivity L = {0} must be a finite number")]
     BadPoreConnectivity(f64),
-    /// The retention model has no closed-form conductivity model.
-    #[error(
-        "{0} has no closed-form conductivity model (Mualem's integral has none with this curve); omit Ks"
-    )]
-    NoConductivityModel(ModelKind),
+    /// The retention model has no closed-form conductivity, or not in the form asked for.
+    #[error("{0}")]
+    Conductivity(#[from] ConductivityChoiceError),
     /// A pore-connectivity exponent was given for a model that has none.
     #[error(
         "{model} pairs with {conductivity} conductivity, which has no pore-connectivity exponent"
@@ -60,9 +62,12 @@ pub enum CurveTableError {
     },
 }
 
-/// Ks and Mualem's L for the conductivity columns, checked against the model.
+/// The conductivity model, Ks and Mualem's L for the conductivity columns, checked against
+/// the retention model.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct ConductivitySpec {
+    /// The conductivity model (named in the table beside its values).
+    pub model: ConductivityModel,
     /// Saturated conductivity, cm/day.
     pub ks_cm_per_day: f64,
     /// Mualem's pore-connectivity exponent L.
@@ -70,7 +75,8 @@ pub struct ConductivitySpec {
 }
 
 impl ConductivitySpec {
-    /// Check Ks (> 0) and L (finite; only for Mualem forms; 0.5 when not given) for `kind`.
+    /// Check Ks (> 0), L (finite; only for Mualem forms; 0.5 when not given) and the form
+    /// asked for (`None`: the model's usual pairing) for `kind`.
     ///
     /// # Errors
     /// A [`CurveTableError`] naming the problem.
@@ -78,9 +84,9 @@ impl ConductivitySpec {
         kind: ModelKind,
         ks_cm_per_day: f64,
         pore_connectivity: Option<f64>,
+        form: Option<ConductivityForm>,
     ) -> Result<ConductivitySpec, CurveTableError> {
-        let model =
-            ConductivityModel::for_model(kind).ok_or(CurveTableError::NoConductivityModel(kind))?;
+        let model = ConductivityModel::select(kind, form)?;
         if !(ks_cm_per_day.is_finite() && ks_cm_per_day > 0.0) {
             return Err(CurveTableError::BadKs(ks_cm_per_day));
         }
@@ -96,6 +102,7 @@ impl ConductivitySpec {
             }
         }
         Ok(ConductivitySpec {
+            model,
             ks_cm_per_day,
             pore_connectivity: pore_connectivity.unwrap_or(DEFAULT_PORE_CONNECTIVITY),
         })
@@ -157,7 +164,7 @@ pub fn curve_rows(
     suctions_cm: &[f64],
     spec: Option<ConductivitySpec>,
 ) -> Vec<CurveRow> {
-    let (kind, p) = (curve.kind(), curve.params());
+    let p = curve.params();
     suctions_cm
         .iter()
         .map(|&h| CurveRow {
@@ -165,27 +172,29 @@ pub fn curve_rows(
             theta: curve.theta(h),
             effective_saturation: curve.effective_saturation(h),
             capacity_per_cm: curve.capacity(h),
-            relative_conductivity: spec
-                .and_then(|s| relative_conductivity(kind, h, p, s.pore_connectivity)),
-            conductivity_cm_per_day: spec
-                .and_then(|s| conductivity(kind, h, p, s.ks_cm_per_day, s.pore_connectivity)),
+            relative_conductivity: spec.and_then(|s| s.model.relative(h, p, s.pore_connectivity)),
+            conductivity_cm_per_day: spec.and_then(|s| {
+                s.model
+                    .conductivity(h, p, s.ks_cm_per_day, s.pore_connectivity)
+            }),
         })
         .collect()
 }
 
-/// Write the rows as CSV with the header of DESIGN.md; the conductivity columns only when
-/// `with_conductivity`. Values that are absent or not finite are empty cells.
+/// Write the rows as CSV with the header of DESIGN.md; the conductivity columns only with
+/// a `conductivity` model, which each row names. Values that are absent or not finite are
+/// empty cells.
 ///
 /// # Errors
 /// Any error of the underlying writer.
 pub fn write_curve_csv<W: Write>(
     out: W,
     rows: &[CurveRow],
-    with_conductivity: bool,
+    conductivity: Option<ConductivityModel>,
 ) -> Result<(), csv::Error> {
     let mut w = csv::Writer::from_writer(out);
     let mut header: Vec<&str> = RETENTION_COLUMNS.to_vec();
-    if with_conductivity {
+    if conductivity.is_some() {
         header.extend(CONDUCTIVITY_COLUMNS);
     }
     w.write_record(&header)?;
@@ -197,9 +206,10 @@ pub fn write_curve_csv<W: Write>(
             cell(Some(row.effective_saturation)),
             cell(row.capacity_per_cm),
         ];
-        if with_conductivity {
+        if let Some(model) = conductivity {
             record.push(cell(row.relative_conductivity));
             record.push(cell(row.conductivity_cm_per_day));
+            record.push(model.id().to_string());
         }
         w.write_record(&record)?;
     }
@@ -229,7 +239,7 @@ mod tests {
     fn break_point_gives_an_empty_capacity_cell() {
         let rows = curve_rows(&brooks_corey(), &[7.26], None);
         let mut out = Vec::new();
-        write_curve_csv(&mut out, &rows, false).expect("writes");
+        write_curve_csv(&mut out, &rows, None).expect("writes");
         let text = String::from_utf8(out).expect("utf-8");
         assert_eq!(
             text,
@@ -239,43 +249,63 @@ mod tests {
 
     #[test]
     fn conductivity_columns_only_with_ks() {
-        let spec = ConductivitySpec::new(ModelKind::BrooksCorey, 504.0, None).expect("valid");
+        let spec = ConductivitySpec::new(ModelKind::BrooksCorey, 504.0, None, None).expect("valid");
         let rows = curve_rows(&brooks_corey(), &[0.0, 100.0], Some(spec));
         let mut out = Vec::new();
-        write_curve_csv(&mut out, &rows, true).expect("writes");
+        write_curve_csv(&mut out, &rows, Some(spec.model)).expect("writes");
         let text = String::from_utf8(out).expect("utf-8");
         let mut lines = text.lines();
         assert_eq!(
             lines.next(),
             Some(
-                "suction_cm,theta,effective_saturation,capacity_per_cm,relative_conductivity,conductivity_cm_per_day"
+                "suction_cm,theta,effective_saturation,capacity_per_cm,relative_conductivity,conductivity_cm_per_day,conductivity_model"
             )
         );
-        assert_eq!(lines.next(), Some("0,0.437,1,0,1,504"));
+        assert_eq!(lines.next(), Some("0,0.437,1,0,1,504,burdine-brooks-corey"));
         assert_eq!(lines.count(), 1);
+        // Mualem's form on request, named on every row.
+        let mualem = ConductivitySpec::new(
+            ModelKind::BrooksCorey,
+            504.0,
+            None,
+            Some(ConductivityForm::Mualem),
+        )
+        .expect("valid");
+        let rows = curve_rows(&brooks_corey(), &[100.0], Some(mualem));
+        let mut out = Vec::new();
+        write_curve_csv(&mut out, &rows, Some(mualem.model)).expect("writes");
+        let text = String::from_utf8(out).expect("utf-8");
+        assert!(text.ends_with(",mualem-brooks-corey\n"), "{text}");
+        let mualem_kr = rows[0].relative_conductivity.expect("Kr");
+        let burdine_kr = curve_rows(&brooks_corey(), &[100.0], Some(spec))[0]
+            .relative_conductivity
+            .expect("Kr");
+        // Mualem's exponent (2.5 + 2/lambda with L = 0.5) is smaller than Burdine's (3 + 2/lambda).
+        assert!(mualem_kr > burdine_kr);
     }
 
     #[test]
     fn options_are_checked() {
         assert_eq!(
-            ConductivitySpec::new(ModelKind::FredlundXing, 10.0, None),
-            Err(CurveTableError::NoConductivityModel(
-                ModelKind::FredlundXing
+            ConductivitySpec::new(ModelKind::FredlundXing, 10.0, None, None),
+            Err(CurveTableError::Conductivity(
+                ConductivityChoiceError::NoClosedForm(ModelKind::FredlundXing)
             ))
         );
         assert!(matches!(
-            ConductivitySpec::new(ModelKind::VanGenuchten, f64::NAN, None),
+            ConductivitySpec::new(ModelKind::VanGenuchten, f64::NAN, None, None),
             Err(CurveTableError::BadKs(v)) if v.is_nan()
         ));
         assert_eq!(
-            ConductivitySpec::new(ModelKind::VanGenuchten, 0.0, None),
+            ConductivitySpec::new(ModelKind::VanGenuchten, 0.0, None, None),
             Err(CurveTableError::BadKs(0.0))
         );
         assert!(matches!(
-            ConductivitySpec::new(ModelKind::BrooksCorey, 10.0, Some(1.0)),
+            ConductivitySpec::new(ModelKind::BrooksCorey, 10.0, Some(1.0), None),
             Err(CurveTableError::NoPoreConnectivity { .. })
         ));
-        let spec = ConductivitySpec::new(ModelKind::VanGenuchten, 10.0, Some(-1.0)).expect("ok");
+        let spec =
+            ConductivitySpec::new(ModelKind::VanGenuchten, 10.0, Some(-1.0), None).expect("ok");
         assert_eq!(spec.pore_connectivity, -1.0);
         assert!(matches!(
             suctions_to_cm(&[10.0, -1.0], SuctionUnit::Kpa),

@@ -33,6 +33,7 @@ pub mod schema;
 pub mod snapshot;
 pub mod tables;
 
+use crate::model::conductivity::ConductivityForm;
 use std::fmt;
 use std::path::{Path, PathBuf};
 use std::str::FromStr;
@@ -139,6 +140,9 @@ pub struct ExportOptions {
     pub root_zone_cm: f64,
     /// The export time to state; `None` for now. Lets a build reproduce a file exactly.
     pub exported_at: Option<DateTime<Utc>>,
+    /// The conductivity form for the K values where a model has it (Brooks-Corey: Burdine or
+    /// Mualem); `None`: the form recorded with each fit.
+    pub conductivity: Option<ConductivityForm>,
 }
 
 impl ExportOptions {
@@ -150,6 +154,7 @@ impl ExportOptions {
             site: None,
             root_zone_cm: DEFAULT_ROOT_ZONE_CM,
             exported_at: None,
+            conductivity: None,
         }
     }
 
@@ -171,6 +176,13 @@ impl ExportOptions {
     #[must_use]
     pub fn with_root_zone_cm(mut self, root_zone_cm: f64) -> Self {
         self.root_zone_cm = root_zone_cm;
+        self
+    }
+
+    /// The conductivity form for K values (where a model has it).
+    #[must_use]
+    pub fn with_conductivity(mut self, form: Option<ConductivityForm>) -> Self {
+        self.conductivity = form;
         self
     }
 
@@ -416,6 +428,7 @@ pub fn build_export(
         conn,
         options.site.as_deref(),
         options.root_zone_cm,
+        options.conductivity,
         &|_, _| counter.step(),
     )?;
     drop(tx);

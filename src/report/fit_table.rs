@@ -5,8 +5,11 @@
 //! the order of the model table, empty where a model has no such parameter. With `auto`, a
 //! last column `ranking` lists every ranked model as `model:akaike_weight` (best first) and the
 //! skipped ones as `model:skipped`. Not-applicable values are empty cells (JSON null), never NaN.
-//! JSON: an array of `{sample, model, parameters: {name: {value, se}}, sse, rmse, r2, aicc, bic,
-//! n_points, converged, message}` (plus `ranking` and `skipped` with `auto`).
+//! JSON: an array of `{sample, model, parameters: {name: {value, se, ci95, ci95_scale,
+//! kink_cm}}, sse, rmse, r2, aicc, bic, n_points, converged, message}` (plus `ranking` and
+//! `skipped` with `auto`): `ci95` is the 95 % interval, on the `log` scale for suctions and
+//! inverse suctions and the `linear` one otherwise; `kink_cm` the measured suction a
+//! breakpoint sits on (its se and interval then come from a one-sided derivative).
 
 use serde_json::{Map, Value, json};
 
@@ -157,9 +160,19 @@ fn row_json(row: &FitRow) -> Value {
     let r = row.report.as_ref();
     if let Some(rep) = r {
         for p in &rep.parameters {
+            let ci95 = p
+                .ci95
+                .filter(|c| c.iter().all(|v| v.is_finite()))
+                .map_or(Value::Null, |c| json!(c));
             params.insert(
                 p.name.clone(),
-                json!({"value": opt(Some(p.value)), "se": opt(p.se)}),
+                json!({
+                    "value": opt(Some(p.value)),
+                    "se": opt(p.se),
+                    "ci95": ci95,
+                    "ci95_scale": p.ci95_scale,
+                    "kink_cm": opt(p.kink_cm),
+                }),
             );
         }
     }
@@ -253,6 +266,25 @@ mod tests {
         let campbell = text.lines().nth(1).unwrap();
         assert!(campbell.starts_with("S1,campbell,,"), "{campbell}");
         assert!(!text.contains("NaN"));
+    }
+
+    #[test]
+    fn json_gives_each_interval_with_its_scale() {
+        let rows = vec![row(ModelKind::VanGenuchten)];
+        let v: Value = serde_json::from_str(&to_json(&rows).unwrap()).unwrap();
+        let alpha = &v[0]["parameters"]["alpha_per_cm"];
+        assert_eq!(alpha["ci95_scale"], "log", "{alpha}");
+        let (value, lo, hi) = (
+            alpha["value"].as_f64().unwrap(),
+            alpha["ci95"][0].as_f64().unwrap(),
+            alpha["ci95"][1].as_f64().unwrap(),
+        );
+        assert!(
+            lo > 0.0 && ((lo * hi).sqrt() / value - 1.0).abs() < 1e-12,
+            "{alpha}"
+        );
+        assert_eq!(v[0]["parameters"]["n"]["ci95_scale"], "linear");
+        assert_eq!(alpha["kink_cm"], Value::Null);
     }
 
     #[test]

@@ -48,6 +48,10 @@ pub enum Cell {
     Int(i64),
     /// A measurement, or nothing; non-finite values are treated as nothing.
     Real(Option<f64>),
+    /// A measurement with the exact text CSV and JSON write for it (a decimal that imports
+    /// back to the stored value); text tables round `value` for people. A text that is not a
+    /// JSON number (`-inf`, pF of 0 cm) is `null` in JSON; an empty text is nothing.
+    Decimal(Option<String>, f64),
 }
 
 impl Cell {
@@ -56,16 +60,35 @@ impl Cell {
         Cell::Text(Some(s.into()))
     }
 
-    fn is_numeric(&self) -> bool {
-        matches!(self, Cell::Int(_) | Cell::Real(_))
+    /// A measurement written in full in CSV and JSON: the shortest decimal that reads back
+    /// as exactly `v`.
+    pub fn exact(v: Option<f64>) -> Self {
+        match v.filter(|v| v.is_finite()) {
+            Some(v) => Cell::Decimal(Some(super::format_number(v)), v),
+            None => Cell::Real(None),
+        }
     }
 
-    /// The cell as text with `digits` significant digits for reals; `None` when empty.
+    fn is_numeric(&self) -> bool {
+        matches!(self, Cell::Int(_) | Cell::Real(_) | Cell::Decimal(..))
+    }
+
+    /// The cell as text for people, with `digits` significant digits for reals; `None` when
+    /// empty.
     fn render(&self, digits: usize) -> Option<String> {
         match self {
             Cell::Text(t) => t.clone(),
             Cell::Int(i) => Some(i.to_string()),
             Cell::Real(v) => v.and_then(|v| significant(v, digits)),
+            Cell::Decimal(_, v) => significant(*v, digits),
+        }
+    }
+
+    /// The cell as CSV and JSON write it: exact decimals in full, other reals with `digits`.
+    fn render_export(&self, digits: usize) -> Option<String> {
+        match self {
+            Cell::Decimal(text, _) => text.clone(),
+            other => other.render(digits),
         }
     }
 }
@@ -204,7 +227,7 @@ impl Listing {
         for row in &self.rows {
             w.write_record(
                 row.iter()
-                    .map(|c| c.render(EXPORT_DIGITS).unwrap_or_default()),
+                    .map(|c| c.render_export(EXPORT_DIGITS).unwrap_or_default()),
             )?;
         }
         let bytes = w
@@ -222,9 +245,10 @@ impl Listing {
                 if k > 0 {
                     out.push_str(", ");
                 }
-                let value = match (cell, cell.render(EXPORT_DIGITS)) {
+                let value = match (cell, cell.render_export(EXPORT_DIGITS)) {
                     (_, None) => "null".to_string(),
                     (Cell::Text(_), Some(t)) => serde_json::Value::String(t).to_string(),
+                    (Cell::Decimal(_, v), Some(_)) if !v.is_finite() => "null".to_string(),
                     (_, Some(t)) => t,
                 };
                 let _ = write!(

@@ -16,6 +16,7 @@ use sha2::{Digest, Sha256};
 use super::sql_types::SqlTime;
 use super::{Result, StoreError};
 use crate::fit::{AutoFit, FitReport, SkippedModel};
+use crate::model::conductivity::ConductivityForm;
 use crate::model::domain::{LayerRef, SampleKind};
 use crate::model::number::hex;
 
@@ -266,6 +267,10 @@ pub struct RankEntry {
     pub rmse: f64,
     /// Free parameters.
     pub n_free_params: usize,
+    /// Parameters AICc counts (free ones + the error variance); 0 when stored before the
+    /// variance was counted (the ranking is then recomputed on reading, see [`Ranking::recount`]).
+    #[serde(default)]
+    pub n_criteria_params: usize,
     /// Parameter values by name, in model order.
     pub parameters: Vec<(String, f64)>,
 }
@@ -277,6 +282,51 @@ pub struct Ranking {
     pub ranked: Vec<RankEntry>,
     /// Models not ranked, with the reason.
     pub skipped: Vec<SkippedModel>,
+}
+
+impl Ranking {
+    /// Bring a ranking stored before AICc counted the error variance to the current
+    /// convention: each AICc recomputed from `n_points`, its model's free parameters and SSE,
+    /// then the order, differences and Akaike weights. A model whose AICc no longer exists
+    /// (too few readings) moves to the skipped ones. Returns whether anything changed.
+    pub fn recount(&mut self, n_points: usize) -> bool {
+        if self.ranked.iter().all(|e| e.n_criteria_params != 0) {
+            return false;
+        }
+        let mut kept = Vec::with_capacity(self.ranked.len());
+        for mut e in std::mem::take(&mut self.ranked) {
+            e.aicc = crate::fit::aicc(n_points, e.n_free_params, e.sse);
+            e.n_criteria_params = crate::fit::criteria_parameters(e.n_free_params);
+            if e.aicc.is_some() {
+                kept.push(e);
+            } else {
+                self.skipped.push(SkippedModel {
+                    model: e.model,
+                    reason: format!(
+                        "{n_points} readings for {} free parameters: auto needs at least {}",
+                        e.n_free_params,
+                        crate::fit::min_points_for_aicc(e.n_free_params)
+                    ),
+                });
+            }
+        }
+        kept.sort_by(|a, b| {
+            a.aicc
+                .unwrap_or(f64::INFINITY)
+                .total_cmp(&b.aicc.unwrap_or(f64::INFINITY))
+        });
+        let best = kept.first().and_then(|e| e.aicc).unwrap_or(0.0);
+        let total: f64 = kept
+            .iter()
+            .map(|e| (-0.5 * (e.aicc.unwrap_or(f64::INFINITY) - best)).exp())
+            .sum();
+        for e in &mut kept {
+            e.delta_aicc = e.aicc.unwrap_or(f64::INFINITY) - best;
+            e.akaike_weight = (-0.5 * e.delta_aicc).exp() / total;
+        }
+        self.ranked = kept;
+        true
+    }
 }
 
 impl From<&AutoFit> for Ranking {
@@ -293,6 +343,7 @@ impl From<&AutoFit> for Ranking {
                     sse: r.report.sse,
                     rmse: r.report.rmse,
                     n_free_params: r.report.n_free_params,
+                    n_criteria_params: r.report.n_criteria_params,
                     parameters: r
                         .report
                         .parameters
@@ -323,6 +374,8 @@ pub struct NewFit<'a> {
     pub ranking: Option<&'a Ranking>,
     /// `Some(reason)` for a failed attempt.
     pub failure: Option<&'a str>,
+    /// The conductivity form asked for (`None`: the model's usual pairing).
+    pub conductivity: Option<ConductivityForm>,
 }
 
 fn json<T: Serialize + ?Sized>(value: &T) -> Result<String> {
@@ -378,8 +431,9 @@ pub fn record(conn: &Connection, fit: &NewFit<'_>) -> Result<i64> {
     conn.prepare_cached(
         "INSERT INTO fit (sample_id, model, parameters, standard_errors, covariance, statistics,
              n_points, readings_fingerprint, created_at, is_current, status, message, requested,
-             fixed, report, ranking, reading_ids, sample_rev)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18)",
+             fixed, report, ranking, reading_ids, sample_rev, conductivity)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18,
+             ?19)",
     )?
     .execute(params![
         fit.input.sample.id,
@@ -403,6 +457,7 @@ pub fn record(conn: &Connection, fit: &NewFit<'_>) -> Result<i64> {
         fit.ranking.map(json).transpose()?,
         json(&fit.input.reading_ids)?,
         fit.input.sample.revision,
+        fit.conductivity.map(ConductivityForm::id),
     ])?;
     Ok(conn.last_insert_rowid())
 }
@@ -440,11 +495,13 @@ pub struct StoredFit {
     pub created_at: DateTime<Utc>,
     /// The sample's current fit.
     pub is_current: bool,
+    /// The conductivity form asked for when it was made (`None`: the model's usual pairing).
+    pub conductivity: Option<ConductivityForm>,
 }
 
 const FIT_COLUMNS: &str = "f.id, f.sample_id, f.model, f.requested, f.status, f.message, \
      f.fixed, f.report, f.ranking, f.reading_ids, f.n_points, f.readings_fingerprint, \
-     f.sample_rev, f.created_at, f.is_current";
+     f.sample_rev, f.created_at, f.is_current, f.conductivity";
 
 fn decode<T: for<'de> Deserialize<'de>>(text: Option<String>, what: &str) -> Result<Option<T>> {
     text.map(|t| {
@@ -471,6 +528,7 @@ struct RawFit {
     sample_rev: Option<i64>,
     created_at: SqlTime,
     is_current: bool,
+    conductivity: Option<String>,
 }
 
 fn raw(r: &Row<'_>) -> rusqlite::Result<RawFit> {
@@ -490,6 +548,7 @@ fn raw(r: &Row<'_>) -> rusqlite::Result<RawFit> {
         sample_rev: r.get(12)?,
         created_at: r.get(13)?,
         is_current: r.get(14)?,
+        conductivity: r.get(15)?,
     })
 }
 
@@ -497,6 +556,15 @@ impl RawFit {
     fn decode(self) -> Result<StoredFit> {
         let fixed: BTreeMap<String, f64> =
             decode(self.fixed, "fixed parameters")?.unwrap_or_default();
+        // Fits stored by an earlier version: criteria, intervals and kinks as now.
+        let mut report: Option<FitReport> = decode(self.report, "report")?;
+        if let Some(r) = &mut report {
+            r.upgrade_stored();
+        }
+        let mut ranking: Option<Ranking> = decode(self.ranking, "ranking")?;
+        if let Some(r) = &mut ranking {
+            r.recount(self.n_points.max(0) as usize);
+        }
         Ok(StoredFit {
             id: self.id,
             sample_id: self.sample_id,
@@ -509,14 +577,18 @@ impl RawFit {
             },
             message: self.message,
             fixed: fixed.into_iter().collect(),
-            report: decode(self.report, "report")?,
-            ranking: decode(self.ranking, "ranking")?,
+            report,
+            ranking,
             reading_ids: decode(self.reading_ids, "reading ids")?.unwrap_or_default(),
             n_points: self.n_points.max(0) as usize,
             fingerprint: self.fingerprint,
             sample_revision: self.sample_rev,
             created_at: self.created_at.0,
             is_current: self.is_current,
+            conductivity: self
+                .conductivity
+                .map(|c| c.parse().map_err(StoreError::Corrupt))
+                .transpose()?,
         })
     }
 }
@@ -725,6 +797,7 @@ pub fn readings_fingerprint(conn: &Connection, sample_id: i64) -> Result<String>
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)]
 mod tests {
     use super::*;
 
@@ -749,5 +822,58 @@ mod tests {
             fingerprint(&[1, 2], &[10.0, 100.0], &[0.4, 0.3], Some(&[1.0, 2.0]))
         );
         assert_eq!(base.len(), 64);
+    }
+
+    /// A ranking as stored before AICc counted the error variance (no `n_criteria_params`).
+    fn old_entry(model: &str, k: usize, sse: f64, n: usize) -> RankEntry {
+        let (nf, kf) = (n as f64, k as f64);
+        let old_aicc = nf * (sse / nf).ln() + 2.0 * kf + 2.0 * kf * (kf + 1.0) / (nf - kf - 1.0);
+        let json = serde_json::json!({
+            "model": model, "aicc": old_aicc, "delta_aicc": 0.0, "akaike_weight": 0.5,
+            "sse": sse, "rmse": (sse / nf).sqrt(), "n_free_params": k, "parameters": [],
+        });
+        serde_json::from_value(json).expect("an old entry decodes")
+    }
+
+    #[test]
+    fn rankings_stored_before_the_variance_was_counted_are_recounted() {
+        let n = 9;
+        // Counting k only, 5 parameters with SSE 0.0002 beat 4 with 0.0009 (AICc -66.4 vs
+        // -64.9); counting K = k + 1 the fifth parameter costs more (-42.4 vs -52.9).
+        let mut ranking = Ranking {
+            ranked: vec![
+                old_entry("durner", 7, 1e-7, n),
+                old_entry("fredlund-xing", 5, 0.0002, n),
+                old_entry("van-genuchten", 4, 0.0009, n),
+                old_entry("campbell", 3, 0.004, n),
+            ],
+            skipped: Vec::new(),
+        };
+        assert!(ranking.recount(n));
+        let order: Vec<&str> = ranking.ranked.iter().map(|e| e.model.as_str()).collect();
+        assert_eq!(order, ["van-genuchten", "campbell", "fredlund-xing"]);
+        // Durner (K = 8) needs n > 9: with 9 readings it has no AICc any more.
+        assert_eq!(ranking.skipped[0].model, "durner");
+        assert!(
+            ranking.skipped[0].reason.contains("auto needs at least 10"),
+            "{:?}",
+            ranking.skipped
+        );
+        let nf = n as f64;
+        let want = nf * (0.0009 / nf).ln() + 10.0 + 2.0 * 5.0 * 6.0 / (nf - 6.0);
+        assert!((ranking.ranked[0].aicc.expect("aicc") - want).abs() < 1e-12);
+        assert_eq!(ranking.ranked[0].delta_aicc, 0.0);
+        let total: f64 = ranking.ranked.iter().map(|e| e.akaike_weight).sum();
+        assert!((total - 1.0).abs() < 1e-12);
+        assert!(
+            ranking
+                .ranked
+                .iter()
+                .all(|e| e.n_criteria_params == e.n_free_params + 1)
+        );
+        // A second reading changes nothing.
+        let again = ranking.clone();
+        assert!(!ranking.recount(n));
+        assert_eq!(ranking, again);
     }
 }

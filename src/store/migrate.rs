@@ -14,6 +14,8 @@ pub const MIGRATIONS: &[&str] = &[
     include_str!("../../migrations/0002_fits.sql"),
     include_str!("../../migrations/0003_flag_review.sql"),
     include_str!("../../migrations/0004_fit_summary_index.sql"),
+    include_str!("../../migrations/0005_fit_conductivity.sql"),
+    include_str!("../../migrations/0006_oven_dry_suction.sql"),
 ];
 
 /// `application_id` written by the first migration, so a porewise file can be recognised.
@@ -42,11 +44,32 @@ pub fn migrate(conn: &mut Connection) -> Result<i64> {
     let current = schema_version(conn)?;
     check_known(current)?;
     if current < latest_version() {
-        let tx = conn.transaction()?;
-        apply_pending(&tx, current)?;
-        tx.commit()?;
+        // A step may rebuild a table (SQLite cannot change a CHECK constraint in place):
+        // SQLite's procedure for that has foreign keys off around the transaction and checks
+        // them before the commit. They are switched back on whatever happens.
+        let foreign_keys: bool = conn.pragma_query_value(None, "foreign_keys", |r| r.get(0))?;
+        conn.pragma_update(None, "foreign_keys", false)?;
+        let result = apply_checked(conn, current);
+        conn.pragma_update(None, "foreign_keys", foreign_keys)?;
+        result?;
     }
     Ok(latest_version())
+}
+
+/// The pending steps in one transaction, committed only when no foreign key is broken.
+fn apply_checked(conn: &mut Connection, current: i64) -> Result<()> {
+    let tx = conn.transaction()?;
+    apply_pending(&tx, current)?;
+    let broken: i64 = tx.query_row("SELECT count(*) FROM pragma_foreign_key_check", [], |r| {
+        r.get(0)
+    })?;
+    if broken > 0 {
+        return Err(StoreError::Corrupt(format!(
+            "{broken} foreign key references broken after the schema upgrade; nothing was changed"
+        )));
+    }
+    tx.commit()?;
+    Ok(())
 }
 
 /// Refuse a version newer than this program knows.

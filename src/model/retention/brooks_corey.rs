@@ -105,6 +105,16 @@ impl RetentionModel for BrooksCorey {
         p[1]
     }
 
+    /// 1 up to h_b, (h_b / h)^lambda above it.
+    fn effective_saturation(&self, h: f64, p: &[f64]) -> f64 {
+        let (h_b, lambda) = (p[2], p[3]);
+        if h <= h_b {
+            1.0
+        } else {
+            (lambda * (h_b / h).ln()).exp()
+        }
+    }
+
     /// 0 below h_b, lambda (theta_s - theta_r) Se / h above it, `None` at h = h_b where the
     /// left limit (0) and the right limit (lambda (theta_s - theta_r) / h_b) differ.
     #[allow(clippy::float_cmp)] // the break point itself, exactly

@@ -104,6 +104,16 @@ impl RetentionModel for Campbell {
         p[0]
     }
 
+    /// theta / theta_s: 1 up to h_e, (h_e / h)^(1/b) above it.
+    fn effective_saturation(&self, h: f64, p: &[f64]) -> f64 {
+        let (h_e, b) = (p[1], p[2]);
+        if h <= h_e {
+            1.0
+        } else {
+            ((h_e / h).ln() / b).exp()
+        }
+    }
+
     /// 0 below h_e, theta / (b h) above it, `None` at h = h_e where the one-sided limits differ.
     #[allow(clippy::float_cmp)] // the break point itself, exactly
     fn capacity(&self, h: f64, p: &[f64]) -> Option<f64> {

@@ -160,6 +160,12 @@ impl RetentionModel for Durner {
         p[1]
     }
 
+    /// w1 Se1 + (1 - w1) Se2.
+    fn effective_saturation(&self, h: f64, p: &[f64]) -> f64 {
+        let (s1, s2) = mode_saturations(h, p);
+        p[2] * s1 + (1.0 - p[2]) * s2
+    }
+
     fn capacity(&self, h: f64, p: &[f64]) -> Option<f64> {
         let c1 = term_neg_d_h(h, p[3], p[4], mualem_m(p[4]))?;
         let c2 = term_neg_d_h(h, p[5], p[6], mualem_m(p[6]))?;

@@ -59,11 +59,14 @@ pub(crate) const PARAMS: [ParamSpec; 5] = [THETA_S, A, N, M, H_R];
 const H_R_GUESS_CM: f64 = 1500.0 * CM_PER_KPA;
 
 /// The correction term C(h) = 1 - ln(1 + h / h_r) / ln(1 + h_dry / h_r), 0 beyond h_dry.
+///
+/// Evaluated as ln(1 + (h_dry - h) / (h_r + h)) / ln(1 + h_dry / h_r), the same value
+/// without the cancellation of 1 - (...) near h_dry, where C(h) itself tends to 0.
 pub fn correction(h_cm: f64, h_r_cm: f64) -> f64 {
     if h_cm >= H_DRY_CM {
         0.0
     } else {
-        1.0 - (h_cm / h_r_cm).ln_1p() / (H_DRY_CM / h_r_cm).ln_1p()
+        ((H_DRY_CM - h_cm) / (h_r_cm + h_cm)).ln_1p() / (H_DRY_CM / h_r_cm).ln_1p()
     }
 }
 
@@ -95,7 +98,7 @@ impl Terms {
         let (sp, q) = softplus_sigmoid(t);
         let l = 1.0 + sp;
         Terms {
-            corr: 1.0 - a_num / b_den,
+            corr: ((H_DRY_CM - h) / (h_r + h)).ln_1p() / b_den,
             a_num,
             b_den,
             l,
@@ -204,6 +207,19 @@ impl RetentionModel for FredlundXing {
 
     fn theta_s(&self, p: &[f64]) -> f64 {
         p[0]
+    }
+
+    /// theta / theta_s = C(h) / ln(e + (h / a)^n)^m: 1 at h = 0, 0 from h_dry on.
+    fn effective_saturation(&self, h: f64, p: &[f64]) -> f64 {
+        let (a, n, m, h_r) = (p[1], p[2], p[3], p[4]);
+        if h <= 0.0 {
+            1.0
+        } else if h >= H_DRY_CM {
+            0.0
+        } else {
+            let t = Terms::at(h, a, n, m, h_r);
+            t.corr * t.lm
+        }
     }
 
     /// theta_s [L^-m / ((h_r + h) ln(1 + h_dry/h_r)) + C(h) m n L^(-m-1) q / h]; at h = 0 the

@@ -100,6 +100,10 @@ impl RetentionModel for VanGenuchten {
         p[1]
     }
 
+    fn effective_saturation(&self, h: f64, p: &[f64]) -> f64 {
+        term_se(h, p[2], p[3], mualem_m(p[3]))
+    }
+
     fn capacity(&self, h: f64, p: &[f64]) -> Option<f64> {
         term_neg_d_h(h, p[2], p[3], mualem_m(p[3])).map(|c| (p[1] - p[0]) * c)
     }

@@ -337,6 +337,10 @@ impl RetentionModel for VanGenuchtenFreeM {
         p[1]
     }
 
+    fn effective_saturation(&self, h: f64, p: &[f64]) -> f64 {
+        term_se(h, p[2], p[3], p[4])
+    }
+
     fn capacity(&self, h: f64, p: &[f64]) -> Option<f64> {
         term_neg_d_h(h, p[2], p[3], p[4]).map(|c| (p[1] - p[0]) * c)
     }

@@ -13,7 +13,7 @@ use std::fmt::Write as _;
 use super::chart::{Marker, colour_hex, layer_colour, layer_label};
 use super::snapshot::{ReadingFlag, SitePart, Snapshot, models_in};
 use super::tables::state_detail;
-use crate::fit::FitReport;
+use crate::fit::{FitReport, IntervalScale};
 use crate::model::domain::SampleKind;
 use crate::model::number::significant;
 use crate::model::retention::ModelKind;
@@ -305,11 +305,33 @@ fn parameters_cell(report: &FitReport) -> String {
             } else if p.at_bound.is_some() {
                 " (on a bound)".to_string()
             } else {
+                // One-sided at a kink: approximate, and said so.
+                let approx = if p.kink_cm.is_some() { "≈" } else { "" };
                 p.se.and_then(|se| significant(se, SE_DIGITS))
-                    .map(|se| format!(" ± {se}"))
+                    .map(|se| format!(" ± {approx}{se}"))
                     .unwrap_or_default()
             };
-            format!("<code>{}</code> = {value}{detail}{unit}", escape(&p.name))
+            let interval = match (p.ci95, p.ci95_scale) {
+                (Some([lo, hi]), Some(IntervalScale::Log)) => format!(
+                    " (95&#160;%: {}–{}, log scale)",
+                    num(Some(lo), SE_DIGITS),
+                    num(Some(hi), SE_DIGITS)
+                ),
+                _ => String::new(),
+            };
+            let kink = p
+                .kink_cm
+                .map(|h| {
+                    format!(
+                        " (on the reading at {} cm, a kink: one-sided derivative)",
+                        num(Some(h), DIGITS)
+                    )
+                })
+                .unwrap_or_default();
+            format!(
+                "<code>{}</code> = {value}{detail}{unit}{interval}{kink}",
+                escape(&p.name)
+            )
         })
         .collect::<Vec<_>>()
         .join("<br/>")
@@ -709,12 +731,20 @@ fn methods(out: &mut String, s: &Snapshot) {
          readings allows is fitted and the lowest AICc kept. Standard errors are the square \
          roots of the diagonal of the covariance s² (JᵀWJ)<sup>−1</sup>, J the Jacobian at the \
          optimum in the original parameters; 95&#160;% intervals are value ± t<sub>0.975, n−k</sub> \
-         × SE. A parameter fixed by the user or ending on a bound has no standard error.</p>\n\
+         × SE, and for suctions and inverse suctions (α, h<sub>b</sub>, h<sub>e</sub>, \
+         h<sub>m</sub>, a, h<sub>r</sub>), which are positive, the same Wald interval on the log \
+         scale: exp(ln p ± t<sub>0.975, n−k</sub> × SE / p) (delta method), which never \
+         includes impossible values. Where a Brooks-Corey h<sub>b</sub> or a Campbell \
+         h<sub>e</sub> sits exactly on a measured suction (within a relative 10<sup>−9</sup>), \
+         the curve has a kink there and the Jacobian holds a one-sided derivative: that standard \
+         error and interval are approximate (marked ≈). A parameter fixed by the user or ending \
+         on a bound has no standard error.</p>\n\
          <p>With n readings, k free parameters and weights w<sub>i</sub> (1 without weights): \
          SSE = Σ w<sub>i</sub> (θ<sub>i</sub> − θ̂<sub>i</sub>)²; RMSE = √(SSE / n); \
          R² = 1 − SSE / SST, SST = Σ w<sub>i</sub> (θ<sub>i</sub> − θ̄)²; \
-         AIC = n ln(SSE / n) + 2k; AICc = AIC + 2k(k + 1) / (n − k − 1); \
-         BIC = n ln(SSE / n) + k ln n.</p>\n\
+         AIC = n ln(SSE / n) + 2K; AICc = AIC + 2K(K + 1) / (n − K − 1); \
+         BIC = n ln(SSE / n) + K ln n, where K = k + 1 counts the error variance as a \
+         parameter (Burnham &amp; Anderson 2002, for least squares); AICc needs n &gt; k + 2.</p>\n\
          <p>A fit is <span class=\"stale\">stale</span> when the sample's readings (or the \
          flags on them) changed after it was made, or a later refit failed; it is still shown \
          and used, and marked.</p>\n\

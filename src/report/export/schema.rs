@@ -3,7 +3,7 @@
 //! Layout (schema version [`SCHEMA_VERSION`]):
 //!
 //! ```text
-//! { "format": "porewise-campaign", "schema_version": 1,
+//! { "format": "porewise-campaign", "schema_version": 2,
 //!   "program": {"name", "version"}, "exported_at", "fingerprint_sha256",
 //!   "data": { "campaign", "scope", "imports": [..],
 //!             "sites": [ { ..., "profile", "layers": [ { ..., "water", "samples": [
@@ -37,13 +37,14 @@ use sha2::{Digest, Sha256};
 use super::snapshot::{ReadingFlag, SamplePart, SitePart, Snapshot};
 use crate::analysis::water::LayerWater;
 use crate::fit::{FitReport, ParamEstimate, ParamMatrix, Termination};
+use crate::model::conductivity::{ConductivityForm, ConductivityModel};
 use crate::model::derived::DerivedValues;
 use crate::model::domain::{Branch, FlagOrigin, FlagStatus, LayerRef, SampleKind};
 use crate::model::number::hex;
 use crate::store::fits::{FitState, Ranking, StoredFit};
 
 /// The version of this document layout; bumped on any change to it.
-pub const SCHEMA_VERSION: u32 = 1;
+pub const SCHEMA_VERSION: u32 = 2;
 
 /// The value of the `format` member, naming what the document is.
 pub const FORMAT: &str = "porewise-campaign";
@@ -110,6 +111,10 @@ pub struct Scope {
     pub site: Option<String>,
     /// Depth down to which profile available water is summed, cm.
     pub root_zone_cm: f64,
+    /// The conductivity form asked for at export (`mualem`, `burdine`), used where a fit's
+    /// model has it; `null`: the form recorded with each fit. Each fit's `derived` names the
+    /// conductivity model its K values come from.
+    pub conductivity: Option<ConductivityForm>,
 }
 
 /// One imported file (provenance of sites, layers, samples and readings).
@@ -379,6 +384,8 @@ pub struct FitStatistics {
     pub n_points: usize,
     /// Free parameters, k.
     pub n_free_params: usize,
+    /// Parameters counted by AIC, AICc and BIC: K = k + 1, the error variance included.
+    pub n_criteria_params: usize,
     /// Passed every check of the fit engine.
     pub converged: bool,
     /// Why the solver stopped.
@@ -415,6 +422,9 @@ pub struct DerivedData {
     pub values: DerivedValues,
     /// Saturated conductivity of the layer, cm/day.
     pub ks_cm_per_day: Option<f64>,
+    /// The conductivity model of the K values (`mualem-van-genuchten`, `burdine-brooks-corey`,
+    /// ...); `null` for a model without a closed form.
+    pub conductivity_model: Option<ConductivityModel>,
     /// K at field capacity, cm/day.
     pub k_field_capacity_cm_per_day: Option<f64>,
     /// K at the wilting point, cm/day.
@@ -462,6 +472,7 @@ impl From<&Snapshot> for CampaignData {
             scope: Scope {
                 site: s.site_filter.clone(),
                 root_zone_cm: s.root_zone_cm,
+                conductivity: s.conductivity,
             },
             imports: s
                 .imports
@@ -611,6 +622,7 @@ fn statistics(r: &FitReport) -> FitStatistics {
         bic: r.bic,
         n_points: r.n_points,
         n_free_params: r.n_free_params,
+        n_criteria_params: r.n_criteria_params,
         converged: r.converged,
         termination: r.termination,
     }
@@ -653,6 +665,7 @@ fn fit_data(f: &StoredFit, part: &SamplePart) -> FitData {
         derived: part.fit.derived.as_ref().map(|d| DerivedData {
             values: d.values.clone(),
             ks_cm_per_day: d.ks_cm_per_day,
+            conductivity_model: d.conductivity_model,
             k_field_capacity_cm_per_day: d.k_field_capacity_cm_per_day,
             k_wilting_point_cm_per_day: d.k_wilting_point_cm_per_day,
         }),

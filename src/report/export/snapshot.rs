@@ -5,7 +5,8 @@ use std::collections::{BTreeMap, BTreeSet};
 
 use rusqlite::Connection;
 
-use crate::analysis::{SampleFit, SiteProfile, profiles, sample_fits};
+use crate::analysis::{SampleFit, SiteProfile, profiles, sample_fits_with};
+use crate::model::conductivity::ConductivityForm;
 use crate::model::retention::ModelKind;
 use crate::store::batches::{self, ImportBatchRecord};
 use crate::store::fits::Selection;
@@ -65,6 +66,8 @@ pub struct Snapshot {
     pub site_filter: Option<String>,
     /// Depth of the profile sums, cm.
     pub root_zone_cm: f64,
+    /// The conductivity form asked for at export (`None`: the one recorded with each fit).
+    pub conductivity: Option<ConductivityForm>,
     /// Sites by code.
     pub sites: Vec<SitePart>,
     /// Every import batch, oldest first.
@@ -175,6 +178,7 @@ pub fn read(
     conn: &Connection,
     site: Option<&str>,
     root_zone_cm: f64,
+    conductivity: Option<ConductivityForm>,
     progress: &dyn Fn(usize, usize),
 ) -> Result<Snapshot> {
     let selection = Selection {
@@ -184,10 +188,11 @@ pub fn read(
     selection.check(conn)?;
     let settings = campaign::settings(conn)?;
     let filter = Filter { site, sample: None };
-    let mut fits: BTreeMap<i64, SampleFit> = sample_fits(conn, &settings, &selection)?
-        .into_iter()
-        .map(|f| (f.sample.id, f))
-        .collect();
+    let mut fits: BTreeMap<i64, SampleFit> =
+        sample_fits_with(conn, &settings, &selection, conductivity)?
+            .into_iter()
+            .map(|f| (f.sample.id, f))
+            .collect();
     let mut readings_by_sample: BTreeMap<i64, Vec<StoredReading>> = BTreeMap::new();
     for row in readings::list(conn, filter)? {
         readings_by_sample
@@ -264,6 +269,7 @@ pub fn read(
         settings,
         site_filter: site.map(str::to_string),
         root_zone_cm,
+        conductivity,
         sites: parts,
         imports: batches::all(conn)?,
         flags,

@@ -94,10 +94,14 @@ pub fn sample(
     let readings = readings::of_sample(conn, sample_id)?;
     let flags = reading_flags(conn, &info.code)?;
     let fit = fits::current(conn, sample_id)?;
-    let derived = fit
-        .as_ref()
-        .and_then(|f| f.report.as_ref())
-        .and_then(|r| derive_fit(r, settings, layer.ks_cm_per_day));
+    let derived = fit.as_ref().and_then(|f| {
+        derive_fit(
+            f.report.as_ref()?,
+            settings,
+            layer.ks_cm_per_day,
+            f.conductivity,
+        )
+    });
     Ok(SampleDetail::from_parts(&SampleParts {
         info: &info,
         layer: &layer,

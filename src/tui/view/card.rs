@@ -1,11 +1,15 @@
-//! The fit card: model, every parameter with its ± and unit, statistics, derived values (FC,
-//! PWP, available water, air entry with its construction), staleness, and the auto ranking.
+//! The fit card: model, every parameter with its ± and unit (and the 95 % interval of a
+//! suction or inverse suction, on the log scale; ≈ and a note where a breakpoint sits on a
+//! reading, its error being one-sided), statistics with the parameter count of AICc and BIC,
+//! derived values (FC, PWP, available water, air entry with its construction), staleness, and
+//! the auto ranking.
 
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Paragraph, Widget, Wrap};
 
+use crate::fit::IntervalScale;
 use crate::model::retention::ModelKind;
 use crate::report::fits::state_text;
 
@@ -63,11 +67,13 @@ pub fn card_lines(state: &AppState, d: &SampleDetail, theme: Theme) -> Vec<Line<
         .max()
         .unwrap_or(0);
     for p in &fit.parameters {
+        // At a kink the standard error is one-sided: shown as approximate.
+        let approx = if p.kink_cm.is_some() { "≈" } else { "" };
         let (value, se) = match (p.fixed, p.se) {
             (true, _) => (num(p.value, 4), " fixed".to_string()),
             (false, Some(se)) => {
                 let (v, e) = estimate_text(p.value, se);
-                (v, format!("±{e}"))
+                (v, format!("±{approx}{e}"))
             }
             (false, None) if p.at_bound.is_some() => (num(p.value, 4), " on bound".to_string()),
             (false, None) => (num(p.value, 4), "±–".to_string()),
@@ -78,6 +84,18 @@ pub fn card_lines(state: &AppState, d: &SampleDetail, theme: Theme) -> Vec<Line<
             Span::raw(se),
             Span::styled(format!(" {}", p.unit), theme.dim()),
         ]));
+        if let (Some([lo, hi]), Some(IntervalScale::Log)) = (p.ci95, p.ci95_scale) {
+            lines.push(Line::from(Span::styled(
+                format!("  95 % {}…{}, log scale", num(lo, 3), num(hi, 3)),
+                theme.dim(),
+            )));
+        }
+        if let Some(h) = p.kink_cm {
+            lines.push(Line::from(Span::styled(
+                format!("  ≈ one-sided: on the reading at {} cm", num(h, 4)),
+                theme.dim(),
+            )));
+        }
     }
     lines.push(Line::from(format!(
         "RMSE {} m3/m3  R² {}",
@@ -88,6 +106,14 @@ pub fn card_lines(state: &AppState, d: &SampleDetail, theme: Theme) -> Vec<Line<
         "AICc {}  BIC {}",
         opt_num(fit.aicc, 4),
         opt_num(fit.bic, 4)
+    )));
+    let free = fit.parameters.iter().filter(|p| !p.fixed).count();
+    lines.push(Line::from(Span::styled(
+        format!(
+            "  K = {free} free + σ² = {}",
+            crate::fit::criteria_parameters(free)
+        ),
+        theme.dim(),
     )));
     if let Some(message) = &fit.message {
         lines.push(Line::from(Span::styled(message.clone(), theme.dim())));
@@ -174,6 +200,66 @@ impl Widget for CardPane<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn estimate(name: &str, unit: &str, value: f64, se: f64) -> crate::fit::ParamEstimate {
+        crate::fit::ParamEstimate {
+            name: name.into(),
+            unit: unit.into(),
+            value,
+            se: Some(se),
+            ci95: Some([value - 2.0 * se, value + 2.0 * se]),
+            ci95_scale: Some(IntervalScale::Linear),
+            kink_cm: None,
+            fixed: false,
+            at_bound: None,
+        }
+    }
+
+    #[test]
+    fn the_card_states_log_scale_intervals_kinks_and_the_criteria_convention() {
+        let state = AppState::default();
+        let mut d = crate::tui::app::fixtures::detail(1, "AA-0-a");
+        let mut h_b = estimate("h_b_cm", "cm", 50.0, 2.6);
+        h_b.ci95 = Some([44.12, 56.75]);
+        h_b.ci95_scale = Some(IntervalScale::Log);
+        h_b.kink_cm = Some(50.0);
+        d.fit = Some(crate::tui::app::FitView {
+            id: 3,
+            model: "brooks-corey".into(),
+            requested: Some("brooks-corey".into()),
+            parameters: vec![
+                estimate("theta_r", "m3/m3", 0.05, 0.007),
+                estimate("theta_s", "m3/m3", 0.42, 0.0016),
+                h_b,
+                estimate("lambda", "-", 0.46, 0.03),
+            ],
+            n_points: 10,
+            rmse: 0.002,
+            r2: Some(0.999),
+            aicc: Some(-100.0),
+            bic: Some(-110.0),
+            message: None,
+            derived: None,
+            ranking: None,
+        });
+        let text: Vec<String> = card_lines(&state, &d, Theme::default())
+            .iter()
+            .map(|l| l.spans.iter().map(|s| s.content.as_ref()).collect())
+            .collect();
+        let at = |needle: &str| {
+            text.iter()
+                .position(|l| l.contains(needle))
+                .unwrap_or_else(|| panic!("no {needle:?} in {text:#?}"))
+        };
+        let h_b_line = at("h_b_cm");
+        assert!(text[h_b_line].contains("±≈2.6"), "{}", text[h_b_line]);
+        assert_eq!(text[h_b_line + 1], "  95 % 44.1…56.8, log scale");
+        assert_eq!(text[h_b_line + 2], "  ≈ one-sided: on the reading at 50 cm");
+        // theta_r keeps its plain ± and no interval line (symmetric, linear scale).
+        let theta_r = at("theta_r");
+        assert!(!text[theta_r].contains('≈') && text[theta_r + 1].starts_with("theta_s"));
+        assert_eq!(text[at("AICc") + 1], "  K = 4 free + σ² = 5");
+    }
 
     #[test]
     fn estimates_are_written_to_the_precision_of_their_error() {
