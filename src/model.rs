@@ -8,4 +8,5 @@ pub mod derived;
 pub mod domain;
 pub mod number;
 pub mod retention;
+pub mod text;
 pub mod units;

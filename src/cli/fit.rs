@@ -16,6 +16,7 @@ use crate::import::pairs::{PairSample, PairsFile, read_pairs_path};
 use crate::model::domain::LayerRef;
 use crate::model::number::plural;
 use crate::model::retention::{ModelKind, parse_assignment};
+use crate::model::text::shown;
 use crate::report::fit_table::{FitRow, to_csv, to_json};
 use crate::report::review::{SuspectRow, suspects_csv};
 use crate::report::write_atomic;
@@ -121,7 +122,7 @@ fn run_campaign(
         summary.failed.len()
     );
     for (sample, reason) in &summary.failed {
-        eprintln!("sample {sample}: not fitted: {reason}");
+        eprintln!("sample {}: not fitted: {}", shown(sample), shown(reason));
     }
     Ok(if summary.failed.is_empty() {
         Outcome::Success
@@ -260,10 +261,10 @@ fn flag_outliers(
                 "{}:{}: sample {}: left out (suction {} cm, theta {}): {}",
                 input.display(),
                 s.line,
-                s.sample,
+                shown(&s.sample),
                 crate::report::format_number(s.h_cm),
                 crate::report::format_number(s.theta),
-                s.reason
+                shown(&s.reason)
             );
         }
     }
@@ -332,8 +333,8 @@ pub fn run(args: &FitArgs) -> anyhow::Result<Outcome> {
         partial = true;
         eprintln!(
             "sample {}: not fitted: {}",
-            row.sample,
-            row.message().unwrap_or("no converged fit")
+            shown(&row.sample),
+            shown(row.message().unwrap_or("no converged fit"))
         );
     }
     Ok(if partial {
