@@ -14,6 +14,7 @@ pub const MIGRATIONS: &[&str] = &[
     include_str!("../../migrations/0002_fits.sql"),
     include_str!("../../migrations/0003_flag_review.sql"),
     include_str!("../../migrations/0004_fit_summary_index.sql"),
+    include_str!("../../migrations/0005_measured_on_repair.sql"),
 ];
 
 /// `application_id` written by the first migration, so a porewise file can be recognised.
