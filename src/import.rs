@@ -31,11 +31,17 @@ pub use diagnostic::{Diagnostic, Diagnostics};
 
 /// How an import runs.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+#[allow(clippy::struct_excessive_bools)] // independent switches, one per command-line flag
 pub struct ImportOptions {
     /// Validate everything (against the campaign too) and report, but write nothing.
     pub dry_run: bool,
     /// Import files whose content was imported before.
     pub force: bool,
+    /// Refuse a file with a column porewise does not read (otherwise a warning).
+    pub strict: bool,
+    /// Accept layers of one site whose depth ranges overlap (nested or straddling on
+    /// purpose); otherwise such a layer is refused with both ranges named.
+    pub allow_overlap: bool,
 }
 
 /// One input: a name for messages and its bytes.
@@ -142,6 +148,8 @@ pub struct ImportSummary {
     pub files: Vec<FileSummary>,
     /// Rows added and updated.
     pub counts: ImportCounts,
+    /// Columns the files have that were not read, as warnings for stderr.
+    pub warnings: Vec<Diagnostic>,
 }
 
 /// How many rows an import adds and updates.
@@ -275,7 +283,11 @@ pub fn import_sources(
     sources: &[Source],
     options: ImportOptions,
 ) -> Result<ImportSummary, ImportError> {
-    let mut diags = Diagnostics::new();
+    let mut diags = if options.strict {
+        Diagnostics::strict()
+    } else {
+        Diagnostics::new()
+    };
     let mut batch = read_batch(kind, sources, &mut diags);
     let drafts = std::mem::take(&mut batch.readings);
     let tx = if options.dry_run {
@@ -294,7 +306,7 @@ pub fn import_sources(
             ));
         }
     }
-    let plan = apply::resolve(&tx, &batch, drafts, &mut diags)?;
+    let plan = apply::resolve(&tx, &batch, drafts, options.allow_overlap, &mut diags)?;
     if !diags.is_empty() {
         return Err(ImportError::Invalid(diags));
     }
@@ -321,5 +333,6 @@ pub fn import_sources(
             })
             .collect(),
         counts,
+        warnings: diags.warnings().to_vec(),
     })
 }

@@ -9,4 +9,5 @@ pub mod domain;
 pub mod number;
 pub mod retention;
 pub mod special;
+pub mod text;
 pub mod units;

@@ -1,6 +1,7 @@
 //! Tables and exports built from model and store values.
 
 pub mod campaign;
+pub mod csv_safe;
 pub mod curve_table;
 pub mod export;
 pub mod fit_table;

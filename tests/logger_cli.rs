@@ -20,7 +20,8 @@ fn every_bad_row_class_is_placed_and_nothing_is_written() {
         "3:sensor: found \"tensio\", expected a sensor (tensiometer, water_content)",
         "4:site: found an empty cell, expected a site code",
         "5:sensor_id: found an empty cell, expected a sensor id",
-        "6:depth_cm: found \"-5\", expected a depth of 0 cm or more below the surface",
+        "6:depth_cm: found \"-5\", expected a depth below the surface of 0 or from 0.01 to \
+         10000 cm (100 m)",
         "7:depth_cm: found \"abc\", expected a number",
         "8:time: found \"01/05/2026 06:00\", expected an ISO 8601 date and time such as \
          2026-05-01T12:00:00+02:00",

@@ -66,6 +66,7 @@ fn parse_format(s: &str) -> Result<ExportFormat, String> {
 pub fn run(args: &ExportArgs) -> anyhow::Result<Outcome> {
     let campaign = Campaign::open(&args.db)
         .with_context(|| format!("cannot open campaign {}", args.db.display()))?;
+    super::list::warn_unreadable(campaign.connection())?;
     let options = ExportOptions::new(&args.to)
         .with_formats(&args.format)
         .with_site(args.site.clone())

@@ -17,6 +17,7 @@ use crate::model::conductivity::{ConductivityForm, ConductivityModel};
 use crate::model::domain::LayerRef;
 use crate::model::number::plural;
 use crate::model::retention::{ModelKind, parse_assignment};
+use crate::model::text::shown;
 use crate::report::fit_table::{FitRow, to_csv, to_json};
 use crate::report::review::{SuspectRow, suspects_csv};
 use crate::report::write_atomic;
@@ -136,7 +137,7 @@ fn run_campaign(
         summary.failed.len()
     );
     for (sample, reason) in &summary.failed {
-        eprintln!("sample {sample}: not fitted: {reason}");
+        eprintln!("sample {}: not fitted: {}", shown(sample), shown(reason));
     }
     Ok(if summary.failed.is_empty() {
         Outcome::Success
@@ -275,10 +276,10 @@ fn flag_outliers(
                 "{}:{}: sample {}: left out (suction {} cm, theta {}): {}",
                 input.display(),
                 s.line,
-                s.sample,
+                shown(&s.sample),
                 crate::report::format_number(s.h_cm),
                 crate::report::format_number(s.theta),
-                s.reason
+                shown(&s.reason)
             );
         }
     }
@@ -353,8 +354,8 @@ pub fn run(args: &FitArgs) -> anyhow::Result<Outcome> {
         partial = true;
         eprintln!(
             "sample {}: not fitted: {}",
-            row.sample,
-            row.message().unwrap_or("no converged fit")
+            shown(&row.sample),
+            shown(row.message().unwrap_or("no converged fit"))
         );
     }
     Ok(if partial {

@@ -53,6 +53,7 @@ pub fn run(args: &FlagArgs) -> anyhow::Result<Outcome> {
 
 /// What a flag change did to the sample's fit, for the message after it.
 pub(crate) fn fit_note(sample: &str, state: &FitState) -> String {
+    let sample = crate::model::text::shown(sample);
     match state {
         FitState::Stale(_) => format!(
             "the fit of {sample} is stale until refitted (porewise fit DB --sample {sample})"

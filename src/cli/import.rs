@@ -6,7 +6,8 @@ use anyhow::Context;
 use clap::{Args, Subcommand};
 
 use crate::error::Outcome;
-use crate::import::{self, ImportKind, ImportOptions};
+use crate::import::diagnostic::warning_line;
+use crate::import::{self, Diagnostic, ImportError, ImportKind, ImportOptions};
 use crate::store::Campaign;
 
 /// The campaign file, the input files and how to import them.
@@ -23,6 +24,23 @@ pub struct ImportArgs {
     /// Import a file even though the same content was imported before.
     #[arg(long)]
     pub force: bool,
+    /// Refuse a file that has a column porewise does not read (by default a warning on
+    /// stderr names it and the known column it resembles).
+    #[arg(long)]
+    pub strict: bool,
+}
+
+/// The arguments of the imports that can create layers (`layers`, `lab`).
+#[derive(Debug, Args)]
+pub struct LayerImportArgs {
+    /// The campaign, the files and how to import them.
+    #[command(flatten)]
+    pub import: ImportArgs,
+    /// Accept layers of one site whose depth ranges overlap, for layers sampled nested
+    /// (5-10 cm inside 0-20 cm) or across another on purpose; without it such a layer is
+    /// refused with both ranges named.
+    #[arg(long)]
+    pub allow_overlap: bool,
 }
 
 /// What kind of file to import.
@@ -32,8 +50,11 @@ pub enum ImportCommand {
     #[command(after_help = "Example:\n  porewise import sites spring.sqlite sites.csv")]
     Sites(ImportArgs),
     /// Layers: site,top_cm,bottom_cm[,horizon,sand_pct,silt_pct,clay_pct,organic_carbon_pct,bulk_density_g_cm3,ks_cm_per_day].
-    #[command(after_help = "Example:\n  porewise import layers spring.sqlite layers.csv --dry-run")]
-    Layers(ImportArgs),
+    #[command(
+        after_help = "Examples:\n  porewise import layers spring.sqlite layers.csv --dry-run\n  \
+         porewise import layers spring.sqlite subsamples.csv --allow-overlap"
+    )]
+    Layers(LayerImportArgs),
     /// Lab retention readings: site,top_cm,bottom_cm,sample,method,suction_<unit>|pf,theta|theta_pct|water_g_per_g[,measured_on,bulk_density_g_cm3,weight,notes,branch].
     ///
     /// Suction units: suction_cm, suction_hpa, suction_kpa, suction_mpa, suction_bar, pf.
@@ -41,7 +62,7 @@ pub enum ImportCommand {
     #[command(
         after_help = "Example:\n  porewise import lab spring.sqlite plates-kpa.csv dewpoint-pf.csv"
     )]
-    Lab(ImportArgs),
+    Lab(LayerImportArgs),
     /// Field logger records: site,depth_cm,sensor,sensor_id,time,value,unit (streamed).
     ///
     /// sensor is tensiometer or water_content; unit (any case) is cm, hpa, kpa, mpa or bar for
@@ -65,20 +86,34 @@ pub enum ImportCommand {
 /// The campaign cannot be opened, or the files are refused (every problem listed; nothing
 /// was written).
 pub fn run(cmd: &ImportCommand) -> anyhow::Result<Outcome> {
-    let (kind, args) = match cmd {
-        ImportCommand::Sites(a) => (ImportKind::Sites, a),
-        ImportCommand::Layers(a) => (ImportKind::Layers, a),
-        ImportCommand::Lab(a) => (ImportKind::Lab, a),
+    let (kind, args, allow_overlap) = match cmd {
+        ImportCommand::Sites(a) => (ImportKind::Sites, a, false),
+        ImportCommand::Layers(a) => (ImportKind::Layers, &a.import, a.allow_overlap),
+        ImportCommand::Lab(a) => (ImportKind::Lab, &a.import, a.allow_overlap),
         ImportCommand::Logger(a) => return super::logger::run(a),
     };
     let mut campaign = open(&args.db)?;
     let options = ImportOptions {
         dry_run: args.dry_run,
         force: args.force,
+        strict: args.strict,
+        allow_overlap,
     };
-    let summary = import::import_files(&mut campaign, kind, &args.files, options)?;
-    println!("{summary}");
+    let result = import::import_files(&mut campaign, kind, &args.files, options);
+    match &result {
+        Ok(summary) => print_warnings(&summary.warnings),
+        Err(ImportError::Invalid(diags)) => print_warnings(diags.warnings()),
+        Err(_) => {}
+    }
+    println!("{}", result?);
     Ok(Outcome::Success)
+}
+
+/// Print the warnings of an import on stderr, one `FILE:LINE:COLUMN: warning: ...` a line.
+pub(crate) fn print_warnings(warnings: &[Diagnostic]) {
+    for w in warnings {
+        eprintln!("{}", warning_line(w));
+    }
 }
 
 /// Open the campaign file named on the command line.

@@ -117,6 +117,18 @@ fn flag_filter(args: &ListArgs) -> FlagFilter {
     }
 }
 
+/// Name on stderr every reading with a stored value that cannot be read back (it is shown
+/// empty; the rest of the listing or export goes on).
+///
+/// # Errors
+/// An SQLite error.
+pub(crate) fn warn_unreadable(conn: &Connection) -> anyhow::Result<()> {
+    for row in readings::unreadable(conn)? {
+        eprintln!("warning: {row}");
+    }
+    Ok(())
+}
+
 /// Run `porewise list`.
 ///
 /// # Errors
@@ -165,11 +177,14 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
         What::Sites => sites_listing(&sites::list(conn, filter.site)?),
         What::Layers => layers_listing(&layers::list(conn, filter.site)?),
         What::Samples => samples_listing(&samples::list(conn, filter)?),
-        What::Readings => readings_listing_with_flags(
-            &readings::list(conn, filter)?,
-            args.units,
-            &flags::reading_marks(conn)?,
-        ),
+        What::Readings => {
+            warn_unreadable(conn)?;
+            readings_listing_with_flags(
+                &readings::list(conn, filter)?,
+                args.units,
+                &flags::reading_marks(conn)?,
+            )
+        }
         What::Flags => flags_listing(&flags::list(conn, &flag_filter(args))?, args.units),
         What::FlagEvents => {
             let mut events = Vec::new();

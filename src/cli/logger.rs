@@ -11,6 +11,7 @@ use crate::field::quality::{
     DEFAULT_SPIKE_RECORDS, DEFAULT_TENSIOMETER_LIMIT_KPA, QualitySettings, SpikeJump, parse_spike,
 };
 use crate::field::time::{parse_offset, parse_span};
+use crate::import::ImportError;
 use crate::import::logger::{LoggerOptions, Progress, import_logger_files};
 use crate::model::units::CM_PER_KPA;
 
@@ -101,6 +102,7 @@ impl LoggerArgs {
             skip_duplicates: self.skip_duplicates,
             utc_offset_s: self.utc_offset,
             quality,
+            strict: self.import.strict,
         }
     }
 }
@@ -158,6 +160,11 @@ pub fn run(args: &LoggerArgs) -> anyhow::Result<Outcome> {
     let mut bar = Bar::new();
     let summary = import_logger_files(&mut campaign, &args.import.files, args.options(), &mut bar);
     bar.done();
+    match &summary {
+        Ok(s) => super::import::print_warnings(&s.warnings),
+        Err(ImportError::Invalid(diags)) => super::import::print_warnings(diags.warnings()),
+        Err(_) => {}
+    }
     println!("{}", summary?);
     Ok(Outcome::Success)
 }

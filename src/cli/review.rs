@@ -11,6 +11,7 @@ use crate::error::Outcome;
 use crate::fit::outliers::{NoiseBasis, OutlierOptions};
 use crate::model::number::plural;
 use crate::model::retention::ModelKind;
+use crate::model::text::shown;
 use crate::model::units::SuctionUnit;
 use crate::report::review::queue_listing;
 use crate::store::Campaign;
@@ -137,7 +138,7 @@ fn report_refit(decided: &Decided, to_stderr: bool) -> Outcome {
         }
     }
     for (sample, reason) in &decided.refit.failed {
-        eprintln!("sample {sample}: not refitted: {reason}");
+        eprintln!("sample {}: not refitted: {}", shown(sample), shown(reason));
     }
     if decided.refit.failed.is_empty() {
         Outcome::Success
@@ -155,6 +156,7 @@ pub fn run(args: &ReviewArgs) -> anyhow::Result<Outcome> {
     let options = args.options()?;
     let mut campaign = Campaign::open(&args.db)
         .with_context(|| format!("cannot open campaign {}", args.db.display()))?;
+    super::list::warn_unreadable(campaign.connection())?;
     let note = args.note.as_deref();
     if !args.accept.is_empty() || !args.dismiss.is_empty() {
         if args.site.is_some() || args.sample.is_some() {
@@ -215,7 +217,7 @@ pub fn run(args: &ReviewArgs) -> anyhow::Result<Outcome> {
                 eprintln!(
                     "noise {:.4} m3/m3 for {} ({}{basis})",
                     level.sd,
-                    level.label(),
+                    shown(&level.label()),
                     plural(level.residuals as u64, "residual")
                 );
             }

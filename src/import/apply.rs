@@ -8,7 +8,7 @@ use rusqlite::Connection;
 use super::ImportCounts;
 use super::batch::{ImportBatch, Located, Origin, ReadingDraft, Water};
 use super::diagnostic::Diagnostics;
-use crate::model::domain::{Provenance, Reading, Uid};
+use crate::model::domain::{LayerRef, Provenance, Reading, Uid};
 use crate::model::number::significant;
 use crate::model::units::{SuctionUnit, WATER_DENSITY_G_CM3};
 use crate::store::{self, StoreError, batches, layers, readings, samples, sites};
@@ -71,10 +71,12 @@ struct Densities {
 /// Check the batch against the campaign and decide every insert and update.
 ///
 /// Problems go to `diags` (nothing is written when there are any); the error is for SQLite.
+/// New layers that overlap another layer of their site are problems unless `allow_overlap`.
 pub(crate) fn resolve(
     conn: &Connection,
     batch: &ImportBatch,
     drafts: Vec<Located<ReadingDraft>>,
+    allow_overlap: bool,
     diags: &mut Diagnostics,
 ) -> Result<Plan, StoreError> {
     let mut plan = Plan {
@@ -107,6 +109,9 @@ pub(crate) fn resolve(
             },
             None => Action::New,
         });
+    }
+    if !allow_overlap {
+        check_overlaps(conn, batch, &plan.layers, diags)?;
     }
     // Per sample: densities for gravimetric water, and stored readings for the duplicate check.
     let mut densities: HashMap<&str, Densities> = HashMap::new();
@@ -190,6 +195,66 @@ pub(crate) fn resolve(
     }
     check_duplicate_suctions(batch, &plan.readings, &stored, diags);
     Ok(plan)
+}
+
+/// Whether two layers of one site share some depth (touching at a boundary is not sharing).
+fn overlaps(a: &LayerRef, b: &LayerRef) -> bool {
+    a.top_cm < b.bottom_cm && b.top_cm < a.bottom_cm && !a.same_as(b)
+}
+
+/// Report every new layer whose depth range overlaps another layer of its site: one the
+/// campaign holds, or one earlier in the batch. Both ranges are named.
+fn check_overlaps(
+    conn: &Connection,
+    batch: &ImportBatch,
+    actions: &[Action],
+    diags: &mut Diagnostics,
+) -> Result<(), StoreError> {
+    const EXPECTED: &str = "expected layers of one site that do not overlap (--allow-overlap \
+                            accepts layers nested or overlapping on purpose)";
+    let mut stored: HashMap<&str, Vec<LayerRef>> = HashMap::new();
+    let mut earlier: HashMap<&str, Vec<(&LayerRef, Origin)>> = HashMap::new();
+    for (located, action) in batch.layers.iter().zip(actions) {
+        let at = &located.value.at;
+        if *action != Action::New {
+            continue;
+        }
+        if !stored.contains_key(at.site.as_str()) {
+            let list = layers::list(conn, Some(&at.site))?
+                .into_iter()
+                .map(|row| row.stored.layer.at)
+                .collect();
+            stored.insert(&at.site, list);
+        }
+        let message = if let Some(l) = stored[at.site.as_str()].iter().find(|l| overlaps(l, at)) {
+            Some(format!(
+                "found layer {at}, which overlaps layer {l} that the campaign holds; {EXPECTED}"
+            ))
+        } else {
+            earlier
+                .get(at.site.as_str())
+                .and_then(|list| list.iter().find(|(l, _)| overlaps(l, at)))
+                .map(|(l, origin)| {
+                    format!(
+                        "found layer {at}, which overlaps layer {l} (at {}); {EXPECTED}",
+                        batch.place(*origin)
+                    )
+                })
+        };
+        if let Some(message) = message {
+            diags.push(
+                batch.file_name(located.origin),
+                located.origin.line,
+                "top_cm",
+                message,
+            );
+        }
+        earlier
+            .entry(&at.site)
+            .or_default()
+            .push((at, located.origin));
+    }
+    Ok(())
 }
 
 /// Volumetric water content of a draft, reporting gravimetric values that cannot be converted.

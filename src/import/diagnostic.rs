@@ -32,20 +32,54 @@ impl fmt::Display for Diagnostic {
     }
 }
 
-/// The problems found in one command's input, in the order they were found.
+/// The problems found in one command's input, in the order they were found, and the
+/// warnings (columns a file has that are not used), which do not stop a command.
 ///
-/// Keeps the first [`MAX_REPORTED`] and counts the rest, so a file with a million bad rows
-/// does not fill memory.
+/// Keeps the first [`MAX_REPORTED`] problems and counts the rest, so a file with a million
+/// bad rows does not fill memory.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct Diagnostics {
     items: Vec<Diagnostic>,
     total: usize,
+    warnings: Vec<Diagnostic>,
+    strict: bool,
 }
 
 impl Diagnostics {
     /// An empty collection.
     pub fn new() -> Self {
         Self::default()
+    }
+
+    /// An empty collection in which what would be a warning (a column not used) is a
+    /// problem: `--strict`.
+    pub fn strict() -> Self {
+        Self {
+            strict: true,
+            ..Self::default()
+        }
+    }
+
+    /// Whether warnings are problems here (`--strict`).
+    pub fn is_strict(&self) -> bool {
+        self.strict
+    }
+
+    /// Record a warning: something the command leaves aside without stopping.
+    pub fn warn(&mut self, file: &str, line: u64, column: &str, message: impl Into<String>) {
+        if self.warnings.len() < MAX_REPORTED {
+            self.warnings.push(Diagnostic {
+                file: file.to_string(),
+                line,
+                column: column.to_string(),
+                message: message.into(),
+            });
+        }
+    }
+
+    /// The warnings, in the order they were found.
+    pub fn warnings(&self) -> &[Diagnostic] {
+        &self.warnings
     }
 
     /// Record a problem.
@@ -61,8 +95,11 @@ impl Diagnostics {
         }
     }
 
-    /// Add every problem of another collection (its overflow count too).
+    /// Add every problem and warning of another collection (its overflow count too).
     pub fn extend(&mut self, other: Diagnostics) {
+        for w in other.warnings {
+            self.warn(&w.file, w.line, &w.column, w.message);
+        }
         let overflow = other.total - other.items.len();
         for d in other.items {
             self.total += 1;
@@ -113,6 +150,11 @@ impl fmt::Display for Diagnostics {
 }
 
 impl std::error::Error for Diagnostics {}
+
+/// A warning as printed on stderr: `FILE:LINE:COLUMN: warning: message`.
+pub fn warning_line(w: &Diagnostic) -> String {
+    format!("{}:{}:{}: warning: {}", w.file, w.line, w.column, w.message)
+}
 
 #[cfg(test)]
 mod tests {

@@ -49,7 +49,11 @@ fn unit_column<U: Copy>(
     let mut found: Option<(usize, U)> = None;
     let mut reported = false;
     for (i, name) in header.names().iter().enumerate() {
-        match recognise(name) {
+        let recognised = recognise(name);
+        if recognised.is_some() {
+            check.mark_used(i);
+        }
+        match recognised {
             None => {}
             Some(Err(suffix)) => {
                 reported = true;
@@ -139,6 +143,19 @@ impl LabReader {
         let c_weight = check.optional("weight");
         let c_notes = check.optional("notes");
         let c_branch = check.optional("branch");
+        let mut known = vec!["site", "top_cm", "bottom_cm", "sample", "method"];
+        known.extend(SuctionUnit::ALL.iter().map(|u| u.column_name()));
+        known.extend([
+            "theta",
+            "theta_pct",
+            "water_g_per_g",
+            "measured_on",
+            "bulk_density_g_cm3",
+            "weight",
+            "notes",
+            "branch",
+        ]);
+        check.unused(&known, diags);
         let (Some((c_suction, s_unit)), Some((c_water, w_unit)), true) =
             (suction, water, check.is_ok())
         else {
@@ -148,9 +165,9 @@ impl LabReader {
         batch.files[file].water = Some((header.name(c_water).to_string(), w_unit));
         let rows = read_rows(&mut table, &header, diags, |cells| {
             let line = cells.line();
-            let site = cells.required_text(c_site, "a site code");
+            let site = cells.code(c_site, "a site code");
             let depth = depths(cells, c_top, c_bottom);
-            let code = cells.required_text(c_sample, "a sample code");
+            let code = cells.code(c_sample, "a sample code");
             let h_cm = read_suction(cells, c_suction, s_unit);
             let water = read_water(cells, c_water, w_unit);
             let measured_on = cells.optional_date(c_measured);

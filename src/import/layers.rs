@@ -15,6 +15,20 @@ use crate::model::number::significant;
 pub const COLUMNS: &str = "site,top_cm,bottom_cm[,horizon,sand_pct,silt_pct,clay_pct,\
      organic_carbon_pct,bulk_density_g_cm3,ks_cm_per_day]";
 
+/// Every column a layers file may have, for the suggestion beside an unknown one.
+const KNOWN: [&str; 10] = [
+    "site",
+    "top_cm",
+    "bottom_cm",
+    "horizon",
+    "sand_pct",
+    "silt_pct",
+    "clay_pct",
+    "organic_carbon_pct",
+    "bulk_density_g_cm3",
+    "ks_cm_per_day",
+];
+
 /// How far sand + silt + clay may stray from 100 % (rounding in lab reports), percentage points.
 pub const TEXTURE_SUM_TOLERANCE_PCT: f64 = 2.0;
 
@@ -70,12 +84,13 @@ impl LayersReader {
         let c_oc = check.optional("organic_carbon_pct");
         let c_bd = check.optional("bulk_density_g_cm3");
         let c_ks = check.optional("ks_cm_per_day");
+        check.unused(&KNOWN, diags);
         if !check.is_ok() {
             return;
         }
         let rows = read_rows(&mut table, &header, diags, |cells| {
             let line = cells.line();
-            let site = cells.required_text(c_site, "a site code");
+            let site = cells.code(c_site, "a site code");
             let depth = depths(cells, c_top, c_bottom);
             let pct = "a mass percentage from 0 to 100";
             let sand = cells.optional_in_range(c_sand, 0.0, 100.0, pct);

@@ -37,6 +37,7 @@ use crate::field::quality::{
 use crate::field::time::{TimeError, parse_instant, utc_text};
 use crate::model::domain::{SensorKind, Site};
 use crate::model::number::{plural, significant};
+use crate::model::text::shown;
 use crate::model::units::SuctionUnit;
 use crate::store::logger::{self as records, Added, FlagWriter, NewRecord, RecordSink};
 use crate::store::{Campaign, StoreError, batches, sites};
@@ -57,6 +58,7 @@ const WATER_UNITS: &str = "fraction, m3/m3, percent, %";
 
 /// How a logger import runs.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[allow(clippy::struct_excessive_bools)] // independent switches, one per command-line flag
 pub struct LoggerOptions {
     /// Check everything and report, but write nothing.
     pub dry_run: bool,
@@ -68,6 +70,8 @@ pub struct LoggerOptions {
     pub utc_offset_s: Option<i32>,
     /// Thresholds of the quality marks.
     pub quality: QualitySettings,
+    /// Refuse a file with a column porewise does not read (otherwise a warning).
+    pub strict: bool,
 }
 
 /// Where an import has got to, for a progress bar. Every method does nothing by default.
@@ -102,6 +106,8 @@ pub struct LoggerSummary {
     pub duplicates_differing: u64,
     /// Quality flags suggested, by [`MarkKind::index`].
     pub marks: [u64; 4],
+    /// Columns the files have that were not read, as warnings for stderr.
+    pub warnings: Vec<super::Diagnostic>,
 }
 
 impl LoggerSummary {
@@ -138,7 +144,7 @@ impl fmt::Display for LoggerSummary {
                 f,
                 "; {add} {}: {}",
                 plural(self.new_sites.len() as u64, "new site"),
-                self.new_sites.join(", ")
+                shown(&self.new_sites.join(", "))
             )?;
         }
         let kinds: Vec<String> = MarkKind::ALL
@@ -251,19 +257,9 @@ fn read_row(
     times: &mut TimeCache,
     offset: Option<i32>,
 ) -> Option<(Row<'static>, [u8; 20])> {
-    let site = cells.cell(c.site);
-    if site.is_empty() {
-        cells.fail(c.site, "found an empty cell, expected a site code");
-    }
-    let depth = cells.number(c.depth).filter(|&d| {
-        cells.in_range(
-            c.depth,
-            d,
-            0.0,
-            f64::MAX,
-            "a depth of 0 cm or more below the surface",
-        )
-    });
+    // Codes are checked here and borrowed from the record by the caller.
+    let _ = cells.code_text(c.site, "a site code");
+    let depth = cells.depth(c.depth);
     let kind = match cells.cell(c.sensor).parse::<SensorKind>() {
         Ok(k) => Some(k),
         Err(message) => {
@@ -271,10 +267,7 @@ fn read_row(
             None
         }
     };
-    let sensor_id = cells.cell(c.sensor_id);
-    if sensor_id.is_empty() {
-        cells.fail(c.sensor_id, "found an empty cell, expected a sensor id");
-    }
+    let _ = cells.code_text(c.sensor_id, "a sensor id");
     let time_text = cells.cell(c.time);
     let time = match times.parse(time_text, offset) {
         Ok(t) => Some(t),
@@ -524,7 +517,11 @@ pub fn import_logger_files(
             ..LoggerSummary::default()
         },
     };
-    let mut diags = Diagnostics::new();
+    let mut diags = if options.strict {
+        Diagnostics::strict()
+    } else {
+        Diagnostics::new()
+    };
     for (index, (path, (sha, len))) in files.iter().zip(&hashed).enumerate() {
         let name = path.display().to_string();
         progress.file(&name, *len);
@@ -561,6 +558,7 @@ pub fn import_logger_files(
     }
     run.check_again()?;
     run.summary.sensors = run.sensors.len() as u64;
+    run.summary.warnings = diags.warnings().to_vec();
     let summary = std::mem::take(&mut run.summary);
     drop(run);
     if !options.dry_run {
@@ -602,6 +600,18 @@ impl Run<'_> {
             value: check.required("value", diags),
             unit: check.required("unit", diags),
         };
+        check.unused(
+            &[
+                "site",
+                "depth_cm",
+                "sensor",
+                "sensor_id",
+                "time",
+                "value",
+                "unit",
+            ],
+            diags,
+        );
         if !check.is_ok() {
             return Ok(0);
         }

@@ -12,6 +12,16 @@ use crate::model::domain::{Site, Uid};
 /// The columns of a sites file, for messages.
 pub const COLUMNS: &str = "site,name,latitude,longitude[,elevation_m,notes]";
 
+/// Every column a sites file may have, for the suggestion beside an unknown one.
+const KNOWN: [&str; 6] = [
+    "site",
+    "name",
+    "latitude",
+    "longitude",
+    "elevation_m",
+    "notes",
+];
+
 /// Lowest and highest elevation accepted, m (the lowest and highest land on Earth, rounded out).
 pub const ELEVATION_RANGE_M: (f64, f64) = (-500.0, 9000.0);
 
@@ -40,12 +50,13 @@ impl SitesReader {
         let c_lon = check.required("longitude", diags);
         let c_elev = check.optional("elevation_m");
         let c_notes = check.optional("notes");
+        check.unused(&KNOWN, diags);
         if !check.is_ok() {
             return;
         }
         let rows = read_rows(&mut table, &header, diags, |cells| {
             let line = cells.line();
-            let code = cells.required_text(c_site, "a site code");
+            let code = cells.code(c_site, "a site code");
             let lat = cells.number(c_lat);
             let lat = lat.filter(|&v| {
                 cells.in_range(

@@ -5,6 +5,7 @@ use std::fmt;
 
 use super::table::{Cell, Column, Listing};
 use crate::model::number::{plural, significant};
+use crate::model::text::shown;
 use crate::model::units::SuctionUnit;
 use crate::store::flags::Mark;
 use crate::store::layers::LayerRow;
@@ -252,19 +253,19 @@ impl fmt::Display for Overview {
         for site in &self.sites {
             writeln!(f)?;
             match &site.name {
-                Some(name) => writeln!(f, "{}  {name}", site.code)?,
-                None => writeln!(f, "{}", site.code)?,
+                Some(name) => writeln!(f, "{}  {}", shown(&site.code), shown(name))?,
+                None => writeln!(f, "{}", shown(&site.code))?,
             }
             if site.layers.is_empty() {
                 writeln!(f, "  (no layers)")?;
             }
             for layer in &site.layers {
                 let depth = format!("{}-{} cm", num(layer.top_cm), num(layer.bottom_cm));
-                let horizon = layer.horizon.as_deref().unwrap_or("");
+                let horizon = shown(layer.horizon.as_deref().unwrap_or(""));
                 let samples: Vec<String> = layer
                     .samples
                     .iter()
-                    .map(|m| format!("{} ({})", m.code, plural(m.readings, "reading")))
+                    .map(|m| format!("{} ({})", shown(&m.code), plural(m.readings, "reading")))
                     .collect();
                 let samples = if samples.is_empty() {
                     "no samples".to_string()

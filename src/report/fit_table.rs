@@ -13,6 +13,7 @@
 
 use serde_json::{Map, Value, json};
 
+use super::csv_safe::text;
 use crate::fit::{AutoFit, FitReport};
 use crate::model::retention::ModelKind;
 
@@ -99,14 +100,15 @@ fn ranking_text(auto: &AutoFit) -> String {
     parts.join(" ")
 }
 
-/// The rows as CSV text (comma-separated, header first).
+/// The rows as CSV text (comma-separated, header first); text cells (sample names come from
+/// the input file) neutralised against spreadsheet formulas.
 ///
 /// # Errors
 /// Only if the CSV writer fails on its in-memory buffer.
 pub fn to_csv(rows: &[FitRow]) -> Result<String, csv::Error> {
     let params = parameter_columns(rows);
     let with_ranking = rows.iter().any(|r| r.auto.is_some());
-    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut w = super::csv_safe::writer();
     let mut header: Vec<String> = vec!["sample".into(), "model".into()];
     header.extend(params.iter().cloned());
     header.extend(params.iter().map(|p| format!("{p}_se")));
@@ -127,7 +129,7 @@ pub fn to_csv(rows: &[FitRow]) -> Result<String, csv::Error> {
     }
     w.write_record(&header)?;
     for row in rows {
-        let mut rec: Vec<String> = vec![row.sample.clone(), row.model.clone()];
+        let mut rec: Vec<String> = vec![text(&row.sample), text(&row.model)];
         let est = |name: &str| row.report.as_ref().and_then(|r| r.parameter(name));
         rec.extend(params.iter().map(|p| num(est(p).map(|e| e.value))));
         rec.extend(params.iter().map(|p| num(est(p).and_then(|e| e.se))));
@@ -139,14 +141,13 @@ pub fn to_csv(rows: &[FitRow]) -> Result<String, csv::Error> {
         rec.push(num(r.and_then(|r| r.bic)));
         rec.push(r.map_or(String::new(), |r| r.n_points.to_string()));
         rec.push(row.is_fitted().to_string());
-        rec.push(row.message().unwrap_or("").to_string());
+        rec.push(text(row.message().unwrap_or("")));
         if with_ranking {
-            rec.push(row.auto.as_ref().map_or(String::new(), ranking_text));
+            rec.push(text(&row.auto.as_ref().map_or(String::new(), ranking_text)));
         }
         w.write_record(&rec)?;
     }
-    let bytes = w.into_inner().map_err(csv::IntoInnerError::into_error)?;
-    Ok(String::from_utf8_lossy(&bytes).into_owned())
+    super::csv_safe::finish(w)
 }
 
 fn opt(v: Option<f64>) -> Value {

@@ -139,12 +139,14 @@ pub struct SuspectRow {
     pub score: f64,
 }
 
-/// The suspects as CSV: `sample,line,suction_cm,theta,reason,score` (numbers read back exactly).
+/// The suspects as CSV: `sample,line,suction_cm,theta,reason,score` (numbers read back exactly,
+/// text neutralised against spreadsheet formulas).
 ///
 /// # Errors
 /// A CSV writer error (not expected for in-memory output).
 pub fn suspects_csv(rows: &[SuspectRow]) -> Result<String, csv::Error> {
-    let mut w = csv::Writer::from_writer(Vec::new());
+    use crate::report::csv_safe::{self, text};
+    let mut w = csv_safe::writer();
     w.write_record(["sample", "line", "suction_cm", "theta", "reason", "score"])?;
     let num = |v: f64| {
         if v.is_finite() {
@@ -155,16 +157,13 @@ pub fn suspects_csv(rows: &[SuspectRow]) -> Result<String, csv::Error> {
     };
     for r in rows {
         w.write_record([
-            r.sample.clone(),
+            text(&r.sample),
             r.line.to_string(),
             num(r.h_cm),
             num(r.theta),
-            r.reason.clone(),
+            text(&r.reason),
             num(r.score),
         ])?;
     }
-    let bytes = w
-        .into_inner()
-        .map_err(|e| csv::Error::from(std::io::Error::other(e.to_string())))?;
-    Ok(String::from_utf8_lossy(&bytes).into_owned())
+    csv_safe::finish(w)
 }

@@ -1,11 +1,15 @@
 //! A listing of rows under named columns, printed as an aligned text table, CSV or JSON.
 //!
 //! Column names carry their unit (`suction_kpa`, `bulk_density_g_cm3`). Missing and
-//! non-finite values are empty cells in tables and CSV and `null` in JSON, never NaN.
+//! non-finite values are empty cells in tables and CSV and `null` in JSON, never NaN. Text
+//! from users shows control characters escaped in tables and CSV, and CSV text cells are
+//! neutralised against spreadsheet formulas; JSON strings carry the text as stored.
 
 use std::fmt::Write as _;
 
+use super::csv_safe;
 use crate::model::number::significant;
+use crate::model::text::shown;
 
 /// Significant digits of numbers in text tables (for people).
 pub const TABLE_DIGITS: usize = 6;
@@ -91,6 +95,24 @@ impl Cell {
             other => other.render(digits),
         }
     }
+
+    /// As [`Cell::render`] for a terminal: control and bidirectional formatting characters
+    /// of text shown escaped.
+    fn render_shown(&self, digits: usize) -> Option<String> {
+        match self {
+            Cell::Text(t) => t.as_deref().map(|t| shown(t).into_owned()),
+            _ => self.render(digits),
+        }
+    }
+
+    /// As [`Cell::render_export`] for CSV: text neutralised against spreadsheet formulas
+    /// ([`csv_safe::text`]), numbers unchanged.
+    fn render_csv(&self, digits: usize) -> Option<String> {
+        match self {
+            Cell::Text(t) => t.as_deref().map(csv_safe::text),
+            _ => self.render_export(digits),
+        }
+    }
 }
 
 impl From<Option<String>> for Cell {
@@ -171,7 +193,7 @@ impl Listing {
             .map(|row| {
                 shown
                     .iter()
-                    .map(|&i| row[i].render(TABLE_DIGITS).unwrap_or_default())
+                    .map(|&i| row[i].render_shown(TABLE_DIGITS).unwrap_or_default())
                     .collect()
             })
             .collect();
@@ -217,23 +239,21 @@ impl Listing {
         out
     }
 
-    /// CSV with a header row; empty cells for missing values.
+    /// CSV with a header row; empty cells for missing values, text cells neutralised
+    /// against spreadsheet formulas ([`csv_safe::text`]).
     ///
     /// # Errors
     /// Only if the CSV writer fails on memory.
     pub fn to_csv(&self) -> Result<String, csv::Error> {
-        let mut w = csv::Writer::from_writer(Vec::new());
+        let mut w = csv_safe::writer();
         w.write_record(self.column_names())?;
         for row in &self.rows {
             w.write_record(
                 row.iter()
-                    .map(|c| c.render_export(EXPORT_DIGITS).unwrap_or_default()),
+                    .map(|c| c.render_csv(EXPORT_DIGITS).unwrap_or_default()),
             )?;
         }
-        let bytes = w
-            .into_inner()
-            .map_err(|e| csv::Error::from(e.into_error()))?;
-        Ok(String::from_utf8_lossy(&bytes).into_owned())
+        csv_safe::finish(w)
     }
 
     /// A JSON array with one object per row, keys in column order, `null` for missing values.

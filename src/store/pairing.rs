@@ -21,6 +21,7 @@ use crate::model::domain::{
     SensorKind, Uid,
 };
 use crate::model::number::{plural, significant};
+use crate::model::text::shown;
 
 /// The method written on paired readings.
 pub const METHOD: &str = "field pairing";
@@ -454,10 +455,10 @@ impl fmt::Display for PairSummary {
                 "{} {} cm -> {} (layer {}{made}): {} tensiometer and {} water-content records \
                  ({} left out for flags); {} within {} ({} drying, {} wetting, {} unknown) -> \
                  {} (replaced {})",
-                p.site,
+                shown(&p.site),
                 cm(p.depth_cm),
-                p.sample,
-                p.layer,
+                shown(&p.sample),
+                shown(&p.layer.to_string()),
                 p.records.0,
                 p.records.1,
                 p.left_out,
@@ -481,7 +482,7 @@ impl fmt::Display for PairSummary {
             writeln!(
                 f,
                 "{} {} cm: not paired, {}",
-                s.site,
+                shown(&s.site),
                 cm(s.depth_cm),
                 s.reason
             )?;

@@ -2,7 +2,7 @@
 
 use rusqlite::{CachedStatement, Connection, Row, params};
 
-use super::sql_types::{SqlDate, opt_date};
+use super::sql_types::{LenientDate, opt_date, stored_day};
 use super::{Filter, Result};
 use crate::model::domain::{LayerRef, Provenance, Reading};
 
@@ -47,7 +47,7 @@ fn from_row(r: &Row<'_>) -> rusqlite::Result<ReadingRow> {
                 h_cm: r.get(3)?,
                 theta: r.get(4)?,
                 method: r.get(5)?,
-                measured_on: r.get::<_, Option<SqlDate>>(6)?.map(|d| d.0),
+                measured_on: r.get::<_, LenientDate>(6)?.0,
                 branch: r.get(7)?,
                 weight: r.get(8)?,
                 notes: r.get(9)?,
@@ -143,4 +143,59 @@ pub fn list(conn: &Connection, filter: Filter<'_>) -> Result<Vec<ReadingRow>> {
     ))?;
     let rows = stmt.query_map(params![filter.site, filter.sample], from_row)?;
     Ok(rows.collect::<rusqlite::Result<_>>()?)
+}
+
+/// A stored reading with a value porewise cannot read back, named for a warning.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Unreadable {
+    /// The reading id.
+    pub reading: i64,
+    /// Its sample's code.
+    pub sample: String,
+    /// The column, as listings name it.
+    pub column: &'static str,
+    /// The stored text.
+    pub stored: String,
+}
+
+impl std::fmt::Display for Unreadable {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(
+            f,
+            "reading {} (sample {:?}): the stored {} {:?} is not a calendar day (YYYY-MM-DD); \
+             it is left empty",
+            self.reading, self.sample, self.column, self.stored
+        )
+    }
+}
+
+/// Every reading whose stored measuring day is not a calendar day (an older porewise
+/// accepted `-1-01-01`): listings and exports show it empty, and name these rows.
+///
+/// # Errors
+/// An SQLite error.
+pub fn unreadable(conn: &Connection) -> Result<Vec<Unreadable>> {
+    let mut stmt = conn.prepare(
+        "SELECT r.id, m.code, r.measured_at FROM reading r JOIN sample m ON r.sample_id = m.id
+         WHERE r.measured_at IS NOT NULL
+           AND NOT (r.measured_at GLOB '[0-9][0-9][0-9][0-9]-[0-9][0-9]-[0-9][0-9]*'
+                    AND date(substr(r.measured_at, 1, 10)) IS substr(r.measured_at, 1, 10))
+         ORDER BY r.id",
+    )?;
+    let rows = stmt.query_map([], |r| {
+        Ok(Unreadable {
+            reading: r.get(0)?,
+            sample: r.get(1)?,
+            column: "measured_on",
+            stored: r.get(2)?,
+        })
+    })?;
+    let mut out = Vec::new();
+    for row in rows {
+        let row = row?;
+        if stored_day(&row.stored).is_none() {
+            out.push(row);
+        }
+    }
+    Ok(out)
 }

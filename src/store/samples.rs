@@ -4,7 +4,7 @@ use std::collections::HashSet;
 
 use rusqlite::{Connection, OptionalExtension, Row, params};
 
-use super::sql_types::{SqlDate, count, opt_date};
+use super::sql_types::{LenientDate, count, opt_date};
 use super::{Filter, Result};
 use crate::model::domain::{LayerRef, Sample};
 
@@ -47,7 +47,7 @@ fn from_row(r: &Row<'_>) -> rusqlite::Result<StoredSample> {
             },
             code: r.get(5)?,
             kind: r.get(6)?,
-            collected_on: r.get::<_, Option<SqlDate>>(7)?.map(|d| d.0),
+            collected_on: r.get::<_, LenientDate>(7)?.0,
             bulk_density_g_cm3: r.get(8)?,
             notes: r.get(9)?,
             uid: r.get(10)?,

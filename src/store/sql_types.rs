@@ -66,12 +66,32 @@ impl ToSql for SqlDate {
 
 impl FromSql for SqlDate {
     fn column_result(value: ValueRef<'_>) -> FromSqlResult<Self> {
-        let text = value.as_str()?;
-        // A stored time of day (from a later logger import) still names its day.
-        let day = text.get(..10).unwrap_or(text);
-        NaiveDate::parse_from_str(day, "%Y-%m-%d")
+        stored_day(value.as_str()?)
             .map(SqlDate)
-            .map_err(|e| FromSqlError::Other(e.into()))
+            .ok_or_else(|| FromSqlError::Other("not a calendar day as YYYY-MM-DD".into()))
+    }
+}
+
+/// The calendar day a stored date names, `None` when the text is not one.
+///
+/// A stored time of day (from a later logger import) still names its day.
+pub(crate) fn stored_day(text: &str) -> Option<NaiveDate> {
+    let day = text.get(..10).unwrap_or(text);
+    NaiveDate::parse_from_str(day, "%Y-%m-%d").ok()
+}
+
+/// A stored calendar day read without failing: a value that is not one (written by an
+/// older porewise or another program) reads as `None`, so one bad value never stops a
+/// listing or an export of everything else; [`super::readings::unreadable`] names the rows.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) struct LenientDate(pub Option<NaiveDate>);
+
+impl FromSql for LenientDate {
+    fn column_result(value: ValueRef<'_>) -> FromSqlResult<Self> {
+        Ok(LenientDate(match value {
+            ValueRef::Text(bytes) => std::str::from_utf8(bytes).ok().and_then(stored_day),
+            _ => None,
+        }))
     }
 }
 
@@ -135,5 +155,25 @@ mod tests {
         );
         let bad: rusqlite::Result<Branch> = conn.query_row("SELECT 'sideways'", [], |r| r.get(0));
         assert!(bad.is_err());
+    }
+
+    #[test]
+    fn lenient_dates_read_bad_values_as_nothing() {
+        let conn = Connection::open_in_memory().expect("memory");
+        let read = |sql: &str| -> Option<NaiveDate> {
+            conn.query_row(sql, [], |r| r.get::<_, LenientDate>(0))
+                .expect("never an error")
+                .0
+        };
+        assert_eq!(
+            read("SELECT '2026-06-03'"),
+            NaiveDate::from_ymd_opt(2026, 6, 3)
+        );
+        assert_eq!(read("SELECT '-0001-01-01'"), None);
+        assert_eq!(read("SELECT 'soon'"), None);
+        assert_eq!(read("SELECT NULL"), None);
+        let strict: rusqlite::Result<SqlDate> =
+            conn.query_row("SELECT '-0001-01-01'", [], |r| r.get(0));
+        assert!(strict.is_err());
     }
 }

@@ -5,7 +5,8 @@
 //! circle, triangle, square, diamond), readings left out of the fit carry a black cross, and a
 //! curve is solid over the suctions its sample was measured at and dashed where it is
 //! extrapolated. Readings at zero suction (saturation) sit on the left edge of the axis.
-//! Text from the user (horizon labels) is escaped by the backend.
+//! Text from the user (horizon labels) shows control characters escaped ([`layer_label`]);
+//! the backend escapes XML's own special characters.
 
 use plotters::coord::types::RangedCoordf64;
 use plotters::element::{ComposedElement, DashedPathElement};
@@ -254,7 +255,8 @@ fn theta_top(site: &SitePart) -> f64 {
     (((top + 0.02) / 0.05).ceil() * 0.05).min(1.0)
 }
 
-/// The legend label of a layer: `Ap 0-20 cm`.
+/// The legend label of a layer: `Ap 0-20 cm` (control and bidirectional formatting characters
+/// of the horizon shown escaped: XML has no place for most of them).
 pub fn layer_label(part: &super::snapshot::LayerPart) -> String {
     let layer = &part.row.stored.layer;
     let depth = format!(
@@ -263,7 +265,7 @@ pub fn layer_label(part: &super::snapshot::LayerPart) -> String {
         significant(layer.at.bottom_cm, 6).unwrap_or_default()
     );
     match &layer.horizon {
-        Some(h) => format!("{h} {depth}"),
+        Some(h) => format!("{} {depth}", crate::model::text::shown(h)),
         None => depth,
     }
 }

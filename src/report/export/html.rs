@@ -18,6 +18,7 @@ use crate::model::domain::SampleKind;
 use crate::model::number::significant;
 use crate::model::retention::ModelKind;
 use crate::model::retention::fredlund_xing::H_DRY_CM;
+use crate::model::text::{is_hidden_control, push_escaped};
 use crate::model::units::CM_PER_KPA;
 use crate::store::fits::FitState;
 
@@ -40,8 +41,11 @@ pub fn escape(text: &str) -> String {
             '>' => out.push_str("&gt;"),
             '"' => out.push_str("&quot;"),
             '\'' => out.push_str("&#39;"),
-            // Control characters other than tab and newlines are not allowed in XML.
-            c if c.is_control() && !matches!(c, '\t' | '\n' | '\r') => out.push('\u{fffd}'),
+            // Control characters other than tab and newlines are not allowed in XML, and
+            // bidirectional overrides would reorder the page: both shown escaped (`\u{1b}`).
+            c if is_hidden_control(c) && !matches!(c, '\t' | '\n' | '\r') => {
+                push_escaped(&mut out, c);
+            }
             c => out.push(c),
         }
     }

@@ -11,7 +11,7 @@
 
 use super::snapshot::Snapshot;
 use crate::report::fit_table::parameter_union;
-use crate::report::format_number;
+use crate::report::{csv_safe, format_number};
 
 /// The fixed columns of `parameters.csv` before the parameter columns.
 pub const PARAMETER_LEAD_COLUMNS: [&str; 10] = [
@@ -75,25 +75,27 @@ fn num(v: Option<f64>) -> String {
         .unwrap_or_default()
 }
 
+/// A text cell: neutralised against spreadsheet formulas, empty when missing.
 fn text(v: Option<&str>) -> String {
-    v.unwrap_or_default().to_string()
+    v.map(csv_safe::text).unwrap_or_default()
 }
 
-/// `SITE:TOP-BOTTOM` with exact depths.
+/// `SITE:TOP-BOTTOM` with exact depths, as a text cell.
 fn layer_ref(site: &str, top: f64, bottom: f64) -> String {
-    format!("{site}:{}-{}", format_number(top), format_number(bottom))
+    csv_safe::text(&format!(
+        "{site}:{}-{}",
+        format_number(top),
+        format_number(bottom)
+    ))
 }
 
 fn write_csv(header: &[String], rows: &[Vec<String>]) -> Result<String, csv::Error> {
-    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut w = csv_safe::writer();
     w.write_record(header)?;
     for row in rows {
         w.write_record(row)?;
     }
-    let bytes = w
-        .into_inner()
-        .map_err(|e| csv::Error::from(e.into_error()))?;
-    Ok(String::from_utf8_lossy(&bytes).into_owned())
+    csv_safe::finish(w)
 }
 
 /// The parameter columns of an export: the union over the models of its current fits, in
@@ -133,12 +135,12 @@ pub fn parameters_csv(snapshot: &Snapshot) -> Result<String, csv::Error> {
         let values = part.fit.derived.as_ref().map(|d| &d.values);
         let estimate = |name: &str| report.and_then(|r| r.parameter(name));
         let mut row = vec![
-            at.site.clone(),
+            text(Some(&at.site)),
             layer_ref(&at.site, at.top_cm, at.bottom_cm),
             text(layer.row.stored.layer.horizon.as_deref()),
             format_number(at.top_cm),
             format_number(at.bottom_cm),
-            part.row.stored.sample.code.clone(),
+            text(Some(&part.row.stored.sample.code)),
             part.row.stored.sample.kind.to_string(),
             text(fit.map(|f| f.model.as_str())),
             part.fit.state.label().to_string(),
@@ -165,7 +167,7 @@ pub fn parameters_csv(snapshot: &Snapshot) -> Result<String, csv::Error> {
             fit.map(|f| f.id.to_string()).unwrap_or_default(),
             fit.map(|f| f.created_at.format("%Y-%m-%dT%H:%M:%SZ").to_string())
                 .unwrap_or_default(),
-            state_detail(&part.fit.state),
+            text(Some(&state_detail(&part.fit.state))),
         ]);
         rows.push(row);
     }
@@ -199,7 +201,7 @@ pub fn profiles_csv(snapshot: &Snapshot) -> Result<String, csv::Error> {
         let zone = format_number(profile.root_zone_cm);
         for w in &profile.layers {
             rows.push(vec![
-                profile.site.clone(),
+                text(Some(&profile.site)),
                 "layer".to_string(),
                 layer_ref(&profile.site, w.layer.top_cm, w.layer.bottom_cm),
                 text(w.horizon.as_deref()),
@@ -217,7 +219,7 @@ pub fn profiles_csv(snapshot: &Snapshot) -> Result<String, csv::Error> {
             ]);
         }
         rows.push(vec![
-            profile.site.clone(),
+            text(Some(&profile.site)),
             "total".to_string(),
             layer_ref(&profile.site, 0.0, profile.root_zone_cm),
             String::new(),

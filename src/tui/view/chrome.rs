@@ -11,6 +11,7 @@ use crate::analysis::ModelChoice;
 use super::super::app::{AppState, Screen};
 use super::super::keymap::{KeyTable, Mode};
 use super::fit_width;
+use crate::model::text::shown;
 
 /// The header line.
 pub struct Header<'a> {
@@ -39,7 +40,11 @@ impl Widget for Header<'_> {
         }
         let right_width: usize = right.iter().map(|s| s.content.chars().count()).sum();
         let left = fit_width(
-            &format!(" porewise · {} · {}", state.campaign, state.file),
+            &format!(
+                " porewise · {} · {}",
+                shown(&state.campaign),
+                shown(&state.file)
+            ),
             usize::from(area.width).saturating_sub(right_width + 1),
         );
         let pad = usize::from(area.width).saturating_sub(left.chars().count() + right_width);

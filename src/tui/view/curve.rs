@@ -69,7 +69,7 @@ impl Widget for CurvePane<'_> {
         let title = match &state.detail {
             Detail::Ready(d) => format!(
                 "Curve · {} · θ vs {}{}",
-                d.code,
+                crate::model::text::shown(&d.code),
                 state.units.symbol(),
                 if state.units == super::super::app::AxisUnit::Pf {
                     ""

@@ -14,6 +14,7 @@ use super::{
     FIELD_TAG, cursor_row, framed, kind_tag, kpa_text, num, opt_num, render_table, scroll_offset,
     short_code,
 };
+use crate::model::text::shown;
 use crate::model::units::CM_PER_KPA;
 
 /// The depth screen.
@@ -53,10 +54,10 @@ impl DepthScreen<'_> {
         let theme = state.theme;
         let title = format!(
             "Depth · {}{} · θ vs suction ({}) · ←→ site",
-            data.site,
+            shown(&data.site),
             data.name
                 .as_ref()
-                .map(|n| format!(" {n}"))
+                .map(|n| format!(" {}", shown(n)))
                 .unwrap_or_default(),
             state.units.symbol()
         );
@@ -160,7 +161,7 @@ impl DepthScreen<'_> {
                         "{}-{} {}",
                         l.top_cm,
                         l.bottom_cm,
-                        l.horizon.as_deref().unwrap_or("")
+                        shown(l.horizon.as_deref().unwrap_or(""))
                     ),
                     l.available_water
                         .map_or_else(|| "–".to_string(), |v| format!("{v:.3}")),
@@ -246,7 +247,7 @@ impl DepthScreen<'_> {
                         Line::from(format!("{}-{}", layer.top_cm, layer.bottom_cm)),
                         Line::from(vec![
                             Span::styled(kind_tag(r.kind), theme.field_tag()),
-                            Span::raw(format!(" {}", short_code(&data.site, &r.sample))),
+                            Span::raw(format!(" {}", shown(short_code(&data.site, &r.sample)))),
                         ]),
                         Line::from(Span::styled(
                             format!(

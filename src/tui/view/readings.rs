@@ -10,6 +10,7 @@ use ratatui::widgets::{Paragraph, Row, Widget};
 use super::super::app::{AppState, Detail, ReadingView};
 use super::curve::point_glyph;
 use super::{cursor_row, framed, render_table, scroll_offset, suction_text, theta_text};
+use crate::model::text::shown;
 
 /// The readings pane.
 pub struct ReadingsPane<'a> {
@@ -30,7 +31,7 @@ fn signed(v: Option<f64>, decimals: usize) -> String {
 pub fn flag_text(r: &ReadingView) -> String {
     match &r.flag {
         None => String::new(),
-        Some(f) => format!("{} {}: {}", f.status, f.origin, f.reason),
+        Some(f) => format!("{} {}: {}", f.status, f.origin, shown(&f.reason)),
     }
 }
 
@@ -46,7 +47,7 @@ impl Widget for ReadingsPane<'_> {
         let excluded = d.readings.iter().filter(|r| r.excluded).count();
         let title = format!(
             "Readings · {} · {} used, {} excluded{}",
-            d.code,
+            shown(&d.code),
             d.readings.len() - excluded,
             excluded,
             if state.focus == super::super::app::Pane::Readings {
@@ -90,7 +91,7 @@ impl Widget for ReadingsPane<'_> {
                     )),
                     Line::from(suction_text(r.h_cm, state.units)),
                     Line::from(theta_text(r.theta)),
-                    Line::from(r.method.clone().unwrap_or_default()),
+                    Line::from(shown(r.method.as_deref().unwrap_or_default()).into_owned()),
                     Line::from(signed(r.residual, 3)),
                     Line::from(signed(r.studentized, 2)),
                     Line::from(Span::styled(flag_text(r), theme.flag())),

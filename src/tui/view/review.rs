@@ -15,6 +15,7 @@ use super::series::{SeriesPlot, date_text, time_text};
 use super::{
     cursor_row, framed, num, opt_num, render_table, scroll_offset, suction_text, theta_text,
 };
+use crate::model::text::shown;
 
 /// The review screen.
 pub struct ReviewScreen<'a> {
@@ -104,7 +105,7 @@ impl Widget for ReviewScreen<'_> {
             }
             reading => {
                 let title = match (&state.detail, reading) {
-                    (Detail::Ready(d), Some(_)) => format!("Curve · {}", d.code),
+                    (Detail::Ready(d), Some(_)) => format!("Curve · {}", shown(&d.code)),
                     _ => "Curve".to_string(),
                 };
                 let inner = framed(title, false, theme, curve_area, buf);
@@ -140,7 +141,7 @@ fn columns(item: &ReviewItem, state: &AppState, room: usize) -> [String; 3] {
             theta,
             ..
         } => [
-            sample.clone(),
+            shown(sample).into_owned(),
             suction_text(*h_cm, state.units),
             theta_text(*theta),
         ],
@@ -155,6 +156,7 @@ fn columns(item: &ReviewItem, state: &AppState, room: usize) -> [String; 3] {
             let when = chrono::DateTime::from_timestamp(*time, 0)
                 .map(|t| t.format("%m-%d %H:%M").to_string())
                 .unwrap_or_default();
+            let (site, sensor_id) = (shown(site), shown(sensor_id));
             let full = format!("{site} {sensor_id} {when}");
             let what = if full.chars().count() <= room {
                 full
@@ -181,7 +183,7 @@ fn suspect_lines(item: &ReviewItem, state: &AppState) -> Vec<Line<'static>> {
             theta,
             ..
         } => (
-            sample.clone(),
+            shown(sample).into_owned(),
             format!(
                 " · reading {reading_id} · h {} {} · θ {} · score {score}",
                 suction_text(*h_cm, state.units),
@@ -208,7 +210,7 @@ fn suspect_lines(item: &ReviewItem, state: &AppState) -> Vec<Line<'static>> {
                 SensorKind::WaterContent => format!("θ {}", theta_text(*value)),
             };
             (
-                format!("{site} {sensor_id}"),
+                format!("{} {}", shown(site), shown(sensor_id)),
                 format!(
                     " · {} · {} cm · {} · {value} · score {score}",
                     kind.as_str().replace('_', " "),
@@ -221,7 +223,7 @@ fn suspect_lines(item: &ReviewItem, state: &AppState) -> Vec<Line<'static>> {
     };
     vec![
         Line::from(vec![Span::styled(head, theme.heading()), Span::raw(rest)]),
-        Line::from(item.reason.clone()),
+        Line::from(shown(&item.reason).into_owned()),
         Line::from(Span::styled(keys, theme.dim())),
     ]
 }

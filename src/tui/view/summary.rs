@@ -9,6 +9,7 @@ use ratatui::widgets::{Paragraph, Widget};
 use super::super::app::{AppState, FitTag, SampleNode, TreeRow, model_tag};
 use super::super::theme::Theme;
 use super::framed;
+use crate::model::text::shown;
 
 /// The summary pane.
 pub struct SummaryPane<'a> {
@@ -67,7 +68,7 @@ impl Widget for SummaryPane<'_> {
                     lines.push(Line::from(format!(
                         "{:<16} {:<8} {:>7}  {}",
                         layer.depth_label(),
-                        layer.horizon.as_deref().unwrap_or("–"),
+                        shown(layer.horizon.as_deref().unwrap_or("–")),
                         layer.samples.len(),
                         models.join(" ")
                     )));
@@ -79,10 +80,10 @@ impl Widget for SummaryPane<'_> {
                 )));
                 format!(
                     "Site {}{}",
-                    site.code,
+                    shown(&site.code),
                     site.name
                         .as_ref()
-                        .map(|n| format!(" · {n}"))
+                        .map(|n| format!(" · {}", shown(n)))
                         .unwrap_or_default()
                 )
             }
@@ -99,7 +100,7 @@ impl Widget for SummaryPane<'_> {
                     lines.push(Line::from(vec![
                         Span::raw(format!(
                             "{:<17} {:<14} {:<6} ",
-                            s.code,
+                            shown(&s.code),
                             s.kind.as_str(),
                             s.model.as_deref().map_or("–", model_tag)
                         )),
@@ -117,12 +118,12 @@ impl Widget for SummaryPane<'_> {
                 )));
                 format!(
                     "Layer {} {}{}",
-                    site.code,
+                    shown(&site.code),
                     layer.depth_label(),
                     layer
                         .horizon
                         .as_ref()
-                        .map(|h| format!(" · {h}"))
+                        .map(|h| format!(" · {}", shown(h)))
                         .unwrap_or_default()
                 )
             }

@@ -1,6 +1,7 @@
 //! The campaign tree: sites, their layers (depth range and horizon) and samples (code without
 //! the site's prefix, `≈` before a field pairing) with model, fit standing (glyph and colour)
-//! and flag count. Only the visible rows are drawn.
+//! and flag count. Only the visible rows are drawn; codes, names and horizons show control
+//! and bidirectional formatting characters escaped, so no name can move the pane's border.
 
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
@@ -10,6 +11,7 @@ use ratatui::widgets::Widget;
 
 use super::super::app::{AppState, FitTag, Input, TreeRow, model_tag};
 use super::{fit_width, kind_tag, pane_block, scroll_offset, short_code};
+use crate::model::text::shown;
 
 /// The tree pane.
 pub struct TreePane<'a> {
@@ -63,11 +65,11 @@ impl TreePane<'_> {
                 (
                     vec![
                         Span::raw(open(row)),
-                        Span::styled(site.code.clone(), theme.heading()),
+                        Span::styled(shown(&site.code).into_owned(), theme.heading()),
                         Span::styled(
                             site.name
                                 .as_ref()
-                                .map(|n| format!(" {n}"))
+                                .map(|n| format!(" {}", shown(n)))
                                 .unwrap_or_default(),
                             theme.dim(),
                         ),
@@ -93,7 +95,7 @@ impl TreePane<'_> {
                             layer
                                 .horizon
                                 .as_ref()
-                                .map(|h| format!(" {h}"))
+                                .map(|h| format!(" {}", shown(h)))
                                 .unwrap_or_default(),
                             theme.dim(),
                         ),
@@ -130,7 +132,7 @@ impl TreePane<'_> {
                         Span::raw("   "),
                         Span::styled(kind_tag(sample.kind), theme.field_tag()),
                         Span::raw(" "),
-                        Span::raw(short_code(site, &sample.code).to_string()),
+                        Span::raw(shown(short_code(site, &sample.code)).into_owned()),
                     ],
                     right,
                 )
