@@ -71,6 +71,20 @@ pub enum StoreError {
         /// What is in the way.
         reason: String,
     },
+    /// A command that writes in several transactions (a large campaign fit) was stopped by
+    /// an error after some of them had committed.
+    #[error(
+        "{source}; the fits of {recorded} of {total} samples had been recorded before this \
+         (each sample whole); the others keep their earlier fits: run the same fit again"
+    )]
+    PartlyRecorded {
+        /// Samples whose attempts were committed.
+        recorded: usize,
+        /// Samples the command set out to record.
+        total: usize,
+        /// What stopped it.
+        source: Box<StoreError>,
+    },
     /// Another writer held the file longer than the busy timeout.
     #[error(
         "{path} is busy: {holder} is writing to it and did not finish within {seconds} s; \

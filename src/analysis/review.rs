@@ -362,8 +362,7 @@ pub fn refit_samples(campaign: &mut Campaign, sample_ids: &[i64]) -> Result<FitR
             ..Selection::default()
         };
         let run = fit_campaign(campaign, &selection, choice, &options, &|_, _| {})?;
-        summary.fitted.extend(run.fitted);
-        summary.failed.extend(run.failed);
+        summary.extend(run);
     }
     Ok(summary)
 }

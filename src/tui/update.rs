@@ -461,7 +461,14 @@ fn on_fit_finished(
                         summary.failed.len()
                     );
                 }
-                let tone = if summary.failed.is_empty() {
+                if let Some(code) = summary.changed.first() {
+                    let _ = write!(
+                        text,
+                        "; {} not recorded, readings changed meanwhile ({code}): refit",
+                        summary.changed.len()
+                    );
+                }
+                let tone = if summary.is_complete() {
                     Tone::Info
                 } else {
                     Tone::Warning

@@ -95,10 +95,63 @@ code { font-size: 0.9em; }
 @media print { h2 { page-break-before: always; } figure svg { border: none; } .wide { overflow: visible; } }
 ";
 
+/// What the page header counts: the whole export, summed over its sites.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct Totals {
+    /// Sites.
+    pub sites: usize,
+    /// Samples.
+    pub samples: usize,
+    /// Readings.
+    pub readings: usize,
+}
+
+impl Totals {
+    /// Add a snapshot's sites, samples and readings.
+    pub fn add(&mut self, s: &Snapshot) {
+        self.sites += s.sites.len();
+        self.samples += s.sample_count();
+        self.readings += s.samples().map(|(_, _, m)| m.readings.len()).sum::<usize>();
+    }
+}
+
 /// The page of a snapshot with its charts (one per site, `None` for a site without data).
+///
+/// An export writes the same page in parts, one site at a time: [`page_start`] (with the
+/// [`contents_row`]s), each [`site_section`], the flagged readings ([`flagged_start`],
+/// [`flagged_rows`], [`flagged_end`]) and [`page_end`].
 pub fn report_html(snapshot: &Snapshot, meta: PageMeta<'_>, charts: &[Option<String>]) -> String {
+    let mut totals = Totals::default();
+    totals.add(snapshot);
+    let mut contents = String::new();
+    let mut sections = String::new();
+    for (index, site) in snapshot.sites.iter().enumerate() {
+        contents_row(&mut contents, snapshot, index, site);
+        site_section(
+            &mut sections,
+            snapshot,
+            index,
+            site,
+            charts.get(index).and_then(Option::as_deref),
+        );
+    }
+    let mut flagged = String::new();
+    let count = flagged_rows(&mut flagged, snapshot);
+    let mut out = page_start(snapshot, meta, totals, &contents);
+    out.push_str(&sections);
+    out.push_str(&flagged_start(count));
+    out.push_str(&flagged);
+    out.push_str(&flagged_end(count));
+    let models = models_in(snapshot.samples().map(|(_, _, m)| m));
+    out.push_str(&page_end(snapshot, meta, &models));
+    out
+}
+
+/// The page up to the first site section: head, header (with the export's totals),
+/// cautions, and the table of sites made of `contents` ([`contents_row`]s).
+pub fn page_start(frame: &Snapshot, meta: PageMeta<'_>, totals: Totals, contents: &str) -> String {
     let mut out = String::new();
-    let name = escape(&snapshot.settings.name);
+    let name = escape(&frame.settings.name);
     let _ = write!(
         out,
         "<!DOCTYPE html>\n<html xmlns=\"http://www.w3.org/1999/xhtml\" lang=\"en\">\n<head>\n\
@@ -108,20 +161,19 @@ pub fn report_html(snapshot: &Snapshot, meta: PageMeta<'_>, charts: &[Option<Str
          <title>{name}: retention campaign summary</title>\n<style>{STYLE}</style>\n</head>\n<body>\n",
         version = env!("CARGO_PKG_VERSION"),
     );
-    header(&mut out, snapshot, meta);
+    header(&mut out, frame, meta, totals);
     cautions(&mut out);
-    contents(&mut out, snapshot);
-    for (index, site) in snapshot.sites.iter().enumerate() {
-        site_section(
-            &mut out,
-            snapshot,
-            index,
-            site,
-            charts.get(index).and_then(Option::as_deref),
-        );
-    }
-    flagged_section(&mut out, snapshot);
-    methods(&mut out, snapshot);
+    contents_start(&mut out);
+    out.push_str(contents);
+    contents_end(&mut out);
+    out
+}
+
+/// The page after the flagged readings: how the numbers were computed (for these models)
+/// and the footer.
+pub fn page_end(frame: &Snapshot, meta: PageMeta<'_>, models: &[ModelKind]) -> String {
+    let mut out = String::new();
+    methods(&mut out, frame, models);
     let _ = write!(
         out,
         "<hr/>\n<p class=\"muted\">Written by porewise {} from the campaign file; content \
@@ -132,7 +184,7 @@ pub fn report_html(snapshot: &Snapshot, meta: PageMeta<'_>, charts: &[Option<Str
     out
 }
 
-fn header(out: &mut String, s: &Snapshot, meta: PageMeta<'_>) {
+fn header(out: &mut String, s: &Snapshot, meta: PageMeta<'_>, totals: Totals) {
     let settings = &s.settings;
     let _ = writeln!(
         out,
@@ -142,8 +194,11 @@ fn header(out: &mut String, s: &Snapshot, meta: PageMeta<'_>) {
     if let Some(d) = &settings.description {
         let _ = writeln!(out, "<p>{}</p>", escape(d));
     }
-    let samples = s.sample_count();
-    let readings: usize = s.samples().map(|(_, _, m)| m.readings.len()).sum();
+    let Totals {
+        sites,
+        samples,
+        readings,
+    } = totals;
     let fc_cm = settings.fc_kpa * CM_PER_KPA;
     let pwp_cm = settings.pwp_kpa * CM_PER_KPA;
     let _ = writeln!(out, "<table class=\"meta\">\n<tbody>");
@@ -161,10 +216,7 @@ fn header(out: &mut String, s: &Snapshot, meta: PageMeta<'_>) {
     item(
         out,
         "Contents",
-        format!(
-            "{} sites, {samples} samples, {readings} readings",
-            s.sites.len()
-        ),
+        format!("{sites} sites, {samples} samples, {readings} readings"),
     );
     item(
         out,
@@ -235,7 +287,7 @@ fn cautions(out: &mut String) {
     );
 }
 
-fn contents(out: &mut String, s: &Snapshot) {
+fn contents_start(out: &mut String) {
     let _ = writeln!(
         out,
         "<h2 id=\"sites\">Sites</h2>\n<table>\n<thead><tr><th>site</th><th>name</th>\
@@ -243,28 +295,33 @@ fn contents(out: &mut String, s: &Snapshot) {
          <th>samples</th><th>readings</th><th>flagged</th><th>profile available water, mm</th>\
          </tr></thead>\n<tbody>"
     );
-    for (index, part) in s.sites.iter().enumerate() {
-        let site = &part.row.stored.site;
-        let samples: Vec<_> = part.layers.iter().flat_map(|l| &l.samples).collect();
-        let readings: usize = samples.iter().map(|m| m.readings.len()).sum();
-        let flagged: usize = samples.iter().map(|m| s.flagged_count(m)).sum();
-        let _ = writeln!(
-            out,
-            "<tr><td><a href=\"#site-{n}\">{code}</a></td><td>{name}</td><td class=\"num\">{lat}</td>\
-             <td class=\"num\">{lon}</td><td class=\"num\">{elev}</td><td class=\"num\">{layers}</td>\
-             <td class=\"num\">{samples}</td><td class=\"num\">{readings}</td>\
-             <td class=\"num\">{flagged}</td><td class=\"num\">{water}</td></tr>",
-            n = index + 1,
-            code = escape(&site.code),
-            name = opt_text(site.name.as_deref()),
-            lat = num(site.latitude, 8),
-            lon = num(site.longitude, 8),
-            elev = num(site.elevation_m, 5),
-            layers = part.layers.len(),
-            samples = samples.len(),
-            water = profile_total(part),
-        );
-    }
+}
+
+/// The row of one site in the table of sites (`index` counts the export's sites from 0).
+pub fn contents_row(out: &mut String, s: &Snapshot, index: usize, part: &SitePart) {
+    let site = &part.row.stored.site;
+    let samples: Vec<_> = part.layers.iter().flat_map(|l| &l.samples).collect();
+    let readings: usize = samples.iter().map(|m| m.readings.len()).sum();
+    let flagged: usize = samples.iter().map(|m| s.flagged_count(m)).sum();
+    let _ = writeln!(
+        out,
+        "<tr><td><a href=\"#site-{n}\">{code}</a></td><td>{name}</td><td class=\"num\">{lat}</td>\
+         <td class=\"num\">{lon}</td><td class=\"num\">{elev}</td><td class=\"num\">{layers}</td>\
+         <td class=\"num\">{samples}</td><td class=\"num\">{readings}</td>\
+         <td class=\"num\">{flagged}</td><td class=\"num\">{water}</td></tr>",
+        n = index + 1,
+        code = escape(&site.code),
+        name = opt_text(site.name.as_deref()),
+        lat = num(site.latitude, 8),
+        lon = num(site.longitude, 8),
+        elev = num(site.elevation_m, 5),
+        layers = part.layers.len(),
+        samples = samples.len(),
+        water = profile_total(part),
+    );
+}
+
+fn contents_end(out: &mut String) {
     let _ = writeln!(
         out,
         "</tbody>\n</table>\n<p><a href=\"#flagged\">Flagged readings</a> · \
@@ -340,7 +397,8 @@ fn state_note(code: &str, state: &FitState, columns: usize) -> String {
     )
 }
 
-fn site_section(
+/// The section of one site (`index` counts the export's sites from 0), with its chart.
+pub fn site_section(
     out: &mut String,
     s: &Snapshot,
     index: usize,
@@ -543,16 +601,14 @@ fn profile_table(out: &mut String, part: &SitePart) {
     );
 }
 
-fn flagged_section(out: &mut String, s: &Snapshot) {
+/// The heading of the flagged readings, and the table's head when `count` readings carry a
+/// flag (a line saying none does otherwise).
+pub fn flagged_start(count: usize) -> String {
+    let mut out = String::new();
     let _ = writeln!(out, "<h2 id=\"flagged\">Flagged readings</h2>");
-    let rows: Vec<_> = s
-        .samples()
-        .flat_map(|(site, _, m)| m.readings.iter().map(move |r| (site, m, r)))
-        .filter(|(_, _, r)| !s.flags_of(r.id).is_empty())
-        .collect();
-    if rows.is_empty() {
+    if count == 0 {
         let _ = writeln!(out, "<p>No reading carries a flag.</p>");
-        return;
+        return out;
     }
     let _ = writeln!(
         out,
@@ -563,7 +619,27 @@ fn flagged_section(out: &mut String, s: &Snapshot) {
          <th>θ, m³/m³</th><th>left out of fits</th><th>flag</th><th>check</th><th>reason</th>\
          <th>score</th><th>status</th><th>trail (UTC)</th></tr></thead>\n<tbody>"
     );
-    for (site, m, r) in rows {
+    out
+}
+
+/// The end of the flagged readings' table (nothing when no reading carries a flag).
+pub fn flagged_end(count: usize) -> String {
+    if count == 0 {
+        String::new()
+    } else {
+        "</tbody>\n</table>\n".to_string()
+    }
+}
+
+/// The rows of a snapshot's flagged readings, one per flag; returns how many readings carry
+/// a flag.
+pub fn flagged_rows(out: &mut String, s: &Snapshot) -> usize {
+    let rows: Vec<_> = s
+        .samples()
+        .flat_map(|(site, _, m)| m.readings.iter().map(move |r| (site, m, r)))
+        .filter(|(_, _, r)| !s.flags_of(r.id).is_empty())
+        .collect();
+    for (site, m, r) in &rows {
         for f in s.flags_of(r.id) {
             let flag = &f.stored.flag;
             let _ = writeln!(
@@ -588,7 +664,7 @@ fn flagged_section(out: &mut String, s: &Snapshot) {
             );
         }
     }
-    let _ = writeln!(out, "</tbody>\n</table>");
+    rows.len()
 }
 
 /// `suggested by checks 2026-12-02 10:00; accepted by user 2026-12-03 09:12: "note"`.
@@ -659,7 +735,7 @@ fn citation(kind: ModelKind) -> &'static str {
     }
 }
 
-fn methods(out: &mut String, s: &Snapshot) {
+fn methods(out: &mut String, s: &Snapshot, models: &[ModelKind]) {
     let settings = &s.settings;
     let _ = writeln!(
         out,
@@ -669,12 +745,11 @@ fn methods(out: &mut String, s: &Snapshot) {
          water content θ in m³/m³; depths in cm below the surface; times in UTC.</p>\n\
          <h3>Retention models used</h3>"
     );
-    let models = models_in(s.samples().map(|(_, _, m)| m));
     if models.is_empty() {
         let _ = writeln!(out, "<p>No sample has a fit.</p>");
     } else {
         let _ = writeln!(out, "<ul>");
-        for kind in models {
+        for &kind in models {
             let params = kind
                 .params()
                 .iter()

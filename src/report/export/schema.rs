@@ -29,6 +29,7 @@
 //! path of the document, so such a change cannot go unnoticed).
 
 use std::collections::BTreeMap;
+use std::io::{self, Seek, SeekFrom, Write};
 
 use chrono::{DateTime, NaiveDate, SecondsFormat, Utc};
 use serde::{Deserialize, Serialize};
@@ -449,8 +450,27 @@ impl CampaignDocument {
     }
 }
 
-impl From<&Snapshot> for CampaignData {
-    fn from(s: &Snapshot) -> Self {
+impl CampaignDocument {
+    /// The document without its sites, its fingerprint a placeholder of zeros: what
+    /// [`JsonStream`] writes around the sites it is given one at a time.
+    pub fn head(frame: &Snapshot, exported_at: DateTime<Utc>) -> Self {
+        Self {
+            format: FORMAT.to_string(),
+            schema_version: SCHEMA_VERSION,
+            program: ProgramInfo {
+                name: env!("CARGO_PKG_NAME").to_string(),
+                version: env!("CARGO_PKG_VERSION").to_string(),
+            },
+            exported_at: rfc3339(exported_at),
+            fingerprint_sha256: "0".repeat(64),
+            data: CampaignData::head(frame),
+        }
+    }
+}
+
+impl CampaignData {
+    /// Everything but the sites (campaign, scope, imports) of a snapshot.
+    pub fn head(s: &Snapshot) -> Self {
         Self {
             campaign: CampaignInfo {
                 name: s.settings.name.clone(),
@@ -476,12 +496,137 @@ impl From<&Snapshot> for CampaignData {
                     imported_at: rfc3339(b.imported_at),
                 })
                 .collect(),
-            sites: s.sites.iter().map(|site| site_data(s, site)).collect(),
+            sites: Vec::new(),
         }
     }
 }
 
-fn site_data(s: &Snapshot, part: &SitePart) -> SiteData {
+impl From<&Snapshot> for CampaignData {
+    fn from(s: &Snapshot) -> Self {
+        Self {
+            sites: s.sites.iter().map(|site| site_data(s, site)).collect(),
+            ..Self::head(s)
+        }
+    }
+}
+
+/// Where the sites go in a document written without them: the text up to and including the
+/// `[` of `"sites": []`, and the rest from its `]`.
+fn split_at_sites<'t>(text: &'t str, mark: &str) -> io::Result<(&'t str, &'t str)> {
+    // `data.sites` is the last member of the last member, so its mark is the last one; a `"`
+    // inside a string is escaped, so the mark cannot be part of a user's text.
+    let at = text
+        .rfind(mark)
+        .ok_or_else(|| io::Error::other("the document has no sites member"))?;
+    Ok(text.split_at(at + mark.len() - 1))
+}
+
+/// Indentation of one site in `campaign.json` (an element of `data.sites`, three levels deep,
+/// two spaces a level as `serde_json`'s pretty printer writes).
+const SITE_INDENT: &str = "      ";
+/// Indentation of the `]` that closes `data.sites`.
+const SITES_CLOSE_INDENT: &str = "    ";
+
+/// `campaign.json` written one site at a time, so memory holds one site rather than the
+/// campaign; the bytes are those of [`to_json`] on the whole [`CampaignDocument`].
+///
+/// Each site is written pretty (the text of `serde_json::to_string_pretty`, indented to its
+/// depth: pretty JSON has a line break only between tokens, never inside a string) and fed
+/// compact to the SHA-256 of `data`; the fingerprint, known at the end, overwrites the
+/// placeholder in the head. Without an output it only computes the fingerprint.
+#[derive(Debug)]
+pub struct JsonStream<W: Write + Seek> {
+    out: Option<W>,
+    hasher: Sha256,
+    placeholder: u64,
+    pretty_tail: String,
+    compact_tail: String,
+    sites: usize,
+}
+
+impl<W: Write + Seek> JsonStream<W> {
+    /// Write the head of the document (from [`CampaignDocument::head`]).
+    ///
+    /// # Errors
+    /// Writing fails, or the head does not encode.
+    pub fn start(mut out: Option<W>, head: &CampaignDocument) -> io::Result<Self> {
+        let pretty = serde_json::to_string_pretty(head)?;
+        let (before, pretty_tail) = split_at_sites(&pretty, "\"sites\": []")?;
+        let key = "\"fingerprint_sha256\": \"";
+        let placeholder = before
+            .find(key)
+            .map(|at| (at + key.len()) as u64)
+            .ok_or_else(|| io::Error::other("the document has no fingerprint member"))?;
+        if let Some(out) = out.as_mut() {
+            out.write_all(before.as_bytes())?;
+        }
+        let compact = serde_json::to_string(&head.data)?;
+        let (compact_before, compact_tail) = split_at_sites(&compact, "\"sites\":[]")?;
+        let mut hasher = Sha256::new();
+        hasher.update(compact_before.as_bytes());
+        Ok(Self {
+            out,
+            hasher,
+            placeholder,
+            pretty_tail: pretty_tail.to_string(),
+            compact_tail: compact_tail.to_string(),
+            sites: 0,
+        })
+    }
+
+    /// Add one site (sites come in code order).
+    ///
+    /// # Errors
+    /// Writing fails.
+    pub fn site(&mut self, site: &SiteData) -> io::Result<()> {
+        if self.sites > 0 {
+            self.hasher.update(b",");
+        }
+        self.hasher.update(serde_json::to_vec(site)?);
+        if let Some(out) = self.out.as_mut() {
+            let text = serde_json::to_string_pretty(site)?;
+            out.write_all(if self.sites == 0 { b"\n" } else { b",\n" })?;
+            out.write_all(SITE_INDENT.as_bytes())?;
+            let mut lines = text.split('\n');
+            if let Some(first) = lines.next() {
+                out.write_all(first.as_bytes())?;
+            }
+            for line in lines {
+                out.write_all(b"\n")?;
+                out.write_all(SITE_INDENT.as_bytes())?;
+                out.write_all(line.as_bytes())?;
+            }
+        }
+        self.sites += 1;
+        Ok(())
+    }
+
+    /// Close the document, write the fingerprint into the head, and hand back the output
+    /// with the fingerprint.
+    ///
+    /// # Errors
+    /// Writing fails.
+    pub fn finish(mut self) -> io::Result<(String, Option<W>)> {
+        self.hasher.update(self.compact_tail.as_bytes());
+        let fingerprint = hex(&self.hasher.finalize());
+        if let Some(out) = self.out.as_mut() {
+            if self.sites > 0 {
+                out.write_all(b"\n")?;
+                out.write_all(SITES_CLOSE_INDENT.as_bytes())?;
+            }
+            out.write_all(self.pretty_tail.as_bytes())?;
+            out.write_all(b"\n")?;
+            let end = out.stream_position()?;
+            out.seek(SeekFrom::Start(self.placeholder))?;
+            out.write_all(fingerprint.as_bytes())?;
+            out.seek(SeekFrom::Start(end))?;
+        }
+        Ok((fingerprint, self.out))
+    }
+}
+
+/// One site of a snapshot as it appears in `data.sites`.
+pub fn site_data(s: &Snapshot, part: &SitePart) -> SiteData {
     let site = &part.row.stored.site;
     let water_of = |at: &LayerRef| -> Option<&LayerWater> {
         part.profile

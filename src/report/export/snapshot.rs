@@ -165,9 +165,11 @@ fn reading_flags(conn: &Connection, site: Option<&str>) -> Result<BTreeMap<i64, 
     Ok(out)
 }
 
-/// Read the campaign (or one site of it) for an export.
+/// Read the campaign (or one site of it) for an export, all of it at once.
 ///
-/// `progress(done, total)` counts samples as they are put together.
+/// `progress(done, total)` counts samples as they are put together. An export itself reads
+/// one site at a time ([`frame`], then [`read_site`] per site); this is the same content in
+/// one value.
 ///
 /// # Errors
 /// An unknown site code, an SQLite error, or a stored fit that does not decode.
@@ -177,98 +179,152 @@ pub fn read(
     root_zone_cm: f64,
     progress: &dyn Fn(usize, usize),
 ) -> Result<Snapshot> {
+    let mut whole = frame(conn, site, root_zone_cm)?;
+    let total = sample_total(conn, site)?;
+    let done = std::cell::Cell::new(0);
+    for row in sites::list(conn, site)? {
+        let part = read_site(conn, &whole, row, &|| {
+            done.set(done.get() + 1);
+            progress(done.get(), total);
+        })?;
+        whole.flags.extend(part.flags);
+        whole.marks.extend(part.marks);
+        whole.sites.extend(part.sites);
+    }
+    Ok(whole)
+}
+
+/// What every site of an export shares: settings, scope and imports, without any site.
+///
+/// # Errors
+/// An unknown site code, or an SQLite error.
+pub fn frame(conn: &Connection, site: Option<&str>, root_zone_cm: f64) -> Result<Snapshot> {
     let selection = Selection {
         site: site.map(str::to_string),
         ..Selection::default()
     };
     selection.check(conn)?;
-    let settings = campaign::settings(conn)?;
-    let filter = Filter { site, sample: None };
-    let mut fits: BTreeMap<i64, SampleFit> = sample_fits(conn, &settings, &selection)?
+    Ok(Snapshot {
+        settings: campaign::settings(conn)?,
+        site_filter: site.map(str::to_string),
+        root_zone_cm,
+        sites: Vec::new(),
+        imports: batches::all(conn)?,
+        flags: BTreeMap::new(),
+        marks: BTreeMap::new(),
+    })
+}
+
+/// One site for an export: a snapshot with the frame's settings and scope, this site (its
+/// layers, samples, readings, current fits and profile) and the flags of its readings; no
+/// imports (they are the frame's).
+///
+/// `progress()` is called once per sample.
+///
+/// # Errors
+/// An SQLite error, or a stored fit that does not decode.
+pub fn read_site(
+    conn: &Connection,
+    frame: &Snapshot,
+    row: SiteRow,
+    progress: &dyn Fn(),
+) -> Result<Snapshot> {
+    let code = row.stored.site.code.clone();
+    let selection = Selection {
+        site: Some(code.clone()),
+        ..Selection::default()
+    };
+    let filter = Filter {
+        site: Some(&code),
+        sample: None,
+    };
+    let mut fits: BTreeMap<i64, SampleFit> = sample_fits(conn, &frame.settings, &selection)?
         .into_iter()
         .map(|f| (f.sample.id, f))
         .collect();
     let mut readings_by_sample: BTreeMap<i64, Vec<StoredReading>> = BTreeMap::new();
-    for row in readings::list(conn, filter)? {
+    for reading in readings::list(conn, filter)? {
         readings_by_sample
-            .entry(row.stored.sample_id)
+            .entry(reading.stored.sample_id)
             .or_default()
-            .push(row.stored);
+            .push(reading.stored);
     }
     let mut samples_by_layer: BTreeMap<i64, Vec<SampleRow>> = BTreeMap::new();
-    for row in samples::list(conn, filter)? {
+    for sample in samples::list(conn, filter)? {
         samples_by_layer
-            .entry(row.stored.layer_id)
+            .entry(sample.stored.layer_id)
             .or_default()
-            .push(row);
+            .push(sample);
     }
-    let mut layers_by_site: BTreeMap<i64, Vec<LayerRow>> = BTreeMap::new();
-    for row in layers::list(conn, site)? {
-        layers_by_site
-            .entry(row.stored.site_id)
-            .or_default()
-            .push(row);
-    }
-    let mut profiles_by_site: BTreeMap<String, SiteProfile> =
-        profiles(conn, &settings, root_zone_cm, site)?
-            .into_iter()
-            .map(|p| (p.site.clone(), p))
-            .collect();
-    let total = fits.len();
-    let mut done = 0;
-    let mut parts = Vec::new();
-    for row in sites::list(conn, site)? {
-        let mut layers = Vec::new();
-        for layer in layers_by_site.remove(&row.stored.id).unwrap_or_default() {
-            let mut samples = Vec::new();
-            for sample in samples_by_layer
-                .remove(&layer.stored.id)
-                .unwrap_or_default()
-            {
-                let id = sample.stored.id;
-                let fit = fits.remove(&id).ok_or_else(|| {
-                    StoreError::Corrupt(format!("sample {id} has no fit standing"))
-                })?;
-                samples.push(SamplePart {
-                    row: sample,
-                    fit,
-                    readings: readings_by_sample.remove(&id).unwrap_or_default(),
-                });
-                done += 1;
-                progress(done, total);
-            }
-            layers.push(LayerPart {
-                row: layer,
-                samples,
+    let profile = profiles(conn, &frame.settings, frame.root_zone_cm, Some(&code))?
+        .into_iter()
+        .find(|p| p.site == code);
+    let mut layers = Vec::new();
+    for layer in layers::list(conn, Some(&code))? {
+        let mut samples = Vec::new();
+        for sample in samples_by_layer
+            .remove(&layer.stored.id)
+            .unwrap_or_default()
+        {
+            let id = sample.stored.id;
+            let fit = fits
+                .remove(&id)
+                .ok_or_else(|| StoreError::Corrupt(format!("sample {id} has no fit standing")))?;
+            samples.push(SamplePart {
+                row: sample,
+                fit,
+                readings: readings_by_sample.remove(&id).unwrap_or_default(),
             });
+            progress();
         }
-        let profile = profiles_by_site.remove(&row.stored.site.code);
-        parts.push(SitePart {
+        layers.push(LayerPart {
+            row: layer,
+            samples,
+        });
+    }
+    let flags = reading_flags(conn, Some(&code))?;
+    let marks = flags
+        .iter()
+        .filter_map(|(id, list)| {
+            list.iter()
+                .map(|f| Mark::of(f.stored.flag.status, f.stored.flag.origin))
+                .max()
+                .map(|m| (*id, m))
+        })
+        .collect();
+    Ok(Snapshot {
+        settings: frame.settings.clone(),
+        site_filter: frame.site_filter.clone(),
+        root_zone_cm: frame.root_zone_cm,
+        sites: vec![SitePart {
             row,
             layers,
             profile,
-        });
-    }
-    let flags = reading_flags(conn, site)?;
-    let ids: BTreeSet<i64> = parts
-        .iter()
-        .flat_map(|s| &s.layers)
-        .flat_map(|l| &l.samples)
-        .flat_map(|m| m.readings.iter().map(|r| r.id))
-        .collect();
-    let marks: BTreeMap<i64, Mark> = flags::reading_marks(conn)?
-        .into_iter()
-        .filter(|(id, _)| ids.contains(id))
-        .collect();
-    Ok(Snapshot {
-        settings,
-        site_filter: site.map(str::to_string),
-        root_zone_cm,
-        sites: parts,
-        imports: batches::all(conn)?,
+        }],
+        imports: Vec::new(),
         flags,
         marks,
     })
+}
+
+/// The models of the current fits an export covers, in the order of the model table (the
+/// parameter columns of `parameters.csv` are their union).
+///
+/// # Errors
+/// An SQLite error.
+pub fn current_models(conn: &Connection, site: Option<&str>) -> Result<Vec<ModelKind>> {
+    let mut stmt = conn.prepare(
+        "SELECT DISTINCT f.model FROM fit f JOIN sample m ON f.sample_id = m.id
+         JOIN layer l ON m.layer_id = l.id JOIN site s ON l.site_id = s.id
+         WHERE f.is_current = 1 AND (?1 IS NULL OR s.code = ?1)",
+    )?;
+    let used = stmt
+        .query_map([site], |r| r.get::<_, String>(0))?
+        .collect::<rusqlite::Result<BTreeSet<String>>>()?;
+    Ok(ModelKind::ALL
+        .into_iter()
+        .filter(|k| used.contains(k.id()))
+        .collect())
 }
 
 /// How many samples an export of the campaign (or of one site) covers.
