@@ -61,7 +61,6 @@ use crate::analysis::water::DEFAULT_ROOT_ZONE_CM;
 use crate::model::retention::ModelKind;
 use crate::report::fit_table::parameter_union;
 use crate::store::{StoreError, sites};
-use snapshot::models_in;
 
 /// `parameters.csv`.
 pub const PARAMETERS_FILE: &str = "parameters.csv";
@@ -335,7 +334,7 @@ fn io_error_owned(path: PathBuf) -> impl FnOnce(std::io::Error) -> ExportError {
 }
 
 /// Spool files of the page inside the staging folder (removed before the swap).
-const SPOOLS: [&str; 2] = [".report-sites.part", ".report-flagged.part"];
+const SPOOLS: [&str; 3] = [".report-sites.part", ".report-flagged.part", ROWS_SPOOL];
 
 /// Whether a directory entry is ours: a file an export writes, or the temporary file of an
 /// interrupted [`write_atomic`] of one (`.NAME.PID.tmp`, from porewise before 0.2).
@@ -486,6 +485,12 @@ impl Target<'_> {
     }
 }
 
+/// Spool of one site's parameter-table rows (inside the staging folder).
+const ROWS_SPOOL: &str = ".report-rows.part";
+
+/// How many samples an export reads at a time (of one layer).
+pub const BATCH_SAMPLES: usize = 200;
+
 /// The page while its sites are written: the table of sites, and spools for the site
 /// sections and the flagged rows.
 struct PageParts {
@@ -493,7 +498,7 @@ struct PageParts {
     sections: Sink,
     flagged: Sink,
     flagged_count: usize,
-    models: BTreeSet<&'static str>,
+    models: BTreeSet<String>,
 }
 
 /// What [`write_files`] wrote.
@@ -593,48 +598,89 @@ fn write_files(
     };
     let mut totals = html::Totals::default();
     for (index, row) in rows.into_iter().enumerate() {
-        let snap = snapshot::read_site(conn, &frame, row, &|| counter.step())?;
-        totals.add(&snap);
-        let Some(part) = snap.sites.first() else {
-            continue;
-        };
-        json.site(&schema::site_data(&snap, part))
+        let walk = snapshot::walk_site(conn, &frame, row)?;
+        let site = walk.head();
+        json.open(&schema::site_head(&site), "layers")
             .map_err(io_at(CAMPAIGN_FILE))?;
-        if let Some((w, params)) = parameters.as_mut() {
-            for r in tables::parameter_rows(&snap, params) {
-                w.write_record(&r).map_err(csv_at(PARAMETERS_FILE))?;
-            }
-        }
         if let Some(w) = profiles.as_mut() {
-            for r in tables::profile_rows(&snap) {
+            let head = snapshot::Snapshot {
+                sites: vec![site.clone()],
+                ..frame.clone()
+            };
+            for r in tables::profile_rows(&head) {
                 w.write_record(&r).map_err(csv_at(PROFILES_FILE))?;
             }
         }
-        if options.wants(ExportFormat::Geojson) {
-            features.push(geojson::feature(&snap, part));
+        let mut tally = snapshot::SiteTally::default();
+        let mut chart_data = page.is_some().then(|| chart::ChartData::new(&site));
+        let mut rows_spool = match page {
+            Some(_) => Some(create(ROWS_SPOOL)?),
+            None => None,
+        };
+        for (layer_index, layer) in site.layers.iter().enumerate() {
+            json.open(&schema::layer_head(&site, layer), "samples")
+                .map_err(io_at(CAMPAIGN_FILE))?;
+            for rows in walk.samples_of(layer_index).chunks(BATCH_SAMPLES) {
+                let batch = walk.read_batch(conn, &frame, layer_index, rows, &|| counter.step())?;
+                for (_, _, m) in batch.samples() {
+                    json.item(&schema::sample_data(&batch, m))
+                        .map_err(io_at(CAMPAIGN_FILE))?;
+                }
+                if let Some((w, params)) = parameters.as_mut() {
+                    for r in tables::parameter_rows(&batch, params) {
+                        w.write_record(&r).map_err(csv_at(PARAMETERS_FILE))?;
+                    }
+                }
+                tally.add(&batch);
+                if let (Some(p), Some(data), Some(spool)) =
+                    (page.as_mut(), chart_data.as_mut(), rows_spool.as_mut())
+                {
+                    data.add(&batch);
+                    let mut text = String::new();
+                    html::parameter_rows(&mut text, &batch);
+                    spool
+                        .write_all(text.as_bytes())
+                        .map_err(io_at(REPORT_FILE))?;
+                    text.clear();
+                    p.flagged_count += html::flagged_rows(&mut text, &batch);
+                    p.flagged
+                        .write_all(text.as_bytes())
+                        .map_err(io_at(REPORT_FILE))?;
+                }
+            }
+            json.close().map_err(io_at(CAMPAIGN_FILE))?;
         }
-        if let Some(p) = page.as_mut() {
-            let chart = chart::site_chart(&snap, part).map_err(|message| ExportError::Encode {
-                file: REPORT_FILE,
-                message,
+        json.close().map_err(io_at(CAMPAIGN_FILE))?;
+        totals.add_site(&tally);
+        if options.wants(ExportFormat::Geojson) {
+            features.push(geojson::feature(&frame, &site, &tally));
+        }
+        if let (Some(p), Some(data), Some(spool)) = (page.as_mut(), chart_data, rows_spool) {
+            let svg = chart::chart_svg(&frame.settings, &data).map_err(|message| {
+                ExportError::Encode {
+                    file: REPORT_FILE,
+                    message,
+                }
             })?;
             counter.step();
-            html::contents_row(&mut p.contents, &snap, index, part);
+            html::contents_row(&mut p.contents, index, &site, &tally);
             let mut text = String::new();
-            html::site_section(&mut text, &snap, index, part, chart.as_deref());
-            p.sections
-                .write_all(text.as_bytes())
-                .map_err(io_at(REPORT_FILE))?;
-            text.clear();
-            p.flagged_count += html::flagged_rows(&mut text, &snap);
-            p.flagged
-                .write_all(text.as_bytes())
-                .map_err(io_at(REPORT_FILE))?;
-            p.models.extend(
-                models_in(snap.samples().map(|(_, _, m)| m))
-                    .iter()
-                    .map(|k| k.id()),
+            html::section_start(
+                &mut text,
+                index,
+                &site,
+                svg.as_deref(),
+                &walk.sample_counts(),
             );
+            let write = |sections: &mut Sink| -> io::Result<()> {
+                sections.write_all(text.as_bytes())?;
+                spool.append_to(sections)?;
+                let mut end = String::new();
+                html::section_end(&mut end, &site);
+                sections.write_all(end.as_bytes())
+            };
+            write(&mut p.sections).map_err(io_at(REPORT_FILE))?;
+            p.models.extend(tally.models.iter().cloned());
         }
     }
     drop(tx);
@@ -685,9 +731,10 @@ fn write_files(
             .into_iter()
             .filter(|k| p.models.contains(k.id()))
             .collect();
+        let totals = &totals;
         let mut sink = create(REPORT_FILE)?;
         let write = |sink: &mut Sink| -> io::Result<()> {
-            sink.write_all(html::page_start(&frame, meta, totals, &p.contents).as_bytes())?;
+            sink.write_all(html::page_start(&frame, meta, *totals, &p.contents).as_bytes())?;
             p.sections.append_to(sink)?;
             sink.write_all(html::flagged_start(p.flagged_count).as_bytes())?;
             p.flagged.append_to(sink)?;

@@ -11,7 +11,7 @@
 use std::fmt::Write as _;
 
 use super::chart::{Marker, colour_hex, layer_colour, layer_label};
-use super::snapshot::{ReadingFlag, SitePart, Snapshot, models_in};
+use super::snapshot::{ReadingFlag, SitePart, SiteTally, Snapshot, models_in};
 use super::tables::state_detail;
 use crate::fit::FitReport;
 use crate::model::domain::SampleKind;
@@ -113,6 +113,13 @@ impl Totals {
         self.samples += s.sample_count();
         self.readings += s.samples().map(|(_, _, m)| m.readings.len()).sum::<usize>();
     }
+
+    /// Add one site with these counts.
+    pub fn add_site(&mut self, tally: &SiteTally) {
+        self.sites += 1;
+        self.samples += tally.samples;
+        self.readings += tally.readings;
+    }
 }
 
 /// The page of a snapshot with its charts (one per site, `None` for a site without data).
@@ -126,7 +133,12 @@ pub fn report_html(snapshot: &Snapshot, meta: PageMeta<'_>, charts: &[Option<Str
     let mut contents = String::new();
     let mut sections = String::new();
     for (index, site) in snapshot.sites.iter().enumerate() {
-        contents_row(&mut contents, snapshot, index, site);
+        let mut tally = SiteTally::default();
+        tally.add(&Snapshot {
+            sites: vec![site.clone()],
+            ..snapshot.clone()
+        });
+        contents_row(&mut contents, index, site, &tally);
         site_section(
             &mut sections,
             snapshot,
@@ -297,12 +309,10 @@ fn contents_start(out: &mut String) {
     );
 }
 
-/// The row of one site in the table of sites (`index` counts the export's sites from 0).
-pub fn contents_row(out: &mut String, s: &Snapshot, index: usize, part: &SitePart) {
+/// The row of one site in the table of sites (`index` counts the export's sites from 0),
+/// with the counts of its samples.
+pub fn contents_row(out: &mut String, index: usize, part: &SitePart, tally: &SiteTally) {
     let site = &part.row.stored.site;
-    let samples: Vec<_> = part.layers.iter().flat_map(|l| &l.samples).collect();
-    let readings: usize = samples.iter().map(|m| m.readings.len()).sum();
-    let flagged: usize = samples.iter().map(|m| s.flagged_count(m)).sum();
     let _ = writeln!(
         out,
         "<tr><td><a href=\"#site-{n}\">{code}</a></td><td>{name}</td><td class=\"num\">{lat}</td>\
@@ -316,7 +326,9 @@ pub fn contents_row(out: &mut String, s: &Snapshot, index: usize, part: &SitePar
         lon = num(site.longitude, 8),
         elev = num(site.elevation_m, 5),
         layers = part.layers.len(),
-        samples = samples.len(),
+        samples = tally.samples,
+        readings = tally.readings,
+        flagged = tally.flagged,
         water = profile_total(part),
     );
 }
@@ -405,6 +417,21 @@ pub fn site_section(
     part: &SitePart,
     chart: Option<&str>,
 ) {
+    let counts: Vec<usize> = part.layers.iter().map(|l| l.samples.len()).collect();
+    section_start(out, index, part, chart, &counts);
+    parameter_rows(out, s);
+    section_end(out, part);
+}
+
+/// A site's section up to its parameter table's rows: heading, location, chart, the layer
+/// table (with each layer's number of samples, `counts`) and the parameter table's head.
+pub fn section_start(
+    out: &mut String,
+    index: usize,
+    part: &SitePart,
+    chart: Option<&str>,
+    counts: &[usize],
+) {
     let site = &part.row.stored.site;
     let title = match &site.name {
         Some(name) => format!("{} — {}", escape(&site.code), escape(name)),
@@ -458,13 +485,24 @@ pub fn site_section(
             );
         }
     }
-    layer_table(out, part);
-    parameter_table(out, s, part);
+    layer_table(out, part, counts);
+    let _ = writeln!(
+        out,
+        "<h3>Fitted parameters</h3>\n<div class=\"wide\">\n<table>\n<thead><tr><th>sample</th><th>layer</th><th>model</th>\
+         <th>parameters ± standard error</th><th>RMSE, m³/m³</th><th>R²</th><th>AICc</th>\
+         <th>readings used / flagged / left out</th><th>θ at FC, m³/m³</th><th>θ at PWP, m³/m³</th>\
+         <th>available water, m³/m³</th><th>state</th></tr></thead>\n<tbody>"
+    );
+}
+
+/// A site's section after its parameter table's rows: the table's end, the profile table.
+pub fn section_end(out: &mut String, part: &SitePart) {
+    let _ = writeln!(out, "</tbody>\n</table>\n</div>");
     profile_table(out, part);
     let _ = writeln!(out, "</section>");
 }
 
-fn layer_table(out: &mut String, part: &SitePart) {
+fn layer_table(out: &mut String, part: &SitePart, counts: &[usize]) {
     let _ = writeln!(
         out,
         "<h3>Layers</h3>\n<table>\n<thead><tr><th>marker</th><th>layer</th><th>sand / silt / clay, %</th>\
@@ -487,72 +525,63 @@ fn layer_table(out: &mut String, part: &SitePart) {
             oc = num(l.organic_carbon_pct, 3),
             bd = num(l.bulk_density_g_cm3, 3),
             ks = num(l.ks_cm_per_day, DIGITS),
-            n = layer.samples.len(),
+            n = counts.get(index).copied().unwrap_or_default(),
         );
     }
     let _ = writeln!(out, "</tbody>\n</table>");
 }
 
-fn parameter_table(out: &mut String, s: &Snapshot, part: &SitePart) {
-    let _ = writeln!(
-        out,
-        "<h3>Fitted parameters</h3>\n<div class=\"wide\">\n<table>\n<thead><tr><th>sample</th><th>layer</th><th>model</th>\
-         <th>parameters ± standard error</th><th>RMSE, m³/m³</th><th>R²</th><th>AICc</th>\
-         <th>readings used / flagged / left out</th><th>θ at FC, m³/m³</th><th>θ at PWP, m³/m³</th>\
-         <th>available water, m³/m³</th><th>state</th></tr></thead>\n<tbody>"
-    );
-    for layer in &part.layers {
-        for m in &layer.samples {
-            let fit = m.fit.fit.as_ref();
-            let report = fit.and_then(|f| f.report.as_ref());
-            let values = m.fit.derived.as_ref().map(|d| &d.values);
-            let kind = match m.row.stored.sample.kind {
-                SampleKind::LabCore => "",
-                SampleKind::FieldPairing => " <span class=\"muted\">(field pairing)</span>",
-            };
-            let model = fit.map_or_else(
-                || NONE.to_string(),
-                |f| {
-                    let name = f
-                        .model
-                        .parse::<ModelKind>()
-                        .map_or_else(|_| escape(&f.model), |k| k.display_name().to_string());
-                    match f.requested.as_deref() {
-                        Some("auto") => {
-                            format!("{name}<br/><span class=\"muted\">auto: lowest AICc</span>")
-                        }
-                        _ => name,
+/// The parameter table's rows of a snapshot's samples (one site's, or a batch of them).
+pub fn parameter_rows(out: &mut String, s: &Snapshot) {
+    for (_, layer, m) in s.samples() {
+        let fit = m.fit.fit.as_ref();
+        let report = fit.and_then(|f| f.report.as_ref());
+        let values = m.fit.derived.as_ref().map(|d| &d.values);
+        let kind = match m.row.stored.sample.kind {
+            SampleKind::LabCore => "",
+            SampleKind::FieldPairing => " <span class=\"muted\">(field pairing)</span>",
+        };
+        let model = fit.map_or_else(
+            || NONE.to_string(),
+            |f| {
+                let name = f
+                    .model
+                    .parse::<ModelKind>()
+                    .map_or_else(|_| escape(&f.model), |k| k.display_name().to_string());
+                match f.requested.as_deref() {
+                    Some("auto") => {
+                        format!("{name}<br/><span class=\"muted\">auto: lowest AICc</span>")
                     }
-                },
-            );
-            let _ = writeln!(
-                out,
-                "<tr><td class=\"code\">{code}{kind}</td><td class=\"layer\">{layer}</td><td class=\"model\">{model}</td><td class=\"params\">{params}</td>\
-                 <td class=\"num\">{rmse}</td><td class=\"num\">{r2}</td><td class=\"num\">{aicc}</td>\
-                 <td class=\"num\">{used} / {flagged} / {excluded}</td><td class=\"num\">{fc}</td>\
-                 <td class=\"num\">{pwp}</td><td class=\"num\">{aw}</td><td>{state}</td></tr>",
-                code = escape(&m.row.stored.sample.code),
-                layer = escape(&layer_label(layer)),
-                params = report.map_or_else(|| NONE.to_string(), parameters_cell),
-                rmse = num(report.map(|r| r.rmse), 3),
-                r2 = num(report.and_then(|r| r.r2), DIGITS),
-                aicc = num(report.and_then(|r| r.aicc), DIGITS),
-                used = fit.map_or_else(|| NONE.to_string(), |f| f.n_points.to_string()),
-                flagged = s.flagged_count(m),
-                excluded = s.excluded_count(m),
-                fc = num(values.and_then(|v| v.theta_field_capacity), DIGITS),
-                pwp = num(values.and_then(|v| v.theta_wilting_point), DIGITS),
-                aw = num(values.and_then(|v| v.plant_available_water), DIGITS),
-                state = state_cell(&m.fit.state),
-            );
-            out.push_str(&state_note(
-                &m.row.stored.sample.code,
-                &m.fit.state,
-                PARAMETER_COLUMNS,
-            ));
-        }
+                    _ => name,
+                }
+            },
+        );
+        let _ = writeln!(
+            out,
+            "<tr><td class=\"code\">{code}{kind}</td><td class=\"layer\">{layer}</td><td class=\"model\">{model}</td><td class=\"params\">{params}</td>\
+             <td class=\"num\">{rmse}</td><td class=\"num\">{r2}</td><td class=\"num\">{aicc}</td>\
+             <td class=\"num\">{used} / {flagged} / {excluded}</td><td class=\"num\">{fc}</td>\
+             <td class=\"num\">{pwp}</td><td class=\"num\">{aw}</td><td>{state}</td></tr>",
+            code = escape(&m.row.stored.sample.code),
+            layer = escape(&layer_label(layer)),
+            params = report.map_or_else(|| NONE.to_string(), parameters_cell),
+            rmse = num(report.map(|r| r.rmse), 3),
+            r2 = num(report.and_then(|r| r.r2), DIGITS),
+            aicc = num(report.and_then(|r| r.aicc), DIGITS),
+            used = fit.map_or_else(|| NONE.to_string(), |f| f.n_points.to_string()),
+            flagged = s.flagged_count(m),
+            excluded = s.excluded_count(m),
+            fc = num(values.and_then(|v| v.theta_field_capacity), DIGITS),
+            pwp = num(values.and_then(|v| v.theta_wilting_point), DIGITS),
+            aw = num(values.and_then(|v| v.plant_available_water), DIGITS),
+            state = state_cell(&m.fit.state),
+        );
+        out.push_str(&state_note(
+            &m.row.stored.sample.code,
+            &m.fit.state,
+            PARAMETER_COLUMNS,
+        ));
     }
-    let _ = writeln!(out, "</tbody>\n</table>\n</div>");
 }
 
 fn profile_table(out: &mut String, part: &SitePart) {
