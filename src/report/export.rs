@@ -637,7 +637,9 @@ fn write_files(
                 {
                     data.add(&batch);
                     let mut text = String::new();
-                    html::parameter_rows(&mut text, &batch);
+                    for part in &batch.sites {
+                        html::parameter_rows(&mut text, &batch, part);
+                    }
                     spool
                         .write_all(text.as_bytes())
                         .map_err(io_at(REPORT_FILE))?;

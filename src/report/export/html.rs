@@ -419,7 +419,7 @@ pub fn site_section(
 ) {
     let counts: Vec<usize> = part.layers.iter().map(|l| l.samples.len()).collect();
     section_start(out, index, part, chart, &counts);
-    parameter_rows(out, s);
+    parameter_rows(out, s, part);
     section_end(out, part);
 }
 
@@ -531,9 +531,14 @@ fn layer_table(out: &mut String, part: &SitePart, counts: &[usize]) {
     let _ = writeln!(out, "</tbody>\n</table>");
 }
 
-/// The parameter table's rows of a snapshot's samples (one site's, or a batch of them).
-pub fn parameter_rows(out: &mut String, s: &Snapshot) {
-    for (_, layer, m) in s.samples() {
+/// The parameter table's rows of the samples of `part` (a site of `s`, whole or a batch of
+/// its samples).
+pub fn parameter_rows(out: &mut String, s: &Snapshot, part: &SitePart) {
+    let samples = part
+        .layers
+        .iter()
+        .flat_map(|layer| layer.samples.iter().map(move |m| (layer, m)));
+    for (layer, m) in samples {
         let fit = m.fit.fit.as_ref();
         let report = fit.and_then(|f| f.report.as_ref());
         let values = m.fit.derived.as_ref().map(|d| &d.values);
