@@ -34,8 +34,8 @@ use rayon::prelude::*;
 
 /// Lab suctions, cm (hanging column, sandbox, plates, dewpoint; common practice).
 const POOL: [f64; 16] = [
-    3.0, 10.0, 20.0, 31.6, 50.0, 63.0, 100.0, 200.0, 330.0, 500.0, 1000.0, 2000.0, 3000.0, 5000.0,
-    10000.0, 15000.0,
+    3.0, 10.0, 20.0, 31.6, 50.0, 63.0, 100.0, 200.0, 330.0, 500.0, 1000.0, 2000.0, 3000.0,
+    5000.0, 10000.0, 15000.0,
 ];
 
 struct Sample {
@@ -254,9 +254,7 @@ fn main() {
     let show = env_usize("POREWISE_BENCH_SHOW", 8);
     let mut samples = generate(per_model, seed);
     let generated = samples.len();
-    samples.extend(files(
-        &Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/regress"),
-    ));
+    samples.extend(files(&Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/regress")));
     let kinds: Vec<ModelKind> = match std::env::var("POREWISE_BENCH_MODELS") {
         Ok(list) => list
             .split(',')
@@ -306,14 +304,7 @@ fn main() {
                     silent += 1;
                 }
             }
-            misses.push((
-                ratio,
-                s.name.clone(),
-                r.sse,
-                best,
-                r.values(),
-                best_p.clone(),
-            ));
+            misses.push((ratio, s.name.clone(), r.sse, best, r.values(), best_p.clone()));
         }
         println!(
             "{:<22} {:>6} {:>8.2}% {:>11.4}x {:>8} {:>9} {:>10.1}",
@@ -327,9 +318,7 @@ fn main() {
         );
         misses.sort_by(|a, b| b.0.total_cmp(&a.0));
         for (ratio, name, sse, best, p, bp) in misses.iter().take(show) {
-            println!(
-                "    {name}: {ratio:.6}x  sse {sse:.6e} best {best:.6e}  ours {p:.5?}  best {bp:.5?}"
-            );
+            println!("    {name}: {ratio:.6}x  sse {sse:.6e} best {best:.6e}  ours {p:.5?}  best {bp:.5?}");
         }
     }
 }
