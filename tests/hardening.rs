@@ -274,10 +274,24 @@ fn an_export_cut_short_leaves_the_earlier_export_whole() {
         .output()
         .expect("run the cut export");
     assert!(!cut.status.success(), "the export was not cut short");
-    assert_eq!(
-        export_content(&out),
-        before,
-        "the folder mixes two exports after an export was cut short"
+    let cut_short = export_content(&out);
+    assert!(
+        cut_short == before,
+        "the folder mixes two exports after an export was cut short: {:?}",
+        cut_short
+            .iter()
+            .zip(&before)
+            .filter(|(a, b)| a != b)
+            .map(|(a, _)| a.0.as_str())
+            .collect::<Vec<_>>()
+    );
+    let hidden: Vec<String> = names_in(&out)
+        .into_iter()
+        .filter(|n| n.starts_with('.'))
+        .collect();
+    assert!(
+        hidden.is_empty(),
+        "temporary files in the folder: {hidden:?}"
     );
     // The next export replaces it whole and leaves nothing behind, the cut one's folder
     // included.
@@ -293,7 +307,7 @@ fn an_export_cut_short_leaves_the_earlier_export_whole() {
             "sites.geojson"
         ]
     );
-    assert_ne!(after, before);
+    assert!(after != before, "the new export is the old one");
     let json: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(out.join("campaign.json")).expect("json"))
             .expect("parses");
