@@ -278,12 +278,12 @@ pub fn fit_campaign(
                     Ok(false)
                 }
             });
-            match recorded_row.map_err(|e| partly(e, recorded))? {
-                false => chunk.changed.push(code.clone()),
-                true => match outcome.failure {
-                    None => chunk.fitted.push((code.clone(), outcome.model)),
-                    Some(reason) => chunk.failed.push((code.clone(), reason)),
-                },
+            if !recorded_row.map_err(|e| partly(e, recorded))? {
+                chunk.changed.push(code.clone());
+            } else if let Some(reason) = outcome.failure {
+                chunk.failed.push((code.clone(), reason));
+            } else {
+                chunk.fitted.push((code.clone(), outcome.model));
             }
             if started.elapsed() >= CHUNK_BUDGET {
                 break;

@@ -516,8 +516,7 @@ pub fn fuzz_loop(inputs: usize, campaigns: usize, seed: u64) -> FuzzFigures {
         };
         let err = String::from_utf8_lossy(&out.stderr);
         match out.status.code() {
-            None => f.panics += 1,
-            Some(101) => f.panics += 1,
+            None | Some(101) => f.panics += 1,
             Some(0..=3) if !err.contains("panicked") => {}
             Some(_) if err.contains("panicked") => f.panics += 1,
             Some(_) => f.odd_exits += 1,
@@ -532,7 +531,7 @@ pub fn fuzz_loop(inputs: usize, campaigns: usize, seed: u64) -> FuzzFigures {
         let file = dir.join(format!("case-{case}-{name}"));
         std::fs::write(&file, mutate(&originals[pick], &mut rng)).expect("write");
         let before = counts(&db);
-        let mut args: Vec<&std::ffi::OsStr> = command.iter().map(|a| a.as_ref()).collect();
+        let mut args: Vec<&std::ffi::OsStr> = command.iter().map(AsRef::as_ref).collect();
         if command[0] == "import" {
             args.push(db.as_os_str());
         }
