@@ -10,10 +10,13 @@
 //! | `report.html` | one page: a chart and tables per site, flagged readings, methods, cautions | [`html`] |
 //!
 //! Every file of one export is written from one read of the campaign (inside one read
-//! transaction, so all files describe the same state), one site at a time
-//! ([`snapshot::read_site`]): memory holds one site, whatever the size of the campaign.
-//! `campaign.json` is streamed ([`schema::JsonStream`]); the page's site sections and
-//! flagged rows go to spool files until the header (which counts everything) can be written.
+//! transaction, so all files describe the same state), a site at a time
+//! ([`snapshot::walk_site`]) and a batch of samples at a time
+//! ([`snapshot::SiteWalk::read_batch`], [`BATCH_SAMPLES`]), so memory does not grow with the
+//! campaign. `campaign.json` is streamed ([`schema::JsonStream`]); the page's site sections
+//! and flagged rows go to spool files until the header (which counts everything) can be
+//! written, and the chart of a site gathers its points as the batches pass
+//! ([`chart::ChartData`]).
 //!
 //! The set of files is atomic: they are written into a fresh hidden folder beside the target
 //! (`.NAME.export-PID.tmp`), synced, and the folder is swapped in with one rename (an exchange
@@ -55,8 +58,6 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 use chrono::{DateTime, SubsecRound, Utc};
 use rusqlite::Connection;
 
-#[allow(unused_imports)] // named in the docs
-use super::write_atomic;
 use crate::analysis::water::DEFAULT_ROOT_ZONE_CM;
 use crate::model::retention::ModelKind;
 use crate::report::fit_table::parameter_union;
@@ -337,7 +338,8 @@ fn io_error_owned(path: PathBuf) -> impl FnOnce(std::io::Error) -> ExportError {
 const SPOOLS: [&str; 3] = [".report-sites.part", ".report-flagged.part", ROWS_SPOOL];
 
 /// Whether a directory entry is ours: a file an export writes, or the temporary file of an
-/// interrupted [`write_atomic`] of one (`.NAME.PID.tmp`, from porewise before 0.2).
+/// interrupted [`write_atomic`](crate::report::write_atomic) of one (`.NAME.PID.tmp`, left by
+/// exports that wrote file by file).
 fn is_ours(name: &str) -> bool {
     ALL_FILES.contains(&name)
         || ALL_FILES.iter().any(|f| {

@@ -208,7 +208,7 @@ impl Campaign {
     /// so it cannot fail half-way on a busy file). It rolls back when dropped uncommitted.
     ///
     /// While it holds the lock, a writer note beside the file names this command (see
-    /// [`holder`](super::holder)), so a writer that times out waiting can say who is writing.
+    /// [`super::holder`]), so a writer that times out waiting can say who is writing.
     ///
     /// # Errors
     /// [`StoreError::Busy`]: another writer held the file beyond the busy timeout.

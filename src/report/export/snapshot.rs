@@ -39,7 +39,8 @@ pub struct LayerPart {
 pub struct SamplePart {
     /// The sample as stored.
     pub row: SampleRow,
-    /// Its current fit, standing and derived values (from [`sample_fits`]).
+    /// Its current fit, standing and derived values (as [`crate::analysis::sample_fits`]
+    /// gives them).
     pub fit: SampleFit,
     /// Its readings, by suction.
     pub readings: Vec<StoredReading>,
