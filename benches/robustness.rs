@@ -1,6 +1,7 @@
 //! The robustness loops at size, with their figures: `kill -9` during lab imports, campaign
 //! fits and exports; mutated input files and damaged campaign files; commands started
-//! together. `tests/robustness.rs` runs a few of each; this runs many (about two minutes in a release build).
+//! together. `tests/robustness.rs` runs a few of each; this runs many (about two minutes in
+//! a release build).
 //!
 //! ```text
 //! cargo bench --bench robustness            # all three
