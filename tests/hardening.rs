@@ -155,14 +155,22 @@ fn mkfifo(path: &Path) {
     assert!(status.success());
 }
 
-/// Open a named pipe for writing (waits for its reader), write `text`, close it.
+/// Open a named pipe for writing (it waits for its reader), write `text`, close it; false
+/// when no reader came within 30 s (the writing thread is then left waiting, not the test).
 #[cfg(unix)]
-fn feed(pipe: &Path, text: &str) {
-    let mut w = std::fs::OpenOptions::new()
-        .write(true)
-        .open(pipe)
-        .expect("open the pipe");
-    w.write_all(text.as_bytes()).expect("write the pipe");
+fn feed(pipe: &Path, text: &str) -> bool {
+    let (done, finished) = mpsc::channel();
+    let (pipe, text) = (pipe.to_path_buf(), text.to_string());
+    std::thread::spawn(move || {
+        let written = std::fs::OpenOptions::new()
+            .write(true)
+            .open(&pipe)
+            .and_then(|mut w| w.write_all(text.as_bytes()));
+        let _ = done.send(written.is_ok());
+    });
+    finished
+        .recv_timeout(Duration::from_secs(30))
+        .unwrap_or(false)
 }
 
 #[cfg(unix)]
@@ -177,7 +185,7 @@ fn a_writer_that_waits_in_vain_names_the_command_holding_the_campaign() {
     // transaction); a named pipe lets the test hold it there, write lock taken.
     let pipe = s.dir.path().join("station.csv");
     mkfifo(&pipe);
-    let import = porewise_std()
+    let mut import = porewise_std()
         .args(["import", "logger"])
         .arg(&s.db)
         .arg(&pipe)
@@ -185,22 +193,30 @@ fn a_writer_that_waits_in_vain_names_the_command_holding_the_campaign() {
         .stderr(Stdio::piped())
         .spawn()
         .expect("start the import");
-    feed(&pipe, records);
+    assert!(feed(&pipe, records), "the import did not read its file");
     let mut note = s.db.as_os_str().to_owned();
     note.push("-writer");
     let note = PathBuf::from(note);
     wait_for(Duration::from_secs(20), || note.exists());
+    let pid = import.id();
     let refused = porewise()
         .arg("set")
         .arg(&s.db)
         .args(["--fc-kpa", "10"])
-        .assert()
-        .code(1);
-    let err = stderr(&refused);
+        .output()
+        .expect("run set");
+    // Let the import finish before judging, so a failed check leaves no process waiting.
+    let fed = feed(&pipe, records);
+    if !fed {
+        let _ = import.kill();
+    }
+    let out = import.wait_with_output().expect("import ends");
+    assert!(fed, "the import did not read its file a second time");
+    let err = String::from_utf8_lossy(&refused.stderr);
+    assert_eq!(refused.status.code(), Some(1), "{err}");
     assert!(
         err.contains(&format!(
-            "is busy: `porewise import logger` (process {}, writing since 20",
-            import.id()
+            "is busy: `porewise import logger` (process {pid}, writing since 20"
         )),
         "{err}"
     );
@@ -209,8 +225,6 @@ fn a_writer_that_waits_in_vain_names_the_command_holding_the_campaign() {
         "{err}"
     );
     assert!(!err.contains("database is locked"), "{err}");
-    feed(&pipe, records);
-    let out = import.wait_with_output().expect("import ends");
     assert!(
         out.status.success(),
         "{}",
