@@ -63,11 +63,43 @@ pub enum Command {
     Unflag(unflag::UnflagArgs),
 }
 
+impl Command {
+    /// The command as the user typed it, without its arguments (`porewise import lab`): the
+    /// name a writer note gives (see [`crate::store::holder`]).
+    pub fn name(&self) -> String {
+        let word = match self {
+            Command::Demo(_) => "demo",
+            Command::Init(_) => "init",
+            Command::Import(cmd) => {
+                let kind = match cmd {
+                    import::ImportCommand::Sites(_) => "sites",
+                    import::ImportCommand::Layers(_) => "layers",
+                    import::ImportCommand::Lab(_) => "lab",
+                    import::ImportCommand::Logger(_) => "logger",
+                };
+                return format!("porewise import {kind}");
+            }
+            Command::List(_) => "list",
+            Command::Open(_) => "open",
+            Command::Set(_) => "set",
+            Command::Pair(_) => "pair",
+            Command::Fit(_) => "fit",
+            Command::Curve(_) => "curve",
+            Command::Export(_) => "export",
+            Command::Review(_) => "review",
+            Command::Flag(_) => "flag",
+            Command::Unflag(_) => "unflag",
+        };
+        format!("porewise {word}")
+    }
+}
+
 /// Run a parsed command line.
 ///
 /// # Errors
 /// Any error meant for the user (bad input, missing file); `main` prints it and exits 1.
 pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
+    crate::store::holder::set_command(cli.command.name());
     match cli.command {
         Command::Demo(args) => demo::run(&args),
         Command::Init(args) => init::run(&args),

@@ -9,7 +9,7 @@ fn main() -> ExitCode {
     match porewise::cli::run(args) {
         Ok(outcome) => outcome.into(),
         Err(err) => {
-            eprintln!("error: {err:#}");
+            eprintln!("error: {}", porewise::error::render(&err));
             ExitCode::from(porewise::error::EXIT_USER_ERROR)
         }
     }

@@ -45,6 +45,10 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
 ///
 /// Callers pass finite values only; NaN or infinity become an empty cell before this.
 pub fn format_number(v: f64) -> String {
+    if v == 0.0 {
+        // Both zeros: a table never shows -0.
+        return "0".to_string();
+    }
     let a = v.abs();
     if a == 0.0 || (1e-4..1e15).contains(&a) {
         format!("{v}")
@@ -75,5 +79,6 @@ mod tests {
         }
         assert_eq!(format_number(1e-5), "1e-5");
         assert_eq!(format_number(336.5063503), "336.5063503");
+        assert_eq!(format_number(-0.0), "0");
     }
 }

@@ -12,6 +12,7 @@ pub mod campaign;
 pub mod db;
 pub mod fits;
 pub mod flags;
+pub mod holder;
 pub mod layers;
 pub mod logger;
 pub mod migrate;
@@ -23,7 +24,7 @@ pub mod samples;
 pub mod sites;
 mod sql_types;
 
-pub use campaign::{Campaign, CampaignSettings};
+pub use campaign::{Campaign, CampaignSettings, CampaignTransaction};
 pub use overview::{Counts, LayerOverview, Overview, SampleOverview, SiteOverview, overview};
 
 /// What can go wrong in the store.
@@ -50,6 +51,54 @@ pub enum StoreError {
     /// The file is not a porewise campaign (another SQLite file, or not SQLite at all).
     #[error("{0} is not a porewise campaign file")]
     NotACampaign(PathBuf),
+    /// The file is a database that SQLite finds malformed (truncated, overwritten).
+    #[error(
+        "{path} is damaged: the database is malformed (PRAGMA integrity_check: {check}); \
+         restore it from a backup copy",
+        path = path.display()
+    )]
+    Damaged {
+        /// The file.
+        path: PathBuf,
+        /// What SQLite's integrity check says (its first lines), or why it could not run.
+        check: String,
+    },
+    /// The file cannot be written: its folder or its journal files are not writable.
+    #[error("cannot write to {path}: {reason}", path = path.display())]
+    Unwritable {
+        /// The campaign file.
+        path: PathBuf,
+        /// What is in the way.
+        reason: String,
+    },
+    /// A command that writes in several transactions (a large campaign fit) was stopped by
+    /// an error after some of them had committed.
+    #[error(
+        "{source}; the fits of {recorded} of {total} samples had been recorded before this \
+         (each sample whole); the others keep their earlier fits: run the same fit again"
+    )]
+    PartlyRecorded {
+        /// Samples whose attempts were committed.
+        recorded: usize,
+        /// Samples the command set out to record.
+        total: usize,
+        /// What stopped it.
+        source: Box<StoreError>,
+    },
+    /// Another writer held the file longer than the busy timeout.
+    #[error(
+        "{path} is busy: {holder} is writing to it and did not finish within {seconds} s; \
+         try again when it has finished",
+        path = path.display()
+    )]
+    Busy {
+        /// The campaign file.
+        path: PathBuf,
+        /// Who holds it, from its writer note (see [`holder`]), or a note that none is known.
+        holder: String,
+        /// How long this command waited, s.
+        seconds: u64,
+    },
     /// The file was written by a newer porewise with a schema this one does not know.
     #[error(
         "the campaign file has schema version {found}, but this porewise knows versions up to \

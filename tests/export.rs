@@ -780,18 +780,33 @@ fn the_target_folder_is_checked() {
     };
     export("csv,json,geojson,html").success();
     let before = std::fs::read(out.join(PARAMETERS_FILE)).expect("read");
-    // An earlier export is replaced; a file of a format not asked for is left and named.
+    // An earlier export is replaced as a whole: a file of a format not asked for goes with
+    // it (and is named), so the folder never mixes two exports.
     let again = export("csv");
     let again = again.success();
     assert!(
-        stderr(&again).contains("report.html is from an earlier export"),
+        stderr(&again).contains("report.html of the earlier export is gone"),
         "{}",
         stderr(&again)
     );
+    assert!(!out.join(REPORT_FILE).exists());
     assert_eq!(
         std::fs::read(out.join(PARAMETERS_FILE)).expect("read"),
         before
     );
+    let mut names: Vec<String> = std::fs::read_dir(&out)
+        .expect("folder")
+        .map(|e| e.expect("entry").file_name().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    assert_eq!(names, [PARAMETERS_FILE, PROFILES_FILE]);
+    // Nothing is left beside the folder either (no staging or old folder).
+    let beside: Vec<String> = std::fs::read_dir(tmp.path())
+        .expect("parent")
+        .map(|e| e.expect("entry").file_name().to_string_lossy().into_owned())
+        .filter(|n| n.starts_with('.'))
+        .collect();
+    assert!(beside.is_empty(), "{beside:?}");
     // Anything else in the folder: refused, nothing touched.
     std::fs::write(out.join("thesis.docx"), "mine").expect("write");
     let refused = export("csv").code(1);
@@ -1051,4 +1066,109 @@ fn brooks_corey_fits_carry_their_conductivity_form_into_the_export() {
         .assert()
         .code(1);
     assert!(stderr(&plain).contains("--conductivity applies to the fits of a campaign"));
+
+#[test]
+fn batches_write_what_the_whole_campaign_renders() {
+    use porewise::report::export::{BATCH_SAMPLES, chart, geojson, html, schema, snapshot, tables};
+    let tmp = tempfile::tempdir().expect("temp dir");
+    let db = fixture(tmp.path());
+    let mut c = Campaign::open(&db).expect("open");
+    // One layer with more samples than two batches hold; a fit and a flag in each batch.
+    let codes: Vec<String> = (0..2 * BATCH_SAMPLES + 50)
+        .map(|i| format!("BIG-{i:04}"))
+        .collect();
+    let samples: Vec<LabSample<'_>> = codes
+        .iter()
+        .enumerate()
+        .map(|(i, code)| {
+            let p = [LOAM, SANDY_LOAM, CLAY_LOAM][i % 3];
+            ("BIG", 0.0, 50.0, code.as_str(), p, &SUCTIONS_CM[..])
+        })
+        .collect();
+    import_sources(
+        &mut c,
+        ImportKind::Lab,
+        &[source("big.csv", &lab_sheet(&samples))],
+        ImportOptions::default(),
+    )
+    .expect("import");
+    let picked: Vec<String> = [3, BATCH_SAMPLES + 7, 2 * BATCH_SAMPLES + 11]
+        .iter()
+        .map(|&i| codes[i].clone())
+        .collect();
+    fit_campaign(
+        &mut c,
+        &Selection {
+            samples: picked.clone(),
+            ..Selection::default()
+        },
+        ModelChoice::One(ModelKind::VanGenuchten),
+        &FitOptions::new(),
+        &|_, _| {},
+    )
+    .expect("fit");
+    for code in &picked {
+        let id: i64 = c
+            .connection()
+            .query_row(
+                "SELECT r.id FROM reading r JOIN sample m ON m.id = r.sample_id
+                 WHERE m.code = ?1 ORDER BY r.h_cm LIMIT 1",
+                [code],
+                |r| r.get(0),
+            )
+            .expect("reading");
+        flags::flag_manual(c.connection(), FlagTarget::Reading(id), "bench leak", None)
+            .expect("flag");
+    }
+    let conn = c.connection();
+    let at = chrono::Utc
+        .with_ymd_and_hms(2030, 1, 2, 3, 4, 5)
+        .single()
+        .expect("time");
+    let export = build_export(
+        conn,
+        &ExportOptions::new(tmp.path()).with_exported_at(at),
+        &|_, _| {},
+    )
+    .expect("export");
+    let text =
+        |name: &str| String::from_utf8(export.file(name).expect(name).to_vec()).expect("utf-8");
+
+    // The same campaign read whole and rendered whole.
+    let snap = snapshot::read(conn, None, 100.0, &|_, _| {}).expect("snapshot");
+    assert_eq!(snap.sample_count(), export.samples);
+    let doc = CampaignDocument::new(&snap, at);
+    assert_eq!(export.fingerprint, doc.fingerprint_sha256);
+    assert!(
+        text(CAMPAIGN_FILE) == schema::to_json(&doc).expect("json"),
+        "campaign.json"
+    );
+    assert_eq!(
+        text(PARAMETERS_FILE),
+        tables::parameters_csv(&snap).expect("csv")
+    );
+    assert_eq!(
+        text(PROFILES_FILE),
+        tables::profiles_csv(&snap).expect("csv")
+    );
+    let mut sites = serde_json::to_string_pretty(&geojson::collection(&snap)).expect("geojson");
+    sites.push('\n');
+    assert_eq!(text(SITES_FILE), sites);
+    let charts = snap
+        .sites
+        .iter()
+        .map(|site| chart::site_chart(&snap, site))
+        .collect::<Result<Vec<_>, _>>()
+        .expect("charts");
+    let page = html::report_html(
+        &snap,
+        html::PageMeta {
+            exported_at: &doc.exported_at,
+            fingerprint: &doc.fingerprint_sha256,
+        },
+        &charts,
+    );
+    assert!(text(REPORT_FILE) == page, "report.html");
+    // The flags of every batch reached the page.
+    assert_eq!(text(REPORT_FILE).matches("bench leak").count(), 3);
 }

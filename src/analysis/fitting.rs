@@ -7,13 +7,14 @@
 use std::fmt;
 use std::str::FromStr;
 use std::sync::atomic::{AtomicUsize, Ordering};
+use std::time::{Duration, Instant};
 
 use rayon::prelude::*;
 
 use crate::fit::{AutoFit, FitOptions, FitReport, Readings, fit_auto, fit_model};
 use crate::model::conductivity::ConductivityForm;
 use crate::model::retention::ModelKind;
-use crate::store::fits::{self, FitInput, NewFit, Ranking, Selection};
+use crate::store::fits::{self, EncodedFit, FitInput, NewFit, Ranking, Selection};
 use crate::store::{Campaign, StoreError};
 
 /// What to fit: one model, or every model the readings allow ranked by AICc.
@@ -147,15 +148,67 @@ pub struct FitRunSummary {
     pub fitted: Vec<(String, String)>,
     /// Samples whose attempt failed, with the reason (their previous fit, if any, is now stale).
     pub failed: Vec<(String, String)>,
+    /// Samples whose readings changed (another command wrote to them) while they were being
+    /// fitted: nothing was recorded for them, and they need fitting again.
+    pub changed: Vec<String>,
 }
 
-/// Fit the selected samples of a campaign in parallel and record every attempt, all in one
-/// transaction.
+impl FitRunSummary {
+    /// True when every selected sample got a new current fit.
+    pub fn is_complete(&self) -> bool {
+        self.failed.is_empty() && self.changed.is_empty()
+    }
+
+    /// Add another run's results.
+    pub fn extend(&mut self, other: FitRunSummary) {
+        self.fitted.extend(other.fitted);
+        self.failed.extend(other.failed);
+        self.changed.extend(other.changed);
+    }
+}
+
+/// How long a write of a campaign fit waits for another writer: its fits are already
+/// computed, so it is more patient than the busy timeout of an ordinary write.
+pub const COMMIT_WAIT: Duration = Duration::from_secs(60);
+
+/// How long one write transaction of a campaign fit may hold the write lock before it commits
+/// and lets other writers in (it commits after the sample that crosses this).
+pub const CHUNK_BUDGET: Duration = Duration::from_millis(500);
+
+/// The pause between two write transactions of a campaign fit: longer than the 100 ms a
+/// waiting SQLite connection sleeps between tries, so a waiting writer gets its turn.
+pub const CHUNK_PAUSE: Duration = Duration::from_millis(120);
+
+/// One sample's fitted attempt, ready to record: its model, its failure, its encoded row.
+struct Outcome {
+    model: String,
+    failure: Option<String>,
+    row: Result<EncodedFit, StoreError>,
+}
+
+/// Fit the selected samples of a campaign in parallel and record every attempt.
 ///
-/// `progress(done, total)` is called from worker threads as samples finish.
+/// The readings are read in one read transaction and fitted without holding the campaign's
+/// write lock, so other commands (an import, `set`, a flag) can write meanwhile. The attempts
+/// are then recorded in short write transactions ([`CHUNK_BUDGET`] each, with a
+/// [`CHUNK_PAUSE`] between them for waiting writers); a fit whose results take less than
+/// that to write (a few thousand samples) is one transaction. Inside each, every sample's
+/// readings are checked against what was fitted (revision, then fingerprint): a sample
+/// whose readings changed in between is left out and listed in [`FitRunSummary::changed`]
+/// rather than given a fit of readings it no longer has.
+///
+/// Each sample's attempt is recorded whole or not at all. When a later transaction fails
+/// (or the process is killed), the samples of the earlier ones keep their new fits and the
+/// others their old ones; the error says how many were recorded
+/// ([`StoreError::PartlyRecorded`]), and the same fit run again completes the rest.
+///
+/// `progress(done, total)` is called once with `done = 0` when the readings have been read,
+/// then from worker threads as samples finish.
 ///
 /// # Errors
-/// An unknown site, layer or sample code, or an SQLite error; nothing is written then.
+/// An unknown site, layer or sample code, an SQLite error, or [`StoreError::Busy`] when
+/// another writer holds the campaign for longer than [`COMMIT_WAIT`]; nothing is written
+/// then, or, after a first transaction, [`StoreError::PartlyRecorded`].
 pub fn fit_campaign(
     campaign: &mut Campaign,
     selection: &Selection,
@@ -180,28 +233,24 @@ pub fn fit_campaign_with(
     conductivity: Option<ConductivityForm>,
     progress: &(dyn Fn(usize, usize) + Sync),
 ) -> Result<FitRunSummary, StoreError> {
-    let tx = campaign.transaction()?;
-    selection.check(&tx)?;
-    let inputs = fits::inputs(&tx, selection)?;
+    let inputs = {
+        let tx = campaign.read_transaction()?;
+        selection.check(&tx)?;
+        fits::inputs(&tx, selection)?
+    };
     let total = inputs.len();
+    progress(0, total);
     let done = AtomicUsize::new(0);
-    let attempts: Vec<FitAttempt> = inputs
+    let requested = choice.to_string();
+    let fixed = options.fixed();
+    let outcomes: Vec<Outcome> = inputs
         .par_iter()
         .map(|input| {
             let attempt = fit_input(input, choice, options);
-            progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
-            attempt
-        })
-        .collect();
-    let requested = choice.to_string();
-    let fixed = options.fixed();
-    let mut summary = FitRunSummary::default();
-    for (input, attempt) in inputs.iter().zip(&attempts) {
-        let ranking = attempt.auto.as_ref().map(Ranking::from);
-        let failure = attempt.failure();
-        fits::record(
-            &tx,
-            &NewFit {
+            let ranking = attempt.auto.as_ref().map(Ranking::from);
+            let failure = attempt.failure();
+            // Encoded here, outside the write lock; the report itself is dropped.
+            let row = fits::encode(&NewFit {
                 input,
                 requested: &requested,
                 model: &attempt.model,
@@ -210,15 +259,62 @@ pub fn fit_campaign_with(
                 ranking: ranking.as_ref(),
                 failure: failure.as_deref(),
                 conductivity,
-            },
-        )?;
-        match failure {
-            None => summary
-                .fitted
-                .push((input.sample.code.clone(), attempt.model.clone())),
-            Some(reason) => summary.failed.push((input.sample.code.clone(), reason)),
+            });
+            progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
+            Outcome {
+                model: attempt.model,
+                failure,
+                row,
+            }
+        })
+        .collect();
+    let mut summary = FitRunSummary::default();
+    let mut pending = inputs.iter().zip(outcomes).peekable();
+    let mut recorded = 0;
+    let partly = |e: StoreError, recorded: usize| {
+        if recorded == 0 {
+            e
+        } else {
+            StoreError::PartlyRecorded {
+                recorded,
+                total,
+                source: Box::new(e),
+            }
+        }
+    };
+    while pending.peek().is_some() {
+        let tx = campaign
+            .transaction_waiting(COMMIT_WAIT)
+            .map_err(|e| partly(e, recorded))?;
+        let started = Instant::now();
+        let mut chunk = FitRunSummary::default();
+        for (input, outcome) in pending.by_ref() {
+            let code = &input.sample.code;
+            let recorded_row = fits::unchanged(&tx, input).and_then(|same| {
+                if same {
+                    fits::insert(&tx, &outcome.row?).map(|_| true)
+                } else {
+                    Ok(false)
+                }
+            });
+            if !recorded_row.map_err(|e| partly(e, recorded))? {
+                chunk.changed.push(code.clone());
+            } else if let Some(reason) = outcome.failure {
+                chunk.failed.push((code.clone(), reason));
+            } else {
+                chunk.fitted.push((code.clone(), outcome.model));
+            }
+            if started.elapsed() >= CHUNK_BUDGET {
+                break;
+            }
+        }
+        tx.commit()
+            .map_err(|e| partly(StoreError::from(e), recorded))?;
+        recorded += chunk.fitted.len() + chunk.failed.len();
+        summary.extend(chunk);
+        if pending.peek().is_some() {
+            std::thread::sleep(CHUNK_PAUSE);
         }
     }
-    tx.commit()?;
     Ok(summary)
 }

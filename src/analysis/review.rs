@@ -378,8 +378,7 @@ pub fn refit_samples(campaign: &mut Campaign, sample_ids: &[i64]) -> Result<FitR
             conductivity,
             &|_, _| {},
         )?;
-        summary.fitted.extend(run.fitted);
-        summary.failed.extend(run.failed);
+        summary.extend(run);
     }
     Ok(summary)
 }

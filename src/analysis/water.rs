@@ -224,14 +224,16 @@ pub fn profiles(
         }
     }
     for p in &mut out {
-        p.total_mm = p.layers.iter().filter_map(|l| l.water_mm).sum();
-        p.covered_cm = p
-            .layers
-            .iter()
-            .filter(|l| l.water_mm.is_some())
-            .map(|l| l.depth_in_zone_cm)
-            .sum::<f64>()
-            .min(root_zone_cm);
+        // An empty f64 sum is -0.0; adding it to 0.0 gives 0.0, so a site without a fitted
+        // layer shows 0, not -0.
+        p.total_mm = 0.0 + p.layers.iter().filter_map(|l| l.water_mm).sum::<f64>();
+        p.covered_cm = (0.0
+            + p.layers
+                .iter()
+                .filter(|l| l.water_mm.is_some())
+                .map(|l| l.depth_in_zone_cm)
+                .sum::<f64>())
+        .min(root_zone_cm);
     }
     Ok(out)
 }

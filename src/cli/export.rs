@@ -18,7 +18,8 @@ use crate::store::Campaign;
 #[derive(Debug, Args)]
 #[command(
     after_help = "Writes parameters.csv, profiles.csv, campaign.json, sites.geojson and report.html.\n\
-                  DIR is created when missing; a folder holding other files than an earlier export's is refused.\n\n\
+                  DIR is created when missing, or replaced as a whole (never a mix of two exports);\n\
+                  a folder holding other files than an earlier export's is refused.\n\n\
                   Examples:\n  porewise export spring.sqlite --to spring-summary\n  \
                   porewise export spring.sqlite --to lv --site LV --format csv,html\n  \
                   porewise export spring.sqlite --to out --root-zone-cm 60"
@@ -91,9 +92,10 @@ pub fn run(args: &ExportArgs) -> anyhow::Result<Outcome> {
     for path in &summary.written {
         println!("  {}", path.display());
     }
-    for path in &summary.left_from_before {
+    for path in &summary.removed_from_before {
         eprintln!(
-            "note: {} is from an earlier export (its format was not asked for this time)",
+            "note: {} of the earlier export is gone: its format was not asked for this time, \
+             and the folder holds one export, never a mix of two",
             path.display()
         );
     }

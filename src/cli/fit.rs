@@ -126,20 +126,45 @@ fn run_campaign(
         options,
         args.conductivity,
         &|done, total| {
+            if done == 0 {
+                // The readings are read; the campaign stays open to other writers until the
+                // fits are written at the end.
+                bar.suspend(|| {
+                    eprintln!(
+                        "fitting {} with {choice}; other commands can write to the campaign \
+                         meanwhile; the fits are written when all are done",
+                        plural(total as u64, "sample")
+                    );
+                });
+            }
             bar.set_length(total as u64);
             bar.set_position(done as u64);
         },
     )?;
     bar.finish_and_clear();
+    let changed = if summary.changed.is_empty() {
+        String::new()
+    } else {
+        format!(
+            "; {} not recorded (readings changed while fitting)",
+            summary.changed.len()
+        )
+    };
     println!(
-        "fitted {} with {choice}; {} failed",
+        "fitted {} with {choice}; {} failed{changed}",
         plural(summary.fitted.len() as u64, "sample"),
         summary.failed.len()
     );
     for (sample, reason) in &summary.failed {
         eprintln!("sample {}: not fitted: {}", shown(sample), shown(reason));
     }
-    Ok(if summary.failed.is_empty() {
+    for sample in &summary.changed {
+        eprintln!(
+            "sample {sample}: not recorded: its readings changed while it was being fitted \
+             (another command wrote to them); fit it again"
+        );
+    }
+    Ok(if summary.is_complete() {
         Outcome::Success
     } else {
         Outcome::Partial

@@ -140,7 +140,13 @@ fn report_refit(decided: &Decided, to_stderr: bool) -> Outcome {
     for (sample, reason) in &decided.refit.failed {
         eprintln!("sample {}: not refitted: {}", shown(sample), shown(reason));
     }
-    if decided.refit.failed.is_empty() {
+    for sample in &decided.refit.changed {
+        eprintln!(
+            "sample {sample}: not refitted: its readings changed while it was being fitted; \
+             fit it again"
+        );
+    }
+    if decided.refit.is_complete() {
         Outcome::Success
     } else {
         Outcome::Partial

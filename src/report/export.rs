@@ -9,9 +9,21 @@
 //! | `sites.geojson` | the sites as RFC 7946 Points with their summary | [`geojson`] |
 //! | `report.html` | one page: a chart and tables per site, flagged readings, methods, cautions | [`html`] |
 //!
-//! Every file of one export is built in memory from one read of the campaign (inside one read
-//! transaction, so all files describe the same state), then each is written atomically with
-//! [`write_atomic`]: a file is either the new one or the old one, never half-written.
+//! Every file of one export is written from one read of the campaign (inside one read
+//! transaction, so all files describe the same state), a site at a time
+//! ([`snapshot::walk_site`]) and a batch of samples at a time
+//! ([`snapshot::SiteWalk::read_batch`], [`BATCH_SAMPLES`]), so memory does not grow with the
+//! campaign. `campaign.json` is streamed ([`schema::JsonStream`]); the page's site sections
+//! and flagged rows go to spool files until the header (which counts everything) can be
+//! written, and the chart of a site gathers its points as the batches pass
+//! ([`chart::ChartData`]).
+//!
+//! The set of files is atomic: they are written into a fresh hidden folder beside the target
+//! (`.NAME.export-PID.tmp`), synced, and the folder is swapped in with one rename (an exchange
+//! of the two folders on Linux; elsewhere two renames), so the target always holds one whole
+//! export, the old or the new one, never a mix. The old folder and any temporary files are
+//! removed; a staging folder left by an export that was killed is removed by the next export
+//! into the same target (on Linux, once its process is gone).
 //!
 //! Output is deterministic: the same campaign file and options give byte-identical files,
 //! except for the one line that states the export time (`"exported_at"` in `campaign.json`,
@@ -23,8 +35,10 @@
 //! `porewise list DB fits --sample CODE --all` shows a sample's attempts).
 //!
 //! The target folder may be missing (it is created), empty, or hold files of an earlier export
-//! only (those are replaced). A folder holding anything else is refused, so an export never
-//! mixes with other files or overwrites them.
+//! only (the folder is replaced as a whole, so files of a format not asked for this time go
+//! with it). A folder holding anything else is refused, so an export never mixes with other
+//! files or removes them; so is the current directory (a folder that is replaced cannot be
+//! the one a shell stands in).
 
 pub mod chart;
 pub mod geojson;
@@ -33,8 +47,10 @@ pub mod schema;
 pub mod snapshot;
 pub mod tables;
 
-use crate::model::conductivity::ConductivityForm;
+use std::collections::BTreeSet;
 use std::fmt;
+use std::fs::{File, OpenOptions};
+use std::io::{self, BufWriter, Cursor, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 use std::str::FromStr;
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -42,9 +58,11 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 use chrono::{DateTime, SubsecRound, Utc};
 use rusqlite::Connection;
 
-use super::write_atomic;
 use crate::analysis::water::DEFAULT_ROOT_ZONE_CM;
-use crate::store::StoreError;
+use crate::model::conductivity::ConductivityForm;
+use crate::model::retention::ModelKind;
+use crate::report::fit_table::parameter_union;
+use crate::store::{StoreError, sites};
 
 /// `parameters.csv`.
 pub const PARAMETERS_FILE: &str = "parameters.csv";
@@ -241,9 +259,9 @@ pub struct ExportSummary {
     pub dir: PathBuf,
     /// The files written, in the order of [`ALL_FILES`].
     pub written: Vec<PathBuf>,
-    /// Files of an earlier export left in the folder because their format was not asked for
-    /// (they describe the campaign as it was then).
-    pub left_from_before: Vec<PathBuf>,
+    /// Files of an earlier export that are gone with the old folder because their format was
+    /// not asked for this time (a folder holds one export, never a mix of two).
+    pub removed_from_before: Vec<PathBuf>,
     /// The export time stated in the files.
     pub exported_at: DateTime<Utc>,
     /// SHA-256 of the exported content.
@@ -256,8 +274,7 @@ pub struct ExportSummary {
     pub readings: usize,
 }
 
-/// Why an export could not be made. Nothing is written when building fails; when writing
-/// fails, the files already written are complete and the others untouched.
+/// Why an export could not be made. The target folder is left as it was.
 #[derive(Debug, thiserror::Error)]
 #[non_exhaustive]
 pub enum ExportError {
@@ -325,8 +342,16 @@ fn io_error(path: &Path) -> impl FnOnce(std::io::Error) -> ExportError + '_ {
     }
 }
 
+fn io_error_owned(path: PathBuf) -> impl FnOnce(std::io::Error) -> ExportError {
+    move |source| ExportError::Io { path, source }
+}
+
+/// Spool files of the page inside the staging folder (removed before the swap).
+const SPOOLS: [&str; 3] = [".report-sites.part", ".report-flagged.part", ROWS_SPOOL];
+
 /// Whether a directory entry is ours: a file an export writes, or the temporary file of an
-/// interrupted [`write_atomic`] of one (`.NAME.PID.tmp`).
+/// interrupted [`write_atomic`](crate::report::write_atomic) of one (`.NAME.PID.tmp`, left by
+/// exports that wrote file by file).
 fn is_ours(name: &str) -> bool {
     ALL_FILES.contains(&name)
         || ALL_FILES.iter().any(|f| {
@@ -385,17 +410,127 @@ fn validate(options: &ExportOptions) -> Result<(), ExportError> {
     Ok(())
 }
 
-/// Build every asked-for file in memory from one read of the campaign.
-///
-/// `progress(done, total)` is called as samples are read, charts drawn and files encoded.
-///
-/// # Errors
-/// Invalid options, an unknown site, or an SQLite error; nothing is written.
-pub fn build_export(
+/// One file while an export writes it: on disk (in the staging folder), or in memory.
+enum Sink {
+    Disk {
+        file: BufWriter<File>,
+        path: PathBuf,
+    },
+    Memory(Cursor<Vec<u8>>),
+}
+
+impl Write for Sink {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        match self {
+            Sink::Disk { file, .. } => file.write(buf),
+            Sink::Memory(c) => c.write(buf),
+        }
+    }
+
+    fn flush(&mut self) -> io::Result<()> {
+        match self {
+            Sink::Disk { file, .. } => file.flush(),
+            Sink::Memory(c) => c.flush(),
+        }
+    }
+}
+
+impl Seek for Sink {
+    fn seek(&mut self, pos: SeekFrom) -> io::Result<u64> {
+        match self {
+            Sink::Disk { file, .. } => file.seek(pos),
+            Sink::Memory(c) => c.seek(pos),
+        }
+    }
+}
+
+impl Sink {
+    /// The finished file: on disk flushed and synced (its bytes stay there, none returned);
+    /// in memory, its bytes.
+    fn finish(self) -> io::Result<Vec<u8>> {
+        match self {
+            Sink::Disk { file, .. } => {
+                let file = file.into_inner().map_err(io::IntoInnerError::into_error)?;
+                file.sync_all()?;
+                Ok(Vec::new())
+            }
+            Sink::Memory(c) => Ok(c.into_inner()),
+        }
+    }
+
+    /// Copy a spool's content to the end of `dst`, then delete the spool.
+    fn append_to(self, dst: &mut Sink) -> io::Result<()> {
+        match self {
+            Sink::Disk { file, path } => {
+                let mut file = file.into_inner().map_err(io::IntoInnerError::into_error)?;
+                file.seek(SeekFrom::Start(0))?;
+                io::copy(&mut file, dst)?;
+                drop(file);
+                std::fs::remove_file(path)
+            }
+            Sink::Memory(c) => dst.write_all(c.get_ref()),
+        }
+    }
+}
+
+/// Where the files go: a (staging) folder, or memory.
+enum Target<'a> {
+    Dir(&'a Path),
+    Memory,
+}
+
+impl Target<'_> {
+    fn create(&self, name: &str) -> io::Result<Sink> {
+        match self {
+            Target::Dir(dir) => {
+                let path = dir.join(name);
+                let file = OpenOptions::new()
+                    .read(true)
+                    .write(true)
+                    .create_new(true)
+                    .open(&path)?;
+                Ok(Sink::Disk {
+                    file: BufWriter::with_capacity(1 << 16, file),
+                    path,
+                })
+            }
+            Target::Memory => Ok(Sink::Memory(Cursor::new(Vec::new()))),
+        }
+    }
+}
+
+/// Spool of one site's parameter-table rows (inside the staging folder).
+const ROWS_SPOOL: &str = ".report-rows.part";
+
+/// How many samples an export reads at a time (of one layer).
+pub const BATCH_SAMPLES: usize = 200;
+
+/// The page while its sites are written: the table of sites, and spools for the site
+/// sections and the flagged rows.
+struct PageParts {
+    contents: String,
+    sections: Sink,
+    flagged: Sink,
+    flagged_count: usize,
+    models: BTreeSet<String>,
+}
+
+/// What [`write_files`] wrote.
+struct Written {
+    files: Vec<ExportFile>,
+    exported_at: DateTime<Utc>,
+    fingerprint: String,
+    totals: html::Totals,
+}
+
+/// Write every asked-for file into `target`, one site at a time, from one read of the
+/// campaign.
+fn write_files(
     conn: &Connection,
     options: &ExportOptions,
+    target: &Target<'_>,
     progress: &(dyn Fn(usize, usize) + Sync),
-) -> Result<Export, ExportError> {
+) -> Result<Written, ExportError> {
     validate(options)?;
     let exported_at = options
         .exported_at
@@ -407,146 +542,479 @@ pub fn build_export(
     } else {
         None
     };
-    let samples = snapshot::sample_total(conn, options.site.as_deref())?;
-    let sites_total = snapshot::site_total(conn, options.site.as_deref())?;
+    let site = options.site.as_deref();
+    let frame = snapshot::frame(conn, site, options.root_zone_cm, options.conductivity)?;
+    let rows = sites::list(conn, site)?;
     let file_count: usize = ExportFormat::ALL
         .iter()
         .filter(|f| options.wants(**f))
         .map(|f| f.files().len())
         .sum();
     let charts_total = if options.wants(ExportFormat::Html) {
-        sites_total
+        rows.len()
     } else {
         0
     };
     let counter = Progress {
         callback: progress,
         done: AtomicUsize::new(0),
-        total: samples + charts_total + file_count,
+        total: snapshot::sample_total(conn, site)? + charts_total + file_count,
     };
-    let snap = snapshot::read(
-        conn,
-        options.site.as_deref(),
-        options.root_zone_cm,
-        options.conductivity,
-        &|_, _| counter.step(),
-    )?;
-    drop(tx);
-    let doc = schema::CampaignDocument::new(&snap, exported_at);
-    let encode = |file: &'static str| {
-        move |e: &dyn fmt::Display| ExportError::Encode {
-            file,
-            message: e.to_string(),
+    let io_at = |name: &str| io_error_owned(options.dir.join(name));
+    let csv_at = |name: &'static str| {
+        let path = options.dir.join(name);
+        move |e: csv::Error| match e.into_kind() {
+            csv::ErrorKind::Io(source) => ExportError::Io { path, source },
+            other => ExportError::Encode {
+                file: name,
+                message: format!("{other:?}"),
+            },
         }
     };
-    let mut files = Vec::new();
-    if options.wants(ExportFormat::Csv) {
-        let parameters = tables::parameters_csv(&snap).map_err(|e| encode(PARAMETERS_FILE)(&e))?;
-        files.push(ExportFile {
-            name: PARAMETERS_FILE,
-            bytes: parameters.into_bytes(),
-        });
-        counter.step();
-        let profiles = tables::profiles_csv(&snap).map_err(|e| encode(PROFILES_FILE)(&e))?;
-        files.push(ExportFile {
-            name: PROFILES_FILE,
-            bytes: profiles.into_bytes(),
-        });
-        counter.step();
+    let create = |name: &'static str| target.create(name).map_err(io_at(name));
+
+    let mut parameters = if options.wants(ExportFormat::Csv) {
+        let models = snapshot::current_models(conn, site)?;
+        let params = parameter_union(models.iter().map(|k| k.id()), std::iter::empty());
+        let mut w = csv::Writer::from_writer(create(PARAMETERS_FILE)?);
+        w.write_record(tables::parameters_header(&params))
+            .map_err(csv_at(PARAMETERS_FILE))?;
+        Some((w, params))
+    } else {
+        None
+    };
+    let mut profiles = if options.wants(ExportFormat::Csv) {
+        let mut w = csv::Writer::from_writer(create(PROFILES_FILE)?);
+        w.write_record(tables::PROFILE_COLUMNS)
+            .map_err(csv_at(PROFILES_FILE))?;
+        Some(w)
+    } else {
+        None
+    };
+    let head = schema::CampaignDocument::head(&frame, exported_at);
+    let json_out = if options.wants(ExportFormat::Json) {
+        Some(create(CAMPAIGN_FILE)?)
+    } else {
+        None
+    };
+    let mut json = schema::JsonStream::start(json_out, &head).map_err(io_at(CAMPAIGN_FILE))?;
+    let mut features = Vec::new();
+    let mut page = if options.wants(ExportFormat::Html) {
+        Some(PageParts {
+            contents: String::new(),
+            sections: create(SPOOLS[0])?,
+            flagged: create(SPOOLS[1])?,
+            flagged_count: 0,
+            models: BTreeSet::new(),
+        })
+    } else {
+        None
+    };
+    let mut totals = html::Totals::default();
+    for (index, row) in rows.into_iter().enumerate() {
+        let walk = snapshot::walk_site(conn, &frame, row)?;
+        let site = walk.head();
+        json.open(&schema::site_head(&site), "layers")
+            .map_err(io_at(CAMPAIGN_FILE))?;
+        if let Some(w) = profiles.as_mut() {
+            let head = snapshot::Snapshot {
+                sites: vec![site.clone()],
+                ..frame.clone()
+            };
+            for r in tables::profile_rows(&head) {
+                w.write_record(&r).map_err(csv_at(PROFILES_FILE))?;
+            }
+        }
+        let mut tally = snapshot::SiteTally::default();
+        let mut chart_data = page.is_some().then(|| chart::ChartData::new(&site));
+        let mut rows_spool = match page {
+            Some(_) => Some(create(ROWS_SPOOL)?),
+            None => None,
+        };
+        for (layer_index, layer) in site.layers.iter().enumerate() {
+            json.open(&schema::layer_head(&site, layer), "samples")
+                .map_err(io_at(CAMPAIGN_FILE))?;
+            for rows in walk.samples_of(layer_index).chunks(BATCH_SAMPLES) {
+                let batch = walk.read_batch(conn, &frame, layer_index, rows, &|| counter.step())?;
+                for (_, _, m) in batch.samples() {
+                    json.item(&schema::sample_data(&batch, m))
+                        .map_err(io_at(CAMPAIGN_FILE))?;
+                }
+                if let Some((w, params)) = parameters.as_mut() {
+                    for r in tables::parameter_rows(&batch, params) {
+                        w.write_record(&r).map_err(csv_at(PARAMETERS_FILE))?;
+                    }
+                }
+                tally.add(&batch);
+                if let (Some(p), Some(data), Some(spool)) =
+                    (page.as_mut(), chart_data.as_mut(), rows_spool.as_mut())
+                {
+                    data.add(&batch);
+                    let mut text = String::new();
+                    for part in &batch.sites {
+                        html::parameter_rows(&mut text, &batch, part);
+                    }
+                    spool
+                        .write_all(text.as_bytes())
+                        .map_err(io_at(REPORT_FILE))?;
+                    text.clear();
+                    p.flagged_count += html::flagged_rows(&mut text, &batch);
+                    p.flagged
+                        .write_all(text.as_bytes())
+                        .map_err(io_at(REPORT_FILE))?;
+                }
+            }
+            json.close().map_err(io_at(CAMPAIGN_FILE))?;
+        }
+        json.close().map_err(io_at(CAMPAIGN_FILE))?;
+        totals.add_site(&tally);
+        if options.wants(ExportFormat::Geojson) {
+            features.push(geojson::feature(&frame, &site, &tally));
+        }
+        if let (Some(p), Some(data), Some(spool)) = (page.as_mut(), chart_data, rows_spool) {
+            let svg = chart::chart_svg(&frame.settings, &data).map_err(|message| {
+                ExportError::Encode {
+                    file: REPORT_FILE,
+                    message,
+                }
+            })?;
+            counter.step();
+            html::contents_row(&mut p.contents, index, &site, &tally);
+            let mut text = String::new();
+            html::section_start(
+                &mut text,
+                index,
+                &site,
+                svg.as_deref(),
+                &walk.sample_counts(),
+            );
+            let write = |sections: &mut Sink| -> io::Result<()> {
+                sections.write_all(text.as_bytes())?;
+                spool.append_to(sections)?;
+                let mut end = String::new();
+                html::section_end(&mut end, &site);
+                sections.write_all(end.as_bytes())
+            };
+            write(&mut p.sections).map_err(io_at(REPORT_FILE))?;
+            p.models.extend(tally.models.iter().cloned());
+        }
     }
-    if options.wants(ExportFormat::Json) {
-        let text = schema::to_json(&doc).map_err(|e| encode(CAMPAIGN_FILE)(&e))?;
+    drop(tx);
+    let (fingerprint, json_out) = json.finish().map_err(io_at(CAMPAIGN_FILE))?;
+    let mut files = Vec::new();
+    let mut done = |name: &'static str, sink: Sink| -> Result<(), ExportError> {
         files.push(ExportFile {
-            name: CAMPAIGN_FILE,
-            bytes: text.into_bytes(),
+            name,
+            bytes: sink.finish().map_err(io_at(name))?,
         });
         counter.step();
+        Ok(())
+    };
+    if let Some((w, _)) = parameters {
+        let sink = w
+            .into_inner()
+            .map_err(|e| io_at(PARAMETERS_FILE)(e.into_error()))?;
+        done(PARAMETERS_FILE, sink)?;
+    }
+    if let Some(w) = profiles {
+        let sink = w
+            .into_inner()
+            .map_err(|e| io_at(PROFILES_FILE)(e.into_error()))?;
+        done(PROFILES_FILE, sink)?;
+    }
+    if let Some(sink) = json_out {
+        done(CAMPAIGN_FILE, sink)?;
     }
     if options.wants(ExportFormat::Geojson) {
-        let mut text = serde_json::to_string_pretty(&geojson::collection(&snap))
-            .map_err(|e| encode(SITES_FILE)(&e))?;
+        let mut text =
+            serde_json::to_string_pretty(&geojson::collection_of(features)).map_err(|e| {
+                ExportError::Encode {
+                    file: SITES_FILE,
+                    message: e.to_string(),
+                }
+            })?;
         text.push('\n');
-        files.push(ExportFile {
-            name: SITES_FILE,
-            bytes: text.into_bytes(),
-        });
-        counter.step();
+        let mut sink = create(SITES_FILE)?;
+        sink.write_all(text.as_bytes()).map_err(io_at(SITES_FILE))?;
+        done(SITES_FILE, sink)?;
     }
-    if options.wants(ExportFormat::Html) {
-        let mut charts = Vec::with_capacity(snap.sites.len());
-        for site in &snap.sites {
-            charts.push(chart::site_chart(&snap, site).map_err(|e| encode(REPORT_FILE)(&e))?);
-            counter.step();
-        }
-        let page = html::report_html(
-            &snap,
-            html::PageMeta {
-                exported_at: &doc.exported_at,
-                fingerprint: &doc.fingerprint_sha256,
-            },
-            &charts,
-        );
-        files.push(ExportFile {
-            name: REPORT_FILE,
-            bytes: page.into_bytes(),
-        });
-        counter.step();
+    if let Some(p) = page {
+        let meta = html::PageMeta {
+            exported_at: &head.exported_at,
+            fingerprint: &fingerprint,
+        };
+        let models: Vec<ModelKind> = ModelKind::ALL
+            .into_iter()
+            .filter(|k| p.models.contains(k.id()))
+            .collect();
+        let totals = &totals;
+        let mut sink = create(REPORT_FILE)?;
+        let write = |sink: &mut Sink| -> io::Result<()> {
+            sink.write_all(html::page_start(&frame, meta, *totals, &p.contents).as_bytes())?;
+            p.sections.append_to(sink)?;
+            sink.write_all(html::flagged_start(p.flagged_count).as_bytes())?;
+            p.flagged.append_to(sink)?;
+            sink.write_all(html::flagged_end(p.flagged_count).as_bytes())?;
+            sink.write_all(html::page_end(&frame, meta, &models).as_bytes())
+        };
+        write(&mut sink).map_err(io_at(REPORT_FILE))?;
+        done(REPORT_FILE, sink)?;
     }
-    Ok(Export {
+    Ok(Written {
         files,
         exported_at,
-        fingerprint: doc.fingerprint_sha256,
-        sites: snap.sites.len(),
-        samples: snap.sample_count(),
-        readings: snap.samples().map(|(_, _, m)| m.readings.len()).sum(),
+        fingerprint,
+        totals,
     })
 }
 
-/// Export a campaign (or one site) into `options.dir`: check the folder, build every file in
-/// memory, then write each atomically.
+/// Build every asked-for file in memory from one read of the campaign (the same bytes
+/// [`export_campaign`] writes).
+///
+/// `progress(done, total)` is called as samples are read, charts drawn and files encoded.
+///
+/// # Errors
+/// Invalid options, an unknown site, or an SQLite error; nothing is written.
+pub fn build_export(
+    conn: &Connection,
+    options: &ExportOptions,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<Export, ExportError> {
+    let written = write_files(conn, options, &Target::Memory, progress)?;
+    Ok(Export {
+        files: written.files,
+        exported_at: written.exported_at,
+        fingerprint: written.fingerprint,
+        sites: written.totals.sites,
+        samples: written.totals.samples,
+        readings: written.totals.readings,
+    })
+}
+
+/// The folder to export into, as a path whose last component names it (a symbolic link is
+/// followed, `.` and `..` resolved), so that it can be swapped.
+fn resolve_target(dir: &Path) -> Result<PathBuf, ExportError> {
+    let is_link = std::fs::symlink_metadata(dir).is_ok_and(|m| m.file_type().is_symlink());
+    let named = dir.file_name().is_some() && !dir.ends_with("..");
+    let target = if is_link || !named {
+        std::fs::canonicalize(dir).map_err(io_error(dir))?
+    } else {
+        dir.to_path_buf()
+    };
+    let refused = |why: &str| ExportError::Io {
+        path: dir.to_path_buf(),
+        source: io::Error::new(io::ErrorKind::InvalidInput, why.to_string()),
+    };
+    if target.file_name().is_none() {
+        return Err(refused(
+            "export into a named folder, not the root of a file system",
+        ));
+    }
+    let here = std::env::current_dir()
+        .ok()
+        .and_then(|d| std::fs::canonicalize(d).ok());
+    let there = std::fs::canonicalize(&target).ok();
+    if here.is_some() && here == there {
+        return Err(refused(
+            "the export folder is replaced as a whole, so it cannot be the current directory; \
+             export into a named folder (for example --to summary)",
+        ));
+    }
+    Ok(target)
+}
+
+fn parent_of(target: &Path) -> PathBuf {
+    match target.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
+    }
+}
+
+/// `.NAME.export-PID.tmp` (staging) or `.NAME.old-PID.tmp` (the old folder during a swap
+/// without an exchange), beside the target `NAME`.
+fn side_name(name: &str, what: &str, pid: u32) -> String {
+    format!(".{name}.{what}-{pid}.tmp")
+}
+
+/// The process id in a side folder's name for the target `name`, if it is one.
+fn side_pid(entry: &str, name: &str) -> Option<u32> {
+    let rest = entry
+        .strip_prefix('.')?
+        .strip_prefix(name)?
+        .strip_prefix('.')?;
+    let rest = rest
+        .strip_prefix("export-")
+        .or_else(|| rest.strip_prefix("old-"))?;
+    rest.strip_suffix(".tmp")?.parse().ok()
+}
+
+/// Remove a folder of export files (staging, or an old export): only files an export
+/// writes, then the folder if that emptied it. Anything else is left where it is.
+fn remove_export_dir(dir: &Path) {
+    if let Ok(entries) = std::fs::read_dir(dir) {
+        for entry in entries.flatten() {
+            let name = entry.file_name().to_string_lossy().into_owned();
+            let is_file = entry.file_type().is_ok_and(|t| t.is_file());
+            if is_file && (is_ours(&name) || SPOOLS.contains(&name.as_str())) {
+                let _ = std::fs::remove_file(entry.path());
+            }
+        }
+    }
+    let _ = std::fs::remove_dir(dir);
+}
+
+/// Remove the staging and old folders of earlier exports into `name` whose process is gone
+/// (known on Linux only; elsewhere they are left).
+fn remove_stale_sides(parent: &Path, name: &str) {
+    let Ok(entries) = std::fs::read_dir(parent) else {
+        return;
+    };
+    for entry in entries.flatten() {
+        let entry_name = entry.file_name().to_string_lossy().into_owned();
+        let Some(pid) = side_pid(&entry_name, name) else {
+            continue;
+        };
+        if pid != std::process::id()
+            && crate::store::holder::process_running(pid) == Some(false)
+            && entry.file_type().is_ok_and(|t| t.is_dir())
+        {
+            remove_export_dir(&entry.path());
+        }
+    }
+}
+
+/// Make a folder's entries durable (best effort: not every system syncs a folder).
+fn sync_dir(dir: &Path) {
+    if let Ok(d) = File::open(dir) {
+        let _ = d.sync_all();
+    }
+}
+
+/// Swap two folders in one step, where the system can (Linux `renameat2(RENAME_EXCHANGE)`).
+#[cfg(target_os = "linux")]
+fn exchange(a: &Path, b: &Path) -> io::Result<()> {
+    use rustix::fs::{CWD, RenameFlags, renameat_with};
+    renameat_with(CWD, a, CWD, b, RenameFlags::EXCHANGE).map_err(io::Error::from)
+}
+
+#[cfg(not(target_os = "linux"))]
+fn exchange(_a: &Path, _b: &Path) -> io::Result<()> {
+    Err(io::Error::from(io::ErrorKind::Unsupported))
+}
+
+/// The fresh folder an export is written into; removed when dropped unless swapped in.
+struct Staging {
+    path: PathBuf,
+    parent: PathBuf,
+    name: String,
+    armed: bool,
+}
+
+impl Staging {
+    fn new(parent: &Path, name: &str) -> Result<Self, ExportError> {
+        let path = parent.join(side_name(name, "export", std::process::id()));
+        if path.exists() {
+            remove_export_dir(&path);
+        }
+        std::fs::create_dir(&path).map_err(io_error(&path))?;
+        Ok(Self {
+            path,
+            parent: parent.to_path_buf(),
+            name: name.to_string(),
+            armed: true,
+        })
+    }
+
+    /// Put the staging folder in the target's place; the old folder (if any) is removed.
+    fn swap_into(mut self, target: &Path) -> Result<(), ExportError> {
+        let Ok(old) = std::fs::metadata(target) else {
+            std::fs::rename(&self.path, target).map_err(io_error(target))?;
+            self.armed = false;
+            return Ok(());
+        };
+        // The new folder keeps the old one's permissions.
+        let _ = std::fs::set_permissions(&self.path, old.permissions());
+        if exchange(&self.path, target).is_ok() {
+            // The old export now sits at the staging path; `drop` removes it.
+            return Ok(());
+        }
+        let aside = self
+            .parent
+            .join(side_name(&self.name, "old", std::process::id()));
+        std::fs::rename(target, &aside).map_err(io_error(target))?;
+        if let Err(e) = std::fs::rename(&self.path, target) {
+            let _ = std::fs::rename(&aside, target);
+            return Err(io_error(target)(e));
+        }
+        self.armed = false;
+        remove_export_dir(&aside);
+        Ok(())
+    }
+
+    fn path(&self) -> &Path {
+        &self.path
+    }
+}
+
+impl Drop for Staging {
+    fn drop(&mut self) {
+        if self.armed {
+            remove_export_dir(&self.path);
+        }
+    }
+}
+
+/// Export a campaign (or one site) into `options.dir`: check the folder, write every file
+/// into a fresh folder beside it, and swap that in whole.
 ///
 /// This is the one entry point of the `export` command and of the terminal UI's export key.
 /// `progress(done, total)` is called from the calling thread as the export goes.
 ///
 /// # Errors
-/// See [`ExportError`]: the folder is refused before anything is read, and nothing is written
-/// unless every file could be built.
+/// See [`ExportError`]: the folder is refused before anything is read, and the target is
+/// left as it was on any error (a full disk, an encoding error, a folder that cannot be
+/// written).
 pub fn export_campaign(
     conn: &Connection,
     options: &ExportOptions,
     progress: &(dyn Fn(usize, usize) + Sync),
 ) -> Result<ExportSummary, ExportError> {
     validate(options)?;
-    let earlier = check_dir(&options.dir)?;
-    let export = build_export(conn, options, progress)?;
-    std::fs::create_dir_all(&options.dir).map_err(io_error(&options.dir))?;
-    for name in &earlier {
-        if !ALL_FILES.contains(&name.as_str()) {
-            // The temporary file of an interrupted export: never a complete file.
-            let _ = std::fs::remove_file(options.dir.join(name));
-        }
-    }
-    let mut written = Vec::new();
-    for file in &export.files {
-        let path = options.dir.join(file.name);
-        write_atomic(&path, &file.bytes).map_err(io_error(&path))?;
-        written.push(path);
-    }
-    let left_from_before = earlier
+    let target = resolve_target(&options.dir)?;
+    check_dir(&target)?;
+    let parent = parent_of(&target);
+    std::fs::create_dir_all(&parent).map_err(io_error(&parent))?;
+    let name = target
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    remove_stale_sides(&parent, &name);
+    let staging = Staging::new(&parent, &name)?;
+    let written = write_files(conn, options, &Target::Dir(staging.path()), progress)?;
+    sync_dir(staging.path());
+    // Checked again just before the swap: a file put there meanwhile is not swept away.
+    let earlier = check_dir(&target)?;
+    staging.swap_into(&target)?;
+    sync_dir(&parent);
+    let removed_from_before = earlier
         .iter()
         .filter(|name| ALL_FILES.contains(&name.as_str()))
-        .filter(|name| !export.files.iter().any(|f| f.name == name.as_str()))
+        .filter(|name| !written.files.iter().any(|f| f.name == name.as_str()))
         .map(|name| options.dir.join(name))
         .collect();
     Ok(ExportSummary {
         dir: options.dir.clone(),
-        written,
-        left_from_before,
-        exported_at: export.exported_at,
-        fingerprint: export.fingerprint,
-        sites: export.sites,
-        samples: export.samples,
-        readings: export.readings,
+        written: written
+            .files
+            .iter()
+            .map(|f| options.dir.join(f.name))
+            .collect(),
+        removed_from_before,
+        exported_at: written.exported_at,
+        fingerprint: written.fingerprint,
+        sites: written.totals.sites,
+        samples: written.totals.samples,
+        readings: written.totals.readings,
     })
 }
 

@@ -389,17 +389,42 @@ fn json<T: Serialize + ?Sized>(value: &T) -> Result<String> {
 /// # Errors
 /// An SQLite error.
 pub fn record(conn: &Connection, fit: &NewFit<'_>) -> Result<i64> {
+    insert(conn, &encode(fit)?)
+}
+
+/// A fit attempt encoded for its row: the JSON columns made, so that [`insert`] inside a
+/// write transaction does no more than the SQL.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EncodedFit {
+    sample_id: i64,
+    sample_rev: i64,
+    model: String,
+    parameters: String,
+    standard_errors: Option<String>,
+    covariance: Option<String>,
+    statistics: String,
+    n_points: i64,
+    fingerprint: String,
+    status: FitStatus,
+    message: Option<String>,
+    requested: String,
+    fixed: String,
+    report: Option<String>,
+    ranking: Option<String>,
+    reading_ids: String,
+    conductivity: Option<&'static str>,
+}
+
+/// Encode a fit attempt for [`insert`].
+///
+/// # Errors
+/// A value that does not encode as JSON ([`StoreError::Corrupt`]).
+pub fn encode(fit: &NewFit<'_>) -> Result<EncodedFit> {
     let status = if fit.failure.is_some() {
         FitStatus::Failed
     } else {
         FitStatus::Ok
     };
-    if status == FitStatus::Ok {
-        conn.prepare_cached(
-            "UPDATE fit SET is_current = 0 WHERE sample_id = ?1 AND is_current = 1",
-        )?
-        .execute(params![fit.input.sample.id])?;
-    }
     let parameters: BTreeMap<&str, f64> = fit
         .report
         .map(|r| {
@@ -428,6 +453,42 @@ pub fn record(conn: &Connection, fit: &NewFit<'_>) -> Result<i64> {
         .failure
         .map(str::to_string)
         .or_else(|| fit.report.and_then(|r| r.message.clone()));
+    Ok(EncodedFit {
+        sample_id: fit.input.sample.id,
+        sample_rev: fit.input.sample.revision,
+        model: fit.model.to_string(),
+        parameters: json(&parameters)?,
+        standard_errors: errors.map(|e| json(&e)).transpose()?,
+        covariance: fit
+            .report
+            .and_then(|r| r.covariance.as_ref())
+            .map(json)
+            .transpose()?,
+        statistics: json(&statistics.unwrap_or(serde_json::Value::Object(serde_json::Map::new())))?,
+        n_points: fit.input.reading_ids.len() as i64,
+        fingerprint: fit.input.fingerprint.clone(),
+        status,
+        message,
+        requested: fit.requested.to_string(),
+        fixed: json(&fixed)?,
+        report: fit.report.map(json).transpose()?,
+        ranking: fit.ranking.map(json).transpose()?,
+        reading_ids: json(&fit.input.reading_ids)?,
+        conductivity: fit.conductivity.map(ConductivityForm::id),
+    })
+}
+
+/// Insert an encoded fit attempt (see [`record`]); returns its id.
+///
+/// # Errors
+/// An SQLite error.
+pub fn insert(conn: &Connection, fit: &EncodedFit) -> Result<i64> {
+    if fit.status == FitStatus::Ok {
+        conn.prepare_cached(
+            "UPDATE fit SET is_current = 0 WHERE sample_id = ?1 AND is_current = 1",
+        )?
+        .execute(params![fit.sample_id])?;
+    }
     conn.prepare_cached(
         "INSERT INTO fit (sample_id, model, parameters, standard_errors, covariance, statistics,
              n_points, readings_fingerprint, created_at, is_current, status, message, requested,
@@ -436,30 +497,45 @@ pub fn record(conn: &Connection, fit: &NewFit<'_>) -> Result<i64> {
              ?19)",
     )?
     .execute(params![
-        fit.input.sample.id,
+        fit.sample_id,
         fit.model,
-        json(&parameters)?,
-        errors.map(|e| json(&e)).transpose()?,
-        fit.report
-            .and_then(|r| r.covariance.as_ref())
-            .map(json)
-            .transpose()?,
-        json(&statistics.unwrap_or(serde_json::Value::Object(serde_json::Map::new())))?,
-        fit.input.reading_ids.len() as i64,
-        fit.input.fingerprint,
+        fit.parameters,
+        fit.standard_errors,
+        fit.covariance,
+        fit.statistics,
+        fit.n_points,
+        fit.fingerprint,
         SqlTime::now(),
-        status == FitStatus::Ok,
-        status.as_str(),
-        message,
+        fit.status == FitStatus::Ok,
+        fit.status.as_str(),
+        fit.message,
         fit.requested,
-        json(&fixed)?,
-        fit.report.map(json).transpose()?,
-        fit.ranking.map(json).transpose()?,
-        json(&fit.input.reading_ids)?,
-        fit.input.sample.revision,
-        fit.conductivity.map(ConductivityForm::id),
+        fit.fixed,
+        fit.report,
+        fit.ranking,
+        fit.reading_ids,
+        fit.sample_rev,
+        fit.conductivity,
     ])?;
     Ok(conn.last_insert_rowid())
+}
+
+/// Whether a sample's readings are still those of `input` (as a fit made from them needs to
+/// be recorded as current): its revision has not moved, or its readings still have the same
+/// fingerprint. False for a sample that is gone.
+///
+/// # Errors
+/// An SQLite error.
+pub fn unchanged(conn: &Connection, input: &FitInput) -> Result<bool> {
+    let revision: Option<i64> = conn
+        .prepare_cached("SELECT readings_rev FROM sample WHERE id = ?1")?
+        .query_row(params![input.sample.id], |r| r.get(0))
+        .optional()?;
+    Ok(match revision {
+        None => false,
+        Some(rev) if rev == input.sample.revision => true,
+        Some(_) => readings_fingerprint(conn, input.sample.id)? == input.fingerprint,
+    })
 }
 
 /// A fit attempt as stored.

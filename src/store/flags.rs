@@ -850,6 +850,17 @@ pub enum Mark {
 }
 
 impl Mark {
+    /// The mark one flag gives its reading (a reading with several takes the highest).
+    pub fn of(status: FlagStatus, origin: FlagOrigin) -> Mark {
+        match (status, origin) {
+            (FlagStatus::Accepted, _) | (FlagStatus::Suggested, FlagOrigin::Manual) => {
+                Mark::Excluded
+            }
+            (FlagStatus::Suggested, FlagOrigin::Auto) => Mark::Suggested,
+            (FlagStatus::Dismissed | FlagStatus::Cleared, _) => Mark::Kept,
+        }
+    }
+
     /// One word for tables: `kept`, `suggested`, `excluded`.
     pub fn label(self) -> &'static str {
         match self {
@@ -878,13 +889,7 @@ pub fn reading_marks(conn: &Connection) -> Result<HashMap<i64, Mark>> {
         ))
     })? {
         let (id, status, origin) = row?;
-        let mark = match (status, origin) {
-            (FlagStatus::Accepted, _) | (FlagStatus::Suggested, FlagOrigin::Manual) => {
-                Mark::Excluded
-            }
-            (FlagStatus::Suggested, FlagOrigin::Auto) => Mark::Suggested,
-            (FlagStatus::Dismissed | FlagStatus::Cleared, _) => Mark::Kept,
-        };
+        let mark = Mark::of(status, origin);
         let slot = out.entry(id).or_insert(mark);
         *slot = (*slot).max(mark);
     }

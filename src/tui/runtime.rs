@@ -132,8 +132,9 @@ impl Worker {
 
 impl Drop for Worker {
     fn drop(&mut self) {
-        // Waiting jobs are not started; a running one is abandoned with the process (its
-        // transaction never commits), so quitting never waits for a long fit.
+        // Waiting jobs are not started; a running one is abandoned with the process (nothing
+        // is written while it fits; samples it had already recorded keep their new fits), so
+        // quitting never waits for a long fit.
         self.stop.store(true, Ordering::Relaxed);
         drop(self.handle.take());
     }

@@ -461,7 +461,14 @@ fn on_fit_finished(
                         summary.failed.len()
                     );
                 }
-                let tone = if summary.failed.is_empty() {
+                if let Some(code) = summary.changed.first() {
+                    let _ = write!(
+                        text,
+                        "; {} not recorded, readings changed meanwhile ({code}): refit",
+                        summary.changed.len()
+                    );
+                }
+                let tone = if summary.is_complete() {
                     Tone::Info
                 } else {
                     Tone::Warning
@@ -1300,6 +1307,7 @@ mod tests {
                 result: Ok(FitRunSummary {
                     fitted: vec![("AA-0-a".into(), "kosugi".into())],
                     failed: Vec::new(),
+                    changed: Vec::new(),
                 }),
             },
         );
@@ -1321,6 +1329,7 @@ mod tests {
                 result: Ok(FitRunSummary {
                     fitted: vec![("AA-0-a".into(), "van-genuchten".into())],
                     failed: vec![("AA-0-b".into(), "too few readings".into())],
+                    changed: vec!["AA-0-c".into()],
                 }),
             },
         );
@@ -1331,6 +1340,14 @@ mod tests {
                 .status
                 .text
                 .contains("1 could not be fitted (AA-0-b: too few readings)")
+        );
+        assert!(
+            state
+                .status
+                .text
+                .contains("1 not recorded, readings changed meanwhile (AA-0-c)"),
+            "{}",
+            state.status.text
         );
         // A result nobody waits for changes nothing.
         let effects = update(

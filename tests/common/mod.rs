@@ -160,3 +160,49 @@ pub fn stderr(assert: &assert_cmd::assert::Assert) -> String {
 pub fn stdout(assert: &assert_cmd::assert::Assert) -> String {
     String::from_utf8(assert.get_output().stdout.clone()).expect("utf-8")
 }
+
+/// The porewise binary as a plain `std` command (for runs the test must watch or stop).
+pub fn porewise_std() -> std::process::Command {
+    let mut cmd = std::process::Command::new(env!("CARGO_BIN_EXE_porewise"));
+    cmd.current_dir(data_dir());
+    cmd
+}
+
+/// Suctions of a generated lab sheet, cm (common practice: hanging column, sandbox,
+/// pressure plates).
+pub const LAB_SUCTIONS_CM: [f64; 8] = [0.0, 10.0, 30.0, 100.0, 330.0, 1000.0, 3000.0, 15000.0];
+
+/// A generated lab sheet: `sites` sites `G000`.., three 20 cm layers each, `per_site` samples
+/// a site spread over the layers, every sample read at `suctions` cm. Water contents follow
+/// van Genuchten curves whose parameters step with the sample's number (theta_r 0.02-0.10,
+/// theta_s 0.36-0.48, alpha 0.005-0.08 1/cm, n 1.2-2.4: invented, within the usual range of
+/// mineral soils, common practice) plus a fixed +-0.004 scatter pattern, so the sheet is the
+/// same on every run and every sample can be fitted.
+pub fn lab_sheet(sites: usize, per_site: usize, suctions: &[f64]) -> String {
+    use std::fmt::Write as _;
+    let vg = porewise::model::retention::ModelKind::VanGenuchten.curve();
+    let mut text = String::from("site,top_cm,bottom_cm,sample,method,suction_cm,theta\n");
+    for site in 0..sites {
+        for k in 0..per_site {
+            let n = site * per_site + k;
+            let step = |period: usize| (n % period) as f64 / period as f64;
+            let p = [
+                0.02 + 0.08 * step(7),
+                0.36 + 0.12 * step(5),
+                0.005 * 16f64.powf(step(11)),
+                1.2 + 1.2 * step(13),
+            ];
+            let top = 20 * (k % 3);
+            for (i, h) in suctions.iter().enumerate() {
+                let scatter = [0.004, -0.003, 0.001, -0.004, 0.002, -0.001][(i + n) % 6];
+                let _ = writeln!(
+                    text,
+                    "G{site:03},{top},{},G{site:03}-S{k:05},pressure plate,{h},{:.5}",
+                    top + 20,
+                    vg.value(*h, &p) + scatter
+                );
+            }
+        }
+    }
+    text
+}

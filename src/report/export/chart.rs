@@ -12,10 +12,12 @@ use plotters::coord::types::RangedCoordf64;
 use plotters::element::{ComposedElement, DashedPathElement};
 use plotters::prelude::*;
 
-use super::snapshot::{SitePart, Snapshot};
+use super::snapshot::{SamplePart, SitePart, Snapshot};
 use crate::analysis::water::curve_of;
 use crate::model::number::significant;
+use crate::model::retention::RetentionCurve;
 use crate::model::units::CM_PER_KPA;
+use crate::store::CampaignSettings;
 
 /// A position in pixels (what legend closures receive).
 type BackendCoord = (i32, i32);
@@ -196,21 +198,10 @@ fn cross<C, DB: DrawingBackend>(
         + PathElement::new(vec![(-7, 7), (7, -7)], cross_style())
 }
 
-/// The suction axis in decades: (lowest, highest) exponent of 10.
-fn decades(snapshot: &Snapshot, site: &SitePart) -> (i32, i32) {
-    let suctions = site
-        .layers
-        .iter()
-        .flat_map(|l| &l.samples)
-        .flat_map(|m| m.readings.iter().map(|r| r.reading.h_cm));
-    let (mut lo, mut hi) = (f64::INFINITY, 0.0_f64);
-    for h in suctions {
-        if h > 0.0 {
-            lo = lo.min(h);
-        }
-        hi = hi.max(h);
-    }
-    let pwp_cm = snapshot.settings.pwp_kpa * CM_PER_KPA;
+/// The suction axis in decades, (lowest, highest) exponent of 10, for readings whose lowest
+/// positive suction is `lo` and highest `hi` (cm; `lo` infinite without any).
+fn decades(settings: &CampaignSettings, lo: f64, hi: f64) -> (i32, i32) {
+    let pwp_cm = settings.pwp_kpa * CM_PER_KPA;
     let lo_exp = if lo.is_finite() {
         (lo.log10().floor() as i32 - 1).min(-1)
     } else {
@@ -235,23 +226,9 @@ pub fn decade_label(exp: i32) -> String {
     format!("10{}{digits}", if exp < 0 { "⁻" } else { "" })
 }
 
-/// The upper end of the water-content axis: above every reading and theta_s, in 0.05 steps.
-fn theta_top(site: &SitePart) -> f64 {
-    let mut top = 0.1_f64;
-    for m in site.layers.iter().flat_map(|l| &l.samples) {
-        for r in &m.readings {
-            top = top.max(r.reading.theta);
-        }
-        if let Some(curve) = m
-            .fit
-            .fit
-            .as_ref()
-            .and_then(|f| f.report.as_ref())
-            .and_then(curve_of)
-        {
-            top = top.max(curve.theta_range().1);
-        }
-    }
+/// The upper end of the water-content axis: above every reading and theta_s (`top`), in
+/// 0.05 steps.
+fn theta_top(top: f64) -> f64 {
     (((top + 0.02) / 0.05).ceil() * 0.05).min(1.0)
 }
 
@@ -283,14 +260,11 @@ fn draw_err<E: std::fmt::Debug>(e: E) -> String {
 /// Vertical dashed lines at field capacity and the wilting point, labelled.
 fn draw_reference_lines(
     chart: &mut Chart<'_, '_>,
-    snapshot: &Snapshot,
+    settings: &CampaignSettings,
     y_top: f64,
 ) -> Result<(), String> {
     let grey = RGBColor(0x77, 0x77, 0x77);
-    for (label, kpa) in [
-        ("FC", snapshot.settings.fc_kpa),
-        ("PWP", snapshot.settings.pwp_kpa),
-    ] {
+    for (label, kpa) in [("FC", settings.fc_kpa), ("PWP", settings.pwp_kpa)] {
         let h = kpa * CM_PER_KPA;
         chart
             .draw_series(DashedLineSeries::new(
@@ -354,22 +328,122 @@ fn suction_grid(lo_exp: i32, hi_exp: i32) -> Vec<f64> {
         .collect()
 }
 
+/// One layer of a site's chart: its legend label, each fitted sample's curve with the
+/// suctions of its used readings, and every reading (suction, water content, left out).
+#[derive(Debug, Clone)]
+struct ChartLayer {
+    id: i64,
+    label: String,
+    curves: Vec<(RetentionCurve, Vec<f64>)>,
+    points: Vec<(f64, f64, bool)>,
+}
+
+/// What the chart of a site draws, gathered one batch of samples at a time (a few hundred
+/// bytes a sample rather than the samples themselves), so an export holds no more of a
+/// large site than this.
+#[derive(Debug, Clone)]
+pub struct ChartData {
+    layers: Vec<ChartLayer>,
+    has_data: bool,
+    any_excluded: bool,
+    lo_cm: f64,
+    hi_cm: f64,
+    top: f64,
+}
+
+impl ChartData {
+    /// An empty chart with the legend of a site's layers (samples are added with
+    /// [`ChartData::add`]).
+    pub fn new(site: &SitePart) -> Self {
+        Self {
+            layers: site
+                .layers
+                .iter()
+                .map(|l| ChartLayer {
+                    id: l.row.stored.id,
+                    label: layer_label(l),
+                    curves: Vec::new(),
+                    points: Vec::new(),
+                })
+                .collect(),
+            has_data: false,
+            any_excluded: false,
+            lo_cm: f64::INFINITY,
+            hi_cm: 0.0,
+            top: 0.1,
+        }
+    }
+
+    /// Add the samples of a snapshot (of this site), in order.
+    pub fn add(&mut self, snapshot: &Snapshot) {
+        for (_, layer, m) in snapshot.samples() {
+            let Some(index) = self.layers.iter().position(|l| l.id == layer.row.stored.id) else {
+                continue;
+            };
+            self.add_sample(index, m, &|id| snapshot.is_excluded(id));
+        }
+    }
+
+    fn add_sample(&mut self, index: usize, m: &SamplePart, excluded: &dyn Fn(i64) -> bool) {
+        self.has_data |= !m.readings.is_empty() || m.fit.fit.is_some();
+        let curve = m
+            .fit
+            .fit
+            .as_ref()
+            .and_then(|f| f.report.as_ref())
+            .and_then(curve_of);
+        for r in &m.readings {
+            let h = r.reading.h_cm;
+            if h > 0.0 {
+                self.lo_cm = self.lo_cm.min(h);
+            }
+            self.hi_cm = self.hi_cm.max(h);
+            self.top = self.top.max(r.reading.theta);
+        }
+        let layer = &mut self.layers[index];
+        if let Some(curve) = curve {
+            self.top = self.top.max(curve.theta_range().1);
+            let used = m
+                .readings
+                .iter()
+                .filter(|r| !excluded(r.id))
+                .map(|r| r.reading.h_cm)
+                .collect();
+            layer.curves.push((curve, used));
+        }
+        for r in &m.readings {
+            let out = excluded(r.id);
+            self.any_excluded |= out;
+            layer.points.push((r.reading.h_cm, r.reading.theta, out));
+        }
+    }
+}
+
 /// The SVG chart of one site; `None` when the site has no readings and no fits.
 ///
 /// # Errors
 /// A drawing error from the backend (text of the error).
 pub fn site_chart(snapshot: &Snapshot, site: &SitePart) -> Result<Option<String>, String> {
-    let has_data = site
-        .layers
-        .iter()
-        .flat_map(|l| &l.samples)
-        .any(|m| !m.readings.is_empty() || m.fit.fit.is_some());
-    if !has_data {
+    let mut data = ChartData::new(site);
+    for (index, layer) in site.layers.iter().enumerate() {
+        for m in &layer.samples {
+            data.add_sample(index, m, &|id| snapshot.is_excluded(id));
+        }
+    }
+    chart_svg(&snapshot.settings, &data)
+}
+
+/// The SVG chart of gathered chart data; `None` when the site has no readings and no fits.
+///
+/// # Errors
+/// A drawing error from the backend (text of the error).
+pub fn chart_svg(settings: &CampaignSettings, data: &ChartData) -> Result<Option<String>, String> {
+    if !data.has_data {
         return Ok(None);
     }
-    let (lo_exp, hi_exp) = decades(snapshot, site);
+    let (lo_exp, hi_exp) = decades(settings, data.lo_cm, data.hi_cm);
     let (x_lo, x_hi) = (10f64.powi(lo_exp), 10f64.powi(hi_exp));
-    let y_top = theta_top(site);
+    let y_top = theta_top(data.top);
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, CHART_SIZE).into_drawing_area();
@@ -410,26 +484,12 @@ pub fn site_chart(snapshot: &Snapshot, site: &SitePart) -> Result<Option<String>
             .axis_desc_style(("sans-serif", 13))
             .draw()
             .map_err(draw_err)?;
-        draw_reference_lines(&mut chart, snapshot, y_top)?;
+        draw_reference_lines(&mut chart, settings, y_top)?;
         let grid = suction_grid(lo_exp, hi_exp);
-        for (index, layer) in site.layers.iter().enumerate() {
+        for (index, layer) in data.layers.iter().enumerate() {
             let colour = layer_colour(index);
-            for m in &layer.samples {
-                let Some(curve) = m
-                    .fit
-                    .fit
-                    .as_ref()
-                    .and_then(|f| f.report.as_ref())
-                    .and_then(curve_of)
-                else {
-                    continue;
-                };
-                let used: Vec<f64> = m
-                    .readings
-                    .iter()
-                    .filter(|r| !snapshot.is_excluded(r.id))
-                    .map(|r| r.reading.h_cm.max(x_lo))
-                    .collect();
+            for (curve, used) in &layer.curves {
+                let used: Vec<f64> = used.iter().map(|h| h.max(x_lo)).collect();
                 let (solid, extrapolated) = split_curve(&grid, &used, |h| curve.theta(h));
                 chart
                     .draw_series(LineSeries::new(solid, colour.stroke_width(2)))
@@ -441,27 +501,20 @@ pub fn site_chart(snapshot: &Snapshot, site: &SitePart) -> Result<Option<String>
                 }
             }
         }
-        for (index, layer) in site.layers.iter().enumerate() {
+        for (index, layer) in data.layers.iter().enumerate() {
             let colour = layer_colour(index);
             let shape = Marker::of_layer(index);
             let points: Vec<(f64, f64, bool)> = layer
-                .samples
+                .points
                 .iter()
-                .flat_map(|m| &m.readings)
-                .map(|r| {
-                    (
-                        r.reading.h_cm.max(x_lo),
-                        r.reading.theta,
-                        snapshot.is_excluded(r.id),
-                    )
-                })
+                .map(|&(h, t, out)| (h.max(x_lo), t, out))
                 .collect();
             marker_series!(
                 chart,
                 points.iter().map(|&(h, t, _)| (h, t)),
                 shape,
                 colour,
-                layer_label(layer)
+                layer.label.clone()
             )
             .map_err(draw_err)?;
             chart
@@ -473,12 +526,7 @@ pub fn site_chart(snapshot: &Snapshot, site: &SitePart) -> Result<Option<String>
                 )
                 .map_err(draw_err)?;
         }
-        let any_excluded = site
-            .layers
-            .iter()
-            .flat_map(|l| &l.samples)
-            .flat_map(|m| &m.readings)
-            .any(|r| snapshot.is_excluded(r.id));
+        let any_excluded = data.any_excluded;
         if any_excluded {
             chart
                 .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())

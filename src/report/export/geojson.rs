@@ -9,8 +9,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::snapshot::{Snapshot, models_in};
-use crate::store::fits::FitState;
+use super::snapshot::{SitePart, SiteTally, Snapshot};
 
 /// The whole file.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -91,55 +90,70 @@ pub struct SiteProperties {
 
 /// The collection of a snapshot's sites.
 pub fn collection(snapshot: &Snapshot) -> FeatureCollection {
-    let features = snapshot
-        .sites
-        .iter()
-        .map(|part| {
-            let site = &part.row.stored.site;
-            let samples: Vec<_> = part.layers.iter().flat_map(|l| &l.samples).collect();
-            let count =
-                |f: &dyn Fn(&FitState) -> bool| samples.iter().filter(|m| f(&m.fit.state)).count();
-            let models = models_in(samples.iter().copied())
-                .iter()
-                .map(|k| k.id())
-                .collect::<Vec<_>>()
-                .join(",");
-            Feature {
-                kind: "Feature".to_string(),
-                id: site.code.clone(),
-                geometry: site.longitude.zip(site.latitude).map(|(lon, lat)| Point {
-                    kind: "Point".to_string(),
-                    coordinates: [lon, lat],
-                }),
-                properties: SiteProperties {
-                    site: site.code.clone(),
-                    name: site.name.clone(),
-                    elevation_m: site.elevation_m,
-                    notes: site.notes.clone(),
-                    uid: site.uid.to_string(),
-                    layers: part.layers.len(),
-                    samples: samples.len(),
-                    readings: samples.iter().map(|m| m.readings.len()).sum(),
-                    flagged_readings: samples.iter().map(|m| snapshot.flagged_count(m)).sum(),
-                    excluded_readings: samples.iter().map(|m| snapshot.excluded_count(m)).sum(),
-                    current_fits: count(&|s| matches!(s, FitState::Current)),
-                    stale_fits: count(&FitState::is_stale),
-                    unfitted_samples: count(&|s| matches!(s, FitState::None | FitState::Failed(_))),
-                    models,
-                    available_water_mm: part.profile.as_ref().map(|p| p.total_mm),
-                    root_zone_cm: snapshot.root_zone_cm,
-                    uncovered_cm: part
-                        .profile
-                        .as_ref()
-                        .map(crate::analysis::SiteProfile::uncovered_cm),
-                    fc_kpa: snapshot.settings.fc_kpa,
-                    pwp_kpa: snapshot.settings.pwp_kpa,
-                },
-            }
-        })
-        .collect();
+    collection_of(
+        snapshot
+            .sites
+            .iter()
+            .map(|part| {
+                let mut tally = SiteTally::default();
+                tally.add(&Snapshot {
+                    sites: vec![part.clone()],
+                    ..snapshot.clone()
+                });
+                feature(snapshot, part, &tally)
+            })
+            .collect(),
+    )
+}
+
+/// The collection of these features (one per site, in code order).
+pub fn collection_of(features: Vec<Feature>) -> FeatureCollection {
     FeatureCollection {
         kind: "FeatureCollection".to_string(),
         features,
+    }
+}
+
+/// The feature of one site (its layers and profile from `part`, the counts of its samples
+/// from `tally`), under the settings and scope of `frame`.
+pub fn feature(frame: &Snapshot, part: &SitePart, tally: &SiteTally) -> Feature {
+    let site = &part.row.stored.site;
+    let models = tally
+        .model_kinds()
+        .iter()
+        .map(|k| k.id())
+        .collect::<Vec<_>>()
+        .join(",");
+    Feature {
+        kind: "Feature".to_string(),
+        id: site.code.clone(),
+        geometry: site.longitude.zip(site.latitude).map(|(lon, lat)| Point {
+            kind: "Point".to_string(),
+            coordinates: [lon, lat],
+        }),
+        properties: SiteProperties {
+            site: site.code.clone(),
+            name: site.name.clone(),
+            elevation_m: site.elevation_m,
+            notes: site.notes.clone(),
+            uid: site.uid.to_string(),
+            layers: part.layers.len(),
+            samples: tally.samples,
+            readings: tally.readings,
+            flagged_readings: tally.flagged,
+            excluded_readings: tally.excluded,
+            current_fits: tally.current,
+            stale_fits: tally.stale,
+            unfitted_samples: tally.unfitted,
+            models,
+            available_water_mm: part.profile.as_ref().map(|p| p.total_mm),
+            root_zone_cm: frame.root_zone_cm,
+            uncovered_cm: part
+                .profile
+                .as_ref()
+                .map(crate::analysis::SiteProfile::uncovered_cm),
+            fc_kpa: frame.settings.fc_kpa,
+            pwp_kpa: frame.settings.pwp_kpa,
+        },
     }
 }

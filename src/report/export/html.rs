@@ -11,7 +11,7 @@
 use std::fmt::Write as _;
 
 use super::chart::{Marker, colour_hex, layer_colour, layer_label};
-use super::snapshot::{ReadingFlag, SitePart, Snapshot, models_in};
+use super::snapshot::{ReadingFlag, SitePart, SiteTally, Snapshot, models_in};
 use super::tables::state_detail;
 use crate::fit::{FitReport, IntervalScale};
 use crate::model::domain::SampleKind;
@@ -99,10 +99,75 @@ code { font-size: 0.9em; }
 @media print { h2 { page-break-before: always; } figure svg { border: none; } .wide { overflow: visible; } }
 ";
 
+/// What the page header counts: the whole export, summed over its sites.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct Totals {
+    /// Sites.
+    pub sites: usize,
+    /// Samples.
+    pub samples: usize,
+    /// Readings.
+    pub readings: usize,
+}
+
+impl Totals {
+    /// Add a snapshot's sites, samples and readings.
+    pub fn add(&mut self, s: &Snapshot) {
+        self.sites += s.sites.len();
+        self.samples += s.sample_count();
+        self.readings += s.samples().map(|(_, _, m)| m.readings.len()).sum::<usize>();
+    }
+
+    /// Add one site with these counts.
+    pub fn add_site(&mut self, tally: &SiteTally) {
+        self.sites += 1;
+        self.samples += tally.samples;
+        self.readings += tally.readings;
+    }
+}
+
 /// The page of a snapshot with its charts (one per site, `None` for a site without data).
+///
+/// An export writes the same page in parts, one site at a time: [`page_start`] (with the
+/// [`contents_row`]s), each [`site_section`], the flagged readings ([`flagged_start`],
+/// [`flagged_rows`], [`flagged_end`]) and [`page_end`].
 pub fn report_html(snapshot: &Snapshot, meta: PageMeta<'_>, charts: &[Option<String>]) -> String {
+    let mut totals = Totals::default();
+    totals.add(snapshot);
+    let mut contents = String::new();
+    let mut sections = String::new();
+    for (index, site) in snapshot.sites.iter().enumerate() {
+        let mut tally = SiteTally::default();
+        tally.add(&Snapshot {
+            sites: vec![site.clone()],
+            ..snapshot.clone()
+        });
+        contents_row(&mut contents, index, site, &tally);
+        site_section(
+            &mut sections,
+            snapshot,
+            index,
+            site,
+            charts.get(index).and_then(Option::as_deref),
+        );
+    }
+    let mut flagged = String::new();
+    let count = flagged_rows(&mut flagged, snapshot);
+    let mut out = page_start(snapshot, meta, totals, &contents);
+    out.push_str(&sections);
+    out.push_str(&flagged_start(count));
+    out.push_str(&flagged);
+    out.push_str(&flagged_end(count));
+    let models = models_in(snapshot.samples().map(|(_, _, m)| m));
+    out.push_str(&page_end(snapshot, meta, &models));
+    out
+}
+
+/// The page up to the first site section: head, header (with the export's totals),
+/// cautions, and the table of sites made of `contents` ([`contents_row`]s).
+pub fn page_start(frame: &Snapshot, meta: PageMeta<'_>, totals: Totals, contents: &str) -> String {
     let mut out = String::new();
-    let name = escape(&snapshot.settings.name);
+    let name = escape(&frame.settings.name);
     let _ = write!(
         out,
         "<!DOCTYPE html>\n<html xmlns=\"http://www.w3.org/1999/xhtml\" lang=\"en\">\n<head>\n\
@@ -112,20 +177,19 @@ pub fn report_html(snapshot: &Snapshot, meta: PageMeta<'_>, charts: &[Option<Str
          <title>{name}: retention campaign summary</title>\n<style>{STYLE}</style>\n</head>\n<body>\n",
         version = env!("CARGO_PKG_VERSION"),
     );
-    header(&mut out, snapshot, meta);
+    header(&mut out, frame, meta, totals);
     cautions(&mut out);
-    contents(&mut out, snapshot);
-    for (index, site) in snapshot.sites.iter().enumerate() {
-        site_section(
-            &mut out,
-            snapshot,
-            index,
-            site,
-            charts.get(index).and_then(Option::as_deref),
-        );
-    }
-    flagged_section(&mut out, snapshot);
-    methods(&mut out, snapshot);
+    contents_start(&mut out);
+    out.push_str(contents);
+    contents_end(&mut out);
+    out
+}
+
+/// The page after the flagged readings: how the numbers were computed (for these models)
+/// and the footer.
+pub fn page_end(frame: &Snapshot, meta: PageMeta<'_>, models: &[ModelKind]) -> String {
+    let mut out = String::new();
+    methods(&mut out, frame, models);
     let _ = write!(
         out,
         "<hr/>\n<p class=\"muted\">Written by porewise {} from the campaign file; content \
@@ -136,7 +200,7 @@ pub fn report_html(snapshot: &Snapshot, meta: PageMeta<'_>, charts: &[Option<Str
     out
 }
 
-fn header(out: &mut String, s: &Snapshot, meta: PageMeta<'_>) {
+fn header(out: &mut String, s: &Snapshot, meta: PageMeta<'_>, totals: Totals) {
     let settings = &s.settings;
     let _ = writeln!(
         out,
@@ -146,8 +210,11 @@ fn header(out: &mut String, s: &Snapshot, meta: PageMeta<'_>) {
     if let Some(d) = &settings.description {
         let _ = writeln!(out, "<p>{}</p>", escape(d));
     }
-    let samples = s.sample_count();
-    let readings: usize = s.samples().map(|(_, _, m)| m.readings.len()).sum();
+    let Totals {
+        sites,
+        samples,
+        readings,
+    } = totals;
     let fc_cm = settings.fc_kpa * CM_PER_KPA;
     let pwp_cm = settings.pwp_kpa * CM_PER_KPA;
     let _ = writeln!(out, "<table class=\"meta\">\n<tbody>");
@@ -165,10 +232,7 @@ fn header(out: &mut String, s: &Snapshot, meta: PageMeta<'_>) {
     item(
         out,
         "Contents",
-        format!(
-            "{} sites, {samples} samples, {readings} readings",
-            s.sites.len()
-        ),
+        format!("{sites} sites, {samples} samples, {readings} readings"),
     );
     item(
         out,
@@ -239,7 +303,7 @@ fn cautions(out: &mut String) {
     );
 }
 
-fn contents(out: &mut String, s: &Snapshot) {
+fn contents_start(out: &mut String) {
     let _ = writeln!(
         out,
         "<h2 id=\"sites\">Sites</h2>\n<table>\n<thead><tr><th>site</th><th>name</th>\
@@ -247,28 +311,33 @@ fn contents(out: &mut String, s: &Snapshot) {
          <th>samples</th><th>readings</th><th>flagged</th><th>profile available water, mm</th>\
          </tr></thead>\n<tbody>"
     );
-    for (index, part) in s.sites.iter().enumerate() {
-        let site = &part.row.stored.site;
-        let samples: Vec<_> = part.layers.iter().flat_map(|l| &l.samples).collect();
-        let readings: usize = samples.iter().map(|m| m.readings.len()).sum();
-        let flagged: usize = samples.iter().map(|m| s.flagged_count(m)).sum();
-        let _ = writeln!(
-            out,
-            "<tr><td><a href=\"#site-{n}\">{code}</a></td><td>{name}</td><td class=\"num\">{lat}</td>\
-             <td class=\"num\">{lon}</td><td class=\"num\">{elev}</td><td class=\"num\">{layers}</td>\
-             <td class=\"num\">{samples}</td><td class=\"num\">{readings}</td>\
-             <td class=\"num\">{flagged}</td><td class=\"num\">{water}</td></tr>",
-            n = index + 1,
-            code = escape(&site.code),
-            name = opt_text(site.name.as_deref()),
-            lat = num(site.latitude, 8),
-            lon = num(site.longitude, 8),
-            elev = num(site.elevation_m, 5),
-            layers = part.layers.len(),
-            samples = samples.len(),
-            water = profile_total(part),
-        );
-    }
+}
+
+/// The row of one site in the table of sites (`index` counts the export's sites from 0),
+/// with the counts of its samples.
+pub fn contents_row(out: &mut String, index: usize, part: &SitePart, tally: &SiteTally) {
+    let site = &part.row.stored.site;
+    let _ = writeln!(
+        out,
+        "<tr><td><a href=\"#site-{n}\">{code}</a></td><td>{name}</td><td class=\"num\">{lat}</td>\
+         <td class=\"num\">{lon}</td><td class=\"num\">{elev}</td><td class=\"num\">{layers}</td>\
+         <td class=\"num\">{samples}</td><td class=\"num\">{readings}</td>\
+         <td class=\"num\">{flagged}</td><td class=\"num\">{water}</td></tr>",
+        n = index + 1,
+        code = escape(&site.code),
+        name = opt_text(site.name.as_deref()),
+        lat = num(site.latitude, 8),
+        lon = num(site.longitude, 8),
+        elev = num(site.elevation_m, 5),
+        layers = part.layers.len(),
+        samples = tally.samples,
+        readings = tally.readings,
+        flagged = tally.flagged,
+        water = profile_total(part),
+    );
+}
+
+fn contents_end(out: &mut String) {
     let _ = writeln!(
         out,
         "</tbody>\n</table>\n<p><a href=\"#flagged\">Flagged readings</a> · \
@@ -366,12 +435,28 @@ fn state_note(code: &str, state: &FitState, columns: usize) -> String {
     )
 }
 
-fn site_section(
+/// The section of one site (`index` counts the export's sites from 0), with its chart.
+pub fn site_section(
     out: &mut String,
     s: &Snapshot,
     index: usize,
     part: &SitePart,
     chart: Option<&str>,
+) {
+    let counts: Vec<usize> = part.layers.iter().map(|l| l.samples.len()).collect();
+    section_start(out, index, part, chart, &counts);
+    parameter_rows(out, s, part);
+    section_end(out, part);
+}
+
+/// A site's section up to its parameter table's rows: heading, location, chart, the layer
+/// table (with each layer's number of samples, `counts`) and the parameter table's head.
+pub fn section_start(
+    out: &mut String,
+    index: usize,
+    part: &SitePart,
+    chart: Option<&str>,
+    counts: &[usize],
 ) {
     let site = &part.row.stored.site;
     let title = match &site.name {
@@ -426,13 +511,24 @@ fn site_section(
             );
         }
     }
-    layer_table(out, part);
-    parameter_table(out, s, part);
+    layer_table(out, part, counts);
+    let _ = writeln!(
+        out,
+        "<h3>Fitted parameters</h3>\n<div class=\"wide\">\n<table>\n<thead><tr><th>sample</th><th>layer</th><th>model</th>\
+         <th>parameters ± standard error</th><th>RMSE, m³/m³</th><th>R²</th><th>AICc</th>\
+         <th>readings used / flagged / left out</th><th>θ at FC, m³/m³</th><th>θ at PWP, m³/m³</th>\
+         <th>available water, m³/m³</th><th>state</th></tr></thead>\n<tbody>"
+    );
+}
+
+/// A site's section after its parameter table's rows: the table's end, the profile table.
+pub fn section_end(out: &mut String, part: &SitePart) {
+    let _ = writeln!(out, "</tbody>\n</table>\n</div>");
     profile_table(out, part);
     let _ = writeln!(out, "</section>");
 }
 
-fn layer_table(out: &mut String, part: &SitePart) {
+fn layer_table(out: &mut String, part: &SitePart, counts: &[usize]) {
     let _ = writeln!(
         out,
         "<h3>Layers</h3>\n<table>\n<thead><tr><th>marker</th><th>layer</th><th>sand / silt / clay, %</th>\
@@ -455,72 +551,68 @@ fn layer_table(out: &mut String, part: &SitePart) {
             oc = num(l.organic_carbon_pct, 3),
             bd = num(l.bulk_density_g_cm3, 3),
             ks = num(l.ks_cm_per_day, DIGITS),
-            n = layer.samples.len(),
+            n = counts.get(index).copied().unwrap_or_default(),
         );
     }
     let _ = writeln!(out, "</tbody>\n</table>");
 }
 
-fn parameter_table(out: &mut String, s: &Snapshot, part: &SitePart) {
-    let _ = writeln!(
-        out,
-        "<h3>Fitted parameters</h3>\n<div class=\"wide\">\n<table>\n<thead><tr><th>sample</th><th>layer</th><th>model</th>\
-         <th>parameters ± standard error</th><th>RMSE, m³/m³</th><th>R²</th><th>AICc</th>\
-         <th>readings used / flagged / left out</th><th>θ at FC, m³/m³</th><th>θ at PWP, m³/m³</th>\
-         <th>available water, m³/m³</th><th>state</th></tr></thead>\n<tbody>"
-    );
-    for layer in &part.layers {
-        for m in &layer.samples {
-            let fit = m.fit.fit.as_ref();
-            let report = fit.and_then(|f| f.report.as_ref());
-            let values = m.fit.derived.as_ref().map(|d| &d.values);
-            let kind = match m.row.stored.sample.kind {
-                SampleKind::LabCore => "",
-                SampleKind::FieldPairing => " <span class=\"muted\">(field pairing)</span>",
-            };
-            let model = fit.map_or_else(
-                || NONE.to_string(),
-                |f| {
-                    let name = f
-                        .model
-                        .parse::<ModelKind>()
-                        .map_or_else(|_| escape(&f.model), |k| k.display_name().to_string());
-                    match f.requested.as_deref() {
-                        Some("auto") => {
-                            format!("{name}<br/><span class=\"muted\">auto: lowest AICc</span>")
-                        }
-                        _ => name,
+/// The parameter table's rows of the samples of `part` (a site of `s`, whole or a batch of
+/// its samples).
+pub fn parameter_rows(out: &mut String, s: &Snapshot, part: &SitePart) {
+    let samples = part
+        .layers
+        .iter()
+        .flat_map(|layer| layer.samples.iter().map(move |m| (layer, m)));
+    for (layer, m) in samples {
+        let fit = m.fit.fit.as_ref();
+        let report = fit.and_then(|f| f.report.as_ref());
+        let values = m.fit.derived.as_ref().map(|d| &d.values);
+        let kind = match m.row.stored.sample.kind {
+            SampleKind::LabCore => "",
+            SampleKind::FieldPairing => " <span class=\"muted\">(field pairing)</span>",
+        };
+        let model = fit.map_or_else(
+            || NONE.to_string(),
+            |f| {
+                let name = f
+                    .model
+                    .parse::<ModelKind>()
+                    .map_or_else(|_| escape(&f.model), |k| k.display_name().to_string());
+                match f.requested.as_deref() {
+                    Some("auto") => {
+                        format!("{name}<br/><span class=\"muted\">auto: lowest AICc</span>")
                     }
-                },
-            );
-            let _ = writeln!(
-                out,
-                "<tr><td class=\"code\">{code}{kind}</td><td class=\"layer\">{layer}</td><td class=\"model\">{model}</td><td class=\"params\">{params}</td>\
-                 <td class=\"num\">{rmse}</td><td class=\"num\">{r2}</td><td class=\"num\">{aicc}</td>\
-                 <td class=\"num\">{used} / {flagged} / {excluded}</td><td class=\"num\">{fc}</td>\
-                 <td class=\"num\">{pwp}</td><td class=\"num\">{aw}</td><td>{state}</td></tr>",
-                code = escape(&m.row.stored.sample.code),
-                layer = escape(&layer_label(layer)),
-                params = report.map_or_else(|| NONE.to_string(), parameters_cell),
-                rmse = num(report.map(|r| r.rmse), 3),
-                r2 = num(report.and_then(|r| r.r2), DIGITS),
-                aicc = num(report.and_then(|r| r.aicc), DIGITS),
-                used = fit.map_or_else(|| NONE.to_string(), |f| f.n_points.to_string()),
-                flagged = s.flagged_count(m),
-                excluded = s.excluded_count(m),
-                fc = num(values.and_then(|v| v.theta_field_capacity), DIGITS),
-                pwp = num(values.and_then(|v| v.theta_wilting_point), DIGITS),
-                aw = num(values.and_then(|v| v.plant_available_water), DIGITS),
-                state = state_cell(&m.fit.state),
-            );
-            out.push_str(&state_note(
-                &m.row.stored.sample.code,
-                &m.fit.state,
-                PARAMETER_COLUMNS,
-            ));
-        }
+                    _ => name,
+                }
+            },
+        );
+        let _ = writeln!(
+            out,
+            "<tr><td class=\"code\">{code}{kind}</td><td class=\"layer\">{layer}</td><td class=\"model\">{model}</td><td class=\"params\">{params}</td>\
+             <td class=\"num\">{rmse}</td><td class=\"num\">{r2}</td><td class=\"num\">{aicc}</td>\
+             <td class=\"num\">{used} / {flagged} / {excluded}</td><td class=\"num\">{fc}</td>\
+             <td class=\"num\">{pwp}</td><td class=\"num\">{aw}</td><td>{state}</td></tr>",
+            code = escape(&m.row.stored.sample.code),
+            layer = escape(&layer_label(layer)),
+            params = report.map_or_else(|| NONE.to_string(), parameters_cell),
+            rmse = num(report.map(|r| r.rmse), 3),
+            r2 = num(report.and_then(|r| r.r2), DIGITS),
+            aicc = num(report.and_then(|r| r.aicc), DIGITS),
+            used = fit.map_or_else(|| NONE.to_string(), |f| f.n_points.to_string()),
+            flagged = s.flagged_count(m),
+            excluded = s.excluded_count(m),
+            fc = num(values.and_then(|v| v.theta_field_capacity), DIGITS),
+            pwp = num(values.and_then(|v| v.theta_wilting_point), DIGITS),
+            aw = num(values.and_then(|v| v.plant_available_water), DIGITS),
+            state = state_cell(&m.fit.state),
+        );
+        out.push_str(&state_note(
+            &m.row.stored.sample.code,
+            &m.fit.state,
+            PARAMETER_COLUMNS,
+        ));
     }
-    let _ = writeln!(out, "</tbody>\n</table>\n</div>");
 }
 
 fn profile_table(out: &mut String, part: &SitePart) {
@@ -569,16 +661,14 @@ fn profile_table(out: &mut String, part: &SitePart) {
     );
 }
 
-fn flagged_section(out: &mut String, s: &Snapshot) {
+/// The heading of the flagged readings, and the table's head when `count` readings carry a
+/// flag (a line saying none does otherwise).
+pub fn flagged_start(count: usize) -> String {
+    let mut out = String::new();
     let _ = writeln!(out, "<h2 id=\"flagged\">Flagged readings</h2>");
-    let rows: Vec<_> = s
-        .samples()
-        .flat_map(|(site, _, m)| m.readings.iter().map(move |r| (site, m, r)))
-        .filter(|(_, _, r)| !s.flags_of(r.id).is_empty())
-        .collect();
-    if rows.is_empty() {
+    if count == 0 {
         let _ = writeln!(out, "<p>No reading carries a flag.</p>");
-        return;
+        return out;
     }
     let _ = writeln!(
         out,
@@ -589,7 +679,27 @@ fn flagged_section(out: &mut String, s: &Snapshot) {
          <th>θ, m³/m³</th><th>left out of fits</th><th>flag</th><th>check</th><th>reason</th>\
          <th>score</th><th>status</th><th>trail (UTC)</th></tr></thead>\n<tbody>"
     );
-    for (site, m, r) in rows {
+    out
+}
+
+/// The end of the flagged readings' table (nothing when no reading carries a flag).
+pub fn flagged_end(count: usize) -> String {
+    if count == 0 {
+        String::new()
+    } else {
+        "</tbody>\n</table>\n".to_string()
+    }
+}
+
+/// The rows of a snapshot's flagged readings, one per flag; returns how many readings carry
+/// a flag.
+pub fn flagged_rows(out: &mut String, s: &Snapshot) -> usize {
+    let rows: Vec<_> = s
+        .samples()
+        .flat_map(|(site, _, m)| m.readings.iter().map(move |r| (site, m, r)))
+        .filter(|(_, _, r)| !s.flags_of(r.id).is_empty())
+        .collect();
+    for (site, m, r) in &rows {
         for f in s.flags_of(r.id) {
             let flag = &f.stored.flag;
             let _ = writeln!(
@@ -614,7 +724,7 @@ fn flagged_section(out: &mut String, s: &Snapshot) {
             );
         }
     }
-    let _ = writeln!(out, "</tbody>\n</table>");
+    rows.len()
 }
 
 /// `suggested by checks 2026-12-02 10:00; accepted by user 2026-12-03 09:12: "note"`.
@@ -685,7 +795,7 @@ fn citation(kind: ModelKind) -> &'static str {
     }
 }
 
-fn methods(out: &mut String, s: &Snapshot) {
+fn methods(out: &mut String, s: &Snapshot, models: &[ModelKind]) {
     let settings = &s.settings;
     let _ = writeln!(
         out,
@@ -695,12 +805,11 @@ fn methods(out: &mut String, s: &Snapshot) {
          water content θ in m³/m³; depths in cm below the surface; times in UTC.</p>\n\
          <h3>Retention models used</h3>"
     );
-    let models = models_in(s.samples().map(|(_, _, m)| m));
     if models.is_empty() {
         let _ = writeln!(out, "<p>No sample has a fit.</p>");
     } else {
         let _ = writeln!(out, "<ul>");
-        for kind in models {
+        for &kind in models {
             let params = kind
                 .params()
                 .iter()

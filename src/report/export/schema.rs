@@ -29,17 +29,18 @@
 //! path of the document, so such a change cannot go unnoticed).
 
 use std::collections::BTreeMap;
+use std::io::{self, Seek, SeekFrom, Write};
 
 use chrono::{DateTime, NaiveDate, SecondsFormat, Utc};
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
-use super::snapshot::{ReadingFlag, SamplePart, SitePart, Snapshot};
+use super::snapshot::{LayerPart, ReadingFlag, SamplePart, SitePart, Snapshot};
 use crate::analysis::water::LayerWater;
 use crate::fit::{FitReport, ParamEstimate, ParamMatrix, Termination};
 use crate::model::conductivity::{ConductivityForm, ConductivityModel};
 use crate::model::derived::DerivedValues;
-use crate::model::domain::{Branch, FlagOrigin, FlagStatus, LayerRef, SampleKind};
+use crate::model::domain::{Branch, FlagOrigin, FlagStatus, SampleKind};
 use crate::model::number::hex;
 use crate::store::fits::{FitState, Ranking, StoredFit};
 
@@ -459,8 +460,27 @@ impl CampaignDocument {
     }
 }
 
-impl From<&Snapshot> for CampaignData {
-    fn from(s: &Snapshot) -> Self {
+impl CampaignDocument {
+    /// The document without its sites, its fingerprint a placeholder of zeros: what
+    /// [`JsonStream`] writes around the sites it is given one at a time.
+    pub fn head(frame: &Snapshot, exported_at: DateTime<Utc>) -> Self {
+        Self {
+            format: FORMAT.to_string(),
+            schema_version: SCHEMA_VERSION,
+            program: ProgramInfo {
+                name: env!("CARGO_PKG_NAME").to_string(),
+                version: env!("CARGO_PKG_VERSION").to_string(),
+            },
+            exported_at: rfc3339(exported_at),
+            fingerprint_sha256: "0".repeat(64),
+            data: CampaignData::head(frame),
+        }
+    }
+}
+
+impl CampaignData {
+    /// Everything but the sites (campaign, scope, imports) of a snapshot.
+    pub fn head(s: &Snapshot) -> Self {
         Self {
             campaign: CampaignInfo {
                 name: s.settings.name.clone(),
@@ -487,18 +507,280 @@ impl From<&Snapshot> for CampaignData {
                     imported_at: rfc3339(b.imported_at),
                 })
                 .collect(),
-            sites: s.sites.iter().map(|site| site_data(s, site)).collect(),
+            sites: Vec::new(),
         }
     }
 }
 
-fn site_data(s: &Snapshot, part: &SitePart) -> SiteData {
-    let site = &part.row.stored.site;
-    let water_of = |at: &LayerRef| -> Option<&LayerWater> {
-        part.profile
-            .as_ref()
-            .and_then(|p| p.layers.iter().find(|w| w.layer.same_as(at)))
+impl From<&Snapshot> for CampaignData {
+    fn from(s: &Snapshot) -> Self {
+        Self {
+            sites: s.sites.iter().map(|site| site_data(s, site)).collect(),
+            ..Self::head(s)
+        }
+    }
+}
+
+/// Feeds what is written to a SHA-256.
+struct HashWriter<'a>(&'a mut Sha256);
+
+impl Write for HashWriter<'_> {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        self.0.update(buf);
+        Ok(buf.len())
+    }
+
+    fn flush(&mut self) -> io::Result<()> {
+        Ok(())
+    }
+}
+
+/// Writes through, indenting every line after the first (pretty JSON at a depth).
+struct Indented<'a, W: Write> {
+    out: &'a mut W,
+    indent: &'a [u8],
+}
+
+impl<W: Write> Write for Indented<'_, W> {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        let mut lines = buf.split(|&b| b == b'\n');
+        if let Some(first) = lines.next() {
+            self.out.write_all(first)?;
+        }
+        for line in lines {
+            self.out.write_all(b"\n")?;
+            self.out.write_all(self.indent)?;
+            self.out.write_all(line)?;
+        }
+        Ok(buf.len())
+    }
+
+    fn flush(&mut self) -> io::Result<()> {
+        self.out.flush()
+    }
+}
+
+/// Two spaces a level, as `serde_json`'s pretty printer indents.
+fn indent(depth: usize) -> Vec<u8> {
+    vec![b' '; 2 * depth]
+}
+
+/// An open array of the document: what closes it and its element, and how deep its elements
+/// sit.
+#[derive(Debug)]
+struct Level {
+    /// The text from the array's `]` to the end of its element, pretty and compact.
+    pretty_tail: String,
+    compact_tail: String,
+    /// Elements written so far.
+    count: usize,
+    /// Depth of the array's elements.
+    depth: usize,
+    /// Depth of the element that holds the array.
+    outer: usize,
+}
+
+/// `campaign.json` written one piece at a time, so memory holds one batch of samples rather
+/// than the campaign; the bytes are those of [`to_json`] on the whole [`CampaignDocument`].
+///
+/// The document is written as its nesting is walked: [`JsonStream::open`] a site (from
+/// [`site_head`], its `layers` empty), open a layer (from [`layer_head`]), add its samples
+/// with [`JsonStream::item`], [`JsonStream::close`] each. Every piece is written pretty as it
+/// is serialised, each line indented to its depth (pretty JSON breaks lines only between
+/// tokens, never inside a string), and fed compact to the SHA-256 of `data`; the
+/// fingerprint, known at the end, overwrites the placeholder in the head. Without an output
+/// it only computes the fingerprint.
+#[derive(Debug)]
+pub struct JsonStream<W: Write + Seek> {
+    out: Option<W>,
+    hasher: Sha256,
+    placeholder: u64,
+    stack: Vec<Level>,
+}
+
+/// `text` split at the empty array of member `key`, the last one (an element's array is its
+/// last member): up to and including `[`, and from `]`. A `"` inside a string is escaped, so
+/// the mark cannot be part of a user's text.
+fn split_at_array<'t>(text: &'t str, key: &str, pretty: bool) -> io::Result<(&'t str, &'t str)> {
+    let mark = if pretty {
+        format!("\"{key}\": []")
+    } else {
+        format!("\"{key}\":[]")
     };
+    let at = text
+        .rfind(&mark)
+        .ok_or_else(|| io::Error::other(format!("no empty {key} member to fill")))?;
+    Ok(text.split_at(at + mark.len() - 1))
+}
+
+impl<W: Write + Seek> JsonStream<W> {
+    /// Write the head of the document (from [`CampaignDocument::head`]), up to its sites.
+    ///
+    /// # Errors
+    /// Writing fails, or the head does not encode.
+    pub fn start(mut out: Option<W>, head: &CampaignDocument) -> io::Result<Self> {
+        let pretty = serde_json::to_string_pretty(head)?;
+        let (before, pretty_tail) = split_at_array(&pretty, "sites", true)?;
+        let key = "\"fingerprint_sha256\": \"";
+        let placeholder = before
+            .find(key)
+            .map(|at| (at + key.len()) as u64)
+            .ok_or_else(|| io::Error::other("the document has no fingerprint member"))?;
+        if let Some(out) = out.as_mut() {
+            out.write_all(before.as_bytes())?;
+        }
+        let compact = serde_json::to_string(&head.data)?;
+        let (compact_before, compact_tail) = split_at_array(&compact, "sites", false)?;
+        let mut hasher = Sha256::new();
+        hasher.update(compact_before.as_bytes());
+        Ok(Self {
+            out,
+            hasher,
+            placeholder,
+            // The document, its `data` (depth 1), and `data.sites` whose elements are at 3.
+            stack: vec![Level {
+                pretty_tail: pretty_tail.to_string(),
+                compact_tail: compact_tail.to_string(),
+                count: 0,
+                depth: 3,
+                outer: 0,
+            }],
+        })
+    }
+
+    /// The separator and indentation before the next element of the innermost array.
+    fn next_element(&mut self) -> io::Result<usize> {
+        let level = self
+            .stack
+            .last_mut()
+            .ok_or_else(|| io::Error::other("the document is closed"))?;
+        let first = level.count == 0;
+        level.count += 1;
+        let depth = level.depth;
+        if !first {
+            self.hasher.update(b",");
+        }
+        if let Some(out) = self.out.as_mut() {
+            out.write_all(if first { b"\n" } else { b",\n" })?;
+            out.write_all(&indent(depth))?;
+        }
+        Ok(depth)
+    }
+
+    /// Write `text` (pretty, indented from its second line) at `depth`.
+    fn write_at(&mut self, depth: usize, text: &str) -> io::Result<()> {
+        if let Some(out) = self.out.as_mut() {
+            Indented {
+                out,
+                indent: &indent(depth),
+            }
+            .write_all(text.as_bytes())?;
+        }
+        Ok(())
+    }
+
+    /// Add an element to the innermost array, leaving its last member, the array `key`
+    /// (empty in `head`), open for elements of its own.
+    ///
+    /// # Errors
+    /// Writing fails, or `head` has no empty `key` member.
+    pub fn open<T: Serialize>(&mut self, head: &T, key: &str) -> io::Result<()> {
+        let depth = self.next_element()?;
+        let pretty = serde_json::to_string_pretty(head)?;
+        let (before, pretty_tail) = split_at_array(&pretty, key, true)?;
+        self.write_at(depth, before)?;
+        let compact = serde_json::to_string(head)?;
+        let (compact_before, compact_tail) = split_at_array(&compact, key, false)?;
+        self.hasher.update(compact_before.as_bytes());
+        self.stack.push(Level {
+            pretty_tail: pretty_tail.to_string(),
+            compact_tail: compact_tail.to_string(),
+            count: 0,
+            depth: depth + 2,
+            outer: depth,
+        });
+        Ok(())
+    }
+
+    /// Add a whole element to the innermost array.
+    ///
+    /// # Errors
+    /// Writing fails.
+    pub fn item<T: Serialize>(&mut self, value: &T) -> io::Result<()> {
+        let depth = self.next_element()?;
+        serde_json::to_writer(HashWriter(&mut self.hasher), value)?;
+        if let Some(out) = self.out.as_mut() {
+            serde_json::to_writer_pretty(
+                Indented {
+                    out,
+                    indent: &indent(depth),
+                },
+                value,
+            )?;
+        }
+        Ok(())
+    }
+
+    /// Close the innermost array and the element that holds it.
+    ///
+    /// # Errors
+    /// Writing fails, or nothing is open.
+    pub fn close(&mut self) -> io::Result<()> {
+        let level = self
+            .stack
+            .pop()
+            .ok_or_else(|| io::Error::other("nothing to close"))?;
+        if let Some(out) = self.out.as_mut()
+            && level.count > 0
+        {
+            out.write_all(b"\n")?;
+            out.write_all(&indent(level.depth - 1))?;
+        }
+        self.write_at(level.outer, &level.pretty_tail)?;
+        self.hasher.update(level.compact_tail.as_bytes());
+        Ok(())
+    }
+
+    /// Close the document, write the fingerprint into the head, and hand back the output
+    /// with the fingerprint.
+    ///
+    /// # Errors
+    /// Writing fails, or an element is still open.
+    pub fn finish(mut self) -> io::Result<(String, Option<W>)> {
+        if self.stack.len() != 1 {
+            return Err(io::Error::other("an element of the document is still open"));
+        }
+        self.close()?;
+        let fingerprint = hex(&self.hasher.finalize());
+        if let Some(out) = self.out.as_mut() {
+            out.write_all(b"\n")?;
+            let end = out.stream_position()?;
+            out.seek(SeekFrom::Start(self.placeholder))?;
+            out.write_all(fingerprint.as_bytes())?;
+            out.seek(SeekFrom::Start(end))?;
+        }
+        Ok((fingerprint, self.out))
+    }
+}
+
+/// One site of a snapshot as it appears in `data.sites`.
+pub fn site_data(s: &Snapshot, part: &SitePart) -> SiteData {
+    SiteData {
+        layers: part
+            .layers
+            .iter()
+            .map(|l| LayerData {
+                samples: l.samples.iter().map(|m| sample_data(s, m)).collect(),
+                ..layer_head(part, l)
+            })
+            .collect(),
+        ..site_head(part)
+    }
+}
+
+/// A site without its layers (`"layers": []`).
+pub fn site_head(part: &SitePart) -> SiteData {
+    let site = &part.row.stored.site;
     SiteData {
         code: site.code.clone(),
         name: site.name.clone(),
@@ -513,35 +795,39 @@ fn site_data(s: &Snapshot, part: &SitePart) -> SiteData {
             covered_cm: p.covered_cm,
             uncovered_cm: p.uncovered_cm(),
         }),
-        layers: part
-            .layers
-            .iter()
-            .map(|l| {
-                let layer = &l.row.stored.layer;
-                LayerData {
-                    top_cm: layer.at.top_cm,
-                    bottom_cm: layer.at.bottom_cm,
-                    horizon: layer.horizon.clone(),
-                    sand_pct: layer.sand_pct,
-                    silt_pct: layer.silt_pct,
-                    clay_pct: layer.clay_pct,
-                    organic_carbon_pct: layer.organic_carbon_pct,
-                    bulk_density_g_cm3: layer.bulk_density_g_cm3,
-                    ks_cm_per_day: layer.ks_cm_per_day,
-                    uid: layer.uid.to_string(),
-                    water: water_of(&layer.at).map(|w| LayerWaterData {
-                        lab_cores: w.lab_cores,
-                        fitted_cores: w.fitted_cores,
-                        stale_cores: w.stale_cores,
-                        available_water_m3_m3: w.available_water,
-                        field_available_water_m3_m3: w.field_available_water,
-                        depth_in_root_zone_cm: w.depth_in_zone_cm,
-                        water_mm: w.water_mm,
-                    }),
-                    samples: l.samples.iter().map(|m| sample_data(s, m)).collect(),
-                }
-            })
-            .collect(),
+        layers: Vec::new(),
+    }
+}
+
+/// A layer of a site without its samples (`"samples": []`); its water from the site's
+/// profile.
+pub fn layer_head(part: &SitePart, l: &LayerPart) -> LayerData {
+    let layer = &l.row.stored.layer;
+    let water: Option<&LayerWater> = part
+        .profile
+        .as_ref()
+        .and_then(|p| p.layers.iter().find(|w| w.layer.same_as(&layer.at)));
+    LayerData {
+        top_cm: layer.at.top_cm,
+        bottom_cm: layer.at.bottom_cm,
+        horizon: layer.horizon.clone(),
+        sand_pct: layer.sand_pct,
+        silt_pct: layer.silt_pct,
+        clay_pct: layer.clay_pct,
+        organic_carbon_pct: layer.organic_carbon_pct,
+        bulk_density_g_cm3: layer.bulk_density_g_cm3,
+        ks_cm_per_day: layer.ks_cm_per_day,
+        uid: layer.uid.to_string(),
+        water: water.map(|w| LayerWaterData {
+            lab_cores: w.lab_cores,
+            fitted_cores: w.fitted_cores,
+            stale_cores: w.stale_cores,
+            available_water_m3_m3: w.available_water,
+            field_available_water_m3_m3: w.field_available_water,
+            depth_in_root_zone_cm: w.depth_in_zone_cm,
+            water_mm: w.water_mm,
+        }),
+        samples: Vec::new(),
     }
 }
 
@@ -572,7 +858,8 @@ fn flag_data(f: &ReadingFlag) -> FlagData {
     }
 }
 
-fn sample_data(s: &Snapshot, part: &SamplePart) -> SampleData {
+/// One sample of a snapshot as it appears in a layer's `samples`.
+pub fn sample_data(s: &Snapshot, part: &SamplePart) -> SampleData {
     let sample = &part.row.stored.sample;
     let fit = part.fit.fit.as_ref();
     let used = |id: i64| fit.is_some_and(|f| f.reading_ids.contains(&id));

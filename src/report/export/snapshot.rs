@@ -1,15 +1,15 @@
 //! Everything an export writes, read from the campaign file once, so that every file of one
 //! export describes the same state of the campaign.
 
-use std::collections::{BTreeMap, BTreeSet};
+use std::collections::{BTreeMap, BTreeSet, HashMap};
 
 use rusqlite::Connection;
 
-use crate::analysis::{SampleFit, SiteProfile, profiles, sample_fits_with};
+use crate::analysis::{SampleFit, SiteProfile, derive_fit, profiles};
 use crate::model::conductivity::ConductivityForm;
 use crate::model::retention::ModelKind;
 use crate::store::batches::{self, ImportBatchRecord};
-use crate::store::fits::Selection;
+use crate::store::fits::{self, FitState, FitSummary, SampleInfo, Selection};
 use crate::store::flags::{self, FlagEvent, FlagFilter, Mark, StoredFlag, Subject};
 use crate::store::layers::{self, LayerRow};
 use crate::store::readings::{self, StoredReading};
@@ -40,7 +40,8 @@ pub struct LayerPart {
 pub struct SamplePart {
     /// The sample as stored.
     pub row: SampleRow,
-    /// Its current fit, standing and derived values (from [`sample_fits`]).
+    /// Its current fit, standing and derived values (as [`crate::analysis::sample_fits`]
+    /// gives them).
     pub fit: SampleFit,
     /// Its readings, by suction.
     pub readings: Vec<StoredReading>,
@@ -168,9 +169,11 @@ fn reading_flags(conn: &Connection, site: Option<&str>) -> Result<BTreeMap<i64, 
     Ok(out)
 }
 
-/// Read the campaign (or one site of it) for an export.
+/// Read the campaign (or one site of it) for an export, all of it at once.
 ///
-/// `progress(done, total)` counts samples as they are put together.
+/// `progress(done, total)` counts samples as they are put together. An export itself reads
+/// one batch of samples at a time ([`frame`], then per site [`walk_site`] and
+/// [`SiteWalk::read_batch`]); this is the same content in one value.
 ///
 /// # Errors
 /// An unknown site code, an SQLite error, or a stored fit that does not decode.
@@ -181,100 +184,303 @@ pub fn read(
     conductivity: Option<ConductivityForm>,
     progress: &dyn Fn(usize, usize),
 ) -> Result<Snapshot> {
+    let mut whole = frame(conn, site, root_zone_cm, conductivity)?;
+    let total = sample_total(conn, site)?;
+    let done = std::cell::Cell::new(0);
+    for row in sites::list(conn, site)? {
+        let walk = walk_site(conn, &whole, row)?;
+        let mut part = walk.head();
+        for (index, layer) in part.layers.iter_mut().enumerate() {
+            let batch = walk.read_batch(conn, &whole, index, walk.samples_of(index), &|| {
+                done.set(done.get() + 1);
+                progress(done.get(), total);
+            })?;
+            whole.flags.extend(batch.flags);
+            whole.marks.extend(batch.marks);
+            layer.samples = batch
+                .sites
+                .into_iter()
+                .flat_map(|s| s.layers)
+                .flat_map(|l| l.samples)
+                .collect();
+        }
+        whole.sites.push(part);
+    }
+    Ok(whole)
+}
+
+/// What every site of an export shares: settings, scope and imports, without any site.
+///
+/// # Errors
+/// An unknown site code, or an SQLite error.
+pub fn frame(
+    conn: &Connection,
+    site: Option<&str>,
+    root_zone_cm: f64,
+    conductivity: Option<ConductivityForm>,
+) -> Result<Snapshot> {
     let selection = Selection {
         site: site.map(str::to_string),
         ..Selection::default()
     };
     selection.check(conn)?;
-    let settings = campaign::settings(conn)?;
-    let filter = Filter { site, sample: None };
-    let mut fits: BTreeMap<i64, SampleFit> =
-        sample_fits_with(conn, &settings, &selection, conductivity)?
-            .into_iter()
-            .map(|f| (f.sample.id, f))
-            .collect();
-    let mut readings_by_sample: BTreeMap<i64, Vec<StoredReading>> = BTreeMap::new();
-    for row in readings::list(conn, filter)? {
-        readings_by_sample
-            .entry(row.stored.sample_id)
-            .or_default()
-            .push(row.stored);
-    }
-    let mut samples_by_layer: BTreeMap<i64, Vec<SampleRow>> = BTreeMap::new();
-    for row in samples::list(conn, filter)? {
-        samples_by_layer
-            .entry(row.stored.layer_id)
-            .or_default()
-            .push(row);
-    }
-    let mut layers_by_site: BTreeMap<i64, Vec<LayerRow>> = BTreeMap::new();
-    for row in layers::list(conn, site)? {
-        layers_by_site
-            .entry(row.stored.site_id)
-            .or_default()
-            .push(row);
-    }
-    let mut profiles_by_site: BTreeMap<String, SiteProfile> =
-        profiles(conn, &settings, root_zone_cm, site)?
-            .into_iter()
-            .map(|p| (p.site.clone(), p))
-            .collect();
-    let total = fits.len();
-    let mut done = 0;
-    let mut parts = Vec::new();
-    for row in sites::list(conn, site)? {
-        let mut layers = Vec::new();
-        for layer in layers_by_site.remove(&row.stored.id).unwrap_or_default() {
-            let mut samples = Vec::new();
-            for sample in samples_by_layer
-                .remove(&layer.stored.id)
-                .unwrap_or_default()
-            {
-                let id = sample.stored.id;
-                let fit = fits.remove(&id).ok_or_else(|| {
-                    StoreError::Corrupt(format!("sample {id} has no fit standing"))
-                })?;
-                samples.push(SamplePart {
-                    row: sample,
-                    fit,
-                    readings: readings_by_sample.remove(&id).unwrap_or_default(),
-                });
-                done += 1;
-                progress(done, total);
-            }
-            layers.push(LayerPart {
-                row: layer,
-                samples,
-            });
-        }
-        let profile = profiles_by_site.remove(&row.stored.site.code);
-        parts.push(SitePart {
-            row,
-            layers,
-            profile,
-        });
-    }
-    let flags = reading_flags(conn, site)?;
-    let ids: BTreeSet<i64> = parts
-        .iter()
-        .flat_map(|s| &s.layers)
-        .flat_map(|l| &l.samples)
-        .flat_map(|m| m.readings.iter().map(|r| r.id))
-        .collect();
-    let marks: BTreeMap<i64, Mark> = flags::reading_marks(conn)?
-        .into_iter()
-        .filter(|(id, _)| ids.contains(id))
-        .collect();
     Ok(Snapshot {
-        settings,
+        settings: campaign::settings(conn)?,
         site_filter: site.map(str::to_string),
         root_zone_cm,
         conductivity,
-        sites: parts,
+        sites: Vec::new(),
         imports: batches::all(conn)?,
-        flags,
-        marks,
+        flags: BTreeMap::new(),
+        marks: BTreeMap::new(),
     })
+}
+
+/// One site as an export walks it: the site, its layers with their sample rows, its profile,
+/// the fit standing of its samples and the flags on its readings; the heavy parts (readings,
+/// fits with their reports) are read a batch of samples at a time by
+/// [`SiteWalk::read_batch`]. A few hundred bytes a sample, plus its flags.
+#[derive(Debug)]
+pub struct SiteWalk {
+    row: SiteRow,
+    layers: Vec<(LayerRow, Vec<SampleRow>)>,
+    profile: Option<SiteProfile>,
+    infos: HashMap<i64, SampleInfo>,
+    summaries: HashMap<i64, FitSummary>,
+    flags: BTreeMap<i64, Vec<ReadingFlag>>,
+}
+
+/// Start walking one site of an export.
+///
+/// # Errors
+/// An SQLite error, or a stored fit that does not decode (for the profile).
+pub fn walk_site(conn: &Connection, frame: &Snapshot, row: SiteRow) -> Result<SiteWalk> {
+    let code = row.stored.site.code.clone();
+    let selection = Selection {
+        site: Some(code.clone()),
+        ..Selection::default()
+    };
+    let infos = fits::samples(conn, &selection)?;
+    let summaries = fits::summaries(conn, &infos)?;
+    let mut samples_by_layer: BTreeMap<i64, Vec<SampleRow>> = BTreeMap::new();
+    for sample in samples::list(
+        conn,
+        Filter {
+            site: Some(&code),
+            sample: None,
+        },
+    )? {
+        samples_by_layer
+            .entry(sample.stored.layer_id)
+            .or_default()
+            .push(sample);
+    }
+    let layers = layers::list(conn, Some(&code))?
+        .into_iter()
+        .map(|layer| {
+            let samples = samples_by_layer
+                .remove(&layer.stored.id)
+                .unwrap_or_default();
+            (layer, samples)
+        })
+        .collect();
+    let profile = profiles(conn, &frame.settings, frame.root_zone_cm, Some(&code))?
+        .into_iter()
+        .find(|p| p.site == code);
+    Ok(SiteWalk {
+        row,
+        layers,
+        profile,
+        infos: infos.into_iter().map(|i| (i.id, i)).collect(),
+        summaries,
+        flags: reading_flags(conn, Some(&code))?,
+    })
+}
+
+impl SiteWalk {
+    /// The site with its layers and profile, each layer without samples.
+    pub fn head(&self) -> SitePart {
+        SitePart {
+            row: self.row.clone(),
+            layers: self
+                .layers
+                .iter()
+                .map(|(row, _)| LayerPart {
+                    row: row.clone(),
+                    samples: Vec::new(),
+                })
+                .collect(),
+            profile: self.profile.clone(),
+        }
+    }
+
+    /// The sample rows of the layer at `index` (top down), by code.
+    pub fn samples_of(&self, index: usize) -> &[SampleRow] {
+        self.layers.get(index).map_or(&[], |(_, s)| s.as_slice())
+    }
+
+    /// How many samples each layer has, top down.
+    pub fn sample_counts(&self) -> Vec<usize> {
+        self.layers.iter().map(|(_, s)| s.len()).collect()
+    }
+
+    /// A snapshot of these samples (of the layer at `index`): the frame's settings and scope,
+    /// this site with that one layer and these samples (readings, current fit, standing and
+    /// derived values), and the flags of their readings. `progress()` is called per sample.
+    ///
+    /// # Errors
+    /// An SQLite error, or a stored fit that does not decode.
+    pub fn read_batch(
+        &self,
+        conn: &Connection,
+        frame: &Snapshot,
+        index: usize,
+        rows: &[SampleRow],
+        progress: &dyn Fn(),
+    ) -> Result<Snapshot> {
+        let Some((layer, _)) = self.layers.get(index) else {
+            return Err(StoreError::Corrupt(format!(
+                "no layer {index} in this site"
+            )));
+        };
+        let ks = layer.stored.layer.ks_cm_per_day;
+        let mut samples = Vec::with_capacity(rows.len());
+        let mut flags = BTreeMap::new();
+        let mut marks = BTreeMap::new();
+        for row in rows {
+            let id = row.stored.id;
+            let info =
+                self.infos.get(&id).cloned().ok_or_else(|| {
+                    StoreError::Corrupt(format!("sample {id} has no fit standing"))
+                })?;
+            let state = self
+                .summaries
+                .get(&id)
+                .map_or(FitState::None, |s| s.state.clone());
+            let fit = fits::current(conn, id)?;
+            let derived = fit
+                .as_ref()
+                .and_then(|f| {
+                    derive_fit(
+                        f.report.as_ref()?,
+                        &frame.settings,
+                        ks,
+                        frame.conductivity.or(f.conductivity),
+                    )
+                });
+            let readings = readings::of_sample(conn, id)?;
+            for r in &readings {
+                if let Some(list) = self.flags.get(&r.id) {
+                    if let Some(mark) = list
+                        .iter()
+                        .map(|f| Mark::of(f.stored.flag.status, f.stored.flag.origin))
+                        .max()
+                    {
+                        marks.insert(r.id, mark);
+                    }
+                    flags.insert(r.id, list.clone());
+                }
+            }
+            samples.push(SamplePart {
+                row: row.clone(),
+                fit: SampleFit {
+                    sample: info,
+                    state,
+                    fit,
+                    derived,
+                },
+                readings,
+            });
+            progress();
+        }
+        Ok(Snapshot {
+            settings: frame.settings.clone(),
+            site_filter: frame.site_filter.clone(),
+            root_zone_cm: frame.root_zone_cm,
+            conductivity: frame.conductivity,
+            sites: vec![SitePart {
+                row: self.row.clone(),
+                layers: vec![LayerPart {
+                    row: layer.clone(),
+                    samples,
+                }],
+                profile: None,
+            }],
+            imports: Vec::new(),
+            flags,
+            marks,
+        })
+    }
+}
+
+/// Counts over a site's samples, gathered a batch at a time: what the GeoJSON properties and
+/// the page's table of sites say about a site.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct SiteTally {
+    /// Samples.
+    pub samples: usize,
+    /// Readings.
+    pub readings: usize,
+    /// Readings with an open suggestion or left out of fits.
+    pub flagged: usize,
+    /// Readings left out of fits.
+    pub excluded: usize,
+    /// Samples whose current fit is current.
+    pub current: usize,
+    /// Samples whose current fit is stale.
+    pub stale: usize,
+    /// Samples without a usable fit (never fitted, or every attempt failed).
+    pub unfitted: usize,
+    /// Model identifiers of the current fits.
+    pub models: BTreeSet<String>,
+}
+
+impl SiteTally {
+    /// Count a snapshot's samples.
+    pub fn add(&mut self, s: &Snapshot) {
+        for (_, _, m) in s.samples() {
+            self.samples += 1;
+            self.readings += m.readings.len();
+            self.flagged += s.flagged_count(m);
+            self.excluded += s.excluded_count(m);
+            match &m.fit.state {
+                FitState::Current => self.current += 1,
+                FitState::Stale(_) => self.stale += 1,
+                FitState::None | FitState::Failed(_) => self.unfitted += 1,
+            }
+            if let Some(f) = &m.fit.fit {
+                self.models.insert(f.model.clone());
+            }
+        }
+    }
+
+    /// The known models among [`SiteTally::models`], in the order of the model table.
+    pub fn model_kinds(&self) -> Vec<ModelKind> {
+        ModelKind::ALL
+            .into_iter()
+            .filter(|k| self.models.contains(k.id()))
+            .collect()
+    }
+}
+
+/// The models of the current fits an export covers, in the order of the model table (the
+/// parameter columns of `parameters.csv` are their union).
+///
+/// # Errors
+/// An SQLite error.
+pub fn current_models(conn: &Connection, site: Option<&str>) -> Result<Vec<ModelKind>> {
+    let mut stmt = conn.prepare(
+        "SELECT DISTINCT f.model FROM fit f JOIN sample m ON f.sample_id = m.id
+         JOIN layer l ON m.layer_id = l.id JOIN site s ON l.site_id = s.id
+         WHERE f.is_current = 1 AND (?1 IS NULL OR s.code = ?1)",
+    )?;
+    let used = stmt
+        .query_map([site], |r| r.get::<_, String>(0))?
+        .collect::<rusqlite::Result<BTreeSet<String>>>()?;
+    Ok(ModelKind::ALL
+        .into_iter()
+        .filter(|k| used.contains(k.id()))
+        .collect())
 }
 
 /// How many samples an export of the campaign (or of one site) covers.

@@ -126,7 +126,14 @@ pub fn parameters_header(params: &[String]) -> Vec<String> {
 /// Only if the CSV writer fails on memory.
 pub fn parameters_csv(snapshot: &Snapshot) -> Result<String, csv::Error> {
     let params = parameter_columns(snapshot);
-    let header = parameters_header(&params);
+    write_csv(
+        &parameters_header(&params),
+        &parameter_rows(snapshot, &params),
+    )
+}
+
+/// The rows of `parameters.csv` for a snapshot's samples, with these parameter columns.
+pub fn parameter_rows(snapshot: &Snapshot, params: &[String]) -> Vec<Vec<String>> {
     let mut rows = Vec::new();
     for (_, layer, part) in snapshot.samples() {
         let at = &layer.row.stored.layer.at;
@@ -171,7 +178,7 @@ pub fn parameters_csv(snapshot: &Snapshot) -> Result<String, csv::Error> {
         ]);
         rows.push(row);
     }
-    write_csv(&header, &rows)
+    rows
 }
 
 /// The reasons of a stale fit or the message of a failed one; empty otherwise.
@@ -196,6 +203,11 @@ pub fn state_detail(state: &crate::store::fits::FitState) -> String {
 /// Only if the CSV writer fails on memory.
 pub fn profiles_csv(snapshot: &Snapshot) -> Result<String, csv::Error> {
     let header: Vec<String> = PROFILE_COLUMNS.iter().map(ToString::to_string).collect();
+    write_csv(&header, &profile_rows(snapshot))
+}
+
+/// The rows of `profiles.csv` for a snapshot's sites.
+pub fn profile_rows(snapshot: &Snapshot) -> Vec<Vec<String>> {
     let mut rows = Vec::new();
     for profile in snapshot.sites.iter().filter_map(|s| s.profile.as_ref()) {
         let zone = format_number(profile.root_zone_cm);
@@ -236,5 +248,5 @@ pub fn profiles_csv(snapshot: &Snapshot) -> Result<String, csv::Error> {
             format_number(profile.uncovered_cm()),
         ]);
     }
-    write_csv(&header, &rows)
+    rows
 }
