@@ -1066,6 +1066,7 @@ fn brooks_corey_fits_carry_their_conductivity_form_into_the_export() {
         .assert()
         .code(1);
     assert!(stderr(&plain).contains("--conductivity applies to the fits of a campaign"));
+}
 
 #[test]
 fn batches_write_what_the_whole_campaign_renders() {
@@ -1135,7 +1136,7 @@ fn batches_write_what_the_whole_campaign_renders() {
         |name: &str| String::from_utf8(export.file(name).expect(name).to_vec()).expect("utf-8");
 
     // The same campaign read whole and rendered whole.
-    let snap = snapshot::read(conn, None, 100.0, &|_, _| {}).expect("snapshot");
+    let snap = snapshot::read(conn, None, 100.0, None, &|_, _| {}).expect("snapshot");
     assert_eq!(snap.sample_count(), export.samples);
     let doc = CampaignDocument::new(&snap, at);
     assert_eq!(export.fingerprint, doc.fingerprint_sha256);

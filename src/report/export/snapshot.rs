@@ -358,16 +358,14 @@ impl SiteWalk {
                 .get(&id)
                 .map_or(FitState::None, |s| s.state.clone());
             let fit = fits::current(conn, id)?;
-            let derived = fit
-                .as_ref()
-                .and_then(|f| {
-                    derive_fit(
-                        f.report.as_ref()?,
-                        &frame.settings,
-                        ks,
-                        frame.conductivity.or(f.conductivity),
-                    )
-                });
+            let derived = fit.as_ref().and_then(|f| {
+                derive_fit(
+                    f.report.as_ref()?,
+                    &frame.settings,
+                    ks,
+                    frame.conductivity.or(f.conductivity),
+                )
+            });
             let readings = readings::of_sample(conn, id)?;
             for r in &readings {
                 if let Some(list) = self.flags.get(&r.id) {
