@@ -118,7 +118,11 @@ fn fredlund_xing_ln_core(h: f64, a: f64, n: f64) -> f64 {
 fn fredlund_xing_values(x: &[f64], _: &[f64]) -> [Vec<f64>; 4] {
     let (lo, hi) = suction_span(x);
     [
-        decades(lo / 3.0, hi * 3.0, 0.01, 1e6, 2.0),
+        merge_close(
+            gaps(x, 0.01, 1e6),
+            &decades(lo / 3.0, hi * 3.0, 0.01, 1e6, 2.0),
+            1.25,
+        ),
         vec![0.4, 0.8, 1.5, 3.0, 6.0, 12.0, 20.0],
         vec![0.03, 0.1, 0.3, 0.7, 1.5, 3.5, 8.0],
         vec![1.0, 10.0, 100.0, 1e3, 1e4, 1e5, 1e6, H_DRY_CM],

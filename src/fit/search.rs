@@ -564,7 +564,20 @@ pub(crate) fn factored_starts(
         }
     }
     let strides = strides_of(&dims);
-    local_minima(&sse, &dims, keep)
+    // The correction's parameter trades off against the whole shape, so the best point of
+    // every value it takes is a start too, besides the grid's best local minima.
+    let mut chosen = local_minima(&sse, &dims, keep);
+    for ic in 0..dims[3] {
+        let best = (0..total)
+            .filter(|&flat| flat % dims[3] == ic && sse[flat].is_finite())
+            .min_by(|&a, &b| sse[a].total_cmp(&sse[b]));
+        if let Some(flat) = best
+            && !chosen.contains(&flat)
+        {
+            chosen.push(flat);
+        }
+    }
+    chosen
         .into_iter()
         .map(|flat| {
             let mut p = base.to_vec();
