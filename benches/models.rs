@@ -255,12 +255,13 @@ fn env_usize(name: &str, default: usize) -> usize {
         .unwrap_or(default)
 }
 
-/// Whether the fit's message warns that it may not be the best fit.
+/// Whether the fit's message warns that it may not be the best fit (a rival minimum, too few
+/// degrees of freedom to tell minima apart, or no convergence).
 fn warns(r: &FitReport) -> bool {
     !r.converged
         || r.message
             .as_deref()
-            .is_some_and(|m| m.contains("several minima") || m.contains("not converged"))
+            .is_some_and(|m| m.contains("minima") || m.contains("not converged"))
 }
 
 fn main() {

@@ -729,7 +729,7 @@ impl Screen {
     /// How many of the rough solutions from the screened starts are solved fully.
     fn polish(self) -> usize {
         match self {
-            Screen::Grid { .. } => 2,
+            Screen::Grid { .. } => 3,
             Screen::Probes { .. } => 1,
             Screen::Mixture { .. } | Screen::Factored { .. } => 3,
         }
@@ -1372,6 +1372,13 @@ fn build_report(
     }
     if let Some(note) = several_minima_note(&ctx.found[..ctx.found_count], best.sse) {
         notes.push(note);
+    } else if dof <= 1 && k >= 3 {
+        // One reading more than parameters: the readings barely pin the curve down, and
+        // other parameter sets often fit them about as well.
+        notes.push(format!(
+            "{dof} degree{} of freedom ({n} readings, {k} free parameters): other minima may fit the readings about as well",
+            if dof == 1 { "" } else { "s" }
+        ));
     }
     let names: Vec<String> = cov_params
         .iter()

@@ -69,10 +69,16 @@ fn decades(lo: f64, hi: f64, min: f64, max: f64, per_decade: f64) -> Vec<f64> {
 
 fn kosugi_axes(x: &[f64], _: &[f64]) -> Vec<Axis> {
     let (lo, hi) = suction_span(x);
+    // The readings' range more finely, and out to the bounds (a very wide curve centred far
+    // outside the readings is sometimes the best fit).
+    let mut h_m = decades(lo / 10.0, hi * 10.0, 0.01, 1e6, 3.0);
+    h_m.extend([0.01, 1e6]);
+    h_m.sort_by(f64::total_cmp);
+    h_m.dedup();
     vec![
         Axis {
             param: 2,
-            values: decades(lo / 10.0, hi * 10.0, 0.01, 1e6, 3.0),
+            values: h_m,
         },
         Axis {
             param: 3,
@@ -94,7 +100,7 @@ fn free_m_axes(x: &[f64], _: &[f64]) -> Vec<Axis> {
         },
         Axis {
             param: 4,
-            values: vec![0.02, 0.06, 0.15, 0.35, 0.7, 1.3, 2.5],
+            values: vec![0.005, 0.02, 0.06, 0.15, 0.35, 0.7, 1.3, 2.5],
         },
     ]
 }
@@ -281,7 +287,7 @@ fn screen_of(kind: ModelKind) -> Option<Screen> {
         }
         _ => return None,
     };
-    Some(Screen::Grid { axes, keep: 3 })
+    Some(Screen::Grid { axes, keep: 4 })
 }
 
 /// Fit one retention model to readings (suction in cm, theta in m3/m3).
