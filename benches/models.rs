@@ -259,9 +259,9 @@ fn env_usize(name: &str, default: usize) -> usize {
 /// degrees of freedom to tell minima apart, or no convergence).
 fn warns(r: &FitReport) -> bool {
     !r.converged
-        || r.message
-            .as_deref()
-            .is_some_and(|m| m.contains("minima") || m.contains("not converged"))
+        || r.message.as_deref().is_some_and(|m| {
+            m.contains("minima") || m.contains("as well") || m.contains("not converged")
+        })
 }
 
 fn main() {

@@ -729,9 +729,8 @@ impl Screen {
     /// How many of the rough solutions from the screened starts are solved fully.
     fn polish(self) -> usize {
         match self {
-            Screen::Grid { .. } => 3,
             Screen::Probes { .. } => 1,
-            Screen::Mixture { .. } | Screen::Factored { .. } => 3,
+            Screen::Grid { .. } | Screen::Mixture { .. } | Screen::Factored { .. } => 3,
         }
     }
 
@@ -754,14 +753,63 @@ const POOR_FIT_DROP: f64 = 0.3;
 /// Whether a first fit leaves the curve's shape open (see [`UNRESOLVED_DROP`]): there another
 /// steepness fits the readings about as well, and the sum of squares often has a second
 /// minimum. Runs that did not stop at an optimum count as open.
-fn unresolved(ctx: &Context<'_>, c: &Candidate, sst: f64) -> bool {
+fn unresolved(
+    ctx: &Context<'_>,
+    c: &Candidate,
+    sst: f64,
+    wide: &[(usize, usize)],
+    fall: Option<(f64, f64, f64)>,
+) -> bool {
     if !c.termination.is_optimum() || !c.sse.is_finite() {
         return true;
     }
-    // The wide gaps between consecutive readings (index pairs, wetter first). Most readings
-    // have none, and then nothing more is computed.
-    let (x, y) = (ctx.data.x, ctx.data.y);
-    let mut wide: Vec<(usize, usize)> = Vec::new();
+    if wide.is_empty() {
+        return false;
+    }
+    if fall.is_some() {
+        return true;
+    }
+    let poor = sst > 0.0 && 1.0 - c.sse / sst < UNRESOLVED_R2;
+    if !poor {
+        return false;
+    }
+    let x = ctx.data.x;
+    let f = |h: f64| ctx.model.value(h, &c.p);
+    let fitted_span = spread(&mut x.iter().map(|&h| f(h)));
+    fitted_span > 0.0
+        && wide
+            .iter()
+            .any(|&(i, j)| f(x[i]) - f(x[j]) > POOR_FIT_DROP * fitted_span)
+}
+
+/// The largest minus the smallest value.
+fn spread(v: &mut dyn Iterator<Item = f64>) -> f64 {
+    let (lo, hi) = v.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), t| {
+        (lo.min(t), hi.max(t))
+    });
+    hi - lo
+}
+
+/// The gaps between consecutive readings a factor [`UNRESOLVED_GAP`] or more apart in suction,
+/// as index pairs (wetter first). Most readings have none.
+fn wide_gaps(x: &[f64]) -> Vec<(usize, usize)> {
+    let mut wide = Vec::new();
+    // Readings in suction order (the usual case): consecutive pairs, the first of equal
+    // suctions on the wetter side and the first on the drier side.
+    if x.is_sorted() {
+        let mut i = 0;
+        while i < x.len() {
+            let mut j = i + 1;
+            while j < x.len() && x[j] <= x[i] {
+                j += 1;
+            }
+            if j < x.len() && x[i] > 0.0 && x[j] >= UNRESOLVED_GAP * x[i] {
+                wide.push((i, j));
+            }
+            i = j;
+        }
+        return wide;
+    }
     for (i, &a) in x.iter().enumerate().filter(|(_, a)| **a > 0.0) {
         // The next larger suction after a (its first reading).
         let next = x
@@ -775,33 +823,31 @@ fn unresolved(ctx: &Context<'_>, c: &Candidate, sst: f64) -> bool {
             wide.push((i, j));
         }
     }
-    if wide.is_empty() {
-        return false;
+    wide
+}
+
+/// The wide gap holding more than [`UNRESOLVED_DROP`] of the readings' fall, as (wetter
+/// suction, drier suction, share of the fall).
+fn fall_in_one_gap(data: &Data<'_>, wide: &[(usize, usize)]) -> Option<(f64, f64, f64)> {
+    let (x, y) = (data.x, data.y);
+    let span = spread(&mut y.iter().copied());
+    if span.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
+        return None;
     }
-    let range = |v: &mut dyn Iterator<Item = f64>| {
-        let (lo, hi) = v.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), t| {
-            (lo.min(t), hi.max(t))
-        });
-        hi - lo
-    };
-    let span = range(&mut y.iter().copied());
-    if span > 0.0
-        && wide
-            .iter()
-            .any(|&(i, j)| y[i] - y[j] > UNRESOLVED_DROP * span)
-    {
-        return true;
-    }
-    let poor = sst > 0.0 && 1.0 - c.sse / sst < UNRESOLVED_R2;
-    if !poor {
-        return false;
-    }
-    let f = |h: f64| ctx.model.value(h, &c.p);
-    let fitted_span = range(&mut x.iter().map(|&h| f(h)));
-    fitted_span > 0.0
-        && wide
-            .iter()
-            .any(|&(i, j)| f(x[i]) - f(x[j]) > POOR_FIT_DROP * fitted_span)
+    wide.iter()
+        .map(|&(i, j)| (x[i], x[j], (y[i] - y[j]) / span))
+        .filter(|g| g.2 > UNRESOLVED_DROP)
+        .max_by(|a, b| a.2.total_cmp(&b.2))
+}
+
+/// The note for readings whose fall lies mostly in one gap: the steepness there is open.
+fn gap_note((a, b, share): (f64, f64, f64)) -> String {
+    format!(
+        "{:.0} % of the readings' fall lies between {} and {} cm with no reading in between: curves of other steepness fit them nearly as well",
+        share * 100.0,
+        crate::model::number::significant(a, 4).unwrap_or_default(),
+        crate::model::number::significant(b, 4).unwrap_or_default()
+    )
 }
 
 /// Whether two starts agree to 1e-9 in every parameter.
@@ -877,9 +923,15 @@ pub(crate) fn fit_curve_with(
         (first, Some(guesses))
     };
     let mut best = solve_start(&mut ctx, &setup, &first);
+    let wide = wide_gaps(readings.x);
+    let fall = if wide.is_empty() {
+        None
+    } else {
+        fall_in_one_gap(&data, &wide)
+    };
     let screen = hooks
         .screen
-        .filter(|screen| !screen.only_when_doubtful() || unresolved(&ctx, &best, sst));
+        .filter(|screen| !screen.only_when_doubtful() || unresolved(&ctx, &best, sst, &wide, fall));
     if let (Some(screen), Some((r, s))) = (screen, hooks.linear) {
         let limits = Limits {
             lower: &setup.lower,
@@ -1058,7 +1110,7 @@ pub(crate) fn fit_curve_with(
             reason: best.termination.to_string(),
         });
     }
-    let mut extra_notes = Vec::new();
+    let mut extra_notes: Vec<String> = fall.map(gap_note).into_iter().collect();
     if let Some(canon) = hooks.canonicalize
         && (canon.out_of_order)(&best.p)
     {
