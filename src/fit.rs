@@ -6,6 +6,7 @@
 
 pub mod band;
 mod config;
+pub mod design;
 mod driver;
 mod error;
 mod models;
