@@ -115,7 +115,7 @@ impl Information {
         let mut log_det = 0.0;
         for i in 0..k {
             let pivot = l[(i, i)] * l[(i, i)];
-            if !(pivot > MIN_PIVOT) {
+            if pivot.is_nan() || pivot <= MIN_PIVOT {
                 return None;
             }
             // det M = det(S^-1 M~ S^-1) = det M~ / prod scale^2.
@@ -317,7 +317,11 @@ pub fn d_optimal_design(
             ridge[i][i] += v * v / grid.len() as f64;
         }
     }
-    if ridge.iter().enumerate().any(|(i, r)| !(r[i] > 0.0)) {
+    if ridge
+        .iter()
+        .enumerate()
+        .any(|(i, r)| r[i].is_nan() || r[i] <= 0.0)
+    {
         return None;
     }
     let mut m: Vec<Vec<f64>> = ridge
@@ -377,7 +381,7 @@ pub fn d_optimal_design(
             }
         }
         let (i, b, r) = best?;
-        if !(r > 1.0 + 1e-12) {
+        if r.is_nan() || r <= 1.0 + 1e-12 {
             break;
         }
         points[i] = b;
