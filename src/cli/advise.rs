@@ -63,14 +63,14 @@ pub struct AdviseArgs {
     /// Only this site (code).
     #[arg(long, value_name = "CODE")]
     pub site: Option<String>,
-    /// Only these samples (codes).
+    /// Only this sample (code); repeat for more.
     #[arg(long, value_name = "CODE")]
     pub sample: Vec<String>,
     /// What the next reading should make more certain.
     #[arg(long, value_enum, default_value_t = TargetArg::AvailableWater)]
     pub target: TargetArg,
     /// The suctions to choose from, kPa, comma separated (default: the usual lab steps).
-    #[arg(long, value_name = "LIST", value_delimiter = ',', num_args = 1..)]
+    #[arg(long, value_name = "LIST", value_delimiter = ',')]
     pub candidates_kpa: Vec<f64>,
     /// Every candidate of every sample, the chosen one marked, instead of the chosen one.
     #[arg(long)]
