@@ -8,8 +8,10 @@
 //! freedom, otherwise the campaign's pooled noise of the methods its readings were measured by
 //! ([`method_noise`]). Nothing is refitted: the parameters stay where they are and one row is
 //! added to the information matrix ([`crate::fit::design`]). Intervals are 95 % Wald
-//! half-widths with Student's t: t(nu) now and t(nu + 1) after the reading, nu the degrees of
-//! freedom of the noise estimate (the fit's n - k, or the pool's).
+//! half-widths with Student's t(nu), nu the degrees of freedom of the noise estimate (the fit's
+//! n - k, or the pool's), the same t now and after: the difference is what a reading at that
+//! suction tells, not the extra degree of freedom any reading would bring (which would narrow
+//! every interval by t(nu + 1) / t(nu) whatever the suction).
 
 use std::collections::HashMap;
 use std::str::FromStr;
@@ -410,7 +412,7 @@ pub fn advise_fit(
         }
     };
     let t = |dof: usize| crate::fit::t975(dof).ok_or("no degrees of freedom for an interval");
-    let (t_now, t_after) = (t(noise.dof)?, t(noise.dof + 1)?);
+    let t = t(noise.dof)?;
     let sd = noise.sd;
     let k = free.len();
     let (g, available_water) = match options.target {
@@ -436,13 +438,13 @@ pub fn advise_fit(
     }
     let (now, steps, criterion): (f64, Vec<StepEffect>, Criterion) = match options.target {
         AdviceTarget::AvailableWater => {
-            let now = t_now * sd * effects[0].variance_now.unwrap_or_default().sqrt();
+            let now = t * sd * effects[0].variance_now.unwrap_or_default().sqrt();
             let steps = effects
                 .iter()
                 .map(|e| StepEffect {
                     h_cm: e.x,
                     det_ratio: e.det_ratio,
-                    after: t_after * sd * e.variance_after.unwrap_or_default().sqrt(),
+                    after: t * sd * e.variance_after.unwrap_or_default().sqrt(),
                 })
                 .collect();
             (now, steps, Criterion::DerivedVariance)
@@ -454,13 +456,13 @@ pub fn advise_fit(
                 return Err("a free parameter is 0, so no relative size".into());
             }
             let gm = (sd.ln() - (info.log_det() + 2.0 * log_values) / (2.0 * k as f64)).exp();
-            let now = 100.0 * t_now * gm;
+            let now = 100.0 * t * gm;
             let steps = effects
                 .iter()
                 .map(|e| StepEffect {
                     h_cm: e.x,
                     det_ratio: e.det_ratio,
-                    after: 100.0 * t_after * gm * e.det_ratio.powf(-0.5 / k as f64),
+                    after: 100.0 * t * gm * e.det_ratio.powf(-0.5 / k as f64),
                 })
                 .collect();
             (now, steps, Criterion::D)
@@ -730,10 +732,7 @@ mod tests {
         assert_eq!(advice.noise.basis, NoiseBasis::Fit);
         let s = r.residual_sd.expect("dof");
         let dof = r.n_points - r.n_free_params;
-        let (t0, t1) = (
-            crate::fit::t975(dof).expect("t"),
-            crate::fit::t975(dof + 1).expect("t"),
-        );
+        let t0 = crate::fit::t975(dof).expect("t");
         let curve = RetentionCurve::new(ModelKind::VanGenuchten, r.values()).expect("ok");
         let g = DVector::from_vec(available_water_gradient(&curve, 33.0, 1500.0).expect("g"));
         let cov = r.covariance.as_ref().expect("cov");
@@ -754,7 +753,7 @@ mod tests {
                 .lu()
                 .try_inverse()
                 .expect("invertible");
-            brute.push(t1 * s * g.dot(&(&inv * &g)).sqrt());
+            brute.push(t0 * s * g.dot(&(&inv * &g)).sqrt());
         }
         for (step, b) in advice.steps.iter().zip(&brute) {
             assert!((step.after / b - 1.0).abs() < 1e-6, "{step:?} vs {b}");

@@ -30,7 +30,8 @@ reading that grows det(J'WJ) most (D-optimality), its effect given as the geomet
 the parameters' relative 95 % half-widths. Nothing is refitted: the new reading (weight 1) adds
 one row to the fit's information matrix. Its noise is the fit's own residual standard deviation,
 or with fewer than 3 degrees of freedom the campaign's pooled noise of the methods of the
-sample's readings. Intervals use t(n - k) now and t(n - k + 1) after.
+sample's readings. Intervals use Student's t of the noise's degrees of freedom, the same now
+and after, so a reading that tells nothing about the target takes nothing off.
 
 Candidates by default: 1, 3, 10, 30, 60, 100, 330, 1000, 3000, 5000 and 15300 cm (the steps
 labs usually offer). Field pairings are not advised (their readings come from the loggers).
