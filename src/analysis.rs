@@ -2,6 +2,7 @@
 //! the attempts, the outlier review, and the derived numbers (available water per fit, layer
 //! and profile).
 
+pub mod advise;
 pub mod current;
 pub mod fitting;
 pub mod review;

@@ -7,6 +7,7 @@ use clap::{Parser, Subcommand};
 
 use crate::error::Outcome;
 
+pub mod advise;
 pub mod curve;
 pub mod demo;
 pub mod export;
@@ -61,6 +62,8 @@ pub enum Command {
     Flag(flag::FlagArgs),
     /// Take a flagged reading back into fits.
     Unflag(unflag::UnflagArgs),
+    /// Which suction to measure next on each sample, and where one more reading pays most.
+    Advise(advise::AdviseArgs),
 }
 
 impl Command {
@@ -89,6 +92,7 @@ impl Command {
             Command::Review(_) => "review",
             Command::Flag(_) => "flag",
             Command::Unflag(_) => "unflag",
+            Command::Advise(_) => "advise",
         };
         format!("porewise {word}")
     }
@@ -114,5 +118,6 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Review(args) => review::run(&args),
         Command::Flag(args) => flag::run(&args),
         Command::Unflag(args) => unflag::run(&args),
+        Command::Advise(args) => advise::run(&args),
     }
 }

@@ -6,6 +6,7 @@
 
 pub mod band;
 mod config;
+pub mod design;
 mod driver;
 mod error;
 mod models;
@@ -24,6 +25,7 @@ pub use models::{AutoFit, RankedFit, SkippedModel, breakpoint_of, fit_auto, fit_
 pub use report::{
     FitReport, IntervalScale, ParamEstimate, ParamMatrix, ReadingFit, Side, Termination,
 };
+pub(crate) use stats::t975;
 pub use stats::{aicc, criteria_parameters, min_points_for_aicc};
 
 #[cfg(test)]

@@ -1,5 +1,6 @@
 //! Tables and exports built from model and store values.
 
+pub mod advice;
 pub mod campaign;
 pub mod csv_safe;
 pub mod curve_table;

@@ -42,6 +42,16 @@ fn demo_builds_from_scratch_and_a_second_run_reuses_it() {
     let first = run();
     let stderr = String::from_utf8_lossy(&first.get_output().stderr).into_owned();
     assert!(stderr.contains("building"), "{stderr}");
+    // The build ends with the campaign's top advice: a lab core and a suction to measure.
+    let advice = stderr
+        .lines()
+        .find(|l| l.starts_with("advice: one more reading pays most on "))
+        .unwrap_or_else(|| panic!("no advice line: {stderr}"));
+    assert!(
+        advice.contains(" cm would take its available water ±")
+            && advice.contains("porewise advise"),
+        "{advice}"
+    );
     let file = tmp.path().join("demo.sqlite");
     let campaign = porewise::store::Campaign::open(&file).expect("opens");
     let counts = porewise::store::overview::counts(campaign.connection()).expect("counts");

@@ -6,12 +6,14 @@ use std::path::{Path, PathBuf};
 use anyhow::Context;
 use clap::Args;
 
+use crate::analysis::advise::{AdviseOptions, advise};
 use crate::analysis::review::{ReviewOptions, refresh};
 use crate::analysis::{ModelChoice, fit_campaign};
 use crate::error::Outcome;
 use crate::fit::FitOptions;
 use crate::import::logger::{LoggerOptions, import_logger_files};
 use crate::import::{ImportKind, ImportOptions, import_files};
+use crate::model::number::significant;
 use crate::store::campaign::{DEFAULT_FC_KPA, DEFAULT_PWP_KPA, remove_with_journal};
 use crate::store::fits::Selection;
 use crate::store::pairing::{PairOptions, pair_campaign};
@@ -208,6 +210,25 @@ fn build(file: &Path, sources: &Sources) -> anyhow::Result<()> {
             review.raised,
             file.display()
         );
+        let settings = campaign.settings()?;
+        let advice = advise(
+            campaign.connection(),
+            &settings,
+            &Selection::all(),
+            &AdviseOptions::default(),
+        )?;
+        if let Some(top) = advice.ranked.first() {
+            let a = &top.advice;
+            eprintln!(
+                "advice: one more reading pays most on {}: {} cm would take its available \
+                 water ±{} to ±{} m3/m3 (porewise advise {})",
+                crate::model::text::shown(&top.sample.code),
+                significant(a.best_step().h_cm, 4).unwrap_or_default(),
+                significant(a.now, 2).unwrap_or_default(),
+                significant(a.best_step().after, 2).unwrap_or_default(),
+                file.display()
+            );
+        }
     }
     remove_with_journal(file);
     std::fs::rename(&building, file)

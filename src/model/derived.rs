@@ -94,6 +94,31 @@ pub fn theta_at_kpa(curve: &RetentionCurve, suction_kpa: f64) -> Option<f64> {
         .and_then(finite)
 }
 
+/// The gradient of available water theta(FC) - theta(PWP) with respect to every parameter of
+/// the curve (model order): d theta / d p at field capacity minus at the wilting point (the
+/// model's analytic derivatives; suctions in kPa). What the delta-method variance of available
+/// water, g' Cov g, needs. `None` when a suction is invalid or a derivative is not finite.
+pub fn available_water_gradient(
+    curve: &RetentionCurve,
+    field_capacity_kpa: f64,
+    wilting_point_kpa: f64,
+) -> Option<Vec<f64>> {
+    let model = curve.kind().curve();
+    let p = curve.params();
+    let at = |kpa: f64| {
+        let h = kpa * CM_PER_KPA;
+        if !(h >= 0.0 && h.is_finite()) {
+            return None;
+        }
+        let mut g = vec![0.0; p.len()];
+        model.value_and_gradient(h, p, &mut g);
+        g.iter().all(|v| v.is_finite()).then_some(g)
+    };
+    let fc = at(field_capacity_kpa)?;
+    let pwp = at(wilting_point_kpa)?;
+    Some(fc.iter().zip(&pwp).map(|(a, b)| a - b).collect())
+}
+
 /// Derive the report values of a curve with the given field-capacity and wilting-point
 /// suctions (kPa; [`DEFAULT_FIELD_CAPACITY_KPA`] and [`DEFAULT_WILTING_POINT_KPA`] usually).
 pub fn derive(
@@ -347,5 +372,43 @@ mod tests {
         assert_eq!(back.inflection_vs_ln_h, None);
         let paw = back.plant_available_water.expect("present");
         assert!((paw - d.plant_available_water.expect("present")).abs() < 1e-15);
+    }
+    #[test]
+    fn available_water_gradient_matches_central_differences() {
+        // Each model at a typical loam-like point: the analytic gradient of theta(FC) -
+        // theta(PWP) against central differences of the available water itself.
+        let points: [(ModelKind, &[f64]); 7] = [
+            (ModelKind::VanGenuchten, &[0.07, 0.42, 0.03, 1.5]),
+            (ModelKind::VanGenuchtenFreeM, &[0.07, 0.42, 0.03, 1.6, 0.5]),
+            (ModelKind::BrooksCorey, &[0.05, 0.4, 20.0, 0.5]),
+            (ModelKind::Kosugi, &[0.05, 0.45, 300.0, 1.5]),
+            (ModelKind::FredlundXing, &[0.42, 30.0, 1.8, 0.9, 3000.0]),
+            (ModelKind::Durner, &[0.05, 0.43, 0.4, 0.1, 2.5, 0.005, 1.6]),
+            (ModelKind::Campbell, &[0.4, 20.0, 5.0]),
+        ];
+        for (kind, p) in points {
+            let c = curve(kind, p);
+            let g = available_water_gradient(&c, 33.0, 1500.0).expect("finite");
+            assert_eq!(g.len(), p.len());
+            let aw = |q: &[f64]| {
+                derive(&curve(kind, q), 33.0, 1500.0)
+                    .plant_available_water
+                    .expect("finite")
+            };
+            for k in 0..p.len() {
+                let step = 1e-6 * p[k].abs().max(1e-3);
+                let (mut up, mut down) = (p.to_vec(), p.to_vec());
+                up[k] += step;
+                down[k] -= step;
+                let numeric = (aw(&up) - aw(&down)) / (2.0 * step);
+                assert!(
+                    (g[k] - numeric).abs() <= 1e-6 * numeric.abs().max(1e-3),
+                    "{kind} parameter {k}: analytic {} numeric {numeric}",
+                    g[k]
+                );
+            }
+        }
+        let c = curve(ModelKind::Campbell, &[0.4, 20.0, 5.0]);
+        assert!(available_water_gradient(&c, f64::NAN, 1500.0).is_none());
     }
 }

@@ -697,6 +697,17 @@ pub fn current(conn: &Connection, sample_id: i64) -> Result<Option<StoredFit>> {
         .transpose()
 }
 
+/// The id of the newest fit attempt of the campaign (`None` before the first): it changes
+/// whenever a fit is recorded, so a value computed from the fits can be kept until it does.
+///
+/// # Errors
+/// An SQLite error.
+pub fn latest_id(conn: &Connection) -> Result<Option<i64>> {
+    Ok(conn
+        .prepare_cached("SELECT max(id) FROM fit")?
+        .query_row([], |r| r.get(0))?)
+}
+
 /// Why a current fit no longer describes its sample.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]

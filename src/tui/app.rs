@@ -554,6 +554,36 @@ pub struct FitView {
     pub derived: Option<DerivedValues>,
     /// The `auto` ranking, when fitted with auto.
     pub ranking: Option<Ranking>,
+    /// Which suction to measure next for available water, or why there is no advice
+    /// (`None` for a field pairing).
+    pub next: Option<Result<NextStep, String>>,
+}
+
+/// The fit card's advice: the one more reading that would shrink the 95 % interval of
+/// available water most ([`crate::analysis::advise`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct NextStep {
+    /// The suction to measure, cm.
+    pub h_cm: f64,
+    /// Available water's 95 % half-width now, m3/m3.
+    pub now: f64,
+    /// Its expected half-width after the reading, m3/m3.
+    pub after: f64,
+    /// The noise assumed is the campaign's pooled noise (the fit has few degrees of freedom).
+    pub pooled: bool,
+}
+
+impl NextStep {
+    /// The card's view of an advice.
+    pub fn of(advice: &crate::analysis::advise::FitAdvice) -> Self {
+        let best = advice.best_step();
+        NextStep {
+            h_cm: best.h_cm,
+            now: advice.now,
+            after: best.after,
+            pooled: advice.noise.basis == crate::analysis::advise::NoiseBasis::Pooled,
+        }
+    }
 }
 
 /// The selected sample with everything its panes show.
@@ -642,6 +672,8 @@ pub struct SampleParts<'a> {
     pub fc_kpa: f64,
     /// Campaign PWP suction, kPa.
     pub pwp_kpa: f64,
+    /// The advice for the current fit (`None` without one).
+    pub advice: Option<Result<crate::analysis::advise::FitAdvice, String>>,
 }
 
 impl SampleDetail {
@@ -707,6 +739,10 @@ impl SampleDetail {
                 message: report.message.clone(),
                 derived: parts.derived.as_ref().map(|d| d.values.clone()),
                 ranking: f.ranking.clone(),
+                next: (parts.info.kind == SampleKind::LabCore)
+                    .then(|| parts.advice.clone())
+                    .flatten()
+                    .map(|a| a.map(|a| NextStep::of(&a))),
             })
         });
         SampleDetail {

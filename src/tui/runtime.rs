@@ -21,6 +21,7 @@ use ratatui::backend::Backend;
 use ratatui::crossterm::event::{self, Event, KeyEvent};
 use ratatui::{DefaultTerminal, Terminal};
 
+use crate::analysis::advise::PoolCache;
 use crate::analysis::fit_campaign;
 use crate::fit::FitOptions;
 use crate::model::domain::FlagTarget;
@@ -149,6 +150,8 @@ pub struct Session {
     pub state: AppState,
     /// The key table.
     pub keys: KeyTable,
+    /// The pooled noise the fit card's advice may need, kept until a fit is recorded.
+    pool: PoolCache,
 }
 
 impl std::fmt::Debug for Session {
@@ -190,6 +193,7 @@ impl Session {
             worker,
             state,
             keys: KeyTable::default(),
+            pool: PoolCache::default(),
         };
         session.dispatch(Action::Loaded(Loaded::Tree(
             load::tree(session.campaign.connection()).context("cannot read the campaign tree")?,
@@ -261,9 +265,10 @@ impl Session {
         };
         match effect {
             Effect::LoadTree => loaded(load::tree(conn).map(Loaded::Tree)),
-            Effect::LoadSample(id) => {
-                loaded(load::sample(conn, &self.settings, id).map(|d| Loaded::Sample(Box::new(d))))
-            }
+            Effect::LoadSample(id) => loaded(
+                load::sample(conn, &self.settings, id, &mut self.pool)
+                    .map(|d| Loaded::Sample(Box::new(d))),
+            ),
             Effect::LoadDepth { site, root_zone_cm } => loaded(
                 load::depth(conn, &self.settings, &site, root_zone_cm)
                     .map(|d| Loaded::Depth(Box::new(d))),

@@ -5,10 +5,11 @@ use std::collections::HashMap;
 
 use rusqlite::Connection;
 
+use crate::analysis::advise::{AdviseOptions, PoolCache, advise_sample};
 use crate::analysis::{derive_fit, profiles, sample_fits};
 use crate::field::time::parse_instant;
-use crate::model::domain::SensorKind;
 use crate::model::domain::{FlagStatus, FlagTarget};
+use crate::model::domain::{SampleKind, SensorKind};
 use crate::store::fits::{self, FitState, Selection};
 use crate::store::flags::{self, FlagFilter, Subject};
 use crate::store::outline::{self, outline};
@@ -73,7 +74,8 @@ fn reading_flags(conn: &Connection, sample: &str) -> Result<HashMap<i64, FlagMar
     Ok(out)
 }
 
-/// One sample's panes.
+/// One sample's panes, with the fit card's advice (the pooled noise it may need is kept in
+/// `pool` between loads).
 ///
 /// # Errors
 /// An unknown sample id, an SQLite error or a stored fit that does not decode.
@@ -81,6 +83,7 @@ pub fn sample(
     conn: &Connection,
     settings: &CampaignSettings,
     sample_id: i64,
+    pool: &mut PoolCache,
 ) -> Result<SampleDetail> {
     let Some((info, layer)) = outline::sample(conn, sample_id)? else {
         return Err(StoreError::Unknown {
@@ -102,6 +105,17 @@ pub fn sample(
             f.conductivity,
         )
     });
+    let advice = match &fit {
+        Some(f) if info.kind == SampleKind::LabCore => advise_sample(
+            conn,
+            settings,
+            f,
+            &readings,
+            pool,
+            &AdviseOptions::default(),
+        )?,
+        _ => None,
+    };
     Ok(SampleDetail::from_parts(&SampleParts {
         info: &info,
         layer: &layer,
@@ -112,6 +126,7 @@ pub fn sample(
         derived,
         fc_kpa: settings.fc_kpa,
         pwp_kpa: settings.pwp_kpa,
+        advice,
     }))
 }
 

@@ -13,7 +13,7 @@ use crate::fit::IntervalScale;
 use crate::model::retention::ModelKind;
 use crate::report::fits::state_text;
 
-use super::super::app::{AppState, Detail, FitTag, SampleDetail, model_tag};
+use super::super::app::{AppState, Detail, FitTag, NextStep, SampleDetail, model_tag};
 use super::super::theme::Theme;
 use super::{framed, kpa_text, num, opt_num, theta_text};
 
@@ -149,6 +149,14 @@ pub fn card_lines(state: &AppState, d: &SampleDetail, theme: Theme) -> Vec<Line<
             None => lines.push(Line::from("air entry –")),
         }
     }
+    match &fit.next {
+        Some(Ok(next)) => lines.push(next_line(next, state)),
+        Some(Err(why)) => lines.push(Line::from(Span::styled(
+            format!("next: no advice ({why})"),
+            theme.dim(),
+        ))),
+        None => {}
+    }
     if let Some(ranking) = &fit.ranking {
         lines.push(Line::from(Span::styled(
             "auto ranking (AICc, Akaike weight)",
@@ -177,6 +185,18 @@ pub fn card_lines(state: &AppState, d: &SampleDetail, theme: Theme) -> Vec<Line<
         }
     }
     lines
+}
+
+/// "next: 5000 cm would take AW ±0.021 to ±0.012": the suction in the card's unit, the
+/// half-widths to two significant digits (m3/m3).
+fn next_line(next: &NextStep, state: &AppState) -> Line<'static> {
+    let pooled = if next.pooled { " (pooled noise)" } else { "" };
+    Line::from(format!(
+        "next: {} would take AW ±{} to ±{}{pooled}",
+        kpa_text(next.h_cm / crate::model::units::CM_PER_KPA, state.units),
+        num(next.now, 2),
+        num(next.after, 2),
+    ))
 }
 
 impl Widget for CardPane<'_> {
@@ -241,6 +261,12 @@ mod tests {
             message: None,
             derived: None,
             ranking: None,
+            next: Some(Ok(NextStep {
+                h_cm: 5000.0,
+                now: 0.021_4,
+                after: 0.011_8,
+                pooled: false,
+            })),
         });
         let text: Vec<String> = card_lines(&state, &d, Theme::default())
             .iter()
@@ -259,6 +285,10 @@ mod tests {
         let theta_r = at("theta_r");
         assert!(!text[theta_r].contains('≈') && text[theta_r + 1].starts_with("theta_s"));
         assert_eq!(text[at("AICc") + 1], "  K = 4 free + σ² = 5");
+        assert_eq!(
+            text[at("next:")],
+            "next: 5000 cm would take AW ±0.021 to ±0.012"
+        );
     }
 
     #[test]
