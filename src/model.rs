@@ -6,6 +6,7 @@ pub mod conductivity;
 pub mod curve;
 pub mod derived;
 pub mod domain;
+pub mod golden;
 pub mod number;
 pub mod retention;
 pub mod special;

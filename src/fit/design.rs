@@ -395,37 +395,9 @@ pub fn d_optimal_design(
 }
 
 /// The maximum of a unimodal `f` on [lo, hi] by golden-section search (to a relative 1e-13 of
-/// the interval).
+/// the interval); never worse than the ends.
 fn golden_max(f: impl Fn(f64) -> f64, lo: f64, hi: f64) -> f64 {
-    let ratio = (5f64.sqrt() - 1.0) / 2.0;
-    let (mut a, mut b) = (lo, hi);
-    let mut c = b - ratio * (b - a);
-    let mut d = a + ratio * (b - a);
-    let (mut fc, mut fd) = (f(c), f(d));
-    for _ in 0..80 {
-        if (b - a).abs() <= 1e-13 * (1.0 + hi.abs().max(lo.abs())) {
-            break;
-        }
-        if fc >= fd {
-            b = d;
-            d = c;
-            fd = fc;
-            c = b - ratio * (b - a);
-            fc = f(c);
-        } else {
-            a = c;
-            c = d;
-            fc = fd;
-            d = a + ratio * (b - a);
-            fd = f(d);
-        }
-    }
-    let mid = 0.5 * (a + b);
-    // Never worse than the ends of the bracket.
-    [lo, mid, hi]
-        .into_iter()
-        .max_by(|x, y| f(*x).total_cmp(&f(*y)))
-        .unwrap_or(mid)
+    crate::model::golden::golden_minimum(|x| -f(x), lo, hi, 1e-13, 80).0
 }
 
 #[cfg(test)]

@@ -23,6 +23,7 @@
 use super::problem::Data;
 use super::projection::{Linear, Weights, solve_linear};
 use crate::model::curve::CurveModel;
+use crate::model::golden::golden_minimum;
 
 /// Beyond a breakpoint b (Brooks-Corey's h_b, Campbell's h_e) the curve is
 /// theta = theta_r + (theta_s - theta_r) (b / h)^e: a power law in h.
@@ -187,36 +188,17 @@ fn exponent_search(
     }
     // Golden section on ln e over the grid cells either side of the best point.
     let centre = l_lo + step * best.1 as f64;
-    let (mut a, mut b) = ((centre - step).max(l_lo), (centre + step).min(l_hi));
-    let phi = 0.5 * (5f64.sqrt() - 1.0);
-    let mut c1 = b - phi * (b - a);
-    let mut c2 = a + phi * (b - a);
-    let mut f1 = at(c1.exp()).0;
-    let mut f2 = at(c2.exp()).0;
-    for _ in 0..GOLDEN_STEPS {
-        if f1 <= f2 {
-            b = c2;
-            c2 = c1;
-            f2 = f1;
-            c1 = b - phi * (b - a);
-            f1 = at(c1.exp()).0;
-        } else {
-            a = c1;
-            c1 = c2;
-            f1 = f2;
-            c2 = a + phi * (b - a);
-            f2 = at(c2.exp()).0;
-        }
-    }
-    let refined = if f1 <= f2 { c1 } else { c2 };
-    let grid_e = centre.exp();
-    let (sse_refined, r1, k1) = at(refined.exp());
-    let (sse_grid, r0, k0) = at(grid_e);
-    let best = if sse_refined <= sse_grid {
-        (sse_refined, refined.exp(), r1, k1)
-    } else {
-        (sse_grid, grid_e, r0, k0)
-    };
+    let (a, b) = ((centre - step).max(l_lo), (centre + step).min(l_hi));
+    let (refined, _) = golden_minimum(|l| at(l.exp()).0, a, b, 0.0, GOLDEN_STEPS);
+    // Never worse than the grid's best point.
+    let best = [refined, centre]
+        .into_iter()
+        .map(|l| {
+            let (sse, r, c) = at(l.exp());
+            (sse, l.exp(), r, c)
+        })
+        .min_by(|p, q| p.0.total_cmp(&q.0))
+        .unwrap_or((f64::INFINITY, centre.exp(), 0.0, 0.0));
     (best, best_feasible)
 }
 
