@@ -31,6 +31,9 @@ const INTERVAL_BOUND_SLACK: f64 = 1e-7;
 /// The solver's first-step factor from a screened start or a rough solution: they are
 /// already in their basin, and a long first step can leave it.
 const SCREENED_STEP_BOUND: f64 = 1.0;
+/// Share of its interval (or of a decade, for a suction scale) within which a parameter is
+/// polished once more held on its bound.
+const NEAR_BOUND_PROBE: f64 = 0.1;
 /// Tolerance and patience of the rough runs from screened starts.
 const ROUGH_TOLERANCE: f64 = 1e-4;
 const ROUGH_PATIENCE: usize = 5;
@@ -1043,7 +1046,15 @@ pub(crate) fn fit_curve_with(
                     }
                     let mut p = best.p.clone();
                     p[k] = bound;
-                    if ctx.sse(&p) >= best.sse {
+                    // Near its bound (the last tenth of a linear interval, of a decade for a
+                    // suction scale) the rest must move with it before the gain shows.
+                    let near = if setup.lower[k] > 0.0 && setup.upper[k] / setup.lower[k] > 100.0 {
+                        (best.p[k] / bound).ln().abs() < NEAR_BOUND_PROBE * std::f64::consts::LN_10
+                    } else {
+                        (best.p[k] - bound).abs()
+                            < NEAR_BOUND_PROBE * (setup.upper[k] - setup.lower[k])
+                    };
+                    if !near && ctx.sse(&p) >= best.sse {
                         continue;
                     }
                     let mut pinned = best.pinned.clone();
