@@ -6,6 +6,8 @@
 
 use serde::{Deserialize, Serialize};
 
+pub mod gradient;
+
 use super::retention::van_genuchten::mualem_m;
 use super::retention::{ModelKind, RetentionCurve, finite};
 use super::units::CM_PER_KPA;
@@ -120,6 +122,14 @@ pub fn derive(
         dexter_slope: dexter,
         suction_at_half_saturation_cm: suction_at_half_saturation(curve),
     }
+}
+
+/// The air-entry estimate of a curve alone (as [`derive`] gives it): h_b, h_e, or the
+/// tangent construction at the ln-h inflection for the smooth models.
+pub fn air_entry_estimate(curve: &RetentionCurve) -> Option<AirEntry> {
+    let inflection = inflection_vs_ln_h(curve);
+    let slope = inflection.and_then(|pt| slope_vs_ln_h(curve, pt.suction_cm));
+    air_entry(curve, inflection, slope)
 }
 
 /// d theta / d ln h = -h C(h) at suction h.
