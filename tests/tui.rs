@@ -107,12 +107,17 @@ fn buffer(s: &Session) -> ratatui::buffer::Buffer {
 }
 
 /// Keys that bring each pane up, from a fresh session.
-const PANES: [(&str, &str); 19] = [
+const PANES: [(&str, &str); 20] = [
     ("start", ""),
     ("site_open", "<enter>"),
     ("layer_summary", "<enter>j"),
     ("sample", "/LEV1-Ap-a<enter>G"),
     ("sample_card", "/LEV1-Ap-a<enter>G<tab><tab><tab>"),
+    // The card scrolled to the derived values: a fit near its bounds (Monte Carlo intervals).
+    (
+        "sample_card_derived",
+        "/BAS1-Bw-a<enter>G<tab><tab><tab>jjjjjjjjjjjjjjjjjjjj",
+    ),
     ("flagged_sample_kpa_band", "/LEV1-C2-b<enter>G<tab><tab>Gub"),
     ("readings_pf", "/BSW1-Bg1-b<enter>G<tab><tab>uu"),
     ("depth", "/LEV1<enter>G2"),

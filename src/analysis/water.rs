@@ -23,7 +23,7 @@ use std::collections::BTreeMap;
 use std::str::FromStr;
 
 use rusqlite::Connection;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::fit::delta::{Checker, Interval95, known_parameters};
 use crate::fit::pooling::{Study, Z975, pooled_tau2, random_effects_mean};
@@ -49,7 +49,7 @@ pub const DEFAULT_ROOT_ZONE_CM: f64 = 100.0;
 
 /// 95 % intervals of a fit's derived values (`None` where the value or its interval does not
 /// exist); see the module documentation for how they are obtained.
-#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
 pub struct DerivedIntervals {
     /// theta at field capacity, m3/m3.
     pub theta_field_capacity: Option<Interval95>,
@@ -257,7 +257,7 @@ pub fn derive_fit(
 
 /// A 95 % interval of a layer's or a profile's available water (normal, see
 /// [`crate::fit::pooling`]).
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct SumInterval {
     /// Lower end.
     pub lo95: f64,
@@ -292,7 +292,7 @@ impl SumInterval {
 }
 
 /// The between-core variance of available water, pooled over the campaign's layers.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct BetweenCores {
     /// tau^2, (m3/m3)^2: DerSimonian & Laird's estimate pooled over the layers.
     pub tau2: f64,
@@ -307,11 +307,10 @@ pub struct BetweenCores {
 impl BetweenCores {
     /// `τ² = 1.2e-4 (m3/m3)², τ = 0.011 m3/m3, pooled over 5 layers (14 cores)`.
     pub fn describe(&self) -> String {
-        let text = |v: f64| significant(v, 2).unwrap_or_default();
         format!(
-            "τ² = {} (m3/m3)², τ = {} m3/m3, pooled over {} layer{} ({} cores)",
-            text(self.tau2),
-            text(self.tau),
+            "τ² = {:.1e} (m3/m3)², τ = {} m3/m3, pooled over {} layer{} ({} cores)",
+            self.tau2,
+            significant(self.tau, 2).unwrap_or_default(),
             self.layers,
             if self.layers == 1 { "" } else { "s" },
             self.cores
