@@ -132,6 +132,7 @@ fn on_scale(v: f64, scale: IntervalScale) -> f64 {
 
 /// Per sample and value: truth inside (shown, delta), MC shown, MC agreement.
 #[derive(Default, Clone, Copy)]
+#[allow(clippy::struct_excessive_bools)] // five independent yes/no tallies of one sample
 struct Outcome {
     has: bool,
     inside_shown: bool,

@@ -1,6 +1,8 @@
 //! The random-effects pooling of layer available water against reference values computed
 //! with general-purpose libraries (`tests/data/random_effects/dersimonian_laird.py`: statsmodels
 //! 0.15 and numpy 2.4); the inputs are invented.
+// The reference values as the script printed them (17 significant digits).
+#![allow(clippy::excessive_precision)]
 
 use porewise::fit::pooling::{Study, Z975, pooled_tau2, random_effects_mean};
 

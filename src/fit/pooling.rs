@@ -143,7 +143,7 @@ mod tests {
     #[test]
     fn equal_estimates_have_no_between_study_variance() {
         let g = group(&[(0.1, 1e-4), (0.1, 2e-4), (0.1, 1e-4)]);
-        let pooled = pooled_tau2(&[g.clone()]).expect("pooled");
+        let pooled = pooled_tau2(std::slice::from_ref(&g)).expect("pooled");
         assert!(pooled.tau2.abs() < 1e-18);
         assert_eq!((pooled.groups, pooled.studies, pooled.df), (1, 3, 2));
         let re = random_effects_mean(&g, pooled.tau2).expect("mean");
