@@ -25,7 +25,7 @@ use std::str::FromStr;
 use rusqlite::Connection;
 use serde::{Deserialize, Serialize};
 
-use crate::fit::delta::{Checker, Interval95, known_parameters};
+use crate::fit::delta::{Checker, Interval95, MC_DRAWS, SEARCH_DRAWS, known_parameters};
 use crate::fit::pooling::{Study, Z975, pooled_tau2, random_effects_mean};
 use crate::fit::{FitReport, IntervalScale};
 use crate::model::conductivity::{ConductivityForm, ConductivityModel, DEFAULT_PORE_CONNECTIVITY};
@@ -136,13 +136,35 @@ impl<'a> Derivation<'a> {
         scale: IntervalScale,
         f: &dyn Fn(&RetentionCurve) -> Option<f64>,
     ) -> Option<Interval95> {
+        self.interval_over(value, grad, scale, f, MC_DRAWS)
+    }
+
+    /// As [`Self::interval`], the Monte Carlo check over the first `draws` draws.
+    fn interval_over(
+        &self,
+        value: Option<f64>,
+        grad: Option<Vec<f64>>,
+        scale: IntervalScale,
+        f: &dyn Fn(&RetentionCurve) -> Option<f64>,
+        draws: usize,
+    ) -> Option<Interval95> {
         let (checker, value, grad) = (self.checker.as_ref()?, value?, grad?);
         let kind = self.kind;
-        checker.interval(value, &grad, scale, &|q| {
+        let g = |q: &[f64]| {
             RetentionCurve::new(kind, q.to_vec())
                 .ok()
                 .and_then(|c| f(&c))
-        })
+        };
+        checker.interval_over(value, &grad, scale, &g, draws)
+    }
+
+    /// Draws of the Monte Carlo check for the air entry and h at Se = 1/2: fewer where the
+    /// model finds them by a numerical search (its inflection, or an inverse by bisection).
+    fn search_draws(&self) -> usize {
+        match self.kind {
+            ModelKind::FredlundXing | ModelKind::Durner => SEARCH_DRAWS,
+            _ => MC_DRAWS,
+        }
     }
 
     /// Available water under these suctions, with its interval.
@@ -224,17 +246,19 @@ pub fn derive_fit(
         theta_field_capacity: theta_interval(fc_kpa, values.theta_field_capacity),
         theta_wilting_point: theta_interval(pwp_kpa, values.theta_wilting_point),
         plant_available_water: d.available_water(fc_kpa, pwp_kpa).1,
-        air_entry_cm: d.interval(
+        air_entry_cm: d.interval_over(
             values.air_entry.map(|a| a.suction_cm),
             air_entry_gradient(kind, p),
             IntervalScale::Log,
             &|c| air_entry_estimate(c).map(|a| a.suction_cm),
+            d.search_draws(),
         ),
-        suction_at_half_saturation_cm: d.interval(
+        suction_at_half_saturation_cm: d.interval_over(
             values.suction_at_half_saturation_cm,
             half_saturation_gradient(kind, p),
             IntervalScale::Log,
             &suction_at_half_saturation,
+            d.search_draws(),
         ),
         k_field_capacity_cm_per_day: k_interval(fc_kpa),
         k_wilting_point_cm_per_day: k_interval(pwp_kpa),
