@@ -492,10 +492,14 @@ impl<'a> Checker<'a> {
             method: IntervalMethod::MonteCarlo,
             note: Some(format!(
                 "Monte Carlo ({draws} draws from the parameters' fitted distribution): the \
-                 delta method's {}…{} differs from it by {} % ({})",
+                 delta method's {}…{} differs from it by {} ({})",
                 text(delta.lo95),
                 text(delta.hi95),
-                (100.0 * differs).round(),
+                if differs >= 10.0 {
+                    "more than ten times its width".to_string()
+                } else {
+                    format!("{} %", (100.0 * differs).round())
+                },
                 causes.join("; ")
             )),
         })

@@ -715,8 +715,8 @@ fn profile_table(out: &mut String, part: &SitePart) {
         },
         |b| {
             format!(
-                "Between-core variance {}, pooled over the campaign's layers with two or more \
-                 fitted lab cores.",
+                "Between-core variance {}: the campaign's layers with two or more fitted lab \
+                 cores.",
                 b.describe()
             )
         },
