@@ -8,7 +8,8 @@
 #[path = "common/synthetic.rs"]
 mod synthetic;
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
+use std::process::Command;
 
 use porewise::analysis::{FitDerived, derive_fit, profiles, sample_fits};
 use porewise::fit::band::confidence_band;
@@ -332,7 +333,7 @@ fn fixed_parameters_are_named_as_known_and_missing_intervals_say_why() {
 }
 
 /// The demo campaign, built from its committed sources in a folder of its own.
-fn demo(dir: &Path) -> std::path::PathBuf {
+fn demo(dir: &Path) -> PathBuf {
     let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-db");
     for file in porewise::demo::generate() {
         std::fs::copy(src.join(file.name), dir.join(file.name)).expect("copy");
@@ -420,4 +421,94 @@ fn layer_and_profile_intervals_follow_the_hand_formulas() {
         assert!((total.se - variance.sqrt()).abs() < 1e-9, "{}", p.site);
         assert!(total.lo95 < p.total_mm && p.total_mm < total.hi95);
     }
+}
+
+fn run(args: &[&str]) -> String {
+    let out = Command::new(env!("CARGO_BIN_EXE_porewise"))
+        .args(args)
+        .output()
+        .expect("runs");
+    assert!(
+        out.status.success(),
+        "{args:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8(out.stdout).expect("utf-8")
+}
+
+/// Every `<value>`, `<value>_lo95`, `<value>_hi95` triple of a CSV: lo <= value <= hi where
+/// all three are given; returns how many were checked.
+fn triples_in_order(csv_text: &str) -> usize {
+    let mut reader = csv::Reader::from_reader(csv_text.as_bytes());
+    let header: Vec<String> = reader
+        .headers()
+        .expect("header")
+        .iter()
+        .map(str::to_string)
+        .collect();
+    let mut checked = 0;
+    for record in reader.records() {
+        let record = record.expect("record");
+        for (i, name) in header.iter().enumerate() {
+            let Some(base) = name.strip_suffix("_lo95") else {
+                continue;
+            };
+            let at = |n: &str| header.iter().position(|h| h == n).expect("column");
+            let number = |k: usize| record.get(k).and_then(|v| v.parse::<f64>().ok());
+            let (Some(v), Some(lo), Some(hi)) = (
+                number(at(base)),
+                number(i),
+                number(at(&format!("{base}_hi95"))),
+            ) else {
+                continue;
+            };
+            assert!(lo <= v && v <= hi, "{base}: {lo} {v} {hi}");
+            checked += 1;
+        }
+    }
+    checked
+}
+
+#[test]
+fn every_place_shows_the_intervals() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    let db = db.to_str().expect("path");
+    // list fits: `±` in the table, the interval columns in CSV beside each value.
+    let table = run(&["list", db, "fits"]);
+    assert!(
+        table.lines().nth(1).is_some_and(|l| l.contains('±')),
+        "{table}"
+    );
+    let fits_csv = run(&["list", db, "fits", "--format", "csv"]);
+    assert!(fits_csv.contains("theta_fc_m3_m3,theta_fc_m3_m3_lo95,theta_fc_m3_m3_hi95"));
+    assert!(triples_in_order(&fits_csv) > 100);
+    // list profiles: the pooled between-core variance under the table and in the columns.
+    let profiles_table = run(&["list", db, "profiles"]);
+    let last = profiles_table.lines().last().expect("a note");
+    assert!(
+        last.contains("between-core variance τ² = ") && last.contains("pooled over 14 layers"),
+        "{last}"
+    );
+    let profiles_csv = run(&["list", db, "profiles", "--format", "csv"]);
+    assert!(profiles_csv.contains("between_core_tau2_m3_m3_squared,between_core_layers"));
+    assert!(triples_in_order(&profiles_csv) > 10);
+    // The export: both tables, the JSON document and the page.
+    let out = dir.path().join("summary");
+    run(&["export", db, "--to", out.to_str().expect("path")]);
+    let read = |name: &str| std::fs::read_to_string(out.join(name)).expect("file");
+    assert!(triples_in_order(&read("parameters.csv")) > 100);
+    assert!(triples_in_order(&read("profiles.csv")) > 10);
+    let doc: serde_json::Value = serde_json::from_str(&read("campaign.json")).expect("json");
+    let pooled = &doc["data"]["campaign"]["between_cores"];
+    assert_eq!(pooled["layers"], 14);
+    let site = &doc["data"]["sites"][0];
+    assert!(site["profile"]["total_mm_interval"]["lo95"].is_number());
+    let fit = &site["layers"][0]["samples"][0]["fit"]["derived"]["intervals"];
+    assert_eq!(fit["theta_field_capacity"]["method"], "delta-method");
+    assert_eq!(fit["air_entry_cm"]["scale"], "log");
+    let page = read("report.html");
+    assert!(page.contains("available water ± 95&#160;%, m³/m³"));
+    assert!(page.contains("Between-core variance τ² = "));
+    assert!(page.contains("<h3>95&#160;% intervals of the derived values</h3>"));
 }
