@@ -12,4 +12,7 @@ pub use current::{SampleFit, sample_fits, sample_fits_with};
 pub use fitting::{
     FitAttempt, FitRunSummary, ModelChoice, fit_campaign, fit_campaign_with, fit_choice, fit_input,
 };
-pub use water::{FitDerived, LayerWater, SiteProfile, derive_fit, profiles};
+pub use water::{
+    BetweenCores, DerivedIntervals, FitDerived, LayerWater, SiteProfile, SumInterval,
+    between_cores, derive_fit, fit_available_water, profiles, profiles_pooled,
+};

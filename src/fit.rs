@@ -6,11 +6,13 @@
 
 pub mod band;
 mod config;
+pub mod delta;
 pub mod design;
 mod driver;
 mod error;
 mod models;
 pub mod outliers;
+pub mod pooling;
 mod problem;
 mod projection;
 mod report;
@@ -19,6 +21,7 @@ mod stats;
 mod transform;
 
 pub use config::{Domain, FitOptions};
+pub use delta::{Checker, Delta, Interval95, IntervalMethod};
 pub use driver::{Readings, fit_curve};
 pub use error::FitError;
 pub use models::{AutoFit, RankedFit, SkippedModel, breakpoint_of, fit_auto, fit_model};

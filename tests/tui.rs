@@ -107,7 +107,7 @@ fn buffer(s: &Session) -> ratatui::buffer::Buffer {
 }
 
 /// Keys that bring each pane up, from a fresh session.
-const PANES: [(&str, &str); 20] = [
+const PANES: [(&str, &str); 21] = [
     ("start", ""),
     ("site_open", "<enter>"),
     ("layer_summary", "<enter>j"),
@@ -115,7 +115,12 @@ const PANES: [(&str, &str); 20] = [
     ("sample_card", "/LEV1-Ap-a<enter>G<tab><tab><tab>"),
     (
         "sample_card_advice",
-        "/BSW1-Ah-a<enter>G<tab><tab><tab>jjjjjjjjjj",
+        "/BSW1-Ah-a<enter>G<tab><tab><tab>jjjjjjjjjjjjjjjjjjjj",
+    ),
+    // The card scrolled to the derived values: a fit near its bounds (Monte Carlo intervals).
+    (
+        "sample_card_derived",
+        "/BAS1-Bw-a<enter>G<tab><tab><tab>jjjjjjjjjjjjjjjjjjjj",
     ),
     ("flagged_sample_kpa_band", "/LEV1-C2-b<enter>G<tab><tab>Gub"),
     ("readings_pf", "/BSW1-Bg1-b<enter>G<tab><tab>uu"),

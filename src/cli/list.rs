@@ -13,7 +13,7 @@ use crate::report::Listing;
 use crate::report::campaign::{
     layers_listing, readings_listing_with_flags, samples_listing, sites_listing,
 };
-use crate::report::fits::{fits_listing, history_listing, profiles_listing};
+use crate::report::fits::{fits_listing, history_listing, pooled_note, profiles_listing};
 use crate::report::review::{events_listing, flags_listing};
 use crate::store::fits::{self as store_fits, Selection};
 use crate::store::flags::{self, FlagFilter};
@@ -173,6 +173,7 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
         site: args.site.as_deref(),
         sample: args.sample.as_deref(),
     };
+    let mut note = None;
     let listing: Listing = match args.what {
         What::Sites => sites_listing(&sites::list(conn, filter.site)?),
         What::Layers => layers_listing(&layers::list(conn, filter.site)?),
@@ -195,15 +196,18 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
             events_listing(&events)
         }
         What::Fits => fits(conn, args)?,
-        What::Profiles => profiles_listing(&profiles(
-            conn,
-            &campaign.settings()?,
-            args.root_zone_cm,
-            filter.site,
-        )?),
+        What::Profiles => {
+            let list = profiles(conn, &campaign.settings()?, args.root_zone_cm, filter.site)?;
+            note = Some(pooled_note(&list));
+            profiles_listing(&list)
+        }
     };
     match args.format {
-        Format::Table => print!("{}", listing.to_table()),
+        Format::Table => print!(
+            "{}{}",
+            listing.to_table(),
+            note.as_deref().unwrap_or_default()
+        ),
         Format::Csv => print!("{}", listing.to_csv()?),
         Format::Json => print!("{}", listing.to_json()),
     }

@@ -5,11 +5,8 @@
 //! theta(h) -+ t(0.975, n - k) sqrt(g' Cov g): an interval for the curve itself (the mean
 //! response), not for a new reading.
 
-use std::str::FromStr;
-
+use super::delta::Delta;
 use super::report::FitReport;
-use super::stats::t975;
-use crate::model::retention::ModelKind;
 
 /// The band at one suction: lower and upper water content, m3/m3.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -30,31 +27,22 @@ pub struct BandPoint {
 /// names a model this program does not know. Suctions where the curve or its gradient is not
 /// finite are left out, so no NaN is ever returned.
 pub fn confidence_band(report: &FitReport, h_cm: &[f64]) -> Option<Vec<BandPoint>> {
-    let cov = report.covariance.as_ref()?;
-    let kind = ModelKind::from_str(&report.model).ok()?;
-    let dof = report.n_points.checked_sub(report.n_free_params)?;
-    let t = t975(dof)?;
-    let model = kind.curve();
-    let p = report.values();
-    let index: Vec<usize> = cov
-        .names
-        .iter()
-        .map(|name| report.parameters.iter().position(|q| &q.name == name))
-        .collect::<Option<_>>()?;
+    // The same delta method as every derived value (`super::delta`), so the band at a
+    // suction is the interval of theta there.
+    let delta = Delta::of(report)?;
+    let model = delta.kind().curve();
+    let p = delta.center();
     let mut grad = vec![0.0; p.len()];
     let mut out = Vec::with_capacity(h_cm.len());
     for &h in h_cm {
         if !(h >= 0.0 && h.is_finite()) {
             continue;
         }
-        let theta = model.value_and_gradient(h, &p, &mut grad);
-        let mut var = 0.0;
-        for (r, &i) in index.iter().enumerate() {
-            for (c, &j) in index.iter().enumerate() {
-                var += grad[i] * cov.rows[r][c] * grad[j];
-            }
-        }
-        let half = t * var.max(0.0).sqrt();
+        let theta = model.value_and_gradient(h, p, &mut grad);
+        let Some(var) = delta.variance(&grad) else {
+            continue;
+        };
+        let half = delta.t() * var.sqrt();
         if theta.is_finite() && half.is_finite() {
             out.push(BandPoint {
                 h_cm: h,
@@ -70,7 +58,9 @@ pub fn confidence_band(report: &FitReport, h_cm: &[f64]) -> Option<Vec<BandPoint
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::fit::stats::t975;
     use crate::fit::{FitOptions, Readings, fit_model};
+    use crate::model::retention::ModelKind;
 
     /// Readings of a van Genuchten curve with a fixed, deterministic wiggle.
     fn readings() -> (Vec<f64>, Vec<f64>) {

@@ -6,6 +6,8 @@
 
 use serde::{Deserialize, Serialize};
 
+pub mod gradient;
+
 use super::retention::van_genuchten::mualem_m;
 use super::retention::{ModelKind, RetentionCurve, finite};
 use super::units::CM_PER_KPA;
@@ -103,20 +105,14 @@ pub fn available_water_gradient(
     field_capacity_kpa: f64,
     wilting_point_kpa: f64,
 ) -> Option<Vec<f64>> {
-    let model = curve.kind().curve();
-    let p = curve.params();
-    let at = |kpa: f64| {
-        let h = kpa * CM_PER_KPA;
-        if !(h >= 0.0 && h.is_finite()) {
-            return None;
-        }
-        let mut g = vec![0.0; p.len()];
-        model.value_and_gradient(h, p, &mut g);
-        g.iter().all(|v| v.is_finite()).then_some(g)
-    };
-    let fc = at(field_capacity_kpa)?;
-    let pwp = at(wilting_point_kpa)?;
-    Some(fc.iter().zip(&pwp).map(|(a, b)| a - b).collect())
+    let (fc, pwp) = (
+        field_capacity_kpa * CM_PER_KPA,
+        wilting_point_kpa * CM_PER_KPA,
+    );
+    if !(fc >= 0.0 && fc.is_finite() && pwp >= 0.0 && pwp.is_finite()) {
+        return None;
+    }
+    gradient::available_water_gradient(curve.kind(), curve.params(), fc, pwp)
 }
 
 /// Derive the report values of a curve with the given field-capacity and wilting-point
@@ -145,6 +141,14 @@ pub fn derive(
         dexter_slope: dexter,
         suction_at_half_saturation_cm: suction_at_half_saturation(curve),
     }
+}
+
+/// The air-entry estimate of a curve alone (as [`derive`] gives it): h_b, h_e, or the
+/// tangent construction at the ln-h inflection for the smooth models.
+pub fn air_entry_estimate(curve: &RetentionCurve) -> Option<AirEntry> {
+    let inflection = inflection_vs_ln_h(curve);
+    let slope = inflection.and_then(|pt| slope_vs_ln_h(curve, pt.suction_cm));
+    air_entry(curve, inflection, slope)
 }
 
 /// d theta / d ln h = -h C(h) at suction h.

@@ -3,8 +3,8 @@
 
 use super::fit_table::parameter_union;
 use super::table::{Cell, Column, Listing};
-use crate::analysis::{SampleFit, SiteProfile};
-use crate::fit::FitReport;
+use crate::analysis::{FitDerived, SampleFit, SiteProfile, SumInterval};
+use crate::fit::{FitReport, Interval95};
 use crate::model::number::significant;
 use crate::store::fits::{FitState, StoredFit};
 
@@ -25,6 +25,80 @@ pub fn parameters_text(report: &FitReport) -> String {
         .join(" ")
 }
 
+/// A value with its half-width, the half-width to two significant digits and the value to
+/// the same decimal place: `0.284±0.012`.
+pub fn plus_minus(value: f64, half: f64) -> String {
+    if !(half.is_finite() && half > 0.0 && value.is_finite()) {
+        return significant(value, 4).unwrap_or_default();
+    }
+    let decimals = (1 - half.log10().floor() as i32).clamp(0, 10) as usize;
+    format!("{value:.decimals$}±{half:.decimals$}")
+}
+
+/// A value with its 95 % interval for a text table: `0.284±0.012` where the interval is
+/// symmetric (the delta method on the linear scale), else `52.1 (38.5…70.3)`.
+pub fn interval_text(value: f64, interval: Option<&Interval95>) -> String {
+    match interval {
+        Some(i) if i.is_symmetric() => plus_minus(value, i.half_width()),
+        Some(i) => {
+            let text = |v: f64| significant(v, 3).unwrap_or_default();
+            format!("{} ({}…{})", text(value), text(i.lo95), text(i.hi95))
+        }
+        None => significant(value, 4).unwrap_or_default(),
+    }
+}
+
+/// A table cell of a value with its interval (the number alone in CSV and JSON).
+pub fn estimate_cell(value: Option<f64>, interval: Option<&Interval95>) -> Cell {
+    Cell::Estimate(
+        value,
+        value.map_or_else(String::new, |v| interval_text(v, interval)),
+    )
+}
+
+/// A table cell of a layer or profile value with its symmetric interval.
+pub fn sum_cell(value: Option<f64>, interval: Option<SumInterval>) -> Cell {
+    Cell::Estimate(
+        value,
+        value.map_or_else(String::new, |v| match interval {
+            Some(i) => plus_minus(v, i.half_width()),
+            None => significant(v, 4).unwrap_or_default(),
+        }),
+    )
+}
+
+/// The notes on a fit's intervals: Monte Carlo intervals and why, why there are none, and the
+/// parameters taken as known; `None` when there is nothing to say.
+pub fn interval_notes(d: &FitDerived) -> Option<String> {
+    let iv = &d.intervals;
+    let mut notes: Vec<String> = Vec::new();
+    let named = [
+        ("theta_fc", &iv.theta_field_capacity),
+        ("theta_pwp", &iv.theta_wilting_point),
+        ("available_water", &iv.plant_available_water),
+        ("air_entry", &iv.air_entry_cm),
+        (
+            "suction_at_half_saturation",
+            &iv.suction_at_half_saturation_cm,
+        ),
+        ("k_fc", &iv.k_field_capacity_cm_per_day),
+        ("k_pwp", &iv.k_wilting_point_cm_per_day),
+    ];
+    for (name, interval) in named {
+        if let Some(note) = interval.as_ref().and_then(|i| i.note.as_ref()) {
+            notes.push(format!("{name}: {note}"));
+        }
+    }
+    notes.extend(iv.missing.clone());
+    if !iv.known_parameters.is_empty() {
+        notes.push(format!(
+            "taken as known (fixed or held on a bound): {}",
+            iv.known_parameters.join(", ")
+        ));
+    }
+    (!notes.is_empty()).then(|| notes.join("; "))
+}
+
 /// The state column: `current`, `stale (readings changed since the fit)`, `failed`, `none`.
 pub fn state_text(state: &FitState) -> String {
     match state {
@@ -42,7 +116,7 @@ pub fn state_text(state: &FitState) -> String {
 }
 
 /// One row per sample with its current fit: model, parameters with standard errors, RMSE,
-/// AICc, derived values and whether it is stale.
+/// AICc, derived values with their 95 % intervals and whether it is stale.
 ///
 /// The text table shows the parameters in one column; CSV and JSON carry one column per
 /// parameter (and its `_se`), the union over the models present in the order of the model table.
@@ -67,23 +141,23 @@ pub fn fits_listing(rows: &[SampleFit]) -> Listing {
             .iter()
             .map(|p| Column::export_only(format!("{p}_se"))),
     );
-    for name in [
-        "rmse_m3_m3",
-        "r2",
-        "aicc",
-        "n_points",
-        "theta_fc_m3_m3",
-        "theta_pwp_m3_m3",
-        "available_water_m3_m3",
-        "air_entry_cm",
-        "fitted_at_utc",
-    ] {
+    for name in ["rmse_m3_m3", "r2", "aicc", "n_points"] {
         columns.push(Column::new(name));
     }
+    for (name, in_table) in DERIVED_COLUMNS {
+        columns.push(if in_table {
+            Column::new(name)
+        } else {
+            Column::export_only(name)
+        });
+        columns.push(Column::export_only(format!("{name}_lo95")));
+        columns.push(Column::export_only(format!("{name}_hi95")));
+    }
+    columns.push(Column::export_only("interval_note"));
+    columns.push(Column::new("fitted_at_utc"));
     let mut l = Listing::new(columns);
     for r in rows {
         let report = r.fit.as_ref().and_then(|f| f.report.as_ref());
-        let values = r.derived.as_ref().map(|d| &d.values);
         let mut row = vec![
             Cell::text(&r.sample.code),
             Cell::text(&r.sample.layer.site),
@@ -101,21 +175,70 @@ pub fn fits_listing(rows: &[SampleFit]) -> Listing {
             report.and_then(|rep| rep.r2).into(),
             report.and_then(|rep| rep.aicc).into(),
             report.map_or(Cell::Text(None), |rep| Cell::Int(rep.n_points as i64)),
-            values.and_then(|v| v.theta_field_capacity).into(),
-            values.and_then(|v| v.theta_wilting_point).into(),
-            values.and_then(|v| v.plant_available_water).into(),
-            values
-                .and_then(|v| v.air_entry.as_ref())
-                .map(|a| a.suction_cm)
-                .into(),
+        ]);
+        for (value, interval) in derived_with_intervals(r.derived.as_ref()) {
+            row.push(estimate_cell(value, interval));
+            row.push(interval.map(|i| i.lo95).into());
+            row.push(interval.map(|i| i.hi95).into());
+        }
+        row.push(r.derived.as_ref().and_then(interval_notes).into());
+        row.push(
             r.fit
                 .as_ref()
                 .map(|f| f.created_at.format("%Y-%m-%d %H:%M:%S").to_string())
                 .into(),
-        ]);
+        );
         l.push(row);
     }
     l
+}
+
+/// The derived-value columns of `list fits` (each followed by its `_lo95` and `_hi95`) and
+/// whether the text table shows them.
+pub const DERIVED_COLUMNS: [(&str, bool); 7] = [
+    ("theta_fc_m3_m3", true),
+    ("theta_pwp_m3_m3", true),
+    ("available_water_m3_m3", true),
+    ("air_entry_cm", true),
+    ("suction_at_half_saturation_cm", false),
+    ("k_fc_cm_per_day", false),
+    ("k_pwp_cm_per_day", false),
+];
+
+/// The values of [`DERIVED_COLUMNS`] with their intervals, in that order.
+pub fn derived_with_intervals(d: Option<&FitDerived>) -> [(Option<f64>, Option<&Interval95>); 7] {
+    let v = d.map(|d| &d.values);
+    let iv = d.map(|d| &d.intervals);
+    [
+        (
+            v.and_then(|v| v.theta_field_capacity),
+            iv.and_then(|i| i.theta_field_capacity.as_ref()),
+        ),
+        (
+            v.and_then(|v| v.theta_wilting_point),
+            iv.and_then(|i| i.theta_wilting_point.as_ref()),
+        ),
+        (
+            v.and_then(|v| v.plant_available_water),
+            iv.and_then(|i| i.plant_available_water.as_ref()),
+        ),
+        (
+            v.and_then(|v| v.air_entry.map(|a| a.suction_cm)),
+            iv.and_then(|i| i.air_entry_cm.as_ref()),
+        ),
+        (
+            v.and_then(|v| v.suction_at_half_saturation_cm),
+            iv.and_then(|i| i.suction_at_half_saturation_cm.as_ref()),
+        ),
+        (
+            d.and_then(|d| d.k_field_capacity_cm_per_day),
+            iv.and_then(|i| i.k_field_capacity_cm_per_day.as_ref()),
+        ),
+        (
+            d.and_then(|d| d.k_wilting_point_cm_per_day),
+            iv.and_then(|i| i.k_wilting_point_cm_per_day.as_ref()),
+        ),
+    ]
 }
 
 /// Every fit attempt of one sample, oldest first, the current one marked.
@@ -162,29 +285,41 @@ pub fn history_listing(sample: &str, fits: &[StoredFit]) -> Listing {
     l
 }
 
-/// Per site and layer: available water (m3/m3), the part of the layer in the root zone and
-/// its water in mm; then a `total` row per site with the profile sum.
+/// Per site and layer: available water (m3/m3) with its 95 % interval, the part of the layer
+/// in the root zone and its water in mm with its interval; then a `total` row per site with
+/// the profile sum and its interval. Every row states the campaign's pooled between-core
+/// variance and the number of layers it came from (CSV and JSON; [`pooled_note`] for tables).
 pub fn profiles_listing(profiles: &[SiteProfile]) -> Listing {
-    let mut l = Listing::new(
-        [
-            "site",
-            "layer",
-            "horizon",
-            "lab_cores",
-            "fitted_cores",
-            "stale_cores",
-            "available_water_m3_m3",
-            "field_available_water_m3_m3",
-            "depth_in_root_zone_cm",
-            "water_mm",
-        ]
-        .into_iter()
-        .map(Column::new)
-        .collect(),
-    );
+    let mut l = Listing::new(vec![
+        Column::new("site"),
+        Column::new("layer"),
+        Column::new("horizon"),
+        Column::new("lab_cores"),
+        Column::new("fitted_cores"),
+        Column::new("stale_cores"),
+        Column::new("available_water_m3_m3"),
+        Column::export_only("available_water_m3_m3_lo95"),
+        Column::export_only("available_water_m3_m3_hi95"),
+        Column::new("field_available_water_m3_m3"),
+        Column::new("depth_in_root_zone_cm"),
+        Column::new("water_mm"),
+        Column::export_only("water_mm_lo95"),
+        Column::export_only("water_mm_hi95"),
+        Column::export_only("between_core_tau2_m3_m3_squared"),
+        Column::export_only("between_core_layers"),
+        Column::export_only("interval_note"),
+    ]);
+    let pooled = |p: &SiteProfile| -> [Cell; 2] {
+        match p.between_cores {
+            Some(b) => [b.tau2.into(), Cell::Int(b.layers as i64)],
+            None => [Cell::Real(None), Cell::Int(0)],
+        }
+    };
     for p in profiles {
         for w in &p.layers {
-            l.push(vec![
+            let aw = w.available_water_interval;
+            let mm = w.water_mm_interval;
+            let mut row = vec![
                 Cell::text(&p.site),
                 Cell::text(format!(
                     "{}-{}",
@@ -195,14 +330,22 @@ pub fn profiles_listing(profiles: &[SiteProfile]) -> Listing {
                 Cell::Int(w.lab_cores as i64),
                 Cell::Int(w.fitted_cores as i64),
                 Cell::Int(w.stale_cores as i64),
-                w.available_water.into(),
+                sum_cell(w.available_water, aw),
+                aw.map(|i| i.lo95).into(),
+                aw.map(|i| i.hi95).into(),
                 w.field_available_water.into(),
                 w.depth_in_zone_cm.into(),
-                w.water_mm.into(),
-            ]);
+                sum_cell(w.water_mm, mm),
+                mm.map(|i| i.lo95).into(),
+                mm.map(|i| i.hi95).into(),
+            ];
+            row.extend(pooled(p));
+            row.push(w.interval_note.clone().into());
+            l.push(row);
         }
         let uncovered = p.uncovered_cm();
-        l.push(vec![
+        let total = p.total_mm_interval;
+        let mut row = vec![
             Cell::text(&p.site),
             Cell::text(format!(
                 "total 0-{}",
@@ -221,9 +364,38 @@ pub fn profiles_listing(profiles: &[SiteProfile]) -> Listing {
             Cell::Text(None),
             Cell::Real(None),
             Cell::Real(None),
+            Cell::Real(None),
+            Cell::Real(None),
             p.covered_cm.into(),
-            p.total_mm.into(),
-        ]);
+            sum_cell(Some(p.total_mm), total),
+            total.map(|i| i.lo95).into(),
+            total.map(|i| i.hi95).into(),
+        ];
+        row.extend(pooled(p));
+        row.push(
+            p.total_note
+                .clone()
+                .or_else(|| total.map(|_| "layers taken as independent".to_string()))
+                .into(),
+        );
+        l.push(row);
     }
     l
+}
+
+/// The line under a profiles table: the intervals' convention and the pooled between-core
+/// variance with the layers it came from.
+pub fn pooled_note(profiles: &[SiteProfile]) -> String {
+    let pooled = profiles.iter().find_map(|p| p.between_cores).map_or_else(
+        || {
+            "no between-core variance: no layer of the campaign has two fitted lab cores, so \
+             layers have no interval"
+                .to_string()
+        },
+        |b| format!("between-core variance {}", b.describe()),
+    );
+    format!(
+        "± is the 95 % interval: a layer's random-effects mean over its lab cores (DerSimonian & \
+         Laird 1986), the total with the layers taken as independent; {pooled}\n"
+    )
 }

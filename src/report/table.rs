@@ -56,6 +56,9 @@ pub enum Cell {
     /// back to the stored value); text tables round `value` for people. A text that is not a
     /// JSON number (`-inf`, pF of 0 cm) is `null` in JSON; an empty text is nothing.
     Decimal(Option<String>, f64),
+    /// A measurement that text tables show as the given text (with its interval, for
+    /// example `0.284±0.012`) while CSV and JSON carry the number alone.
+    Estimate(Option<f64>, String),
 }
 
 impl Cell {
@@ -74,7 +77,10 @@ impl Cell {
     }
 
     fn is_numeric(&self) -> bool {
-        matches!(self, Cell::Int(_) | Cell::Real(_) | Cell::Decimal(..))
+        matches!(
+            self,
+            Cell::Int(_) | Cell::Real(_) | Cell::Decimal(..) | Cell::Estimate(..)
+        )
     }
 
     /// The cell as text for people, with `digits` significant digits for reals; `None` when
@@ -85,6 +91,7 @@ impl Cell {
             Cell::Int(i) => Some(i.to_string()),
             Cell::Real(v) => v.and_then(|v| significant(v, digits)),
             Cell::Decimal(_, v) => significant(*v, digits),
+            Cell::Estimate(v, text) => v.filter(|v| v.is_finite()).map(|_| text.clone()),
         }
     }
 
@@ -92,6 +99,7 @@ impl Cell {
     fn render_export(&self, digits: usize) -> Option<String> {
         match self {
             Cell::Decimal(text, _) => text.clone(),
+            Cell::Estimate(v, _) => v.and_then(|v| significant(v, digits)),
             other => other.render(digits),
         }
     }
@@ -311,6 +319,19 @@ mod tests {
     fn table_aligns_and_hides_export_columns() {
         let text = sample().to_table();
         assert_eq!(text, "sample  suction_kpa\nA1               33\nB, \"2\"\n");
+    }
+
+    #[test]
+    fn estimates_show_their_interval_in_tables_and_the_number_elsewhere() {
+        let mut l = Listing::new(vec![Column::new("theta_m3_m3")]);
+        l.push(vec![Cell::Estimate(Some(0.2841), "0.284±0.012".into())]);
+        l.push(vec![Cell::Estimate(None, "–".into())]);
+        assert_eq!(l.to_table(), "theta_m3_m3\n0.284±0.012\n\n");
+        // A record of one empty field is written quoted, so it is not an empty line.
+        assert_eq!(l.to_csv().expect("csv"), "theta_m3_m3\n0.2841\n\"\"\n");
+        let json: serde_json::Value = serde_json::from_str(&l.to_json()).expect("json");
+        assert_eq!(json[0]["theta_m3_m3"], serde_json::json!(0.2841));
+        assert!(json[1]["theta_m3_m3"].is_null());
     }
 
     #[test]

@@ -7,10 +7,9 @@
 
 use std::collections::{BTreeSet, HashMap};
 
-use crate::analysis::{FitDerived, ModelChoice, SampleFit, SiteProfile};
+use crate::analysis::{BetweenCores, FitDerived, ModelChoice, SampleFit, SiteProfile, SumInterval};
 use crate::fit::ParamEstimate;
 use crate::fit::band::confidence_band;
-use crate::model::derived::DerivedValues;
 use crate::model::domain::{Branch, SampleKind, SensorKind};
 use crate::model::retention::ModelKind;
 use crate::model::units::{CM_PER_KPA, SuctionUnit};
@@ -551,7 +550,7 @@ pub struct FitView {
     /// Solver's notes.
     pub message: Option<String>,
     /// Derived values under the campaign's FC and PWP.
-    pub derived: Option<DerivedValues>,
+    pub derived: Option<FitDerived>,
     /// The `auto` ranking, when fitted with auto.
     pub ranking: Option<Ranking>,
     /// Which suction to measure next for available water, or why there is no advice
@@ -737,7 +736,7 @@ impl SampleDetail {
                 aicc: report.aicc,
                 bic: report.bic,
                 message: report.message.clone(),
-                derived: parts.derived.as_ref().map(|d| d.values.clone()),
+                derived: parts.derived.clone(),
                 ranking: f.ranking.clone(),
                 next: (parts.info.kind == SampleKind::LabCore)
                     .then(|| parts.advice.clone())
@@ -848,14 +847,18 @@ pub struct DepthLayer {
     pub mark: char,
     /// Each fitted sample's curve.
     pub curves: Vec<LayerCurve>,
-    /// Mean available water of its fitted lab cores, m3/m3.
+    /// Available water of its fitted lab cores (their random-effects mean), m3/m3.
     pub available_water: Option<f64>,
+    /// Its 95 % interval, m3/m3.
+    pub available_water_interval: Option<SumInterval>,
     /// Mean available water of its field pairings, m3/m3 (beside the lab mean, not summed).
     pub field_available_water: Option<f64>,
     /// Its part of the root zone, cm.
     pub depth_in_zone_cm: f64,
     /// Available water of that part, mm.
     pub water_mm: Option<f64>,
+    /// Its 95 % interval, mm.
+    pub water_mm_interval: Option<SumInterval>,
     /// Lab cores and fitted lab cores.
     pub lab_cores: usize,
     /// Fitted lab cores (the mean).
@@ -893,6 +896,12 @@ pub struct DepthData {
     pub rows: Vec<DepthRow>,
     /// Profile available water down to the root-zone depth, mm.
     pub total_mm: f64,
+    /// Its 95 % interval, mm (layers taken as independent).
+    pub total_mm_interval: Option<SumInterval>,
+    /// Why the total has no interval, when it has none.
+    pub total_note: Option<String>,
+    /// The campaign's pooled between-core variance the layer intervals use.
+    pub between_cores: Option<BetweenCores>,
     /// Root-zone depth with no fitted layer, cm (the total is a lower bound then).
     pub uncovered_cm: f64,
     /// FC and PWP suctions, kPa.
@@ -931,9 +940,11 @@ impl DepthData {
                     mark: LAYER_MARKS[layers.len() % LAYER_MARKS.len()],
                     curves: Vec::new(),
                     available_water: water.and_then(|w| w.available_water),
+                    available_water_interval: water.and_then(|w| w.available_water_interval),
                     field_available_water: water.and_then(|w| w.field_available_water),
                     depth_in_zone_cm: water.map_or(0.0, |w| w.depth_in_zone_cm),
                     water_mm: water.and_then(|w| w.water_mm),
+                    water_mm_interval: water.and_then(|w| w.water_mm_interval),
                     lab_cores: water.map_or(0, |w| w.lab_cores),
                     fitted_cores: water.map_or(0, |w| w.fitted_cores),
                     stale_cores: water.map_or(0, |w| w.stale_cores),
@@ -989,6 +1000,9 @@ impl DepthData {
             layers,
             rows,
             total_mm: profile.map_or(0.0, |p| p.total_mm),
+            total_mm_interval: profile.and_then(|p| p.total_mm_interval),
+            total_note: profile.and_then(|p| p.total_note.clone()),
+            between_cores: profile.and_then(|p| p.between_cores),
             uncovered_cm: profile.map_or(root_zone_cm, SiteProfile::uncovered_cm),
             fc_kpa: profile.map_or(crate::store::campaign::DEFAULT_FC_KPA, |p| p.fc_kpa),
             pwp_kpa: profile.map_or(crate::store::campaign::DEFAULT_PWP_KPA, |p| p.pwp_kpa),

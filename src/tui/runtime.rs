@@ -22,7 +22,7 @@ use ratatui::crossterm::event::{self, Event, KeyEvent};
 use ratatui::{DefaultTerminal, Terminal};
 
 use crate::analysis::advise::PoolCache;
-use crate::analysis::fit_campaign;
+use crate::analysis::{BetweenCores, between_cores, fit_campaign};
 use crate::fit::FitOptions;
 use crate::model::domain::FlagTarget;
 use crate::store::{Campaign, CampaignSettings, StoreError, flags};
@@ -36,6 +36,10 @@ use super::view;
 use super::worker::{FitRequest, JobId};
 
 mod load;
+
+/// The state of the campaign file a cached value was read at: SQLite's data version and this
+/// connection's total change count.
+type PoolKey = (i64, u64);
 
 /// How a session runs its fits.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -146,6 +150,8 @@ pub struct Session {
     campaign: Campaign,
     settings: CampaignSettings,
     worker: Option<Worker>,
+    /// The campaign's pooled between-core variance, with the file state it was read at.
+    pooled: Option<(PoolKey, Option<BetweenCores>)>,
     /// The UI state.
     pub state: AppState,
     /// The key table.
@@ -191,6 +197,7 @@ impl Session {
             campaign,
             settings,
             worker,
+            pooled: None,
             state,
             keys: KeyTable::default(),
             pool: PoolCache::default(),
@@ -269,10 +276,16 @@ impl Session {
                 load::sample(conn, &self.settings, id, &mut self.pool)
                     .map(|d| Loaded::Sample(Box::new(d))),
             ),
-            Effect::LoadDepth { site, root_zone_cm } => loaded(
-                load::depth(conn, &self.settings, &site, root_zone_cm)
-                    .map(|d| Loaded::Depth(Box::new(d))),
-            ),
+            Effect::LoadDepth { site, root_zone_cm } => loaded(self.pooled().and_then(|pooled| {
+                load::depth(
+                    self.campaign.connection(),
+                    &self.settings,
+                    &site,
+                    root_zone_cm,
+                    pooled,
+                )
+                .map(|d| Loaded::Depth(Box::new(d)))
+            })),
             Effect::LoadReview => Some(Action::Loaded(Loaded::Review(
                 load::review(conn).map_err(|e| e.to_string()),
             ))),
@@ -333,6 +346,23 @@ impl Session {
             Effect::Export => Some(Action::ExportFinished(self.export())),
             Effect::Quit => None,
         }
+    }
+
+    /// The campaign's between-core variance (every lab core's fit is read for it), kept until
+    /// the file changes: SQLite's data version moves when another connection (the fit worker,
+    /// another command) commits, and this connection's change count when it writes itself.
+    fn pooled(&mut self) -> crate::store::Result<Option<BetweenCores>> {
+        let conn = self.campaign.connection();
+        let version: i64 = conn.query_row("PRAGMA data_version", [], |r| r.get(0))?;
+        let key = (version, conn.total_changes());
+        if let Some((at, pooled)) = &self.pooled
+            && *at == key
+        {
+            return Ok(*pooled);
+        }
+        let pooled = between_cores(conn, &self.settings)?;
+        self.pooled = Some((key, pooled));
+        Ok(pooled)
     }
 
     /// Export the campaign summary into `<file stem>-export/` beside the campaign file, with

@@ -51,7 +51,7 @@ pub(crate) fn normal_q(z: f64) -> f64 {
 
 /// The standard normal density.
 #[inline]
-fn normal_pdf(z: f64) -> f64 {
+pub(crate) fn normal_pdf(z: f64) -> f64 {
     FRAC_1_SQRT_2PI * (-0.5 * z * z).exp()
 }
 

@@ -13,13 +13,15 @@ use std::fmt::Write as _;
 use super::chart::{Marker, colour_hex, layer_colour, layer_label};
 use super::snapshot::{ReadingFlag, SitePart, SiteTally, Snapshot, models_in};
 use super::tables::state_detail;
-use crate::fit::{FitReport, IntervalScale};
+use crate::analysis::SumInterval;
+use crate::fit::{FitReport, Interval95, IntervalMethod, IntervalScale};
 use crate::model::domain::SampleKind;
 use crate::model::number::significant;
 use crate::model::retention::ModelKind;
 use crate::model::retention::fredlund_xing::H_DRY_CM;
 use crate::model::text::{is_hidden_control, push_escaped};
 use crate::model::units::CM_PER_KPA;
+use crate::report::fits::plus_minus;
 use crate::store::fits::FitState;
 
 /// Significant digits of values in the page's tables.
@@ -55,6 +57,38 @@ pub fn escape(text: &str) -> String {
 fn num(v: Option<f64>, digits: usize) -> String {
     v.and_then(|v| significant(v, digits))
         .unwrap_or_else(|| NONE.to_string())
+}
+
+/// A derived value with its 95 % interval: `0.284 ± 0.012` (delta method, linear scale), or
+/// the value over `95 % 38.5…70.3, log scale` (or `, Monte Carlo`).
+fn with_interval(value: Option<f64>, interval: Option<&Interval95>) -> String {
+    let Some(v) = value else {
+        return NONE.to_string();
+    };
+    match interval {
+        None => num(Some(v), DIGITS),
+        Some(i) if i.is_symmetric() => escape(&plus_minus(v, i.half_width())).replace('±', " ± "),
+        Some(i) => format!(
+            "{}<br/><span class=\"muted\">95&#160;% {}…{}, {}</span>",
+            num(Some(v), DIGITS),
+            num(Some(i.lo95), 3),
+            num(Some(i.hi95), 3),
+            if i.method == IntervalMethod::MonteCarlo {
+                "Monte Carlo"
+            } else {
+                "log scale"
+            }
+        ),
+    }
+}
+
+/// A layer or profile value with its 95 % interval: `24.6 ± 2.0`.
+fn with_sum_interval(value: Option<f64>, interval: Option<SumInterval>) -> String {
+    match (value, interval) {
+        (None, _) => NONE.to_string(),
+        (Some(v), Some(i)) => escape(&plus_minus(v, i.half_width())).replace('±', " ± "),
+        (Some(v), None) => num(Some(v), DIGITS),
+    }
 }
 
 fn opt_text(v: Option<&str>) -> String {
@@ -295,7 +329,10 @@ fn cautions(out: &mut String) {
          (dashed in the charts) is uncertain, and so is everything derived from it: water \
          content at field capacity or wilting point, available water, conductivity.</li>\n\
          <li>Layer and profile available water are means over few cores; stale fits (readings \
-         changed since the fit) are included and marked.</li>\n\
+         changed since the fit) are included and marked. Their 95&#160;% intervals combine each \
+         core's fit uncertainty with the variation between cores estimated over the campaign; \
+         they do not cover the choice of model, errors shared by a lab's measurements, or a \
+         layer's cores missing its true variability.</li>\n\
          <li>Design uses such as irrigation design, slope stability, landfill or mine-waste \
          covers and contaminant transport <strong>defer to local codes and licensed \
          professional practice</strong>; this summary does not replace either.</li>\n\
@@ -346,12 +383,12 @@ fn contents_end(out: &mut String) {
     );
 }
 
-/// `123.4` or `≥ 98.7` when part of the root zone has no data.
+/// `123.4 ± 8.1` or `≥ 98.7 ± 6.1` when part of the root zone has no data.
 fn profile_total(part: &SitePart) -> String {
     part.profile.as_ref().map_or_else(
         || NONE.to_string(),
         |p| {
-            let total = num(Some(p.total_mm), DIGITS);
+            let total = with_sum_interval(Some(p.total_mm), p.total_mm_interval);
             if p.uncovered_cm() > 0.0 {
                 format!("≥ {total}")
             } else {
@@ -516,8 +553,9 @@ pub fn section_start(
         out,
         "<h3>Fitted parameters</h3>\n<div class=\"wide\">\n<table>\n<thead><tr><th>sample</th><th>layer</th><th>model</th>\
          <th>parameters ± standard error</th><th>RMSE, m³/m³</th><th>R²</th><th>AICc</th>\
-         <th>readings used / flagged / left out</th><th>θ at FC, m³/m³</th><th>θ at PWP, m³/m³</th>\
-         <th>available water, m³/m³</th><th>state</th></tr></thead>\n<tbody>"
+         <th>readings used / flagged / left out</th><th>θ at FC ± 95&#160;%, m³/m³</th>\
+         <th>θ at PWP ± 95&#160;%, m³/m³</th><th>available water ± 95&#160;%, m³/m³</th>\
+         <th>state</th></tr></thead>\n<tbody>"
     );
 }
 
@@ -568,6 +606,7 @@ pub fn parameter_rows(out: &mut String, s: &Snapshot, part: &SitePart) {
         let fit = m.fit.fit.as_ref();
         let report = fit.and_then(|f| f.report.as_ref());
         let values = m.fit.derived.as_ref().map(|d| &d.values);
+        let intervals = m.fit.derived.as_ref().map(|d| &d.intervals);
         let kind = match m.row.stored.sample.kind {
             SampleKind::LabCore => "",
             SampleKind::FieldPairing => " <span class=\"muted\">(field pairing)</span>",
@@ -602,9 +641,18 @@ pub fn parameter_rows(out: &mut String, s: &Snapshot, part: &SitePart) {
             used = fit.map_or_else(|| NONE.to_string(), |f| f.n_points.to_string()),
             flagged = s.flagged_count(m),
             excluded = s.excluded_count(m),
-            fc = num(values.and_then(|v| v.theta_field_capacity), DIGITS),
-            pwp = num(values.and_then(|v| v.theta_wilting_point), DIGITS),
-            aw = num(values.and_then(|v| v.plant_available_water), DIGITS),
+            fc = with_interval(
+                values.and_then(|v| v.theta_field_capacity),
+                intervals.and_then(|i| i.theta_field_capacity.as_ref())
+            ),
+            pwp = with_interval(
+                values.and_then(|v| v.theta_wilting_point),
+                intervals.and_then(|i| i.theta_wilting_point.as_ref())
+            ),
+            aw = with_interval(
+                values.and_then(|v| v.plant_available_water),
+                intervals.and_then(|i| i.plant_available_water.as_ref())
+            ),
             state = state_cell(&m.fit.state),
         );
         out.push_str(&state_note(
@@ -622,8 +670,8 @@ fn profile_table(out: &mut String, part: &SitePart) {
     let _ = writeln!(
         out,
         "<h3>Available water of the profile, 0–{} cm</h3>\n<table>\n<thead><tr><th>layer</th>\
-         <th>lab cores (fitted / stale)</th><th>available water, m³/m³</th>\
-         <th>field pairings, m³/m³</th><th>depth in root zone, cm</th><th>water, mm</th>\
+         <th>lab cores (fitted / stale)</th><th>available water ± 95&#160;%, m³/m³</th>\
+         <th>field pairings, m³/m³</th><th>depth in root zone, cm</th><th>water ± 95&#160;%, mm</th>\
          </tr></thead>\n<tbody>",
         num(Some(p.root_zone_cm), 6)
     );
@@ -637,10 +685,10 @@ fn profile_table(out: &mut String, part: &SitePart) {
             cores = w.lab_cores,
             fitted = w.fitted_cores,
             stale = w.stale_cores,
-            aw = num(w.available_water, DIGITS),
+            aw = with_sum_interval(w.available_water, w.available_water_interval),
             field = num(w.field_available_water, DIGITS),
             depth = num(Some(w.depth_in_zone_cm), 6),
-            mm = num(w.water_mm, DIGITS),
+            mm = with_sum_interval(w.water_mm, w.water_mm_interval),
         );
     }
     let uncovered = p.uncovered_cm();
@@ -657,7 +705,43 @@ fn profile_table(out: &mut String, part: &SitePart) {
         "<tr class=\"total\"><td>profile total{note}</td><td></td><td></td><td></td>\
          <td class=\"num\">{}</td><td class=\"num\">{}</td></tr>\n</tbody>\n</table>",
         num(Some(p.covered_cm), 6),
-        num(Some(p.total_mm), DIGITS)
+        with_sum_interval(Some(p.total_mm), p.total_mm_interval)
+    );
+    let pooled = p.between_cores.map_or_else(
+        || {
+            "No layer of the campaign has two fitted lab cores, so the between-core variance \
+             cannot be estimated and layers have no interval."
+                .to_string()
+        },
+        |b| {
+            format!(
+                "Between-core variance {}: the campaign's layers with two or more fitted lab \
+                 cores.",
+                b.describe()
+            )
+        },
+    );
+    let notes: Vec<String> = p
+        .layers
+        .iter()
+        .zip(&part.layers)
+        .filter_map(|(w, layer)| {
+            w.interval_note
+                .as_ref()
+                .map(|n| format!("{}: {n}.", layer_label(layer)))
+        })
+        .chain(p.total_note.iter().map(|n| format!("Total: {n}.")))
+        .collect();
+    let _ = writeln!(
+        out,
+        "<p class=\"muted\">± is the 95&#160;% interval: a layer's random-effects mean over its \
+         lab cores, the total with the layers taken as independent. {}{}</p>",
+        escape(&pooled),
+        if notes.is_empty() {
+            String::new()
+        } else {
+            format!(" {}", escape(&notes.join(" ")))
+        }
     );
 }
 
@@ -866,8 +950,9 @@ fn methods(out: &mut String, s: &Snapshot, models: &[ModelKind]) {
          (pF {fc_pf}); θ at the permanent wilting point is its water content at {pwp} kPa = \
          {pwp_cm} cm (pF {pwp_pf}). These suctions are campaign settings. The plant-available \
          water of a fit is θ(FC) − θ(PWP), in m³/m³.</p>\n\
-         <p>A layer's available water is the mean over its lab cores with a current (or stale) \
-         fit; field pairings are shown beside it and not used in the sum. The profile's \
+         <p>A layer's available water is the random-effects mean over its lab cores with a \
+         current (or stale) fit (below); field pairings are shown beside it and not used in the \
+         sum. The profile's \
          available water, in mm, is Σ AW<sub>layer</sub> × d<sub>layer</sub> × 10 mm/cm, where \
          d<sub>layer</sub> is the thickness in cm of the layer's part between the surface and \
          {zone} cm. Where part of that depth has no layer with available water, the total is a \
@@ -879,6 +964,30 @@ fn methods(out: &mut String, s: &Snapshot, models: &[ModelKind]) {
         pwp_cm = num(Some(pwp_cm), 5),
         pwp_pf = num(Some(pwp_cm.log10()), 3),
         zone = num(Some(s.root_zone_cm), 6),
+    );
+    let _ = writeln!(
+        out,
+        "<h3>95&#160;% intervals of the derived values</h3>\n\
+         <p>Each fit's θ at FC and PWP, available water, air entry, suction at S<sub>e</sub> = ½ \
+         and (with Ks) K at FC and PWP carry a 95&#160;% interval by the delta method: \
+         Var(f) ≈ gᵀ Cov g, g the analytic gradient of the value with respect to the parameters \
+         and Cov the fit's covariance, and the interval f ± t<sub>0.975, n−k</sub> × SE (for \
+         suctions and conductivities on the log scale, as for the suction parameters). The curve's \
+         95&#160;% band is the same computation for θ(h), so at FC and PWP it is the interval of θ \
+         there. Parameters fixed or held on a bound have no covariance and are treated as known; \
+         Ks is treated as known. Where a fit gives reason to doubt the delta method (a parameter \
+         whose interval reaches past a bound, a breakpoint on a reading, n − k ≤ 2), the value is \
+         also taken over {draws} parameter sets drawn from the fitted distribution; when that \
+         interval differs from the delta method's by more than 10&#160;% of its width, it is the \
+         one shown, marked Monte Carlo.</p>\n\
+         <p>A layer's available water is the random-effects mean of its lab cores \
+         (DerSimonian &amp; Laird 1986): each core weighted by 1 / (SE<sub>i</sub>² + τ²), with \
+         SE<sub>i</sub> the standard error of its available water and τ² the between-core \
+         variance estimated by the method of moments and pooled over the campaign's layers with \
+         two or more fitted lab cores (a layer of two cores cannot estimate it alone); its \
+         interval is the mean ± 1.96 / √(Σ weights). The profile's interval adds the layers' \
+         variances, the layers taken as independent.</p>",
+        draws = crate::fit::delta::MC_DRAWS,
     );
     let _ = writeln!(
         out,

@@ -3,7 +3,7 @@
 //! Layout (schema version [`SCHEMA_VERSION`]):
 //!
 //! ```text
-//! { "format": "porewise-campaign", "schema_version": 2,
+//! { "format": "porewise-campaign", "schema_version": 3,
 //!   "program": {"name", "version"}, "exported_at", "fingerprint_sha256",
 //!   "data": { "campaign", "scope", "imports": [..],
 //!             "sites": [ { ..., "profile", "layers": [ { ..., "water", "samples": [
@@ -23,8 +23,15 @@
 //! fingerprint itself. Two exports of the same campaign file with the same options have the
 //! same fingerprint, whichever porewise version of the same schema version wrote them.
 //!
+//! Version 3 added the 95 % intervals: each fit's `derived.intervals` (per value `lo95`,
+//! `hi95`, `se`, `scale`, `method`, `note`; the parameters taken as known; why there are none),
+//! each layer's `available_water_interval` and `water_mm_interval` (with `interval_note`), the
+//! profile's `total_mm_interval` (with `total_note`) and the campaign's `between_cores`, the
+//! pooled between-core variance of available water the layer intervals use.
+//!
 //! A few members reuse the fit engine's documented types ([`ParamEstimate`], [`ParamMatrix`],
-//! [`Termination`], [`DerivedValues`], [`Ranking`]) and the store's [`FitState`]; a change to
+//! [`Termination`], [`DerivedValues`], [`Ranking`]), the analysis' interval types
+//! ([`DerivedIntervals`], [`SumInterval`], [`BetweenCores`]) and the store's [`FitState`]; a change to
 //! any of them is a change of this schema and bumps [`SCHEMA_VERSION`] (a test lists every key
 //! path of the document, so such a change cannot go unnoticed).
 
@@ -36,7 +43,7 @@ use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
 use super::snapshot::{LayerPart, ReadingFlag, SamplePart, SitePart, Snapshot};
-use crate::analysis::water::LayerWater;
+use crate::analysis::water::{BetweenCores, DerivedIntervals, LayerWater, SumInterval};
 use crate::fit::{FitReport, ParamEstimate, ParamMatrix, Termination};
 use crate::model::conductivity::{ConductivityForm, ConductivityModel};
 use crate::model::derived::DerivedValues;
@@ -45,7 +52,7 @@ use crate::model::number::hex;
 use crate::store::fits::{FitState, Ranking, StoredFit};
 
 /// The version of this document layout; bumped on any change to it.
-pub const SCHEMA_VERSION: u32 = 2;
+pub const SCHEMA_VERSION: u32 = 3;
 
 /// The value of the `format` member, naming what the document is.
 pub const FORMAT: &str = "porewise-campaign";
@@ -103,6 +110,11 @@ pub struct CampaignInfo {
     pub field_capacity_kpa: f64,
     /// Suction at the permanent wilting point, kPa.
     pub wilting_point_kpa: f64,
+    /// The between-core variance of available water under these suctions, pooled over the
+    /// campaign's layers with two or more fitted lab cores (DerSimonian & Laird 1986): `tau2`
+    /// in (m3/m3)^2, `tau` in m3/m3, the `layers` and `cores` it came from; `null` when no
+    /// layer has two fitted lab cores.
+    pub between_cores: Option<BetweenCores>,
 }
 
 /// What the export covers.
@@ -167,6 +179,10 @@ pub struct ProfileData {
     pub root_zone_cm: f64,
     /// Sum over the layers with available water, mm.
     pub total_mm: f64,
+    /// Its 95 % interval, mm (`lo95`, `hi95`, `se`; the layers taken as independent).
+    pub total_mm_interval: Option<SumInterval>,
+    /// Why the total has no interval, when it has none.
+    pub total_note: Option<String>,
     /// Depth of the root zone covered by layers with available water, cm.
     pub covered_cm: f64,
     /// Depth not covered (no layer, or no fitted lab core): the total is a lower bound when
@@ -212,14 +228,21 @@ pub struct LayerWaterData {
     pub fitted_cores: usize,
     /// Of those, cores whose fit is stale.
     pub stale_cores: usize,
-    /// Mean plant-available water over the fitted lab cores, m3/m3.
+    /// Plant-available water of the layer, m3/m3: the random-effects mean over the fitted lab
+    /// cores (their plain mean when the layer has no interval).
     pub available_water_m3_m3: Option<f64>,
+    /// Its 95 % interval, m3/m3 (`lo95`, `hi95`, `se`).
+    pub available_water_interval: Option<SumInterval>,
+    /// Why the layer has no interval, when it has none.
+    pub interval_note: Option<String>,
     /// Mean available water of the field pairings (not in the sum), m3/m3.
     pub field_available_water_m3_m3: Option<f64>,
     /// Thickness of the layer inside the root zone, cm.
     pub depth_in_root_zone_cm: f64,
     /// Available water of that part, mm.
     pub water_mm: Option<f64>,
+    /// Its 95 % interval, mm.
+    pub water_mm_interval: Option<SumInterval>,
 }
 
 /// One sample.
@@ -421,6 +444,12 @@ pub struct ResidualData {
 pub struct DerivedData {
     /// Water contents at FC and PWP, available water, air entry, inflection points.
     pub values: DerivedValues,
+    /// 95 % intervals of theta at FC and PWP, available water, the air entry, h at Se = 1/2
+    /// and K at FC and PWP: `lo95`, `hi95`, `se` in the value's unit, `scale` (`linear`, or
+    /// `log` for suctions and conductivities), `method` (`delta-method` or `monte-carlo`) and
+    /// `note`; `known_parameters` (fixed or held on a bound, treated as known) and `missing`
+    /// (why there are none).
+    pub intervals: DerivedIntervals,
     /// Saturated conductivity of the layer, cm/day.
     pub ks_cm_per_day: Option<f64>,
     /// The conductivity model of the K values (`mualem-van-genuchten`, `burdine-brooks-corey`,
@@ -488,6 +517,7 @@ impl CampaignData {
                 created_at: rfc3339(s.settings.created_at),
                 field_capacity_kpa: s.settings.fc_kpa,
                 wilting_point_kpa: s.settings.pwp_kpa,
+                between_cores: s.between_cores,
             },
             scope: Scope {
                 site: s.site_filter.clone(),
@@ -792,6 +822,8 @@ pub fn site_head(part: &SitePart) -> SiteData {
         profile: part.profile.as_ref().map(|p| ProfileData {
             root_zone_cm: p.root_zone_cm,
             total_mm: p.total_mm,
+            total_mm_interval: p.total_mm_interval,
+            total_note: p.total_note.clone(),
             covered_cm: p.covered_cm,
             uncovered_cm: p.uncovered_cm(),
         }),
@@ -823,9 +855,12 @@ pub fn layer_head(part: &SitePart, l: &LayerPart) -> LayerData {
             fitted_cores: w.fitted_cores,
             stale_cores: w.stale_cores,
             available_water_m3_m3: w.available_water,
+            available_water_interval: w.available_water_interval,
+            interval_note: w.interval_note.clone(),
             field_available_water_m3_m3: w.field_available_water,
             depth_in_root_zone_cm: w.depth_in_zone_cm,
             water_mm: w.water_mm,
+            water_mm_interval: w.water_mm_interval,
         }),
         samples: Vec::new(),
     }
@@ -951,6 +986,7 @@ fn fit_data(f: &StoredFit, part: &SamplePart) -> FitData {
         ranking: f.ranking.clone(),
         derived: part.fit.derived.as_ref().map(|d| DerivedData {
             values: d.values.clone(),
+            intervals: d.intervals.clone(),
             ks_cm_per_day: d.ks_cm_per_day,
             conductivity_model: d.conductivity_model,
             k_field_capacity_cm_per_day: d.k_field_capacity_cm_per_day,

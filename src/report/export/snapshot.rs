@@ -5,7 +5,9 @@ use std::collections::{BTreeMap, BTreeSet, HashMap};
 
 use rusqlite::Connection;
 
-use crate::analysis::{SampleFit, SiteProfile, derive_fit, profiles};
+use crate::analysis::{
+    BetweenCores, SampleFit, SiteProfile, between_cores, derive_fit, profiles_pooled,
+};
 use crate::model::conductivity::ConductivityForm;
 use crate::model::retention::ModelKind;
 use crate::store::batches::{self, ImportBatchRecord};
@@ -69,6 +71,9 @@ pub struct Snapshot {
     pub root_zone_cm: f64,
     /// The conductivity form asked for at export (`None`: the one recorded with each fit).
     pub conductivity: Option<ConductivityForm>,
+    /// The between-core variance of available water pooled over the whole campaign's layers
+    /// (whatever the site filter), which every layer interval uses.
+    pub between_cores: Option<BetweenCores>,
     /// Sites by code.
     pub sites: Vec<SitePart>,
     /// Every import batch, oldest first.
@@ -209,7 +214,8 @@ pub fn read(
     Ok(whole)
 }
 
-/// What every site of an export shares: settings, scope and imports, without any site.
+/// What every site of an export shares: settings, scope, imports and the campaign's pooled
+/// between-core variance, without any site.
 ///
 /// # Errors
 /// An unknown site code, or an SQLite error.
@@ -224,8 +230,10 @@ pub fn frame(
         ..Selection::default()
     };
     selection.check(conn)?;
+    let settings = campaign::settings(conn)?;
     Ok(Snapshot {
-        settings: campaign::settings(conn)?,
+        between_cores: between_cores(conn, &settings)?,
+        settings,
         site_filter: site.map(str::to_string),
         root_zone_cm,
         conductivity,
@@ -284,9 +292,15 @@ pub fn walk_site(conn: &Connection, frame: &Snapshot, row: SiteRow) -> Result<Si
             (layer, samples)
         })
         .collect();
-    let profile = profiles(conn, &frame.settings, frame.root_zone_cm, Some(&code))?
-        .into_iter()
-        .find(|p| p.site == code);
+    let profile = profiles_pooled(
+        conn,
+        &frame.settings,
+        frame.root_zone_cm,
+        Some(&code),
+        frame.between_cores,
+    )?
+    .into_iter()
+    .find(|p| p.site == code);
     Ok(SiteWalk {
         row,
         layers,
@@ -396,6 +410,7 @@ impl SiteWalk {
             site_filter: frame.site_filter.clone(),
             root_zone_cm: frame.root_zone_cm,
             conductivity: frame.conductivity,
+            between_cores: frame.between_cores,
             sites: vec![SitePart {
                 row: self.row.clone(),
                 layers: vec![LayerPart {

@@ -10,7 +10,9 @@
 //! `w1`, `b`) dimensionless; each `<parameter>_se` is in the unit of its parameter.
 
 use super::snapshot::Snapshot;
+use crate::analysis::SumInterval;
 use crate::report::fit_table::parameter_union;
+use crate::report::fits::{derived_with_intervals, interval_notes};
 use crate::report::{csv_safe, format_number};
 
 /// The fixed columns of `parameters.csv` before the parameter columns.
@@ -27,8 +29,11 @@ pub const PARAMETER_LEAD_COLUMNS: [&str; 10] = [
     "stale",
 ];
 
-/// The fixed columns of `parameters.csv` after the parameter and standard-error columns.
-pub const PARAMETER_TAIL_COLUMNS: [&str; 18] = [
+/// The fixed columns of `parameters.csv` after the parameter and standard-error columns:
+/// statistics, the suctions used, each derived value followed by its 95 % interval
+/// (`_lo95`, `_hi95`; see [`crate::analysis::water`]), the notes on those intervals, and the
+/// fit's identity and standing.
+pub const PARAMETER_TAIL_COLUMNS: [&str; 37] = [
     "sse",
     "rmse_m3_m3",
     "r2",
@@ -41,16 +46,37 @@ pub const PARAMETER_TAIL_COLUMNS: [&str; 18] = [
     "fc_kpa",
     "pwp_kpa",
     "theta_fc_m3_m3",
+    "theta_fc_m3_m3_lo95",
+    "theta_fc_m3_m3_hi95",
     "theta_pwp_m3_m3",
+    "theta_pwp_m3_m3_lo95",
+    "theta_pwp_m3_m3_hi95",
     "available_water_m3_m3",
+    "available_water_m3_m3_lo95",
+    "available_water_m3_m3_hi95",
     "air_entry_cm",
+    "air_entry_cm_lo95",
+    "air_entry_cm_hi95",
+    "suction_at_half_saturation_cm",
+    "suction_at_half_saturation_cm_lo95",
+    "suction_at_half_saturation_cm_hi95",
+    "conductivity_model",
+    "k_fc_cm_per_day",
+    "k_fc_cm_per_day_lo95",
+    "k_fc_cm_per_day_hi95",
+    "k_pwp_cm_per_day",
+    "k_pwp_cm_per_day_lo95",
+    "k_pwp_cm_per_day_hi95",
+    "interval_note",
     "fit_id",
     "fitted_at_utc",
     "state_detail",
 ];
 
-/// The columns of `profiles.csv`.
-pub const PROFILE_COLUMNS: [&str; 15] = [
+/// The columns of `profiles.csv`: each available water and mm value followed by its 95 %
+/// interval, and on every row the campaign's pooled between-core variance (tau^2, (m3/m3)^2)
+/// with the number of layers it came from.
+pub const PROFILE_COLUMNS: [&str; 22] = [
     "site",
     "row",
     "layer",
@@ -61,11 +87,18 @@ pub const PROFILE_COLUMNS: [&str; 15] = [
     "fitted_cores",
     "stale_cores",
     "available_water_m3_m3",
+    "available_water_m3_m3_lo95",
+    "available_water_m3_m3_hi95",
     "field_available_water_m3_m3",
     "depth_in_root_zone_cm",
     "water_mm",
+    "water_mm_lo95",
+    "water_mm_hi95",
     "root_zone_cm",
     "uncovered_cm",
+    "between_core_tau2_m3_m3_squared",
+    "between_core_layers",
+    "interval_note",
 ];
 
 /// A number cell: exact text, or empty for a missing or non-finite value.
@@ -139,7 +172,7 @@ pub fn parameter_rows(snapshot: &Snapshot, params: &[String]) -> Vec<Vec<String>
         let at = &layer.row.stored.layer.at;
         let fit = part.fit.fit.as_ref();
         let report = fit.and_then(|f| f.report.as_ref());
-        let values = part.fit.derived.as_ref().map(|d| &d.values);
+        let derived = part.fit.derived.as_ref();
         let estimate = |name: &str| report.and_then(|r| r.parameter(name));
         let mut row = vec![
             text(Some(&at.site)),
@@ -167,10 +200,22 @@ pub fn parameter_rows(snapshot: &Snapshot, params: &[String]) -> Vec<Vec<String>
             snapshot.excluded_count(part).to_string(),
             format_number(snapshot.settings.fc_kpa),
             format_number(snapshot.settings.pwp_kpa),
-            num(values.and_then(|v| v.theta_field_capacity)),
-            num(values.and_then(|v| v.theta_wilting_point)),
-            num(values.and_then(|v| v.plant_available_water)),
-            num(values.and_then(|v| v.air_entry.map(|a| a.suction_cm))),
+        ]);
+        for (k, (value, interval)) in derived_with_intervals(derived).into_iter().enumerate() {
+            if k == 5 {
+                row.push(
+                    derived
+                        .and_then(|d| d.conductivity_model)
+                        .map(|m| m.id().to_string())
+                        .unwrap_or_default(),
+                );
+            }
+            row.push(num(value));
+            row.push(num(interval.map(|i| i.lo95)));
+            row.push(num(interval.map(|i| i.hi95)));
+        }
+        row.extend([
+            text(derived.and_then(interval_notes).as_deref()),
             fit.map(|f| f.id.to_string()).unwrap_or_default(),
             fit.map(|f| f.created_at.format("%Y-%m-%dT%H:%M:%SZ").to_string())
                 .unwrap_or_default(),
@@ -196,8 +241,8 @@ pub fn state_detail(state: &crate::store::fits::FitState) -> String {
 }
 
 /// `profiles.csv`: per site one `layer` row per layer, top down, then one `total` row with
-/// the profile sum (`water_mm`), the depth covered (`depth_in_root_zone_cm`) and the depth
-/// without data (`uncovered_cm`).
+/// the profile sum (`water_mm`) and its interval, the depth covered (`depth_in_root_zone_cm`)
+/// and the depth without data (`uncovered_cm`).
 ///
 /// # Errors
 /// Only if the CSV writer fails on memory.
@@ -209,6 +254,12 @@ pub fn profiles_csv(snapshot: &Snapshot) -> Result<String, csv::Error> {
 /// The rows of `profiles.csv` for a snapshot's sites.
 pub fn profile_rows(snapshot: &Snapshot) -> Vec<Vec<String>> {
     let mut rows = Vec::new();
+    let (tau2, pooled_layers) = match snapshot.between_cores {
+        Some(b) => (format_number(b.tau2), b.layers.to_string()),
+        None => (String::new(), "0".to_string()),
+    };
+    let lo = |i: Option<SumInterval>| num(i.map(|i| i.lo95));
+    let hi = |i: Option<SumInterval>| num(i.map(|i| i.hi95));
     for profile in snapshot.sites.iter().filter_map(|s| s.profile.as_ref()) {
         let zone = format_number(profile.root_zone_cm);
         for w in &profile.layers {
@@ -223,13 +274,21 @@ pub fn profile_rows(snapshot: &Snapshot) -> Vec<Vec<String>> {
                 w.fitted_cores.to_string(),
                 w.stale_cores.to_string(),
                 num(w.available_water),
+                lo(w.available_water_interval),
+                hi(w.available_water_interval),
                 num(w.field_available_water),
                 format_number(w.depth_in_zone_cm),
                 num(w.water_mm),
+                lo(w.water_mm_interval),
+                hi(w.water_mm_interval),
                 zone.clone(),
                 String::new(),
+                tau2.clone(),
+                pooled_layers.clone(),
+                text(w.interval_note.as_deref()),
             ]);
         }
+        let total = profile.total_mm_interval;
         rows.push(vec![
             text(Some(&profile.site)),
             "total".to_string(),
@@ -242,10 +301,22 @@ pub fn profile_rows(snapshot: &Snapshot) -> Vec<Vec<String>> {
             String::new(),
             String::new(),
             String::new(),
+            String::new(),
+            String::new(),
             format_number(profile.covered_cm),
             format_number(profile.total_mm),
+            lo(total),
+            hi(total),
             zone,
             format_number(profile.uncovered_cm()),
+            tau2.clone(),
+            pooled_layers.clone(),
+            text(
+                profile
+                    .total_note
+                    .as_deref()
+                    .or(total.map(|_| "layers taken as independent")),
+            ),
         ]);
     }
     rows

@@ -6,7 +6,7 @@ use std::collections::HashMap;
 use rusqlite::Connection;
 
 use crate::analysis::advise::{AdviseOptions, PoolCache, advise_sample};
-use crate::analysis::{derive_fit, profiles, sample_fits};
+use crate::analysis::{BetweenCores, derive_fit, profiles_pooled, sample_fits};
 use crate::field::time::parse_instant;
 use crate::model::domain::{FlagStatus, FlagTarget};
 use crate::model::domain::{SampleKind, SensorKind};
@@ -130,7 +130,8 @@ pub fn sample(
     }))
 }
 
-/// One site's depth view.
+/// One site's depth view; its layer intervals with the campaign's between-core variance
+/// `pooled` (from [`crate::analysis::between_cores`]).
 ///
 /// # Errors
 /// An SQLite error or a stored fit that does not decode.
@@ -139,13 +140,14 @@ pub fn depth(
     settings: &CampaignSettings,
     site: &str,
     root_zone_cm: f64,
+    pooled: Option<BetweenCores>,
 ) -> Result<DepthData> {
     let selection = Selection {
         site: Some(site.to_string()),
         ..Selection::default()
     };
     let fits = sample_fits(conn, settings, &selection)?;
-    let profile = profiles(conn, settings, root_zone_cm, Some(site))?;
+    let profile = profiles_pooled(conn, settings, root_zone_cm, Some(site), pooled)?;
     let name = crate::store::sites::find(conn, site)?.and_then(|s| s.site.name);
     Ok(DepthData::from_parts(
         site,

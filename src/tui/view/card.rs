@@ -1,21 +1,23 @@
 //! The fit card: model, every parameter with its ± and unit (and the 95 % interval of a
 //! suction or inverse suction, on the log scale; ≈ and a note where a breakpoint sits on a
 //! reading, its error being one-sided), statistics with the parameter count of AICc and BIC,
-//! derived values (FC, PWP, available water, air entry with its construction), staleness, and
-//! the auto ranking.
+//! derived values with their 95 % intervals (FC, PWP, available water, air entry with its
+//! construction, h at Se = 1/2, K where Ks is known), staleness, and the auto ranking.
 
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Paragraph, Widget, Wrap};
 
-use crate::fit::IntervalScale;
+use crate::analysis::FitDerived;
+use crate::fit::{Interval95, IntervalMethod, IntervalScale};
 use crate::model::retention::ModelKind;
+use crate::model::units::CM_PER_KPA;
 use crate::report::fits::state_text;
 
-use super::super::app::{AppState, Detail, FitTag, NextStep, SampleDetail, model_tag};
+use super::super::app::{AppState, AxisUnit, Detail, FitTag, NextStep, SampleDetail, model_tag};
 use super::super::theme::Theme;
-use super::{framed, kpa_text, num, opt_num, theta_text};
+use super::{framed, kpa_text, num, opt_num, suction_text, theta_text};
 
 /// The fit card pane.
 pub struct CardPane<'a> {
@@ -33,6 +35,144 @@ pub fn estimate_text(value: f64, se: f64) -> (String, String) {
     }
     let decimals = (1 - se.log10().floor() as i32).clamp(0, 10) as usize;
     (format!("{value:.decimals$}"), format!("{se:.decimals$}"))
+}
+
+/// `  95 % lo…hi UNIT, log scale` (or `, Monte Carlo`) for an interval that `±` does not state;
+/// `text` writes a number in the unit `unit` (`pF` goes before the numbers).
+fn range_line(
+    i: &Interval95,
+    text: impl Fn(f64) -> String,
+    unit: &str,
+    theme: Theme,
+) -> Line<'static> {
+    let how = match (i.method, i.scale) {
+        (IntervalMethod::MonteCarlo, _) => "Monte Carlo",
+        (_, IntervalScale::Log) => "log scale",
+        (_, IntervalScale::Linear) => "linear scale",
+    };
+    let range = format!("{}…{}", text(i.lo95), text(i.hi95));
+    let range = if unit == "pF" {
+        format!("pF {range}")
+    } else {
+        format!("{range} {unit}")
+    };
+    Line::from(Span::styled(format!("  95 % {range}, {how}"), theme.dim()))
+}
+
+/// A water content with its 95 % interval: `0.284 ± 0.012 m3/m3`, or the value and a range
+/// line where the interval is not symmetric.
+fn theta_with_interval(
+    value: Option<f64>,
+    i: Option<&Interval95>,
+) -> (String, Option<&Interval95>) {
+    match (value, i) {
+        (None, _) => ("–".to_string(), None),
+        (Some(v), Some(i)) if i.is_symmetric() => (
+            format!("{} ± {} m3/m3", theta_text(v), theta_text(i.half_width())),
+            None,
+        ),
+        (Some(v), i) => (format!("{} m3/m3", theta_text(v)), i),
+    }
+}
+
+/// The derived values with their 95 % intervals (FC, PWP, available water, air entry, h at
+/// Se = 1/2, K where Ks is known), what the intervals treat as known, and their notes.
+fn derived_lines(lines: &mut Vec<Line<'static>>, d: &FitDerived, units: AxisUnit, theme: Theme) {
+    let (v, iv) = (&d.values, &d.intervals);
+    lines.push(Line::from(Span::styled(
+        "Derived (± 95 %)",
+        theme.heading(),
+    )));
+    let theta_range = |i: &Interval95| range_line(i, theta_text, "m3/m3", theme);
+    let suction = |cm: f64| kpa_text(cm / CM_PER_KPA, units);
+    let suction_range =
+        |i: &Interval95| range_line(i, |cm| suction_text(cm, units), units.symbol(), theme);
+    let rows = [
+        (
+            format!("FC  ({}) θ", kpa_text(v.field_capacity_kpa, units)),
+            v.theta_field_capacity,
+            iv.theta_field_capacity.as_ref(),
+        ),
+        (
+            format!("PWP ({}) θ", kpa_text(v.wilting_point_kpa, units)),
+            v.theta_wilting_point,
+            iv.theta_wilting_point.as_ref(),
+        ),
+        (
+            "available water".to_string(),
+            v.plant_available_water,
+            iv.plant_available_water.as_ref(),
+        ),
+    ];
+    for (label, value, interval) in rows {
+        let (text, range) = theta_with_interval(value, interval);
+        lines.push(Line::from(format!("{label} {text}")));
+        lines.extend(range.map(theta_range));
+    }
+    match v.air_entry {
+        Some(a) => {
+            lines.push(Line::from(format!("air entry {}", suction(a.suction_cm))));
+            lines.extend(iv.air_entry_cm.as_ref().map(suction_range));
+            lines.push(Line::from(Span::styled(
+                format!("  by {}", a.construction.describe()),
+                theme.dim(),
+            )));
+        }
+        None => lines.push(Line::from("air entry –")),
+    }
+    if let Some(h) = v.suction_at_half_saturation_cm {
+        lines.push(Line::from(format!("h at Se ½ {}", suction(h))));
+        lines.extend(iv.suction_at_half_saturation_cm.as_ref().map(suction_range));
+    }
+    let per_day = |k: f64| num(k, 3);
+    for (label, value, interval) in [
+        (
+            "K at FC",
+            d.k_field_capacity_cm_per_day,
+            &iv.k_field_capacity_cm_per_day,
+        ),
+        (
+            "K at PWP",
+            d.k_wilting_point_cm_per_day,
+            &iv.k_wilting_point_cm_per_day,
+        ),
+    ] {
+        if let Some(k) = value {
+            lines.push(Line::from(format!("{label} {} cm/day", per_day(k))));
+            lines.extend(
+                interval
+                    .as_ref()
+                    .map(|i| range_line(i, per_day, "cm/day", theme)),
+            );
+        }
+    }
+    let notes = [
+        &iv.theta_field_capacity,
+        &iv.theta_wilting_point,
+        &iv.plant_available_water,
+        &iv.air_entry_cm,
+        &iv.suction_at_half_saturation_cm,
+        &iv.k_field_capacity_cm_per_day,
+        &iv.k_wilting_point_cm_per_day,
+    ]
+    .into_iter()
+    .filter_map(|i| i.as_ref().and_then(|i| i.note.clone()));
+    let mut seen: Vec<String> = Vec::new();
+    for note in notes.chain(iv.missing.clone()) {
+        if !seen.contains(&note) {
+            lines.push(Line::from(Span::styled(format!("  {note}"), theme.dim())));
+            seen.push(note);
+        }
+    }
+    if !iv.known_parameters.is_empty() {
+        lines.push(Line::from(Span::styled(
+            format!(
+                "  taken as known (fixed or on a bound): {}",
+                iv.known_parameters.join(", ")
+            ),
+            theme.dim(),
+        )));
+    }
 }
 
 /// The card's lines for a sample.
@@ -118,36 +258,8 @@ pub fn card_lines(state: &AppState, d: &SampleDetail, theme: Theme) -> Vec<Line<
     if let Some(message) = &fit.message {
         lines.push(Line::from(Span::styled(message.clone(), theme.dim())));
     }
-    if let Some(v) = &fit.derived {
-        lines.push(Line::from(Span::styled("Derived", theme.heading())));
-        let theta = |t: Option<f64>| t.map_or_else(|| "–".to_string(), theta_text);
-        lines.push(Line::from(format!(
-            "FC  ({}) θ {}",
-            kpa_text(v.field_capacity_kpa, state.units),
-            theta(v.theta_field_capacity)
-        )));
-        lines.push(Line::from(format!(
-            "PWP ({}) θ {}",
-            kpa_text(v.wilting_point_kpa, state.units),
-            theta(v.theta_wilting_point)
-        )));
-        lines.push(Line::from(format!(
-            "available water {} m3/m3",
-            theta(v.plant_available_water)
-        )));
-        match v.air_entry {
-            Some(a) => {
-                lines.push(Line::from(format!(
-                    "air entry {}",
-                    kpa_text(a.suction_cm / crate::model::units::CM_PER_KPA, state.units)
-                )));
-                lines.push(Line::from(Span::styled(
-                    format!("  by {}", a.construction.describe()),
-                    theme.dim(),
-                )));
-            }
-            None => lines.push(Line::from("air entry –")),
-        }
+    if let Some(d) = &fit.derived {
+        derived_lines(&mut lines, d, state.units, theme);
     }
     match &fit.next {
         Some(Ok(next)) => lines.push(next_line(next, state)),
@@ -288,6 +400,90 @@ mod tests {
         assert_eq!(
             text[at("next:")],
             "next: 5000 cm would take AW ±0.021 to ±0.012"
+        );
+    }
+
+    #[test]
+    fn derived_values_carry_their_95_percent_intervals_with_units() {
+        use crate::fit::{FitOptions, Readings, fit_model};
+        let h = [0.0, 10.0, 30.0, 60.0, 100.0, 330.0, 1000.0, 3000.0, 15000.0];
+        let y = [0.412, 0.405, 0.372, 0.33, 0.297, 0.224, 0.171, 0.131, 0.1];
+        let report = fit_model(
+            ModelKind::VanGenuchten,
+            &Readings::new(&h, &y),
+            &FitOptions::new(),
+        )
+        .expect("fits");
+        let settings = crate::store::CampaignSettings {
+            name: "card".into(),
+            description: None,
+            fc_kpa: 33.0,
+            pwp_kpa: 1500.0,
+            created_at: chrono::DateTime::UNIX_EPOCH,
+        };
+        let mut d =
+            crate::analysis::derive_fit(&report, &settings, Some(20.0), None).expect("derived");
+        let text = |d: &FitDerived| -> Vec<String> {
+            let mut lines = Vec::new();
+            derived_lines(&mut lines, d, AxisUnit::Cm, Theme::default());
+            lines
+                .iter()
+                .map(|l| l.spans.iter().map(|s| s.content.as_ref()).collect())
+                .collect()
+        };
+        let lines = text(&d);
+        let fc = d
+            .intervals
+            .theta_field_capacity
+            .clone()
+            .expect("FC interval");
+        let theta = d.values.theta_field_capacity.expect("FC");
+        assert_eq!(
+            lines[1],
+            format!(
+                "FC  (336.5 cm) θ {} ± {} m3/m3",
+                theta_text(theta),
+                theta_text(fc.half_width())
+            )
+        );
+        let at = |needle: &str| {
+            lines
+                .iter()
+                .position(|l| l.starts_with(needle))
+                .unwrap_or_else(|| panic!("no {needle:?} in {lines:#?}"))
+        };
+        // Suctions and conductivities: the range on the log scale on the next line.
+        for (label, unit) in [
+            ("air entry", "cm"),
+            ("h at Se ½", "cm"),
+            ("K at FC", "cm/day"),
+        ] {
+            let next = &lines[at(label) + 1];
+            assert!(
+                next.starts_with("  95 % ") && next.ends_with(&format!(" {unit}, log scale")),
+                "{label}: {next}"
+            );
+        }
+        assert!(lines[at("K at PWP")].ends_with(" cm/day"));
+        // A Monte Carlo interval is given as a range with its note; known parameters named.
+        let aw = d.intervals.plant_available_water.as_mut().expect("AW");
+        aw.method = IntervalMethod::MonteCarlo;
+        aw.note = Some("Monte Carlo (test note)".into());
+        d.intervals.known_parameters = vec!["theta_r".into()];
+        let lines = text(&d);
+        let aw_line = at("available water");
+        let lines_again = text(&d);
+        assert!(
+            !lines_again[aw_line].contains('±'),
+            "{}",
+            lines_again[aw_line]
+        );
+        assert!(lines_again[aw_line + 1].ends_with("m3/m3, Monte Carlo"));
+        assert!(lines.iter().any(|l| l == "  Monte Carlo (test note)"));
+        assert!(
+            lines
+                .iter()
+                .any(|l| l == "  taken as known (fixed or on a bound): theta_r")
         );
     }
 

@@ -1,7 +1,9 @@
 //! The depth view of one site: every layer's curves overlaid (each layer marked along its
 //! curves with its digit, so the legend reads without colour; field pairings dotted), the
 //! parameters by depth (field pairings tagged `≈` beside the lab cores), and the profile's
-//! available water in mm down to the root-zone depth, with the field pairings' beside it.
+//! available water in mm down to the root-zone depth with its 95 % interval (each layer's and
+//! the total's, and the pooled between-core variance they use), with the field pairings'
+//! beside it.
 
 use ratatui::buffer::Buffer;
 use ratatui::layout::{Constraint, Layout, Rect};
@@ -139,7 +141,7 @@ impl DepthScreen<'_> {
             buf,
         );
         let mut lines = vec![Line::from(Span::styled(
-            "  layer cm       AW     mm",
+            "  layer cm        AW  mm ±95 %",
             theme.heading(),
         ))];
         for (i, l) in data.layers.iter().enumerate() {
@@ -147,6 +149,11 @@ impl DepthScreen<'_> {
                 format!(" ~{}", l.stale_cores)
             } else {
                 String::new()
+            };
+            let mm = match (l.water_mm, l.water_mm_interval) {
+                (Some(v), Some(i)) => format!("{v:.1}±{:.1}", i.half_width()),
+                (Some(v), None) => format!("{v:.1}"),
+                (None, _) => "–".to_string(),
             };
             lines.push(Line::from(vec![
                 Span::styled(
@@ -156,7 +163,7 @@ impl DepthScreen<'_> {
                         .add_modifier(ratatui::style::Modifier::BOLD),
                 ),
                 Span::raw(format!(
-                    "{:<13}{:>6} {:>6}{stale}",
+                    "{:<12}{:>6} {mm:>9}{stale}",
                     format!(
                         "{}-{} {}",
                         l.top_cm,
@@ -165,19 +172,21 @@ impl DepthScreen<'_> {
                     ),
                     l.available_water
                         .map_or_else(|| "–".to_string(), |v| format!("{v:.3}")),
-                    l.water_mm
-                        .map_or_else(|| "–".to_string(), |v| format!("{v:.1}")),
                 )),
             ]));
             if let Some(field) = l.field_available_water {
                 lines.push(Line::from(vec![
                     Span::styled(format!("  {FIELD_TAG} "), theme.field_tag()),
-                    Span::raw(format!("{:<11}{field:>6.3}", "field")),
+                    Span::raw(format!("{:<10}{field:>6.3}", "field")),
                 ]));
             }
         }
+        let total = match data.total_mm_interval {
+            Some(i) => format!("{:.1} ± {:.1}", data.total_mm, i.half_width()),
+            None => format!("{:.1}", data.total_mm),
+        };
         lines.push(Line::from(Span::styled(
-            format!("total {:.1} mm to {} cm", data.total_mm, data.root_zone_cm),
+            format!("total {total} mm to {} cm", data.root_zone_cm),
             theme.heading(),
         )));
         if data.uncovered_cm > 0.0 {
@@ -189,10 +198,17 @@ impl DepthScreen<'_> {
                 theme.tone(super::super::app::Tone::Warning),
             )));
         }
+        if let Some(note) = &data.total_note {
+            lines.push(Line::from(Span::styled(note.clone(), theme.dim())));
+        }
+        let pooled = data.between_cores.map_or_else(
+            || "no between-core variance (no layer with two fitted cores)".to_string(),
+            |b| format!("between cores {}", b.describe()),
+        );
         lines.push(Line::from(Span::styled(
             format!(
-                "AW = θ(FC) − θ(PWP), m3/m3, lab-core mean ({FIELD_TAG} field, not summed); \
-                 FC {}, PWP {}",
+                "AW = θ(FC) − θ(PWP), m3/m3, lab-core random-effects mean ({FIELD_TAG} field, not \
+                 summed); FC {}, PWP {}; ± 95 %, layers independent; {pooled}",
                 kpa_text(data.fc_kpa, state.units),
                 kpa_text(data.pwp_kpa, state.units)
             ),
