@@ -509,6 +509,17 @@ fn every_place_shows_the_intervals() {
     assert_eq!(fit["air_entry_cm"]["scale"], "log");
     let page = read("report.html");
     assert!(page.contains("available water ± 95&#160;%, m³/m³"));
+    // Air entry and the suction at Se = 1/2 carry their log-scale ends in the parameter table.
+    let air_entry = page
+        .split("air entry ")
+        .skip(1)
+        .filter(|cell| cell.contains(" cm <span class=\"muted\">(95&#160;% "))
+        .count();
+    assert!(
+        air_entry > 10,
+        "{air_entry} air-entry cells with an interval"
+    );
+    assert!(page.contains("h at S<sub>e</sub> = ½ "));
     assert!(page.contains("Between-core variance τ² = "));
     assert!(page.contains("<h3>95&#160;% intervals of the derived values</h3>"));
 }

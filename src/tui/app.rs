@@ -828,6 +828,9 @@ pub struct DepthRow {
     pub shape: Vec<(String, f64)>,
     /// Plant-available water, m3/m3.
     pub available_water: Option<f64>,
+    /// Half the width of its 95 % interval, m3/m3, and whether that interval is a Monte Carlo
+    /// one (the delta method in doubt for this fit).
+    pub available_water_pm: Option<(f64, bool)>,
     /// Air-entry suction, cm.
     pub air_entry_cm: Option<f64>,
     /// RMSE, m3/m3.
@@ -989,6 +992,16 @@ impl DepthData {
                 theta_s,
                 shape,
                 available_water: values.and_then(|v| v.plant_available_water),
+                available_water_pm: fit
+                    .derived
+                    .as_ref()
+                    .and_then(|d| d.intervals.plant_available_water.as_ref())
+                    .map(|i| {
+                        (
+                            i.half_width(),
+                            i.method == crate::fit::IntervalMethod::MonteCarlo,
+                        )
+                    }),
                 air_entry_cm: values.and_then(|v| v.air_entry.map(|a| a.suction_cm)),
                 rmse: report.map(|r| r.rmse),
             });

@@ -13,7 +13,7 @@ use std::fmt::Write as _;
 use super::chart::{Marker, colour_hex, layer_colour, layer_label};
 use super::snapshot::{ReadingFlag, SitePart, SiteTally, Snapshot, models_in};
 use super::tables::state_detail;
-use crate::analysis::SumInterval;
+use crate::analysis::{FitDerived, SumInterval};
 use crate::fit::{FitReport, Interval95, IntervalMethod, IntervalScale};
 use crate::model::domain::SampleKind;
 use crate::model::number::significant;
@@ -29,7 +29,7 @@ const DIGITS: usize = 4;
 /// Significant digits of standard errors.
 const SE_DIGITS: usize = 2;
 /// Columns of the parameter table.
-const PARAMETER_COLUMNS: usize = 12;
+const PARAMETER_COLUMNS: usize = 13;
 /// What an empty (not applicable) cell shows.
 const NONE: &str = "–";
 
@@ -79,6 +79,62 @@ fn with_interval(value: Option<f64>, interval: Option<&Interval95>) -> String {
                 "log scale"
             }
         ),
+    }
+}
+
+/// The air entry, the suction at Se = 1/2 and (with Ks) K at FC and PWP, one per line, each
+/// with its 95 % interval (log scale, so given as its ends).
+fn more_derived_cell(d: &FitDerived) -> String {
+    let (v, i) = (&d.values, &d.intervals);
+    let lines = [
+        (
+            "air entry",
+            v.air_entry.as_ref().map(|a| a.suction_cm),
+            i.air_entry_cm.as_ref(),
+            "cm",
+        ),
+        (
+            "h at S<sub>e</sub> = ½",
+            v.suction_at_half_saturation_cm,
+            i.suction_at_half_saturation_cm.as_ref(),
+            "cm",
+        ),
+        (
+            "K at FC",
+            d.k_field_capacity_cm_per_day,
+            i.k_field_capacity_cm_per_day.as_ref(),
+            "cm/day",
+        ),
+        (
+            "K at PWP",
+            d.k_wilting_point_cm_per_day,
+            i.k_wilting_point_cm_per_day.as_ref(),
+            "cm/day",
+        ),
+    ];
+    let shown: Vec<String> = lines
+        .into_iter()
+        .filter(|(_, value, _, _)| value.is_some())
+        .map(|(name, value, interval, unit)| {
+            let range = interval.map_or_else(String::new, |i| {
+                let how = if i.method == IntervalMethod::MonteCarlo {
+                    ", Monte Carlo"
+                } else {
+                    ""
+                };
+                format!(
+                    " <span class=\"muted\">(95&#160;% {}…{}{how})</span>",
+                    num(Some(i.lo95), 3),
+                    num(Some(i.hi95), 3)
+                )
+            });
+            format!("{name} {} {unit}{range}", num(value, DIGITS))
+        })
+        .collect();
+    if shown.is_empty() {
+        NONE.to_string()
+    } else {
+        shown.join("<br/>")
     }
 }
 
@@ -555,7 +611,7 @@ pub fn section_start(
          <th>parameters ± standard error</th><th>RMSE, m³/m³</th><th>R²</th><th>AICc</th>\
          <th>readings used / flagged / left out</th><th>θ at FC ± 95&#160;%, m³/m³</th>\
          <th>θ at PWP ± 95&#160;%, m³/m³</th><th>available water ± 95&#160;%, m³/m³</th>\
-         <th>state</th></tr></thead>\n<tbody>"
+         <th>air entry, h at S<sub>e</sub> = ½, K at FC and PWP, 95&#160;%</th><th>state</th></tr></thead>\n<tbody>"
     );
 }
 
@@ -631,7 +687,8 @@ pub fn parameter_rows(out: &mut String, s: &Snapshot, part: &SitePart) {
             "<tr><td class=\"code\">{code}{kind}</td><td class=\"layer\">{layer}</td><td class=\"model\">{model}</td><td class=\"params\">{params}</td>\
              <td class=\"num\">{rmse}</td><td class=\"num\">{r2}</td><td class=\"num\">{aicc}</td>\
              <td class=\"num\">{used} / {flagged} / {excluded}</td><td class=\"num\">{fc}</td>\
-             <td class=\"num\">{pwp}</td><td class=\"num\">{aw}</td><td>{state}</td></tr>",
+             <td class=\"num\">{pwp}</td><td class=\"num\">{aw}</td><td class=\"num\">{more}</td>\
+             <td>{state}</td></tr>",
             code = escape(&m.row.stored.sample.code),
             layer = escape(&layer_label(layer)),
             params = report.map_or_else(|| NONE.to_string(), parameters_cell),
@@ -653,6 +710,11 @@ pub fn parameter_rows(out: &mut String, s: &Snapshot, part: &SitePart) {
                 values.and_then(|v| v.plant_available_water),
                 intervals.and_then(|i| i.plant_available_water.as_ref())
             ),
+            more = m
+                .fit
+                .derived
+                .as_ref()
+                .map_or_else(|| NONE.to_string(), more_derived_cell),
             state = state_cell(&m.fit.state),
         );
         out.push_str(&state_note(

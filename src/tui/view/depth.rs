@@ -233,7 +233,7 @@ impl DepthScreen<'_> {
             "fit".to_string(),
             "θr".to_string(),
             "θs".to_string(),
-            "AW".to_string(),
+            "AW ±95 %".to_string(),
             format!("h_ae {}", state.units.symbol()),
             "RMSE".to_string(),
             "shape".to_string(),
@@ -275,10 +275,7 @@ impl DepthScreen<'_> {
                         )),
                         Line::from(opt_num(r.theta_r, 3)),
                         Line::from(opt_num(r.theta_s, 3)),
-                        Line::from(
-                            r.available_water
-                                .map_or_else(|| "–".into(), |v| format!("{v:.3}")),
-                        ),
+                        Line::from(aw_text(r.available_water, r.available_water_pm)),
                         Line::from(r.air_entry_cm.map_or_else(
                             || "–".to_string(),
                             |h| super::suction_text(h, state.units),
@@ -295,11 +292,24 @@ impl DepthScreen<'_> {
             Constraint::Length(5),
             Constraint::Length(5),
             Constraint::Length(5),
-            Constraint::Length(5),
+            Constraint::Length(12),
             Constraint::Length(7),
             Constraint::Length(6),
             Constraint::Fill(1),
         ];
         render_table(header, rows, &widths, inner, buf);
+    }
+}
+
+/// A sample's available water with the half-width of its 95 % interval (`*` after a Monte
+/// Carlo one's), e.g. `0.142±0.011`.
+fn aw_text(value: Option<f64>, pm: Option<(f64, bool)>) -> String {
+    match (value, pm) {
+        (None, _) => "–".into(),
+        (Some(v), None) => format!("{v:.3}"),
+        (Some(v), Some((half, monte_carlo))) => {
+            let mark = if monte_carlo { "*" } else { "" };
+            format!("{v:.3}±{half:.3}{mark}")
+        }
     }
 }
