@@ -272,33 +272,12 @@ fn argmax_over_ln_h(f: impl Fn(f64) -> f64) -> Option<f64> {
     if best_i == 0 || best_i == steps || best <= 0.0 || !best.is_finite() {
         return None;
     }
-    let (mut a, mut b) = (
+    let (a, b) = (
         lo + step * (best_i - 1) as f64,
         lo + step * (best_i + 1) as f64,
     );
-    let ratio = 0.5 * (5f64.sqrt() - 1.0);
-    let mut c = b - ratio * (b - a);
-    let mut d = a + ratio * (b - a);
-    let (mut gc, mut gd) = (g(c), g(d));
-    for _ in 0..100 {
-        if (b - a).abs() < 1e-13 * (1.0 + a.abs()) {
-            break;
-        }
-        if gc > gd {
-            b = d;
-            d = c;
-            gd = gc;
-            c = b - ratio * (b - a);
-            gc = g(c);
-        } else {
-            a = c;
-            c = d;
-            gc = gd;
-            d = a + ratio * (b - a);
-            gd = g(d);
-        }
-    }
-    finite((0.5 * (a + b)).exp())
+    let (x, _) = crate::model::golden::golden_minimum(|x| -g(x), a, b, 1e-13, 100);
+    finite(x.exp())
 }
 
 #[cfg(test)]

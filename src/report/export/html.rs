@@ -69,17 +69,25 @@ fn with_interval(value: Option<f64>, interval: Option<&Interval95>) -> String {
         None => num(Some(v), DIGITS),
         Some(i) if i.is_symmetric() => escape(&plus_minus(v, i.half_width())).replace('±', " ± "),
         Some(i) => format!(
-            "{}<br/><span class=\"muted\">95&#160;% {}…{}, {}</span>",
+            "{}<br/><span class=\"muted\">{}</span>",
             num(Some(v), DIGITS),
-            num(Some(i.lo95), 3),
-            num(Some(i.hi95), 3),
-            if i.method == IntervalMethod::MonteCarlo {
-                "Monte Carlo"
-            } else {
-                "log scale"
-            }
+            interval_ends(i)
         ),
     }
+}
+
+/// `95 % 38.5…70.3, log scale` (or `, Monte Carlo`): an interval given by its ends.
+fn interval_ends(i: &Interval95) -> String {
+    format!(
+        "95&#160;% {}…{}, {}",
+        num(Some(i.lo95), 3),
+        num(Some(i.hi95), 3),
+        if i.method == IntervalMethod::MonteCarlo {
+            "Monte Carlo"
+        } else {
+            "log scale"
+        }
+    )
 }
 
 /// The air entry, the suction at Se = 1/2 and (with Ks) K at FC and PWP, one per line, each
@@ -117,16 +125,7 @@ fn more_derived_cell(d: &FitDerived) -> String {
         .filter(|(_, value, _, _)| value.is_some())
         .map(|(name, value, interval, unit)| {
             let range = interval.map_or_else(String::new, |i| {
-                let how = if i.method == IntervalMethod::MonteCarlo {
-                    ", Monte Carlo"
-                } else {
-                    ""
-                };
-                format!(
-                    " <span class=\"muted\">(95&#160;% {}…{}{how})</span>",
-                    num(Some(i.lo95), 3),
-                    num(Some(i.hi95), 3)
-                )
+                format!(" <span class=\"muted\">({})</span>", interval_ends(i))
             });
             format!("{name} {} {unit}{range}", num(value, DIGITS))
         })
