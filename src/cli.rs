@@ -8,6 +8,7 @@ use clap::{Parser, Subcommand};
 use crate::error::Outcome;
 
 pub mod advise;
+pub mod backup;
 pub mod curve;
 pub mod demo;
 pub mod export;
@@ -64,6 +65,8 @@ pub enum Command {
     Unflag(unflag::UnflagArgs),
     /// Which suction to measure next on each sample, and where one more reading pays most.
     Advise(advise::AdviseArgs),
+    /// Write a verified copy of a campaign, safe while it is open elsewhere.
+    Backup(backup::BackupArgs),
 }
 
 impl Command {
@@ -93,6 +96,7 @@ impl Command {
             Command::Flag(_) => "flag",
             Command::Unflag(_) => "unflag",
             Command::Advise(_) => "advise",
+            Command::Backup(_) => "backup",
         };
         format!("porewise {word}")
     }
@@ -119,5 +123,6 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Flag(args) => flag::run(&args),
         Command::Unflag(args) => unflag::run(&args),
         Command::Advise(args) => advise::run(&args),
+        Command::Backup(args) => backup::run(&args),
     }
 }

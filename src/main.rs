@@ -4,7 +4,12 @@ use std::process::ExitCode;
 
 use clap::Parser;
 
+/// Exit status of a program stopped because the reader of its output went away (128 + SIGPIPE,
+/// as a shell reports it).
+const EXIT_BROKEN_PIPE: i32 = 141;
+
 fn main() -> ExitCode {
+    quiet_on_broken_pipe();
     let args = porewise::cli::Cli::parse();
     match porewise::cli::run(args) {
         Ok(outcome) => outcome.into(),
@@ -13,4 +18,23 @@ fn main() -> ExitCode {
             ExitCode::from(porewise::error::EXIT_USER_ERROR)
         }
     }
+}
+
+/// `porewise list ... | head` closes standard output early; Rust's `println!` then panics.
+/// Stop quietly instead, as command-line tools do, and leave every other panic to the default
+/// hook. (Writes happen in transactions, so stopping here leaves nothing half-written.)
+fn quiet_on_broken_pipe() {
+    let default = std::panic::take_hook();
+    std::panic::set_hook(Box::new(move |info| {
+        let message = info
+            .payload()
+            .downcast_ref::<String>()
+            .map(String::as_str)
+            .or_else(|| info.payload().downcast_ref::<&str>().copied())
+            .unwrap_or("");
+        if message.starts_with("failed printing to stdout") && message.contains("Broken pipe") {
+            std::process::exit(EXIT_BROKEN_PIPE);
+        }
+        default(info);
+    }));
 }

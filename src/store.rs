@@ -7,6 +7,7 @@
 
 use std::path::PathBuf;
 
+pub mod backup;
 pub mod batches;
 pub mod campaign;
 pub mod db;
@@ -128,6 +129,9 @@ pub enum StoreError {
     /// A value read back from the file is not what the schema promises.
     #[error("unexpected value in the campaign file: {0}")]
     Corrupt(String),
+    /// A backup copy whose check failed (it was removed).
+    #[error("the backup did not verify: {0}; nothing was kept")]
+    BackupUnverified(String),
 }
 
 /// Shorthand for store results.
