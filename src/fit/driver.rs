@@ -37,6 +37,10 @@ const NEAR_BOUND_PROBE: f64 = 0.1;
 /// Tolerance and patience of the rough runs from screened starts.
 const ROUGH_TOLERANCE: f64 = 1e-4;
 const ROUGH_PATIENCE: usize = 5;
+/// At most this many runs finish a flat valley from the best point ([`finish_valley`]).
+const VALLEY_RUNS: usize = 6;
+/// A run that lowers the sum of squares by less than this share ends the valley runs.
+const VALLEY_GAIN: f64 = 1e-9;
 /// Rough results whose SSEs agree this closely are taken to be one minimum (polished once).
 const SAME_ROUGH_MINIMUM: f64 = 1e-3;
 /// How many solutions' SSEs a fit keeps for the note on several minima (the lowest ones).
@@ -1020,18 +1024,7 @@ pub(crate) fn fit_curve_with(
         // while the sum of squares still falls slowly: one more run from the best, with a
         // fresh trust region, finishes it.
         if !screen.only_when_doubtful() && best.sse.is_finite() {
-            ctx.resume = true;
-            let again = ctx.solve_pinned(
-                &best.p,
-                &best.pinned,
-                &setup.fixed,
-                &setup.lower,
-                &setup.upper,
-            );
-            ctx.resume = false;
-            if again.sse < best.sse {
-                best = again;
-            }
+            best = finish_valley(&mut ctx, &setup, best);
             // A steep part's steepness (or a scale beyond the readings) often gains a little
             // all the way to its bound with almost no slope on the way: try each free
             // parameter on its bounds.
@@ -1159,6 +1152,32 @@ pub(crate) fn fit_curve_with(
         report.message = Some(all.join("; "));
     }
     Ok(report)
+}
+
+/// Runs from the best point, each with a fresh trust region, while one still lowers the sum
+/// of squares by more than [`VALLEY_GAIN`] of it (at most [`VALLEY_RUNS`]): in the flat
+/// valley of a steep part a run stops while the sum still falls slowly.
+fn finish_valley(ctx: &mut Context<'_>, setup: &Setup, mut best: Candidate) -> Candidate {
+    for _ in 0..VALLEY_RUNS {
+        ctx.resume = true;
+        let again = ctx.solve_pinned(
+            &best.p,
+            &best.pinned,
+            &setup.fixed,
+            &setup.lower,
+            &setup.upper,
+        );
+        ctx.resume = false;
+        if again.sse.is_nan() || again.sse >= best.sse {
+            break;
+        }
+        let gain = (best.sse - again.sse) / best.sse;
+        best = again;
+        if gain <= VALLEY_GAIN {
+            break;
+        }
+    }
+    best
 }
 
 /// The note on a sum of squares with several minima, when the search reached another one
