@@ -1525,5 +1525,6 @@ fn build_report(
         covariance,
         correlation,
         readings,
+        prior: None,
     }
 }
