@@ -1,0 +1,276 @@
+//! Texture-informed fits: van Genuchten with the layer's texture-class prior (`fit --prior
+//! texture`, or the campaign default for samples with few readings).
+//!
+//! The prior is the layer's USDA class's Carsel & Parrish (1988) distribution
+//! ([`crate::model::texture`]); the fit is [`crate::fit::prior::fit_with_prior`]. The
+//! readings' noise is the campaign's pooled method noise ([`super::advise::method_noise`])
+//! where it has enough degrees of freedom, else [`DEFAULT_NOISE_SD`].
+
+use std::collections::BTreeMap;
+use std::sync::atomic::{AtomicUsize, Ordering};
+use std::time::Instant;
+
+use rayon::prelude::*;
+use rusqlite::Connection;
+
+use super::fitting::{
+    CHUNK_BUDGET, CHUNK_PAUSE, COMMIT_WAIT, FitAttempt, FitRunSummary, ModelChoice, fit_input,
+};
+use crate::fit::prior::{DEFAULT_NOISE_SD, Prior, PriorOptions, fit_with_prior};
+use crate::fit::{FitOptions, Readings, fit_model};
+use crate::model::conductivity::ConductivityForm;
+use crate::model::domain::LayerRef;
+use crate::model::retention::ModelKind;
+use crate::model::texture::{CARSEL_PARRISH_SOURCE, TextureClass};
+use crate::store::fits::{self, FitInput, NewFit, Ranking, Selection};
+use crate::store::{Campaign, StoreError, layers};
+
+/// Which samples get the texture prior.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PriorRule {
+    /// None (readings only).
+    Never,
+    /// Every selected sample whose layer has a texture.
+    Always,
+    /// Samples with at most this many readings (the campaign default).
+    AtMost(u32),
+}
+
+impl PriorRule {
+    /// Whether a sample with `n` readings gets the prior.
+    pub fn applies(self, n: usize) -> bool {
+        match self {
+            PriorRule::Never => false,
+            PriorRule::Always => true,
+            PriorRule::AtMost(k) => n <= k as usize,
+        }
+    }
+}
+
+/// The `requested` word of a fit with the texture prior.
+pub const REQUESTED_WITH_PRIOR: &str = "van-genuchten+texture-prior";
+
+/// The texture prior of a class.
+pub fn class_prior(class: TextureClass) -> Prior {
+    Prior {
+        label: format!("{class}, Carsel & Parrish 1988"),
+        source: CARSEL_PARRISH_SOURCE.to_string(),
+        q: class.carsel_parrish().transformed(),
+    }
+}
+
+/// The noise sd used for prior fits: every method's pooled level where it has enough degrees
+/// of freedom, else [`DEFAULT_NOISE_SD`].
+///
+/// # Errors
+/// As [`super::advise::method_noise`].
+pub fn prior_noise(conn: &Connection) -> Result<f64, StoreError> {
+    let pool = super::advise::method_noise(conn)?;
+    Ok(pool
+        .all
+        .as_ref()
+        .filter(|l| l.dof >= super::advise::MIN_POOL_DOF && l.variance > 0.0)
+        .map_or(DEFAULT_NOISE_SD, |l| l.variance.sqrt()))
+}
+
+/// Fit one sample's readings with its class's prior: the readings-only van Genuchten fit (when
+/// the readings allow one) is made first and kept in the report for the side-by-side view.
+pub fn fit_with_class(
+    readings: &Readings<'_>,
+    class: TextureClass,
+    noise_sd: f64,
+    options: &FitOptions,
+) -> FitAttempt {
+    let plain = fit_model(ModelKind::VanGenuchten, readings, options)
+        .ok()
+        .filter(|r| r.converged);
+    let prior_options = PriorOptions {
+        noise_sd,
+        weight: 1.0,
+        readings_only: plain,
+    };
+    let model = ModelKind::VanGenuchten.id().to_string();
+    match fit_with_prior(readings, &class_prior(class), &prior_options) {
+        Ok(report) => FitAttempt {
+            model,
+            report: Some(report),
+            message: None,
+            auto: None,
+        },
+        Err(e) => FitAttempt {
+            model,
+            report: None,
+            message: Some(e.to_string()),
+            auto: None,
+        },
+    }
+}
+
+/// The texture class of every layer of the inputs that has one.
+fn classes(
+    conn: &Connection,
+    inputs: &[FitInput],
+) -> Result<BTreeMap<String, TextureClass>, StoreError> {
+    let mut out = BTreeMap::new();
+    for input in inputs {
+        let key = input.sample.layer.to_string();
+        if out.contains_key(&key) {
+            continue;
+        }
+        if let Some(found) = layers::find(conn, &input.sample.layer)? {
+            let l = &found.layer;
+            if let Some(c) = TextureClass::of_layer(l.sand_pct, l.silt_pct, l.clay_pct) {
+                out.insert(key, c);
+            }
+        }
+    }
+    Ok(out)
+}
+
+/// What a campaign fit with a prior rule did, beyond [`FitRunSummary`].
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct PriorRunSummary {
+    /// The fits and failures.
+    pub run: FitRunSummary,
+    /// Samples fitted with the prior, with their class.
+    pub with_prior: Vec<(String, TextureClass)>,
+    /// Samples the rule chose whose layer has no texture (fitted from the readings alone).
+    pub no_texture: Vec<(String, LayerRef)>,
+    /// The readings' noise sd assumed, m3/m3.
+    pub noise_sd: f64,
+}
+
+/// As [`super::fit_campaign_with`], with samples that `rule` picks (and whose layer has a
+/// texture) fitted by van Genuchten with their class's prior instead of `choice`. The same
+/// recording: fitted outside the write lock, recorded in short transactions, each sample's
+/// readings checked before its fit is recorded.
+///
+/// # Errors
+/// As [`super::fit_campaign`].
+pub fn fit_campaign_with_prior(
+    campaign: &mut Campaign,
+    selection: &Selection,
+    choice: ModelChoice,
+    options: &FitOptions,
+    rule: PriorRule,
+    conductivity: Option<ConductivityForm>,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<PriorRunSummary, StoreError> {
+    let (inputs, classes, noise_sd) = {
+        let tx = campaign.read_transaction()?;
+        selection.check(&tx)?;
+        let inputs = fits::inputs(&tx, selection)?;
+        let classes = classes(&tx, &inputs)?;
+        let noise = prior_noise(&tx)?;
+        (inputs, classes, noise)
+    };
+    let total = inputs.len();
+    progress(0, total);
+    let done = AtomicUsize::new(0);
+    let fixed = options.fixed();
+    let plain_requested = choice.to_string();
+    let outcomes: Vec<_> = inputs
+        .par_iter()
+        .map(|input| {
+            let class = rule
+                .applies(input.h_cm.len())
+                .then(|| classes.get(&input.sample.layer.to_string()).copied())
+                .flatten();
+            let attempt = match class {
+                Some(class) => {
+                    let readings = Readings::new(&input.h_cm, &input.theta);
+                    let readings = match &input.weights {
+                        Some(w) => readings.with_weights(w),
+                        None => readings,
+                    };
+                    fit_with_class(&readings, class, noise_sd, options)
+                }
+                None => fit_input(input, choice, options),
+            };
+            let requested = if class.is_some() {
+                REQUESTED_WITH_PRIOR
+            } else {
+                plain_requested.as_str()
+            };
+            let ranking = attempt.auto.as_ref().map(Ranking::from);
+            let failure = attempt.failure();
+            let row = fits::encode(&NewFit {
+                input,
+                requested,
+                model: &attempt.model,
+                fixed,
+                report: attempt.report.as_ref(),
+                ranking: ranking.as_ref(),
+                failure: failure.as_deref(),
+                conductivity,
+            });
+            progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
+            (attempt.model, failure, row, class)
+        })
+        .collect();
+    let mut summary = PriorRunSummary {
+        noise_sd,
+        ..PriorRunSummary::default()
+    };
+    for input in &inputs {
+        if rule.applies(input.h_cm.len()) && !classes.contains_key(&input.sample.layer.to_string())
+        {
+            summary
+                .no_texture
+                .push((input.sample.code.clone(), input.sample.layer.clone()));
+        }
+    }
+    let mut pending = inputs.iter().zip(outcomes).peekable();
+    let mut recorded = 0;
+    let partly = |e: StoreError, recorded: usize| {
+        if recorded == 0 {
+            e
+        } else {
+            StoreError::PartlyRecorded {
+                recorded,
+                total,
+                source: Box::new(e),
+            }
+        }
+    };
+    while pending.peek().is_some() {
+        let tx = campaign
+            .transaction_waiting(COMMIT_WAIT)
+            .map_err(|e| partly(e, recorded))?;
+        let started = Instant::now();
+        let mut chunk = FitRunSummary::default();
+        let mut chunk_prior = Vec::new();
+        for (input, (model, failure, row, class)) in pending.by_ref() {
+            let code = &input.sample.code;
+            let recorded_row = fits::unchanged(&tx, input).and_then(|same| {
+                if same {
+                    fits::insert(&tx, &row?).map(|_| true)
+                } else {
+                    Ok(false)
+                }
+            });
+            if !recorded_row.map_err(|e| partly(e, recorded))? {
+                chunk.changed.push(code.clone());
+            } else if let Some(reason) = failure {
+                chunk.failed.push((code.clone(), reason));
+            } else {
+                if let Some(class) = class {
+                    chunk_prior.push((code.clone(), class));
+                }
+                chunk.fitted.push((code.clone(), model));
+            }
+            if started.elapsed() >= CHUNK_BUDGET {
+                break;
+            }
+        }
+        tx.commit()
+            .map_err(|e| partly(StoreError::from(e), recorded))?;
+        recorded += chunk.fitted.len() + chunk.failed.len();
+        summary.run.extend(chunk);
+        summary.with_prior.extend(chunk_prior);
+        if pending.peek().is_some() {
+            std::thread::sleep(CHUNK_PAUSE);
+        }
+    }
+    Ok(summary)
+}
