@@ -16,14 +16,20 @@ use rusqlite::Connection;
 use super::fitting::{
     CHUNK_BUDGET, CHUNK_PAUSE, COMMIT_WAIT, FitAttempt, FitRunSummary, ModelChoice, fit_input,
 };
-use crate::fit::prior::{DEFAULT_NOISE_SD, Prior, PriorOptions, fit_with_prior};
-use crate::fit::{FitOptions, Readings, fit_model};
+use super::water::{
+    SiteProfile, SumInterval, TextureEstimate, available_water_between, recompute_totals,
+};
+use crate::fit::Interval95;
+use crate::fit::prior::{
+    BASIS_TEXTURE_ONLY, DEFAULT_NOISE_SD, Prior, PriorOptions, fit_with_prior,
+};
+use crate::fit::{FitOptions, FitReport, Readings, fit_model};
 use crate::model::conductivity::ConductivityForm;
 use crate::model::domain::LayerRef;
 use crate::model::retention::ModelKind;
 use crate::model::texture::{CARSEL_PARRISH_SOURCE, TextureClass};
 use crate::store::fits::{self, FitInput, NewFit, Ranking, Selection};
-use crate::store::{Campaign, StoreError, layers};
+use crate::store::{Campaign, CampaignSettings, StoreError, layers};
 
 /// Which samples get the texture prior.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -81,6 +87,21 @@ pub fn fit_with_class(
     noise_sd: f64,
     options: &FitOptions,
 ) -> FitAttempt {
+    let model = ModelKind::VanGenuchten.id().to_string();
+    if readings.x.is_empty() {
+        // A sample's fit stands for its readings; a class mean is a layer's estimate
+        // (`list profiles --fill-from-texture`), never a core's fit.
+        return FitAttempt {
+            model,
+            report: None,
+            message: Some(
+                "no readings: the texture prior alone is the layer's estimate, not a fit of \
+                 this sample"
+                    .to_string(),
+            ),
+            auto: None,
+        };
+    }
     let plain = fit_model(ModelKind::VanGenuchten, readings, options)
         .ok()
         .filter(|r| r.converged);
@@ -89,7 +110,6 @@ pub fn fit_with_class(
         weight: 1.0,
         readings_only: plain,
     };
-    let model = ModelKind::VanGenuchten.id().to_string();
     match fit_with_prior(readings, &class_prior(class), &prior_options) {
         Ok(report) => FitAttempt {
             model,
@@ -273,4 +293,93 @@ pub fn fit_campaign_with_prior(
         }
     }
     Ok(summary)
+}
+
+/// A layer's van Genuchten curve from its texture class alone: the class mean, with the
+/// class's spread as its covariance (a fit with the prior and no readings), so its derived
+/// values get the class's spread as their 95 % intervals.
+pub fn class_estimate(class: TextureClass) -> Option<FitReport> {
+    fit_with_prior(
+        &Readings::new(&[], &[]),
+        &class_prior(class),
+        &PriorOptions::default(),
+    )
+    .ok()
+}
+
+/// How a layer estimate is described in listings and reports.
+pub fn estimate_source(class: TextureClass) -> String {
+    format!(
+        "estimate from texture: {class} class mean ({CARSEL_PARRISH_SOURCE}); interval from \
+         the class spread"
+    )
+}
+
+/// A layer's estimate from its texture class: the class-mean curve, its available water and
+/// that value's 95 % interval from the class spread.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct LayerEstimate {
+    /// The class.
+    pub class: TextureClass,
+    /// `texture only`.
+    pub basis: &'static str,
+    /// How it was made and where its numbers come from.
+    pub source: String,
+    /// van Genuchten theta_r, theta_s (m3/m3), alpha (1/cm), n of the class mean.
+    pub parameters: [f64; 4],
+    /// Available water between the two suctions, m3/m3.
+    pub available_water: f64,
+    /// Its 95 % interval from the class spread.
+    pub interval: Option<Interval95>,
+}
+
+/// The estimate of a layer of `class` between field capacity and wilting point (kPa).
+pub fn layer_estimate(class: TextureClass, fc_kpa: f64, pwp_kpa: f64) -> Option<LayerEstimate> {
+    let report = class_estimate(class)?;
+    let (aw, interval) = available_water_between(&report, fc_kpa, pwp_kpa)?;
+    Some(LayerEstimate {
+        class,
+        basis: BASIS_TEXTURE_ONLY,
+        source: estimate_source(class),
+        parameters: class.carsel_parrish().mean(),
+        available_water: aw,
+        interval,
+    })
+}
+
+/// Fill the layers of `profiles` that have a texture but no fitted lab core with their
+/// class's estimate ([`layer_estimate`]), marked as such, and recompute the totals. Layers
+/// with a fitted core keep their measured value.
+pub fn fill_from_texture(profiles: &mut [SiteProfile], settings: &CampaignSettings) {
+    for p in profiles.iter_mut() {
+        let mut filled = false;
+        for l in &mut p.layers {
+            if l.fitted_cores > 0 || l.available_water.is_some() {
+                continue;
+            }
+            let Some(class) = l.texture else { continue };
+            let Some(e) = layer_estimate(class, settings.fc_kpa, settings.pwp_kpa) else {
+                continue;
+            };
+            let mm = l.depth_in_zone_cm * 10.0;
+            let sum = e
+                .interval
+                .and_then(|i| SumInterval::around(e.available_water, i.se));
+            l.available_water = Some(e.available_water);
+            l.available_water_interval = sum;
+            l.water_mm = Some(e.available_water * mm);
+            l.water_mm_interval = sum.map(|i| i.scaled(mm));
+            l.interval_note = Some(e.source.clone());
+            l.estimate = Some(TextureEstimate {
+                class,
+                basis: e.basis,
+                source: e.source,
+                parameters: e.parameters,
+            });
+            filled = true;
+        }
+        if filled {
+            recompute_totals(p);
+        }
+    }
 }

@@ -218,6 +218,8 @@ pub struct LayerNode {
     pub bottom_cm: f64,
     /// Horizon label.
     pub horizon: Option<String>,
+    /// USDA texture class, when sand, silt and clay are known.
+    pub texture: Option<crate::model::texture::TextureClass>,
     /// Its samples, by code.
     pub samples: Vec<SampleNode>,
 }
@@ -326,6 +328,7 @@ impl Tree {
                 top_cm: layer.at.top_cm,
                 bottom_cm: layer.at.bottom_cm,
                 horizon: layer.horizon.clone(),
+                texture: layer.texture,
                 samples: Vec::new(),
             });
         }
@@ -1273,6 +1276,7 @@ pub(crate) mod fixtures {
                     at: at.clone(),
                     horizon: Some(if li == 0 { "Ap" } else { "Bt" }.into()),
                     ks_cm_per_day: None,
+                    texture: None,
                 });
                 for s in ["a", "b"] {
                     o.samples.push(SampleInfo {
