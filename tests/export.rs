@@ -268,8 +268,16 @@ fn every_file_parses_back() {
 
     let (header, rows) = e.csv(PARAMETERS_FILE);
     assert_eq!(
-        &header[..6],
-        ["site", "layer", "horizon", "top_cm", "bottom_cm", "sample"]
+        &header[..7],
+        [
+            "site",
+            "layer",
+            "horizon",
+            "texture",
+            "top_cm",
+            "bottom_cm",
+            "sample"
+        ]
     );
     for column in [
         "theta_r",
