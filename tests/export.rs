@@ -889,8 +889,9 @@ fn the_demo_campaign_exports_every_sample() {
         .into_iter()
         .map(|s| s.code)
         .collect();
-    // 28 lab cores and the two field pairings of the logger at TER1 (demo-db/README.md).
-    assert_eq!(codes.len(), 30);
+    // 29 lab cores (28 and the four-reading TER1-A-c) and the two field pairings of the
+    // logger at TER1 (demo-db/README.md).
+    assert_eq!(codes.len(), 31);
     assert_eq!(summary.samples, codes.len());
 
     let mut reader = csv::Reader::from_path(out.join(PARAMETERS_FILE)).expect("csv");
