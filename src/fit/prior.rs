@@ -59,6 +59,9 @@ pub struct PriorBasis {
     pub pull_sd: [f64; 4],
     /// The readings-only fit's parameters, when one was made, for the side-by-side view.
     pub readings_only: Option<[f64; 4]>,
+    /// The readings-only fit's weighted sum of squares, beside this fit's `sse`.
+    #[serde(default)]
+    pub readings_only_sse: Option<f64>,
     /// How far the prior moved each parameter from the readings-only fit, in that fit's
     /// standard errors (`None` where it has none).
     pub shift_se: Option<[Option<f64>; 4]>,
@@ -522,6 +525,7 @@ fn report(
             sd_q: prior.q.map(|d| d.sd),
             pull_sd,
             readings_only,
+            readings_only_sse: options.readings_only.as_ref().map(|r| r.sse),
             shift_se,
         }),
     }

@@ -559,6 +559,9 @@ pub struct FitView {
     /// Which suction to measure next for available water, or why there is no advice
     /// (`None` for a field pairing).
     pub next: Option<Result<NextStep, String>>,
+    /// The texture prior of a fit made with one (the card shows it beside the readings-only
+    /// fit).
+    pub prior: Option<crate::fit::prior::PriorBasis>,
 }
 
 /// The fit card's advice: the one more reading that would shrink the 95 % interval of
@@ -745,6 +748,7 @@ impl SampleDetail {
                     .then(|| parts.advice.clone())
                     .flatten()
                     .map(|a| a.map(|a| NextStep::of(&a))),
+                prior: report.prior.clone(),
             })
         });
         SampleDetail {

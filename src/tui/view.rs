@@ -23,6 +23,7 @@ pub mod curve;
 pub mod depth;
 pub mod help;
 pub mod plot;
+pub mod prior_card;
 pub mod prompt;
 pub mod readings;
 pub mod review;
