@@ -217,13 +217,11 @@ demo: available water (33-1500 kPa) of the terrace's loam A horizon, m3/m3"
             porewise::demo::FOUR_READING_CORE
         );
     }
-    if let Some(r) = fit_model(
+    if let Ok(r) = fit_model(
         ModelKind::VanGenuchten,
         &readings,
         &FitOptions::new().with_fixed("theta_r", 0.0),
-    )
-    .ok()
-    {
+    ) {
         println!(
             "  {} readings only, theta_r = 0: {:.4}",
             porewise::demo::FOUR_READING_CORE,

@@ -142,7 +142,6 @@ fn run_campaign(
     };
     let rule = match args.prior {
         Some(PriorArg::Texture) => PriorRule::Always,
-        Some(PriorArg::None) => PriorRule::Never,
         // The campaign default applies to auto and van Genuchten fits, not to another model
         // asked for by name.
         None if matches!(
@@ -153,7 +152,7 @@ fn run_campaign(
             crate::store::texture::prior_default(campaign.connection())?
                 .map_or(PriorRule::Never, PriorRule::AtMost)
         }
-        None => PriorRule::Never,
+        Some(PriorArg::None) | None => PriorRule::Never,
     };
     if rule != PriorRule::Never {
         return run_with_prior(args, &mut campaign, &selection, choice, options, rule);

@@ -170,7 +170,10 @@ pub fn classify(sand: f64, silt: f64, clay: f64) -> Result<TextureClass, Texture
 
 /// The class of percentages that sum to 100 (first matching rule; the rules do not overlap).
 fn classify_normalised(sand: f64, silt: f64, clay: f64) -> TextureClass {
-    use TextureClass::*;
+    use TextureClass::{
+        Clay, ClayLoam, Loam, LoamySand, Sand, SandyClay, SandyClayLoam, SandyLoam, Silt, SiltLoam,
+        SiltyClay, SiltyClayLoam,
+    };
     let fine15 = silt + 1.5 * clay;
     let fine2 = silt + 2.0 * clay;
     if fine15 < 15.0 {

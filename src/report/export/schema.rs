@@ -257,7 +257,7 @@ impl From<LayerEstimate> for TextureEstimateData {
             source: e.source,
             parameters: names
                 .iter()
-                .map(|n| n.to_string())
+                .map(ToString::to_string)
                 .zip(e.parameters)
                 .collect(),
             available_water_m3_m3: e.available_water,
