@@ -132,7 +132,7 @@ fn profiles_fill_uncovered_depth_only_when_asked() {
         .lines()
         .find(|l| l.starts_with("TX,30-60,"))
         .expect("clay row");
-    assert!(clay.contains(",clay,≈ texture only,0,0,0,"), "{clay}");
+    assert!(clay.contains(",clay,◌ texture only,0,0,0,"), "{clay}");
     // The layer without texture stays empty; the total counts the estimate and says so.
     let c = filled
         .lines()

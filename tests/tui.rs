@@ -107,7 +107,7 @@ fn buffer(s: &Session) -> ratatui::buffer::Buffer {
 }
 
 /// Keys that bring each pane up, from a fresh session.
-const PANES: [(&str, &str); 23] = [
+const PANES: [(&str, &str); 24] = [
     ("start", ""),
     ("site_open", "<enter>"),
     ("layer_summary", "<enter>j"),
@@ -142,6 +142,8 @@ const PANES: [(&str, &str); 23] = [
     ),
     // The clay basin's depth view: its lowest layer has texture and no core.
     ("depth_texture_only", "/BAS1<enter>G2"),
+    // The same with the key that fills it from texture, marked ≈.
+    ("depth_texture_filled", "/BAS1<enter>G2e"),
     ("review_logger_record", "3jjjjj"),
 ];
 

@@ -352,13 +352,20 @@ pub fn layer_estimate(class: TextureClass, fc_kpa: f64, pwp_kpa: f64) -> Option<
 /// with a fitted core keep their measured value.
 pub fn fill_from_texture(profiles: &mut [SiteProfile], settings: &CampaignSettings) {
     for p in profiles.iter_mut() {
+        fill_profile(p, settings.fc_kpa, settings.pwp_kpa);
+    }
+}
+
+/// [`fill_from_texture`] of one profile, between field capacity and wilting point (kPa).
+pub fn fill_profile(p: &mut SiteProfile, fc_kpa: f64, pwp_kpa: f64) {
+    {
         let mut filled = false;
         for l in &mut p.layers {
             if l.fitted_cores > 0 || l.available_water.is_some() {
                 continue;
             }
             let Some(class) = l.texture else { continue };
-            let Some(e) = layer_estimate(class, settings.fc_kpa, settings.pwp_kpa) else {
+            let Some(e) = layer_estimate(class, fc_kpa, pwp_kpa) else {
                 continue;
             };
             let mm = l.depth_in_zone_cm * 10.0;

@@ -81,7 +81,7 @@ pub struct ListArgs {
     #[arg(long, value_name = "CM", default_value_t = DEFAULT_ROOT_ZONE_CM)]
     pub root_zone_cm: f64,
     /// With `profiles`: fill layers that have sand/silt/clay but no fitted core with their
-    /// texture class's estimate (Carsel & Parrish 1988 class mean), marked ≈ in the basis
+    /// texture class's estimate (Carsel & Parrish 1988 class mean), marked ◌ in the basis
     /// column; the default lists measured values only.
     #[arg(long)]
     pub fill_from_texture: bool,

@@ -398,9 +398,9 @@ pub fn profiles_listing(profiles: &[SiteProfile]) -> Listing {
 }
 
 /// The mark of a value estimated from texture rather than measured.
-pub const ESTIMATE_GLYPH: char = '≈';
+pub const ESTIMATE_GLYPH: char = '◌';
 
-/// A profile layer's basis: `readings` with a fitted core, `≈ texture only` for a texture
+/// A profile layer's basis: `readings` with a fitted core, `◌ texture only` for a texture
 /// estimate, none otherwise.
 fn layer_basis(w: &crate::analysis::LayerWater) -> Option<String> {
     if let Some(e) = &w.estimate {

@@ -21,6 +21,7 @@ use super::theme::Theme;
 use super::worker::JobBoard;
 
 pub mod series;
+pub mod texture_fill;
 
 pub use series::{SensorInfo, SensorSeries, SeriesData, SeriesRequest, SeriesState};
 
@@ -915,6 +916,10 @@ pub struct DepthData {
     pub fc_kpa: f64,
     /// Wilting point, kPa.
     pub pwp_kpa: f64,
+    /// The profile with layers without a fitted core filled from their texture class, shown
+    /// instead of the measured one when the user asks (key `e`); `None` when no layer has an
+    /// estimate.
+    pub texture_fill: Option<texture_fill::TextureFill>,
 }
 
 impl DepthData {
@@ -1013,6 +1018,7 @@ impl DepthData {
             uncovered_cm: profile.map_or(root_zone_cm, SiteProfile::uncovered_cm),
             fc_kpa: profile.map_or(crate::store::campaign::DEFAULT_FC_KPA, |p| p.fc_kpa),
             pwp_kpa: profile.map_or(crate::store::campaign::DEFAULT_PWP_KPA, |p| p.pwp_kpa),
+            texture_fill: profile.and_then(texture_fill::TextureFill::of),
         }
     }
 }
@@ -1028,6 +1034,8 @@ pub struct DepthState {
     pub data: Option<DepthData>,
     /// Row of the parameter table.
     pub cursor: usize,
+    /// Show layers without a fitted core filled with their texture estimate (key `e`).
+    pub fill_texture: bool,
 }
 
 impl Default for DepthState {
@@ -1037,6 +1045,7 @@ impl Default for DepthState {
             root_zone_cm: crate::analysis::water::DEFAULT_ROOT_ZONE_CM,
             data: None,
             cursor: 0,
+            fill_texture: false,
         }
     }
 }

@@ -29,6 +29,7 @@ pub mod readings;
 pub mod review;
 pub mod series;
 pub mod summary;
+pub mod texture_fill;
 pub mod tree;
 
 /// Where the browse screen's panes go.

@@ -630,7 +630,7 @@ fn texture_estimates(out: &mut String, part: &SitePart) {
         let [tr, ts, a, n] = e.parameters;
         let _ = writeln!(
             rows,
-            "<tr><td>≈ {label}</td><td>{class}</td><td class=\"num\">{aw}</td>\
+            "<tr><td>◌ {label}</td><td>{class}</td><td class=\"num\">{aw}</td>\
              <td class=\"num\">θr {tr}, θs {ts}, α {a} 1/cm, n {n}</td><td>{source}</td></tr>",
             label = escape(&layer_label(layer)),
             source = escape(&e.source),
@@ -644,7 +644,7 @@ fn texture_estimates(out: &mut String, part: &SitePart) {
         "<h3>Estimates from texture (not measured)</h3>\n<p class=\"muted\">Layers with a texture \
          class and no fitted lab core: the class-mean van Genuchten curve, its interval the class \
          spread. They are not in the profile sum; <code>porewise list DB profiles \
-         --fill-from-texture</code> adds them to it, marked ≈.</p>\n<table>\n<thead><tr><th>layer</th>\
+         --fill-from-texture</code> adds them to it, marked ◌.</p>\n<table>\n<thead><tr><th>layer</th>\
          <th>texture class</th><th>available water ± 95&#160;%, m³/m³</th><th>class-mean parameters</th>\
          <th>source</th></tr></thead>\n<tbody>\n{rows}</tbody>\n</table>"
     );
