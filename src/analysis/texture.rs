@@ -16,14 +16,17 @@ use rusqlite::Connection;
 use super::fitting::{
     CHUNK_BUDGET, CHUNK_PAUSE, COMMIT_WAIT, FitAttempt, FitRunSummary, ModelChoice, fit_input,
 };
-use super::water::{
-    SiteProfile, SumInterval, TextureEstimate, available_water_between, recompute_totals,
-};
-use crate::fit::Interval95;
+use super::water::{SiteProfile, SumInterval, TextureEstimate, recompute_totals};
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use rand_distr::{Distribution, StandardNormal};
+
+use crate::fit::delta::quantile;
 use crate::fit::prior::{
     BASIS_TEXTURE_ONLY, DEFAULT_NOISE_SD, Prior, PriorOptions, fit_with_prior,
 };
-use crate::fit::{FitOptions, FitReport, Readings, fit_model};
+use crate::fit::{FitOptions, Readings, fit_model};
+use crate::fit::{Interval95, IntervalMethod, IntervalScale};
 use crate::model::conductivity::ConductivityForm;
 use crate::model::domain::LayerRef;
 use crate::model::retention::ModelKind;
@@ -295,18 +298,6 @@ pub fn fit_campaign_with_prior(
     Ok(summary)
 }
 
-/// A layer's van Genuchten curve from its texture class alone: the class mean, with the
-/// class's spread as its covariance (a fit with the prior and no readings), so its derived
-/// values get the class's spread as their 95 % intervals.
-pub fn class_estimate(class: TextureClass) -> Option<FitReport> {
-    fit_with_prior(
-        &Readings::new(&[], &[]),
-        &class_prior(class),
-        &PriorOptions::default(),
-    )
-    .ok()
-}
-
 /// How a layer estimate is described in listings and reports.
 pub fn estimate_source(class: TextureClass) -> String {
     format!(
@@ -333,16 +324,72 @@ pub struct LayerEstimate {
     pub interval: Option<Interval95>,
 }
 
+/// Parameter draws behind a class estimate's interval.
+pub const ESTIMATE_DRAWS: usize = 4000;
+const ESTIMATE_SEED: u64 = 0x1988;
+
 /// The estimate of a layer of `class` between field capacity and wilting point (kPa).
+///
+/// The value is the class-mean curve's available water. Its 95 % interval is the 2.5 and
+/// 97.5 percentiles of the available water of [`ESTIMATE_DRAWS`] parameter sets drawn from
+/// the class distribution (q normal, seeded; sets outside the model's bounds or with theta_r
+/// at or above theta_s redrawn), so it follows the class spread through the curve and never
+/// leaves the possible range; its `se` is the draws' standard deviation (what the profile
+/// total adds up).
 pub fn layer_estimate(class: TextureClass, fc_kpa: f64, pwp_kpa: f64) -> Option<LayerEstimate> {
-    let report = class_estimate(class)?;
-    let (aw, interval) = available_water_between(&report, fc_kpa, pwp_kpa)?;
+    let mean = class.carsel_parrish().mean();
+    let aw = |p: &[f64]| -> Option<f64> {
+        let curve = ModelKind::VanGenuchten.curve();
+        let fc = fc_kpa * crate::model::units::CM_PER_KPA;
+        let pwp = pwp_kpa * crate::model::units::CM_PER_KPA;
+        let v = curve.value(fc, p) - curve.value(pwp, p);
+        v.is_finite().then_some(v)
+    };
+    let value = aw(&mean)?;
+    let q = class.carsel_parrish().transformed();
+    let mut rng = ChaCha8Rng::seed_from_u64(ESTIMATE_SEED);
+    let mut draws = Vec::with_capacity(ESTIMATE_DRAWS);
+    let mut attempts = 0;
+    while draws.len() < ESTIMATE_DRAWS && attempts < 20 * ESTIMATE_DRAWS {
+        attempts += 1;
+        let z: [f64; 4] = std::array::from_fn(|j| {
+            let n: f64 = StandardNormal.sample(&mut rng);
+            q[j].mean + q[j].sd * n
+        });
+        let p = [z[0], z[1], z[2].exp(), 1.0 + z[3].exp()];
+        let inside = ModelKind::VanGenuchten
+            .params()
+            .iter()
+            .zip(&p)
+            .all(|(spec, v)| (spec.lower..=spec.upper).contains(v))
+            && p[0] < p[1];
+        if let Some(v) = inside.then(|| aw(&p)).flatten() {
+            draws.push(v);
+        }
+    }
+    let interval = (draws.len() == ESTIMATE_DRAWS).then(|| {
+        draws.sort_by(f64::total_cmp);
+        let n = draws.len() as f64;
+        let m = draws.iter().sum::<f64>() / n;
+        let sd = (draws.iter().map(|d| (d - m) * (d - m)).sum::<f64>() / (n - 1.0)).sqrt();
+        Interval95 {
+            lo95: quantile(&draws, 0.025),
+            hi95: quantile(&draws, 0.975),
+            se: sd,
+            scale: IntervalScale::Linear,
+            method: IntervalMethod::MonteCarlo,
+            note: Some(format!(
+                "class spread: 2.5-97.5 % of {ESTIMATE_DRAWS} parameter sets drawn from the \
+                 {class} distribution"
+            )),
+        }
+    });
     Some(LayerEstimate {
         class,
         basis: BASIS_TEXTURE_ONLY,
         source: estimate_source(class),
-        parameters: class.carsel_parrish().mean(),
-        available_water: aw,
+        parameters: mean,
+        available_water: value,
         interval,
     })
 }
@@ -369,9 +416,12 @@ pub fn fill_profile(p: &mut SiteProfile, fc_kpa: f64, pwp_kpa: f64) {
                 continue;
             };
             let mm = l.depth_in_zone_cm * 10.0;
-            let sum = e
-                .interval
-                .and_then(|i| SumInterval::around(e.available_water, i.se));
+            // The class spread's percentiles as they are (asymmetric), its sd for the total.
+            let sum = e.interval.as_ref().map(|i| SumInterval {
+                lo95: i.lo95,
+                hi95: i.hi95,
+                se: i.se,
+            });
             l.available_water = Some(e.available_water);
             l.available_water_interval = sum;
             l.water_mm = Some(e.available_water * mm);
@@ -388,5 +438,47 @@ pub fn fill_profile(p: &mut SiteProfile, fc_kpa: f64, pwp_kpa: f64) {
         if filled {
             recompute_totals(p);
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn class_estimates_carry_the_class_spread_inside_the_possible_range() {
+        for class in TextureClass::ALL {
+            let e = layer_estimate(class, 33.0, 1500.0).expect("estimate");
+            let i = e.interval.as_ref().expect("interval");
+            // Available water of a falling curve is never negative.
+            assert!(i.lo95 >= 0.0, "{class}: {i:?}");
+            assert!(i.lo95 < i.hi95 && i.se > 0.0, "{class}: {i:?}");
+            assert_eq!(e.parameters, class.carsel_parrish().mean());
+            assert_eq!(e.basis, BASIS_TEXTURE_ONLY);
+            // Seeded: the same interval every time.
+            assert_eq!(layer_estimate(class, 33.0, 1500.0), Some(e.clone()));
+        }
+        // The loam class mean's available water between 33 and 1500 kPa, from the curve.
+        let loam = layer_estimate(TextureClass::Loam, 33.0, 1500.0).expect("estimate");
+        let p = TextureClass::Loam.carsel_parrish().mean();
+        let vg = ModelKind::VanGenuchten.curve();
+        let cm = crate::model::units::CM_PER_KPA;
+        let aw = vg.value(33.0 * cm, &p) - vg.value(1500.0 * cm, &p);
+        assert!((loam.available_water - aw).abs() < 1e-15);
+    }
+
+    #[test]
+    fn the_prior_rule_picks_samples_by_their_readings() {
+        assert!(PriorRule::AtMost(5).applies(5));
+        assert!(!PriorRule::AtMost(5).applies(6));
+        assert!(PriorRule::Always.applies(100));
+        assert!(!PriorRule::Never.applies(0));
+        let none = fit_with_class(
+            &Readings::new(&[], &[]),
+            TextureClass::Loam,
+            0.01,
+            &FitOptions::new(),
+        );
+        assert!(none.report.is_none() && none.failure().is_some());
     }
 }

@@ -56,6 +56,19 @@ pub fn estimate_cell(value: Option<f64>, interval: Option<&Interval95>) -> Cell 
     )
 }
 
+/// A table cell of a layer value estimated from texture: the value with its class-spread
+/// interval as a range, `0.076 (0.013…0.188)` (it is not symmetric).
+pub fn range_cell(value: Option<f64>, interval: Option<SumInterval>) -> Cell {
+    let text = |v: f64| significant(v, 3).unwrap_or_default();
+    Cell::Estimate(
+        value,
+        value.map_or_else(String::new, |v| match interval {
+            Some(i) => format!("{} ({}…{})", text(v), text(i.lo95), text(i.hi95)),
+            None => text(v),
+        }),
+    )
+}
+
 /// A table cell of a layer or profile value with its symmetric interval.
 pub fn sum_cell(value: Option<f64>, interval: Option<SumInterval>) -> Cell {
     Cell::Estimate(
@@ -338,12 +351,20 @@ pub fn profiles_listing(profiles: &[SiteProfile]) -> Listing {
                 Cell::Int(w.lab_cores as i64),
                 Cell::Int(w.fitted_cores as i64),
                 Cell::Int(w.stale_cores as i64),
-                sum_cell(w.available_water, aw),
+                if w.estimate.is_some() {
+                    range_cell(w.available_water, aw)
+                } else {
+                    sum_cell(w.available_water, aw)
+                },
                 aw.map(|i| i.lo95).into(),
                 aw.map(|i| i.hi95).into(),
                 w.field_available_water.into(),
                 w.depth_in_zone_cm.into(),
-                sum_cell(w.water_mm, mm),
+                if w.estimate.is_some() {
+                    range_cell(w.water_mm, mm)
+                } else {
+                    sum_cell(w.water_mm, mm)
+                },
                 mm.map(|i| i.lo95).into(),
                 mm.map(|i| i.hi95).into(),
             ];

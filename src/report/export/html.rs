@@ -623,10 +623,7 @@ fn texture_estimates(out: &mut String, part: &SitePart) {
         let Some(e) = layer_estimate(class, profile.fc_kpa, profile.pwp_kpa) else {
             continue;
         };
-        let aw = e.interval.as_ref().map_or_else(
-            || num(Some(e.available_water), 3),
-            |i| crate::report::fits::plus_minus(e.available_water, i.half_width()),
-        );
+        let aw = crate::report::fits::interval_text(e.available_water, e.interval.as_ref());
         let [tr, ts, a, n] = e.parameters;
         let _ = writeln!(
             rows,

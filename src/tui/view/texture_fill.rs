@@ -10,7 +10,7 @@ use crate::model::text::shown;
 pub fn estimate_lines(lines: &mut Vec<Line<'static>>, fill: &TextureFill, theme: Theme) {
     for l in &fill.layers {
         let mm = match (l.water_mm, l.water_mm_interval) {
-            (Some(v), Some(i)) => format!("{v:.1}±{:.1}", i.half_width()),
+            (Some(v), Some(i)) => format!("{v:.1} {:.0}…{:.0}", i.lo95, i.hi95),
             (Some(v), None) => format!("{v:.1}"),
             (None, _) => "–".to_string(),
         };
