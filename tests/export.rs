@@ -952,8 +952,14 @@ fn the_demo_campaign_exports_every_sample() {
         .filter(|t| t.contains("◌"))
         .collect();
     assert_eq!(estimates.len(), 1, "{estimates:?}");
-    assert!(estimates[0].contains("Ck") && estimates[0].contains("clay"), "{estimates:?}");
-    assert!(estimates[0].contains("Carsel & Parrish (1988)"), "{estimates:?}");
+    assert!(
+        estimates[0].contains("Ck") && estimates[0].contains("clay"),
+        "{estimates:?}"
+    );
+    assert!(
+        estimates[0].contains("Carsel & Parrish (1988)"),
+        "{estimates:?}"
+    );
     let layers: Vec<_> = doc.data.sites.iter().flat_map(|s| &s.layers).collect();
     let with_estimate: Vec<(f64, Option<&str>)> = layers
         .iter()

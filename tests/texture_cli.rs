@@ -169,3 +169,36 @@ fn bad_prior_values_are_usage_errors_and_write_nothing() {
     );
     assert_eq!(s.counts(), before);
 }
+
+#[test]
+fn a_review_refit_keeps_the_texture_prior() {
+    let s = scratch();
+    fit(&s, &["--prior", "texture"]).success();
+    let id: i64 = s
+        .connect()
+        .query_row("SELECT id FROM sample WHERE code = 'TX-4'", [], |r| {
+            r.get(0)
+        })
+        .expect("sample");
+    let mut c = porewise::store::Campaign::open(&s.db).expect("open");
+    let run = porewise::analysis::review::refit_samples(&mut c, &[id]).expect("refit");
+    assert_eq!(run.fitted.len(), 1, "{run:?}");
+    assert!(run.failed.is_empty(), "{run:?}");
+    drop(c);
+    let out = s.list(&["fits", "--sample", "TX-4", "--all", "--format", "csv"]);
+    // The history: both attempts asked for the prior, both ok, the refit current.
+    let rows: Vec<Vec<&str>> = out
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').take(6).collect())
+        .collect();
+    let requested: Vec<(&str, &str, &str)> = rows.iter().map(|r| (r[3], r[4], r[5])).collect();
+    assert_eq!(
+        requested,
+        [
+            ("van-genuchten+texture-prior", "ok", ""),
+            ("van-genuchten+texture-prior", "ok", "yes")
+        ],
+        "{out}"
+    );
+}
