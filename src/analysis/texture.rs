@@ -442,6 +442,7 @@ pub fn fill_profile(p: &mut SiteProfile, fc_kpa: f64, pwp_kpa: f64) {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)]
 mod tests {
     use super::*;
 

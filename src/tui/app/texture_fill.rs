@@ -81,6 +81,7 @@ pub fn toggled(on: bool) -> &'static str {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)]
 mod tests {
     use super::*;
     use crate::analysis::water::LayerWater;
