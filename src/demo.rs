@@ -614,7 +614,9 @@ mod tests {
                 *per_sample.entry(sample.to_string()).or_default() += 1;
             }
         }
-        assert_eq!(per_sample.len(), 2 * (4 + 3 + 4 + 3));
+        // Two cores per cored layer and the four-reading core.
+        assert_eq!(per_sample.len(), 2 * (4 + 3 + 4 + 3) + 1);
+        assert_eq!(per_sample.remove(FOUR_READING_CORE), Some(4));
         assert!(
             per_sample.values().all(|&n| (8..=12).contains(&n)),
             "{per_sample:?}"
