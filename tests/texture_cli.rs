@@ -167,6 +167,12 @@ fn bad_prior_values_are_usage_errors_and_write_nothing() {
         "{}",
         stderr(&bad)
     );
+    let bad = fit(&s, &["--prior", "texture", "--fix", "theta_r=0"]).code(1);
+    assert!(
+        stderr(&bad).contains("does not hold parameters"),
+        "{}",
+        stderr(&bad)
+    );
     assert_eq!(s.counts(), before);
 }
 

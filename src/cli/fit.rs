@@ -32,7 +32,7 @@ Examples:
   porewise fit --input lab.csv --model auto --fix theta_r=0 --output fits.csv
   porewise fit --input lab.csv --flag-outliers --flags-output suspects.csv
   porewise fit spring.sqlite --model brooks-corey --conductivity mualem
-  porewise fit spring.sqlite --sample LEV1-07 --prior texture
+  porewise fit spring.sqlite --sample LV-Ap-a --prior texture
 
 With a campaign file, each new fit becomes its sample's current one (older fits stay as
 history: porewise list DB fits --sample CODE --all); a failed refit is recorded with its
@@ -143,11 +143,12 @@ fn run_campaign(
     let rule = match args.prior {
         Some(PriorArg::Texture) => PriorRule::Always,
         // The campaign default applies to auto and van Genuchten fits, not to another model
-        // asked for by name.
-        None if matches!(
-            choice,
-            ModelChoice::Auto | ModelChoice::One(ModelKind::VanGenuchten)
-        ) =>
+        // asked for by name nor to fits with parameters held (--fix).
+        None if args.fix.is_empty()
+            && matches!(
+                choice,
+                ModelChoice::Auto | ModelChoice::One(ModelKind::VanGenuchten)
+            ) =>
         {
             crate::store::texture::prior_default(campaign.connection())?
                 .map_or(PriorRule::Never, PriorRule::AtMost)
@@ -233,6 +234,12 @@ fn run_with_prior(
         bail!(
             "--prior texture fits van Genuchten (the model of the texture-class table); \
              leave out --model {choice} or give --model van-genuchten"
+        );
+    }
+    if rule == PriorRule::Always && !args.fix.is_empty() {
+        bail!(
+            "--prior texture fits all four van Genuchten parameters with their class prior; \
+             it does not hold parameters (--fix): leave out one or the other"
         );
     }
     let summary = fit_campaign_with_prior(
