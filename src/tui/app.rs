@@ -873,6 +873,8 @@ pub struct DepthLayer {
     pub fitted_cores: usize,
     /// Of those, stale.
     pub stale_cores: usize,
+    /// USDA texture class, when sand, silt and clay are known.
+    pub texture: Option<crate::model::texture::TextureClass>,
 }
 
 /// A fitted sample's curve in the depth view.
@@ -960,6 +962,7 @@ impl DepthData {
                     lab_cores: water.map_or(0, |w| w.lab_cores),
                     fitted_cores: water.map_or(0, |w| w.fitted_cores),
                     stale_cores: water.map_or(0, |w| w.stale_cores),
+                    texture: water.and_then(|w| w.texture),
                 });
                 layer_of.push(key);
                 layers.len() - 1

@@ -181,6 +181,9 @@ impl DepthScreen<'_> {
                 ]));
             }
         }
+        if let Some(line) = super::texture_fill::class_line(data) {
+            lines.push(Line::from(Span::styled(line, theme.dim())));
+        }
         let fill = data
             .texture_fill
             .as_ref()

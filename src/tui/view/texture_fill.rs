@@ -2,6 +2,7 @@
 
 use ratatui::text::{Line, Span};
 
+use super::super::app::DepthData;
 use super::super::app::texture_fill::TextureFill;
 use super::super::theme::Theme;
 use crate::model::text::shown;
@@ -33,4 +34,14 @@ pub fn estimate_lines(lines: &mut Vec<Line<'static>>, fill: &TextureFill, theme:
             theme.dim(),
         )));
     }
+}
+
+/// The USDA class of each layer by its mark (`texture 1CL 2C 3C`), when any is known.
+pub fn class_line(data: &DepthData) -> Option<String> {
+    let parts: Vec<String> = data
+        .layers
+        .iter()
+        .filter_map(|l| l.texture.map(|t| format!("{}{}", l.mark, t.code())))
+        .collect();
+    (!parts.is_empty()).then(|| format!("texture {}", parts.join(" ")))
 }
