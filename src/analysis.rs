@@ -6,6 +6,7 @@ pub mod advise;
 pub mod current;
 pub mod fitting;
 pub mod review;
+pub mod texture;
 pub mod water;
 
 pub use current::{SampleFit, sample_fits, sample_fits_with};

@@ -498,6 +498,7 @@ pub fn generate() -> Vec<DemoFile> {
             }
         }
     }
+    sparse_additions(&mut layers, &mut lab_a);
     vec![
         sites.finish("sites.csv"),
         layers.finish("layers.csv"),
@@ -506,6 +507,61 @@ pub fn generate() -> Vec<DemoFile> {
         lab_c.finish("lab-c-basin.csv"),
         logger::file(),
     ]
+}
+
+/// The seed of the sparse additions (their own stream, so the rest of the demo stays as it was).
+const SPARSE_SEED: u64 = SEED ^ 0x0015;
+
+/// The layer described and sampled for texture but never cored (below `BAS1`'s cores).
+pub const TEXTURE_ONLY_LAYER: &str = "BAS1:90-130";
+
+/// The core whose plate run failed after four readings.
+pub const FOUR_READING_CORE: &str = "TER1-A-c";
+
+/// The four suctions of [`FOUR_READING_CORE`], kPa: saturation, the sandbox at 6 kPa, the
+/// 33 kPa plate and the 1500 kPa plate (the steps between were lost).
+const FOUR_STEPS_KPA: [f64; 4] = [0.0, 6.0, 33.0, 1500.0];
+
+/// Two holes a real campaign has: a layer with texture but no core ([`TEXTURE_ONLY_LAYER`],
+/// clay) and a core with only four readings ([`FOUR_READING_CORE`], a third core of the
+/// terrace's loam), drawn from their own seeded stream.
+fn sparse_additions(layers: &mut Sheet, lab_a: &mut Sheet) {
+    let mut rng = ChaCha8Rng::seed_from_u64(SPARSE_SEED);
+    let unit = Normal::new(0.0, 1.0).unwrap_or_else(|_| unreachable!("unit normal is valid"));
+    let tex = CLAY;
+    layers.row(&[
+        "BAS1".to_string(),
+        "90".to_string(),
+        "130".to_string(),
+        "Ck".to_string(),
+        format!("{:.0}", tex.sand),
+        format!("{:.0}", tex.silt),
+        format!("{:.0}", tex.clay),
+        "0.15".to_string(),
+        "1.48".to_string(),
+        String::new(),
+    ]);
+    let tex = LOAM;
+    let theta_s = tex.theta_s + 0.012 * unit.sample(&mut rng);
+    let theta_r = (tex.theta_r + 0.008 * unit.sample(&mut rng)).max(0.0);
+    let alpha = tex.alpha * (0.15 * unit.sample(&mut rng)).exp();
+    let n = 1.0 + (tex.n - 1.0) * (0.08 * unit.sample(&mut rng)).exp();
+    for kpa in FOUR_STEPS_KPA {
+        let h_cm = kpa * CM_PER_KPA;
+        let theta = (vg_theta(h_cm, theta_r, theta_s, alpha, n) + 0.006 * unit.sample(&mut rng))
+            .clamp(0.001, 0.99);
+        lab_a.row(&[
+            "TER1".to_string(),
+            "0".to_string(),
+            "25".to_string(),
+            FOUR_READING_CORE.to_string(),
+            lab_method(h_cm).to_string(),
+            trim_zeros(kpa),
+            format!("{theta:.4}"),
+            "2026-06-20".to_string(),
+            "plate run failed after the 1500 kPa step".to_string(),
+        ]);
+    }
 }
 
 /// The apparatus a lab uses at a suction (common practice): sandbox or hanging column at the
@@ -558,7 +614,9 @@ mod tests {
                 *per_sample.entry(sample.to_string()).or_default() += 1;
             }
         }
-        assert_eq!(per_sample.len(), 2 * (4 + 3 + 4 + 3));
+        // Two cores per cored layer and the four-reading core.
+        assert_eq!(per_sample.len(), 2 * (4 + 3 + 4 + 3) + 1);
+        assert_eq!(per_sample.remove(FOUR_READING_CORE), Some(4));
         assert!(
             per_sample.values().all(|&n| (8..=12).contains(&n)),
             "{per_sample:?}"

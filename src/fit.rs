@@ -13,6 +13,7 @@ mod error;
 mod models;
 pub mod outliers;
 pub mod pooling;
+pub mod prior;
 mod problem;
 mod projection;
 mod report;

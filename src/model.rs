@@ -11,4 +11,5 @@ pub mod number;
 pub mod retention;
 pub mod special;
 pub mod text;
+pub mod texture;
 pub mod units;

@@ -24,6 +24,7 @@ pub mod readings;
 pub mod samples;
 pub mod sites;
 mod sql_types;
+pub mod texture;
 
 pub use campaign::{Campaign, CampaignSettings, CampaignTransaction};
 pub use overview::{Counts, LayerOverview, Overview, SampleOverview, SiteOverview, overview};

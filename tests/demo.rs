@@ -55,8 +55,9 @@ fn demo_builds_from_scratch_and_a_second_run_reuses_it() {
     let file = tmp.path().join("demo.sqlite");
     let campaign = porewise::store::Campaign::open(&file).expect("opens");
     let counts = porewise::store::overview::counts(campaign.connection()).expect("counts");
-    // 14 layers with two lab cores each, and a field pairing at each of the two logged depths.
-    assert_eq!((counts.sites, counts.layers, counts.samples), (4, 14, 30));
+    // 14 layers with two lab cores each, a third core with four readings (TER1-A-c), a layer
+    // with texture and no core (BAS1:90-130), and a field pairing at each logged depth.
+    assert_eq!((counts.sites, counts.layers, counts.samples), (4, 15, 31));
     let conn = campaign.connection();
     let one = |sql: &str| -> i64 { conn.query_row(sql, [], |r| r.get(0)).expect(sql) };
     // Every generated lab row became a reading; the rest are the field pairings' readings.

@@ -397,6 +397,11 @@ fn layer_and_profile_intervals_follow_the_hand_formulas() {
     for p in &all {
         let mut variance = 0.0;
         for w in &p.layers {
+            if w.lab_cores == 0 {
+                // A layer described for texture only (the demo's BAS1:90-130): no value.
+                assert!(w.available_water.is_none() && w.water_mm.is_none());
+                continue;
+            }
             let key = (w.layer.site.clone(), w.layer.top_cm, w.layer.bottom_cm);
             let cores = &by_layer.iter().find(|(k, _)| *k == key).expect("layer").1;
             let weights: Vec<f64> = cores.iter().map(|(_, v)| 1.0 / (v + tau2)).collect();

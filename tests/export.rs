@@ -268,8 +268,16 @@ fn every_file_parses_back() {
 
     let (header, rows) = e.csv(PARAMETERS_FILE);
     assert_eq!(
-        &header[..6],
-        ["site", "layer", "horizon", "top_cm", "bottom_cm", "sample"]
+        &header[..7],
+        [
+            "site",
+            "layer",
+            "horizon",
+            "texture",
+            "top_cm",
+            "bottom_cm",
+            "sample"
+        ]
     );
     for column in [
         "theta_r",
@@ -881,8 +889,9 @@ fn the_demo_campaign_exports_every_sample() {
         .into_iter()
         .map(|s| s.code)
         .collect();
-    // 28 lab cores and the two field pairings of the logger at TER1 (demo-db/README.md).
-    assert_eq!(codes.len(), 30);
+    // 29 lab cores (28 and the four-reading TER1-A-c) and the two field pairings of the
+    // logger at TER1 (demo-db/README.md).
+    assert_eq!(codes.len(), 31);
     assert_eq!(summary.samples, codes.len());
 
     let mut reader = csv::Reader::from_path(out.join(PARAMETERS_FILE)).expect("csv");
@@ -934,6 +943,41 @@ fn the_demo_campaign_exports_every_sample() {
     for code in &codes {
         assert!(cells.contains(code), "report.html lists {code}");
     }
+    // The layer with texture and no core: its estimate with its source, apart from the
+    // measured values, in the page and in campaign.json; the four-reading core's basis.
+    let estimates: Vec<String> = page
+        .descendants()
+        .filter(|n| n.tag_name().name() == "tr")
+        .map(|n| n.descendants().filter_map(|d| d.text()).collect::<String>())
+        .filter(|t| t.contains("◌"))
+        .collect();
+    assert_eq!(estimates.len(), 1, "{estimates:?}");
+    assert!(
+        estimates[0].contains("Ck") && estimates[0].contains("clay"),
+        "{estimates:?}"
+    );
+    assert!(
+        estimates[0].contains("Carsel & Parrish (1988)"),
+        "{estimates:?}"
+    );
+    let layers: Vec<_> = doc.data.sites.iter().flat_map(|s| &s.layers).collect();
+    let with_estimate: Vec<(f64, Option<&str>)> = layers
+        .iter()
+        .filter_map(|l| {
+            l.texture_estimate
+                .as_ref()
+                .map(|e| (l.top_cm, Some(e.class.as_str())))
+        })
+        .collect();
+    assert_eq!(with_estimate, [(90.0, Some("clay"))]);
+    assert!(layers.iter().all(|l| l.texture_class.is_some()));
+    let four = layers
+        .iter()
+        .flat_map(|l| &l.samples)
+        .find(|m| m.code == "TER1-A-c")
+        .and_then(|m| m.fit.as_ref())
+        .expect("the four-reading core's fit");
+    assert_eq!(four.basis, "readings+texture prior");
     let geo: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(out.join(SITES_FILE)).expect("geo"))
             .expect("parses");

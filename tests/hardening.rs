@@ -515,7 +515,7 @@ fn a_site_without_a_fitted_layer_totals_zero_not_minus_zero() {
         .expect("a total row for BS (no fitted layer)");
     // No interval columns filled: nothing fitted, so no total interval and no pooled
     // between-core variance (0 layers).
-    assert_eq!(total, "BS,total,BS:0-100,,0,100,,,,,,,,0,0,,,100,100,,0,");
+    assert_eq!(total, "BS,total,BS:0-100,,,,0,100,,,,,,,,0,0,,,100,100,,0,");
     assert!(
         !profiles.split([',', '\n']).any(|cell| cell == "-0"),
         "{profiles}"

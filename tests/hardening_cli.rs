@@ -576,7 +576,10 @@ fn a_migration_moves_stored_days_out_of_range_into_the_notes() {
         )
         .expect("old value");
     }
-    // The file as an older porewise left it: schema version 6.
+    // The file as an older porewise left it: schema version 6, without what later versions
+    // added (version 8's column).
+    conn.execute_batch("ALTER TABLE campaign DROP COLUMN texture_prior_max_readings")
+        .expect("older schema");
     conn.pragma_update(None, "user_version", 6)
         .expect("version");
     drop(conn);

@@ -107,7 +107,7 @@ fn buffer(s: &Session) -> ratatui::buffer::Buffer {
 }
 
 /// Keys that bring each pane up, from a fresh session.
-const PANES: [(&str, &str); 21] = [
+const PANES: [(&str, &str); 24] = [
     ("start", ""),
     ("site_open", "<enter>"),
     ("layer_summary", "<enter>j"),
@@ -135,6 +135,15 @@ const PANES: [(&str, &str); 21] = [
     ("series", "/TER1-field-45cm<enter>G4"),
     ("series_zoomed_later", "/TER1-A-a<enter>G4++l"),
     ("series_no_loggers", "4"),
+    // The four-reading core fitted with its loam texture prior: the side-by-side.
+    (
+        "sample_card_prior",
+        "/TER1-A-c<enter>G<tab><tab><tab>jjjjjjjjj",
+    ),
+    // The clay basin's depth view: its lowest layer has texture and no core.
+    ("depth_texture_only", "/BAS1<enter>G2"),
+    // The same with the key that fills it from texture, marked ≈.
+    ("depth_texture_filled", "/BAS1<enter>G2e"),
     ("review_logger_record", "3jjjjj"),
 ];
 

@@ -340,15 +340,24 @@ pub fn refit_samples(campaign: &mut Campaign, sample_ids: &[i64]) -> Result<FitR
             continue;
         }
         let current = fits::current(campaign.connection(), sample.id)?;
-        let choice = current
-            .as_ref()
-            .and_then(|f| f.requested.as_deref())
-            .and_then(|r| r.parse::<ModelChoice>().ok())
-            .unwrap_or_default();
+        let requested = current.as_ref().and_then(|f| f.requested.as_deref());
+        // A fit with the texture prior is refitted with it (see `texture`).
+        let with_prior = requested == Some(super::texture::REQUESTED_WITH_PRIOR);
+        let choice = if with_prior {
+            ModelChoice::One(crate::model::retention::ModelKind::VanGenuchten)
+        } else {
+            requested
+                .and_then(|r| r.parse::<ModelChoice>().ok())
+                .unwrap_or_default()
+        };
         let conductivity = current.as_ref().and_then(|f| f.conductivity);
         let fixed = current.map(|f| f.fixed).unwrap_or_default();
         let key = (
-            choice.to_string(),
+            if with_prior {
+                super::texture::REQUESTED_WITH_PRIOR.to_string()
+            } else {
+                choice.to_string()
+            },
             fixed
                 .iter()
                 .map(|(n, v)| format!("{n}={v}"))
@@ -365,11 +374,24 @@ pub fn refit_samples(campaign: &mut Campaign, sample_ids: &[i64]) -> Result<FitR
         entry.3.push(sample.code);
     }
     let mut summary = FitRunSummary::default();
-    for (choice, options, conductivity, codes) in groups.into_values() {
+    for ((requested, _, _), (choice, options, conductivity, codes)) in groups {
         let selection = Selection {
             samples: codes,
             ..Selection::default()
         };
+        if requested == super::texture::REQUESTED_WITH_PRIOR {
+            let run = super::texture::fit_campaign_with_prior(
+                campaign,
+                &selection,
+                choice,
+                &options,
+                super::texture::PriorRule::Always,
+                conductivity,
+                &|_, _| {},
+            )?;
+            summary.extend(run.run);
+            continue;
+        }
         let run = fit_campaign_with(
             campaign,
             &selection,

@@ -39,6 +39,7 @@ use crate::model::derived::{
 use crate::model::domain::{LayerRef, SampleKind};
 use crate::model::number::significant;
 use crate::model::retention::{ModelKind, RetentionCurve};
+use crate::model::texture::TextureClass;
 use crate::model::units::CM_PER_KPA;
 use crate::store::fits::{self, FitState, Selection};
 use crate::store::{CampaignSettings, Result, layers};
@@ -211,6 +212,18 @@ pub fn fit_available_water(
     value.map(|v| (v, interval))
 }
 
+/// A fit's available water between two suctions (kPa) with its 95 % interval, as
+/// [`fit_available_water`] gives it under a campaign's settings.
+pub fn available_water_between(
+    report: &FitReport,
+    fc_kpa: f64,
+    pwp_kpa: f64,
+) -> Option<(f64, Option<Interval95>)> {
+    let d = Derivation::of(report)?;
+    let (value, interval) = d.available_water(fc_kpa, pwp_kpa);
+    value.map(|v| (v, interval))
+}
+
 /// Derived values of a fit under the campaign's field capacity and wilting point, with their
 /// 95 % intervals; the conductivity in the form asked for (see [`conductivity_model_for`]).
 pub fn derive_fit(
@@ -292,7 +305,7 @@ pub struct SumInterval {
 }
 
 impl SumInterval {
-    fn around(value: f64, se: f64) -> Option<SumInterval> {
+    pub(crate) fn around(value: f64, se: f64) -> Option<SumInterval> {
         let half = Z975 * se;
         (value.is_finite() && half.is_finite()).then_some(SumInterval {
             lo95: value - half,
@@ -306,7 +319,7 @@ impl SumInterval {
         0.5 * (self.hi95 - self.lo95)
     }
 
-    fn scaled(self, factor: f64) -> SumInterval {
+    pub(crate) fn scaled(self, factor: f64) -> SumInterval {
         SumInterval {
             lo95: self.lo95 * factor,
             hi95: self.hi95 * factor,
@@ -370,6 +383,25 @@ pub struct LayerWater {
     pub water_mm: Option<f64>,
     /// Its 95 % interval, mm.
     pub water_mm_interval: Option<SumInterval>,
+    /// USDA texture class, when sand, silt and clay are known.
+    pub texture: Option<TextureClass>,
+    /// Set when the available water is an estimate from the texture class (a layer without a
+    /// fitted core, filled on request: `list profiles --fill-from-texture`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub estimate: Option<TextureEstimate>,
+}
+
+/// A layer's retention curve estimated from its texture class, not measured.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct TextureEstimate {
+    /// The class.
+    pub class: TextureClass,
+    /// The estimate's basis word (`texture only`).
+    pub basis: &'static str,
+    /// How it was made and where its numbers come from.
+    pub source: String,
+    /// van Genuchten theta_r, theta_s (m3/m3), alpha (1/cm), n.
+    pub parameters: [f64; 4],
 }
 
 /// A site's profile available water down to a depth.
@@ -426,6 +458,7 @@ struct CoreWater {
 struct LayerCores {
     layer: LayerRef,
     horizon: Option<String>,
+    texture: Option<TextureClass>,
     lab_cores: usize,
     stale: usize,
     lab: Vec<CoreWater>,
@@ -470,6 +503,7 @@ fn gather(
         let mut cores = LayerCores {
             layer: layer.at.clone(),
             horizon: layer.horizon.clone(),
+            texture: TextureClass::of_layer(layer.sand_pct, layer.silt_pct, layer.clay_pct),
             lab_cores: 0,
             stale: 0,
             lab: Vec::new(),
@@ -646,6 +680,8 @@ fn build(
             depth_in_zone_cm: depth,
             water_mm: available_water.map(|aw| aw * mm),
             water_mm_interval: interval.map(|i| i.scaled(mm)),
+            texture: cores.texture,
+            estimate: None,
         };
         match out.last_mut() {
             Some(p) if p.site == cores.layer.site => p.layers.push(water),
@@ -664,45 +700,54 @@ fn build(
         }
     }
     for p in &mut out {
-        // An empty f64 sum is -0.0; adding it to 0.0 gives 0.0, so a site without a fitted
-        // layer shows 0, not -0.
-        p.total_mm = 0.0 + p.layers.iter().filter_map(|l| l.water_mm).sum::<f64>();
-        p.covered_cm = (0.0
-            + p.layers
-                .iter()
-                .filter(|l| l.water_mm.is_some())
-                .map(|l| l.depth_in_zone_cm)
-                .sum::<f64>())
-        .min(root_zone_cm);
-        let counted = p
-            .layers
-            .iter()
-            .filter(|l| l.water_mm.is_some() && l.depth_in_zone_cm > 0.0);
-        let mut variance = 0.0;
-        let mut lacking = None;
-        for l in counted {
-            match l.water_mm_interval {
-                Some(i) => variance += i.se * i.se,
-                None => {
-                    lacking.get_or_insert_with(|| {
-                        format!(
-                            "no interval: layer {}-{} cm has none",
-                            significant(l.layer.top_cm, 6).unwrap_or_default(),
-                            significant(l.layer.bottom_cm, 6).unwrap_or_default()
-                        )
-                    });
-                }
-            }
-        }
-        match lacking {
-            Some(note) => p.total_note = Some(note),
-            None if p.covered_cm > 0.0 => {
-                p.total_mm_interval = SumInterval::around(p.total_mm, variance.sqrt());
-            }
-            None => {}
-        }
+        recompute_totals(p);
     }
     out
+}
+
+/// A profile's total, its interval and the covered depth from its layers' water (after the
+/// layers were built, or after estimates were filled in).
+pub(crate) fn recompute_totals(p: &mut SiteProfile) {
+    let root_zone_cm = p.root_zone_cm;
+    p.total_mm_interval = None;
+    p.total_note = None;
+    // An empty f64 sum is -0.0; adding it to 0.0 gives 0.0, so a site without a fitted
+    // layer shows 0, not -0.
+    p.total_mm = 0.0 + p.layers.iter().filter_map(|l| l.water_mm).sum::<f64>();
+    p.covered_cm = (0.0
+        + p.layers
+            .iter()
+            .filter(|l| l.water_mm.is_some())
+            .map(|l| l.depth_in_zone_cm)
+            .sum::<f64>())
+    .min(root_zone_cm);
+    let counted = p
+        .layers
+        .iter()
+        .filter(|l| l.water_mm.is_some() && l.depth_in_zone_cm > 0.0);
+    let mut variance = 0.0;
+    let mut lacking = None;
+    for l in counted {
+        match l.water_mm_interval {
+            Some(i) => variance += i.se * i.se,
+            None => {
+                lacking.get_or_insert_with(|| {
+                    format!(
+                        "no interval: layer {}-{} cm has none",
+                        significant(l.layer.top_cm, 6).unwrap_or_default(),
+                        significant(l.layer.bottom_cm, 6).unwrap_or_default()
+                    )
+                });
+            }
+        }
+    }
+    match lacking {
+        Some(note) => p.total_note = Some(note),
+        None if p.covered_cm > 0.0 => {
+            p.total_mm_interval = SumInterval::around(p.total_mm, variance.sqrt());
+        }
+        None => {}
+    }
 }
 
 #[cfg(test)]

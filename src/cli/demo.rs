@@ -6,9 +6,13 @@ use std::path::{Path, PathBuf};
 use anyhow::Context;
 use clap::Args;
 
+use crate::analysis::ModelChoice;
 use crate::analysis::advise::{AdviseOptions, advise};
 use crate::analysis::review::{ReviewOptions, refresh};
-use crate::analysis::{ModelChoice, fit_campaign};
+use crate::analysis::texture::{PriorRule, fit_campaign_with_prior};
+
+/// The demo campaign's texture-prior default: samples with at most this many readings.
+const DEMO_PRIOR_MAX_READINGS: u32 = 5;
 use crate::error::Outcome;
 use crate::fit::FitOptions;
 use crate::import::logger::{LoggerOptions, import_logger_files};
@@ -188,16 +192,44 @@ fn build(file: &Path, sources: &Sources) -> anyhow::Result<()> {
                     .join(", ")
             );
         }
-        let fits = fit_campaign(
+        // The texture prior by default for samples with at most 5 readings: the four-reading
+        // core gets van Genuchten with its loam prior; the rest are fitted by auto. A second
+        // pass refits the prior's samples with the campaign's pooled noise.
+        {
+            let tx = campaign.transaction()?;
+            crate::store::texture::set_prior_default(&tx, Some(DEMO_PRIOR_MAX_READINGS))?;
+            tx.commit()?;
+        }
+        let rule = PriorRule::AtMost(DEMO_PRIOR_MAX_READINGS);
+        let first = fit_campaign_with_prior(
             &mut campaign,
             &Selection::all(),
             ModelChoice::Auto,
             &FitOptions::new(),
+            rule,
+            None,
             &|_, _| {},
         )?;
+        let sparse = Selection {
+            samples: first.with_prior.iter().map(|(s, _)| s.clone()).collect(),
+            ..Selection::default()
+        };
+        if !sparse.samples.is_empty() {
+            fit_campaign_with_prior(
+                &mut campaign,
+                &sparse,
+                ModelChoice::Auto,
+                &FitOptions::new(),
+                rule,
+                None,
+                &|_, _| {},
+            )?;
+        }
+        let fits = &first.run;
         eprintln!(
-            "fitted {} samples (auto){}",
+            "fitted {} samples (auto; {} with the texture prior){}",
             fits.fitted.len(),
+            first.with_prior.len(),
             if fits.failed.is_empty() {
                 String::new()
             } else {

@@ -8,6 +8,7 @@ use rayon::prelude::*;
 
 use indicatif::{ProgressBar, ProgressStyle};
 
+use crate::analysis::texture::{PriorRule, fit_campaign_with_prior};
 use crate::analysis::{ModelChoice, fit_campaign_with, fit_choice};
 use crate::error::Outcome;
 use crate::fit::outliers::{OutlierOptions, OutlierSample, review};
@@ -31,10 +32,15 @@ Examples:
   porewise fit --input lab.csv --model auto --fix theta_r=0 --output fits.csv
   porewise fit --input lab.csv --flag-outliers --flags-output suspects.csv
   porewise fit spring.sqlite --model brooks-corey --conductivity mualem
+  porewise fit spring.sqlite --sample LV-Ap-a --prior texture
 
 With a campaign file, each new fit becomes its sample's current one (older fits stay as
 history: porewise list DB fits --sample CODE --all); a failed refit is recorded with its
 reason and leaves the previous fit current but stale. Exit 3 when some samples failed.
+With --prior texture the fit is van Genuchten with the layer's texture-class prior (a maximum
+a posteriori fit; the readings-only fit is kept beside it in the report); fitting again with
+--prior none makes the readings-only fit current. `porewise set DB --texture-prior N` makes
+the prior the default for samples with at most N readings.
 
 The input has a header row with `sample`, one suction column (suction_cm, suction_hpa,
 suction_kpa, suction_mpa, suction_bar or pf) and `theta` (m3/m3) or `theta_pct`; other
@@ -87,6 +93,29 @@ pub struct FitArgs {
     /// the model has it (Brooks-Corey: burdine, the default, or mualem); the export names it.
     #[arg(long, value_name = "FORM", requires = "db", value_parser = parse_form)]
     pub conductivity: Option<ConductivityForm>,
+    /// With DB: `texture` fits van Genuchten with each sample's layer texture-class prior
+    /// (Carsel & Parrish 1988; layers without sand/silt/clay get the readings-only fit);
+    /// `none` fits the readings alone where the campaign default (porewise set
+    /// --texture-prior N) would use the prior.
+    #[arg(long, value_name = "texture|none", requires = "db", value_parser = parse_prior)]
+    pub prior: Option<PriorArg>,
+}
+
+/// The `--prior` choice.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PriorArg {
+    /// The layer's texture-class prior on every selected sample.
+    Texture,
+    /// No prior.
+    None,
+}
+
+fn parse_prior(s: &str) -> Result<PriorArg, String> {
+    match s.trim().to_ascii_lowercase().as_str() {
+        "texture" => Ok(PriorArg::Texture),
+        "none" => Ok(PriorArg::None),
+        _ => Err(format!("`{s}`: expected texture or none")),
+    }
 }
 
 fn parse_form(s: &str) -> Result<ConductivityForm, String> {
@@ -111,6 +140,24 @@ fn run_campaign(
         layer: args.layer.clone(),
         samples: args.samples.clone(),
     };
+    let rule = match args.prior {
+        Some(PriorArg::Texture) => PriorRule::Always,
+        // The campaign default applies to auto and van Genuchten fits, not to another model
+        // asked for by name nor to fits with parameters held (--fix).
+        None if args.fix.is_empty()
+            && matches!(
+                choice,
+                ModelChoice::Auto | ModelChoice::One(ModelKind::VanGenuchten)
+            ) =>
+        {
+            crate::store::texture::prior_default(campaign.connection())?
+                .map_or(PriorRule::Never, PriorRule::AtMost)
+        }
+        Some(PriorArg::None) | None => PriorRule::Never,
+    };
+    if rule != PriorRule::Never {
+        return run_with_prior(args, &mut campaign, &selection, choice, options, rule);
+    }
     let bar = ProgressBar::new(0).with_style(
         ProgressStyle::with_template("fitting {bar:30} {pos}/{len} samples ({eta} left)")
             .unwrap_or_else(|_| ProgressStyle::default_bar()),
@@ -165,6 +212,74 @@ fn run_campaign(
         );
     }
     Ok(if summary.is_complete() {
+        Outcome::Success
+    } else {
+        Outcome::Partial
+    })
+}
+
+/// `porewise fit DB` with the texture prior on the samples `rule` picks.
+fn run_with_prior(
+    args: &FitArgs,
+    campaign: &mut Campaign,
+    selection: &Selection,
+    choice: ModelChoice,
+    options: &FitOptions,
+    rule: PriorRule,
+) -> anyhow::Result<Outcome> {
+    if rule == PriorRule::Always
+        && !matches!(choice, ModelChoice::One(ModelKind::VanGenuchten))
+        && args.model.is_some()
+    {
+        bail!(
+            "--prior texture fits van Genuchten (the model of the texture-class table); \
+             leave out --model {choice} or give --model van-genuchten"
+        );
+    }
+    if rule == PriorRule::Always && !args.fix.is_empty() {
+        bail!(
+            "--prior texture fits all four van Genuchten parameters with their class prior; \
+             it does not hold parameters (--fix): leave out one or the other"
+        );
+    }
+    let summary = fit_campaign_with_prior(
+        campaign,
+        selection,
+        choice,
+        options,
+        rule,
+        args.conductivity,
+        &|_, _| {},
+    )?;
+    let run = &summary.run;
+    let why = match rule {
+        PriorRule::AtMost(n) => format!(" (campaign default: samples with at most {n} readings)"),
+        _ => String::new(),
+    };
+    println!(
+        "fitted {}, {} of them with the texture prior{why} (readings' noise sd {} m3/m3); {} failed",
+        plural(run.fitted.len() as u64, "sample"),
+        summary.with_prior.len(),
+        crate::report::format_number(summary.noise_sd),
+        run.failed.len()
+    );
+    for (sample, layer) in &summary.no_texture {
+        eprintln!(
+            "sample {}: layer {} has no sand/silt/clay: fitted from the readings alone",
+            shown(sample),
+            shown(&layer.to_string())
+        );
+    }
+    for (sample, reason) in &run.failed {
+        eprintln!("sample {}: not fitted: {}", shown(sample), shown(reason));
+    }
+    for sample in &run.changed {
+        eprintln!(
+            "sample {sample}: not recorded: its readings changed while it was being fitted \
+             (another command wrote to them); fit it again"
+        );
+    }
+    Ok(if run.is_complete() {
         Outcome::Success
     } else {
         Outcome::Partial

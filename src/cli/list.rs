@@ -57,7 +57,7 @@ pub enum Format {
 /// Arguments of `porewise list`.
 #[derive(Debug, Args)]
 #[command(
-    after_help = "Examples:\n  porewise list spring.sqlite\n  porewise list spring.sqlite readings --site LV --units kpa\n  porewise list spring.sqlite samples --format csv > samples.csv\n  porewise list spring.sqlite fits --site LV\n  porewise list spring.sqlite fits --sample LV-Ap-a --all\n  porewise list spring.sqlite profiles --root-zone-cm 60\n  porewise list spring.sqlite flags --sample LV-Ap-a\n  porewise list spring.sqlite flag-events"
+    after_help = "Examples:\n  porewise list spring.sqlite\n  porewise list spring.sqlite readings --site LV --units kpa\n  porewise list spring.sqlite samples --format csv > samples.csv\n  porewise list spring.sqlite fits --site LV\n  porewise list spring.sqlite fits --sample LV-Ap-a --all\n  porewise list spring.sqlite profiles --root-zone-cm 60\n  porewise list spring.sqlite profiles --fill-from-texture\n  porewise list spring.sqlite flags --sample LV-Ap-a\n  porewise list spring.sqlite flag-events"
 )]
 pub struct ListArgs {
     /// The campaign file.
@@ -80,6 +80,11 @@ pub struct ListArgs {
     /// With `profiles`: the depth down to which available water is summed, cm.
     #[arg(long, value_name = "CM", default_value_t = DEFAULT_ROOT_ZONE_CM)]
     pub root_zone_cm: f64,
+    /// With `profiles`: fill layers that have sand/silt/clay but no fitted core with their
+    /// texture class's estimate (Carsel & Parrish 1988 class mean), marked ◌ in the basis
+    /// column; the default lists measured values only.
+    #[arg(long)]
+    pub fill_from_texture: bool,
     /// Suction unit for readings: cm, hpa, kpa, mpa, bar or pf.
     #[arg(long, default_value = "cm", value_parser = parse_unit, value_name = "UNIT")]
     pub units: SuctionUnit,
@@ -197,7 +202,11 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
         }
         What::Fits => fits(conn, args)?,
         What::Profiles => {
-            let list = profiles(conn, &campaign.settings()?, args.root_zone_cm, filter.site)?;
+            let settings = campaign.settings()?;
+            let mut list = profiles(conn, &settings, args.root_zone_cm, filter.site)?;
+            if args.fill_from_texture {
+                crate::analysis::texture::fill_from_texture(&mut list, &settings);
+            }
             note = Some(pooled_note(&list));
             profiles_listing(&list)
         }

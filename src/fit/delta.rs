@@ -127,7 +127,12 @@ impl Delta {
     pub fn of(report: &FitReport) -> Option<Delta> {
         let cov = report.covariance.as_ref()?;
         let kind = ModelKind::from_str(&report.model).ok()?;
-        let dof = report.n_points.checked_sub(report.n_free_params)?;
+        // A fit with a prior takes the noise as known: normal quantiles (see `fit::prior`).
+        let dof = if report.prior.is_some() {
+            super::prior::PRIOR_DOF
+        } else {
+            report.n_points.checked_sub(report.n_free_params)?
+        };
         let t = t975(dof)?;
         let index = cov
             .names

@@ -1544,5 +1544,6 @@ fn build_report(
         covariance,
         correlation,
         readings,
+        prior: None,
     }
 }

@@ -198,6 +198,10 @@ pub struct FitReport {
     pub correlation: Option<ParamMatrix>,
     /// Per reading, in input order.
     pub readings: Vec<ReadingFit>,
+    /// The prior of a maximum a posteriori fit (`fit::prior`); `None` for a fit to the
+    /// readings alone (absent from reports stored before priors existed).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub prior: Option<super::prior::PriorBasis>,
 }
 
 impl FitReport {

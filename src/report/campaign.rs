@@ -1,5 +1,6 @@
 //! Listings of what a campaign holds (sites, layers, samples, readings) and its overview text.
 
+use crate::model::texture::TextureClass;
 use std::collections::HashMap;
 use std::fmt;
 
@@ -70,6 +71,7 @@ pub fn layers_listing(rows: &[LayerRow]) -> Listing {
         "sand_pct",
         "silt_pct",
         "clay_pct",
+        "texture",
         "organic_carbon_pct",
         "bulk_density_g_cm3",
         "ks_cm_per_day",
@@ -87,6 +89,9 @@ pub fn layers_listing(rows: &[LayerRow]) -> Listing {
             layer.sand_pct.into(),
             layer.silt_pct.into(),
             layer.clay_pct.into(),
+            TextureClass::of_layer(layer.sand_pct, layer.silt_pct, layer.clay_pct)
+                .map(|t| t.name().to_string())
+                .into(),
             layer.organic_carbon_pct.into(),
             layer.bulk_density_g_cm3.into(),
             layer.ks_cm_per_day.into(),

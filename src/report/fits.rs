@@ -56,6 +56,19 @@ pub fn estimate_cell(value: Option<f64>, interval: Option<&Interval95>) -> Cell 
     )
 }
 
+/// A table cell of a layer value estimated from texture: the value with its class-spread
+/// interval as a range, `0.076 (0.013…0.188)` (it is not symmetric).
+pub fn range_cell(value: Option<f64>, interval: Option<SumInterval>) -> Cell {
+    let text = |v: f64| significant(v, 3).unwrap_or_default();
+    Cell::Estimate(
+        value,
+        value.map_or_else(String::new, |v| match interval {
+            Some(i) => format!("{} ({}…{})", text(v), text(i.lo95), text(i.hi95)),
+            None => text(v),
+        }),
+    )
+}
+
 /// A table cell of a layer or profile value with its symmetric interval.
 pub fn sum_cell(value: Option<f64>, interval: Option<SumInterval>) -> Cell {
     Cell::Estimate(
@@ -132,6 +145,7 @@ pub fn fits_listing(rows: &[SampleFit]) -> Listing {
         Column::new("top_cm"),
         Column::new("bottom_cm"),
         Column::new("model"),
+        Column::new("basis"),
         Column::new("state"),
         Column::new("parameters"),
     ];
@@ -164,6 +178,9 @@ pub fn fits_listing(rows: &[SampleFit]) -> Listing {
             r.sample.layer.top_cm.into(),
             r.sample.layer.bottom_cm.into(),
             r.fit.as_ref().map(|f| f.model.clone()).into(),
+            report
+                .map(|rep| crate::fit::prior::basis_of(rep).to_string())
+                .into(),
             Cell::text(state_text(&r.state)),
             report.map(parameters_text).into(),
         ];
@@ -294,6 +311,8 @@ pub fn profiles_listing(profiles: &[SiteProfile]) -> Listing {
         Column::new("site"),
         Column::new("layer"),
         Column::new("horizon"),
+        Column::new("texture"),
+        Column::new("basis"),
         Column::new("lab_cores"),
         Column::new("fitted_cores"),
         Column::new("stale_cores"),
@@ -327,15 +346,25 @@ pub fn profiles_listing(profiles: &[SiteProfile]) -> Listing {
                     significant(w.layer.bottom_cm, 6).unwrap_or_default()
                 )),
                 w.horizon.clone().into(),
+                w.texture.map(|t| t.name().to_string()).into(),
+                layer_basis(w).into(),
                 Cell::Int(w.lab_cores as i64),
                 Cell::Int(w.fitted_cores as i64),
                 Cell::Int(w.stale_cores as i64),
-                sum_cell(w.available_water, aw),
+                if w.estimate.is_some() {
+                    range_cell(w.available_water, aw)
+                } else {
+                    sum_cell(w.available_water, aw)
+                },
                 aw.map(|i| i.lo95).into(),
                 aw.map(|i| i.hi95).into(),
                 w.field_available_water.into(),
                 w.depth_in_zone_cm.into(),
-                sum_cell(w.water_mm, mm),
+                if w.estimate.is_some() {
+                    range_cell(w.water_mm, mm)
+                } else {
+                    sum_cell(w.water_mm, mm)
+                },
                 mm.map(|i| i.lo95).into(),
                 mm.map(|i| i.hi95).into(),
             ];
@@ -360,6 +389,12 @@ pub fn profiles_listing(profiles: &[SiteProfile]) -> Listing {
                 Cell::Text(None)
             },
             Cell::Text(None),
+            p.layers
+                .iter()
+                .any(|l| l.estimate.is_some() && l.depth_in_zone_cm > 0.0)
+                .then(|| format!("{ESTIMATE_GLYPH} includes texture estimates"))
+                .into(),
+            Cell::Text(None),
             Cell::Text(None),
             Cell::Text(None),
             Cell::Real(None),
@@ -383,6 +418,19 @@ pub fn profiles_listing(profiles: &[SiteProfile]) -> Listing {
     l
 }
 
+/// The mark of a value estimated from texture rather than measured.
+pub const ESTIMATE_GLYPH: char = '◌';
+
+/// A profile layer's basis: `readings` with a fitted core, `◌ texture only` for a texture
+/// estimate, none otherwise.
+fn layer_basis(w: &crate::analysis::LayerWater) -> Option<String> {
+    if let Some(e) = &w.estimate {
+        Some(format!("{ESTIMATE_GLYPH} {}", e.basis))
+    } else {
+        (w.fitted_cores > 0).then(|| crate::fit::prior::BASIS_READINGS.to_string())
+    }
+}
+
 /// The line under a profiles table: the intervals' convention and the pooled between-core
 /// variance with the layers it came from.
 pub fn pooled_note(profiles: &[SiteProfile]) -> String {
@@ -394,8 +442,19 @@ pub fn pooled_note(profiles: &[SiteProfile]) -> String {
         },
         |b| format!("between-core variance {}", b.describe()),
     );
+    let estimates = if profiles
+        .iter()
+        .any(|p| p.layers.iter().any(|l| l.estimate.is_some()))
+    {
+        format!(
+            "{ESTIMATE_GLYPH} texture only: not measured; the layer's texture-class mean \
+             (Carsel & Parrish 1988), its interval the class spread\n"
+        )
+    } else {
+        String::new()
+    };
     format!(
         "± is the 95 % interval: a layer's random-effects mean over its lab cores (DerSimonian & \
-         Laird 1986), the total with the layers taken as independent; {pooled}\n"
+         Laird 1986), the total with the layers taken as independent; {pooled}\n{estimates}"
     )
 }

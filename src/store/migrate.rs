@@ -17,6 +17,7 @@ pub const MIGRATIONS: &[&str] = &[
     include_str!("../../migrations/0005_fit_conductivity.sql"),
     include_str!("../../migrations/0006_oven_dry_suction.sql"),
     include_str!("../../migrations/0007_measured_on_repair.sql"),
+    include_str!("../../migrations/0008_texture.sql"),
 ];
 
 /// `application_id` written by the first migration, so a porewise file can be recognised.

@@ -6,6 +6,7 @@ use rusqlite::{Connection, OptionalExtension, params};
 use super::Result;
 use super::fits::{self, SAMPLE_INFO_COLUMNS, SampleInfo, Selection, sample_info};
 use crate::model::domain::LayerRef;
+use crate::model::texture::TextureClass;
 
 /// A site in the outline.
 #[derive(Debug, Clone, PartialEq)]
@@ -31,6 +32,17 @@ pub struct OutlineLayer {
     pub horizon: Option<String>,
     /// Saturated conductivity, cm/day.
     pub ks_cm_per_day: Option<f64>,
+    /// USDA texture class, when sand, silt and clay are known.
+    pub texture: Option<TextureClass>,
+}
+
+/// The texture class of the sand, silt and clay columns at `i`, `i + 1`, `i + 2`.
+fn texture_at(r: &rusqlite::Row<'_>, i: usize) -> rusqlite::Result<Option<TextureClass>> {
+    Ok(TextureClass::of_layer(
+        r.get(i)?,
+        r.get(i + 1)?,
+        r.get(i + 2)?,
+    ))
 }
 
 /// Sites by code, layers top down, samples by code: everything a campaign tree shows.
@@ -60,7 +72,8 @@ pub fn outline(conn: &Connection) -> Result<Outline> {
         })?
         .collect::<rusqlite::Result<Vec<_>>>()?;
     let mut stmt = conn.prepare_cached(
-        "SELECT l.id, l.site_id, s.code, l.top_cm, l.bottom_cm, l.horizon, l.ks_cm_per_day
+        "SELECT l.id, l.site_id, s.code, l.top_cm, l.bottom_cm, l.horizon, l.ks_cm_per_day,
+             l.sand_pct, l.silt_pct, l.clay_pct
          FROM layer l JOIN site s ON l.site_id = s.id
          ORDER BY s.code, l.top_cm, l.bottom_cm",
     )?;
@@ -76,6 +89,7 @@ pub fn outline(conn: &Connection) -> Result<Outline> {
                 },
                 horizon: r.get(5)?,
                 ks_cm_per_day: r.get(6)?,
+                texture: texture_at(r, 7)?,
             })
         })?
         .collect::<rusqlite::Result<Vec<_>>>()?;
@@ -93,7 +107,8 @@ pub fn outline(conn: &Connection) -> Result<Outline> {
 /// An SQLite error.
 pub fn sample(conn: &Connection, id: i64) -> Result<Option<(SampleInfo, OutlineLayer)>> {
     let mut stmt = conn.prepare_cached(&format!(
-        "SELECT {SAMPLE_INFO_COLUMNS}, l.site_id, l.horizon, l.ks_cm_per_day
+        "SELECT {SAMPLE_INFO_COLUMNS}, l.site_id, l.horizon, l.ks_cm_per_day,
+             l.sand_pct, l.silt_pct, l.clay_pct
          FROM sample m JOIN layer l ON m.layer_id = l.id JOIN site s ON l.site_id = s.id
          WHERE m.id = ?1"
     ))?;
@@ -106,6 +121,7 @@ pub fn sample(conn: &Connection, id: i64) -> Result<Option<(SampleInfo, OutlineL
                 at: info.layer.clone(),
                 horizon: r.get(9)?,
                 ks_cm_per_day: r.get(10)?,
+                texture: texture_at(r, 11)?,
             };
             Ok((info, layer))
         })

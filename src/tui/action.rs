@@ -96,6 +96,9 @@ pub enum Action {
     DeeperRootZone,
     /// Sum it 10 cm shallower.
     ShallowerRootZone,
+    /// Fill the depth view's layers without a fitted core with their texture estimate, or
+    /// go back to measured values only.
+    ToggleTextureFill,
     /// Flag the selected reading, or clear its flag (asks for a reason).
     ToggleFlag,
     /// Accept the review item under the cursor (exclude the reading or record).

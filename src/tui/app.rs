@@ -21,6 +21,7 @@ use super::theme::Theme;
 use super::worker::JobBoard;
 
 pub mod series;
+pub mod texture_fill;
 
 pub use series::{SensorInfo, SensorSeries, SeriesData, SeriesRequest, SeriesState};
 
@@ -218,6 +219,8 @@ pub struct LayerNode {
     pub bottom_cm: f64,
     /// Horizon label.
     pub horizon: Option<String>,
+    /// USDA texture class, when sand, silt and clay are known.
+    pub texture: Option<crate::model::texture::TextureClass>,
     /// Its samples, by code.
     pub samples: Vec<SampleNode>,
 }
@@ -326,6 +329,7 @@ impl Tree {
                 top_cm: layer.at.top_cm,
                 bottom_cm: layer.at.bottom_cm,
                 horizon: layer.horizon.clone(),
+                texture: layer.texture,
                 samples: Vec::new(),
             });
         }
@@ -556,6 +560,9 @@ pub struct FitView {
     /// Which suction to measure next for available water, or why there is no advice
     /// (`None` for a field pairing).
     pub next: Option<Result<NextStep, String>>,
+    /// The texture prior of a fit made with one (the card shows it beside the readings-only
+    /// fit).
+    pub prior: Option<crate::fit::prior::PriorBasis>,
 }
 
 /// The fit card's advice: the one more reading that would shrink the 95 % interval of
@@ -742,6 +749,7 @@ impl SampleDetail {
                     .then(|| parts.advice.clone())
                     .flatten()
                     .map(|a| a.map(|a| NextStep::of(&a))),
+                prior: report.prior.clone(),
             })
         });
         SampleDetail {
@@ -868,6 +876,8 @@ pub struct DepthLayer {
     pub fitted_cores: usize,
     /// Of those, stale.
     pub stale_cores: usize,
+    /// USDA texture class, when sand, silt and clay are known.
+    pub texture: Option<crate::model::texture::TextureClass>,
 }
 
 /// A fitted sample's curve in the depth view.
@@ -911,6 +921,10 @@ pub struct DepthData {
     pub fc_kpa: f64,
     /// Wilting point, kPa.
     pub pwp_kpa: f64,
+    /// The profile with layers without a fitted core filled from their texture class, shown
+    /// instead of the measured one when the user asks (key `e`); `None` when no layer has an
+    /// estimate.
+    pub texture_fill: Option<texture_fill::TextureFill>,
 }
 
 impl DepthData {
@@ -951,6 +965,7 @@ impl DepthData {
                     lab_cores: water.map_or(0, |w| w.lab_cores),
                     fitted_cores: water.map_or(0, |w| w.fitted_cores),
                     stale_cores: water.map_or(0, |w| w.stale_cores),
+                    texture: water.and_then(|w| w.texture),
                 });
                 layer_of.push(key);
                 layers.len() - 1
@@ -1019,6 +1034,7 @@ impl DepthData {
             uncovered_cm: profile.map_or(root_zone_cm, SiteProfile::uncovered_cm),
             fc_kpa: profile.map_or(crate::store::campaign::DEFAULT_FC_KPA, |p| p.fc_kpa),
             pwp_kpa: profile.map_or(crate::store::campaign::DEFAULT_PWP_KPA, |p| p.pwp_kpa),
+            texture_fill: profile.and_then(texture_fill::TextureFill::of),
         }
     }
 }
@@ -1034,6 +1050,8 @@ pub struct DepthState {
     pub data: Option<DepthData>,
     /// Row of the parameter table.
     pub cursor: usize,
+    /// Show layers without a fitted core filled with their texture estimate (key `e`).
+    pub fill_texture: bool,
 }
 
 impl Default for DepthState {
@@ -1043,6 +1061,7 @@ impl Default for DepthState {
             root_zone_cm: crate::analysis::water::DEFAULT_ROOT_ZONE_CM,
             data: None,
             cursor: 0,
+            fill_texture: false,
         }
     }
 }
@@ -1286,6 +1305,7 @@ pub(crate) mod fixtures {
                     at: at.clone(),
                     horizon: Some(if li == 0 { "Ap" } else { "Bt" }.into()),
                     ks_cm_per_day: None,
+                    texture: None,
                 });
                 for s in ["a", "b"] {
                     o.samples.push(SampleInfo {

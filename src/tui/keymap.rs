@@ -438,6 +438,12 @@ impl Default for KeyTable {
                 Some("shallower"),
             ),
             bind(
+                &[Key::char('e')],
+                Action::ToggleTextureFill,
+                "fill layers without a fitted core with their texture estimate (◌), or not",
+                None,
+            ),
+            bind(
                 &[Key::plain(KeyCode::Enter)],
                 Action::Open,
                 "open the sample under the cursor",
@@ -718,6 +724,7 @@ mod tests {
             Action::ToggleBand,
             Action::DeeperRootZone,
             Action::ShallowerRootZone,
+            Action::ToggleTextureFill,
             Action::ToggleFlag,
             Action::Accept,
             Action::Dismiss,

@@ -825,6 +825,14 @@ fn on_global(state: &mut AppState, action: &Action) -> Option<Vec<Effect>> {
             state.say(Tone::Info, "exporting…");
             vec![Effect::Export]
         }
+        Action::ToggleTextureFill => {
+            state.depth.fill_texture = !state.depth.fill_texture;
+            state.say(
+                Tone::Info,
+                super::app::texture_fill::toggled(state.depth.fill_texture),
+            );
+            Vec::new()
+        }
         _ => return None,
     })
 }

@@ -23,11 +23,13 @@ pub mod curve;
 pub mod depth;
 pub mod help;
 pub mod plot;
+pub mod prior_card;
 pub mod prompt;
 pub mod readings;
 pub mod review;
 pub mod series;
 pub mod summary;
+pub mod texture_fill;
 pub mod tree;
 
 /// Where the browse screen's panes go.

@@ -8,6 +8,8 @@
 //! [`escape`]. The export time is on one line of its own (`<p class="exported">`); nothing
 //! else in the page changes between two exports of the same campaign.
 
+use crate::analysis::texture::layer_estimate;
+use crate::model::texture::TextureClass;
 use std::fmt::Write as _;
 
 use super::chart::{Marker, colour_hex, layer_colour, layer_label};
@@ -625,7 +627,7 @@ fn layer_table(out: &mut String, part: &SitePart, counts: &[usize]) {
     let _ = writeln!(
         out,
         "<h3>Layers</h3>\n<table>\n<thead><tr><th>marker</th><th>layer</th><th>sand / silt / clay, %</th>\
-         <th>organic C, %</th><th>bulk density, g/cm³</th><th>Ks, cm/day</th><th>samples</th></tr></thead>\n<tbody>"
+         <th>texture class (USDA)</th><th>organic C, %</th><th>bulk density, g/cm³</th><th>Ks, cm/day</th><th>samples</th></tr></thead>\n<tbody>"
     );
     for (index, layer) in part.layers.iter().enumerate() {
         let l = &layer.row.stored.layer;
@@ -636,11 +638,13 @@ fn layer_table(out: &mut String, part: &SitePart, counts: &[usize]) {
         let _ = writeln!(
             out,
             "<tr><td><span class=\"swatch\" style=\"background: {colour}\"></span>{shape}</td>\
-             <td>{label}</td><td class=\"num\">{texture}</td><td class=\"num\">{oc}</td>\
+             <td>{label}</td><td class=\"num\">{texture}</td><td>{class}</td><td class=\"num\">{oc}</td>\
              <td class=\"num\">{bd}</td><td class=\"num\">{ks}</td><td class=\"num\">{n}</td></tr>",
             colour = colour_hex(layer_colour(index)),
             shape = Marker::of_layer(index).describe(),
             label = escape(&layer_label(layer)),
+            class = TextureClass::of_layer(l.sand_pct, l.silt_pct, l.clay_pct)
+                .map_or(NONE, TextureClass::name),
             oc = num(l.organic_carbon_pct, 3),
             bd = num(l.bulk_density_g_cm3, 3),
             ks = num(l.ks_cm_per_day, DIGITS),
@@ -648,6 +652,54 @@ fn layer_table(out: &mut String, part: &SitePart, counts: &[usize]) {
         );
     }
     let _ = writeln!(out, "</tbody>\n</table>");
+    texture_estimates(out, part);
+}
+
+/// Layers with a texture class and no fitted lab core: their estimate from the class, with
+/// its source, listed apart from the measured values (the profile sum leaves them out).
+fn texture_estimates(out: &mut String, part: &SitePart) {
+    let Some(profile) = part.profile.as_ref() else {
+        return;
+    };
+    let mut rows = String::new();
+    for layer in &part.layers {
+        let l = &layer.row.stored.layer;
+        let fitted = profile
+            .layers
+            .iter()
+            .find(|w| w.layer.same_as(&l.at))
+            .is_some_and(|w| w.fitted_cores > 0);
+        let Some(class) = TextureClass::of_layer(l.sand_pct, l.silt_pct, l.clay_pct) else {
+            continue;
+        };
+        if fitted {
+            continue;
+        }
+        let Some(e) = layer_estimate(class, profile.fc_kpa, profile.pwp_kpa) else {
+            continue;
+        };
+        let aw = crate::report::fits::interval_text(e.available_water, e.interval.as_ref());
+        let [tr, ts, a, n] = e.parameters;
+        let _ = writeln!(
+            rows,
+            "<tr><td>◌ {label}</td><td>{class}</td><td class=\"num\">{aw}</td>\
+             <td class=\"num\">θr {tr}, θs {ts}, α {a} 1/cm, n {n}</td><td>{source}</td></tr>",
+            label = escape(&layer_label(layer)),
+            source = escape(&e.source),
+        );
+    }
+    if rows.is_empty() {
+        return;
+    }
+    let _ = writeln!(
+        out,
+        "<h3>Estimates from texture (not measured)</h3>\n<p class=\"muted\">Layers with a texture \
+         class and no fitted lab core: the class-mean van Genuchten curve, its interval the class \
+         spread. They are not in the profile sum; <code>porewise list DB profiles \
+         --fill-from-texture</code> adds them to it, marked ◌.</p>\n<table>\n<thead><tr><th>layer</th>\
+         <th>texture class</th><th>available water ± 95&#160;%, m³/m³</th><th>class-mean parameters</th>\
+         <th>source</th></tr></thead>\n<tbody>\n{rows}</tbody>\n</table>"
+    );
 }
 
 /// The parameter table's rows of the samples of `part` (a site of `s`, whole or a batch of
@@ -677,7 +729,13 @@ pub fn parameter_rows(out: &mut String, s: &Snapshot, part: &SitePart) {
                     Some("auto") => {
                         format!("{name}<br/><span class=\"muted\">auto: lowest AICc</span>")
                     }
-                    _ => name,
+                    _ => match f.report.as_ref().and_then(|r| r.prior.as_ref()) {
+                        Some(p) => format!(
+                            "{name}<br/><span class=\"muted\">with the texture prior: {}</span>",
+                            escape(&p.label)
+                        ),
+                        None => name,
+                    },
                 }
             },
         );

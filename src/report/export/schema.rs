@@ -29,6 +29,10 @@
 //! profile's `total_mm_interval` (with `total_note`) and the campaign's `between_cores`, the
 //! pooled between-core variance of available water the layer intervals use.
 //!
+//! Version 4 added texture: each layer's `texture_class` and, for a layer with a class and
+//! no fitted lab core, its `texture_estimate` (class-mean curve, available water with the
+//! class spread as interval, source); each fit's `basis` and `prior`.
+//!
 //! A few members reuse the fit engine's documented types ([`ParamEstimate`], [`ParamMatrix`],
 //! [`Termination`], [`DerivedValues`], [`Ranking`]), the analysis' interval types
 //! ([`DerivedIntervals`], [`SumInterval`], [`BetweenCores`]) and the store's [`FitState`]; a change to
@@ -43,16 +47,19 @@ use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
 use super::snapshot::{LayerPart, ReadingFlag, SamplePart, SitePart, Snapshot};
+use crate::analysis::texture::{LayerEstimate, layer_estimate};
 use crate::analysis::water::{BetweenCores, DerivedIntervals, LayerWater, SumInterval};
-use crate::fit::{FitReport, ParamEstimate, ParamMatrix, Termination};
+use crate::fit::prior::{BASIS_READINGS, PriorBasis, basis_of};
+use crate::fit::{FitReport, Interval95, ParamEstimate, ParamMatrix, Termination};
 use crate::model::conductivity::{ConductivityForm, ConductivityModel};
 use crate::model::derived::DerivedValues;
 use crate::model::domain::{Branch, FlagOrigin, FlagStatus, SampleKind};
 use crate::model::number::hex;
+use crate::model::texture::TextureClass;
 use crate::store::fits::{FitState, Ranking, StoredFit};
 
 /// The version of this document layout; bumped on any change to it.
-pub const SCHEMA_VERSION: u32 = 3;
+pub const SCHEMA_VERSION: u32 = 4;
 
 /// The value of the `format` member, naming what the document is.
 pub const FORMAT: &str = "porewise-campaign";
@@ -205,6 +212,8 @@ pub struct LayerData {
     pub silt_pct: Option<f64>,
     /// Clay, mass %.
     pub clay_pct: Option<f64>,
+    /// USDA texture class (`silty clay loam`), when sand, silt and clay are known.
+    pub texture_class: Option<String>,
     /// Organic carbon, mass %.
     pub organic_carbon_pct: Option<f64>,
     /// Dry bulk density, g/cm3.
@@ -215,8 +224,46 @@ pub struct LayerData {
     pub uid: String,
     /// The layer's available water and its share of the profile sum.
     pub water: Option<LayerWaterData>,
+    /// For a layer with a texture class and no fitted lab core: its estimate from the class
+    /// (basis `texture only`, not in the profile sum).
+    pub texture_estimate: Option<TextureEstimateData>,
     /// Samples, by code.
     pub samples: Vec<SampleData>,
+}
+
+/// A layer's van Genuchten curve and available water estimated from its texture class.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TextureEstimateData {
+    /// USDA texture class.
+    pub class: String,
+    /// `texture only`.
+    pub basis: String,
+    /// How it was made and where its numbers come from.
+    pub source: String,
+    /// The class mean: theta_r, theta_s (m3/m3), alpha_per_cm (1/cm), n.
+    pub parameters: BTreeMap<String, f64>,
+    /// Available water under the campaign's suctions, m3/m3.
+    pub available_water_m3_m3: f64,
+    /// Its 95 % interval from the class spread.
+    pub available_water_interval: Option<Interval95>,
+}
+
+impl From<LayerEstimate> for TextureEstimateData {
+    fn from(e: LayerEstimate) -> Self {
+        let names = ["theta_r", "theta_s", "alpha_per_cm", "n"];
+        Self {
+            class: e.class.name().to_string(),
+            basis: e.basis.to_string(),
+            source: e.source,
+            parameters: names
+                .iter()
+                .map(ToString::to_string)
+                .zip(e.parameters)
+                .collect(),
+            available_water_m3_m3: e.available_water,
+            available_water_interval: e.interval,
+        }
+    }
 }
 
 /// A layer's available water (mean over its lab cores' current fits).
@@ -363,6 +410,11 @@ pub struct FitData {
     pub model: String,
     /// What was asked for: a model identifier or `auto`.
     pub requested: Option<String>,
+    /// `readings`, or `readings+texture prior` for a fit with the texture prior.
+    pub basis: String,
+    /// The prior of a fit with one: class, source, noise assumed, each parameter's pull in
+    /// prior standard deviations, the readings-only fit beside it.
+    pub prior: Option<PriorBasis>,
     /// When the fit was made (UTC, RFC 3339).
     pub fitted_at: String,
     /// Parameters the user fixed, by name.
@@ -839,6 +891,7 @@ pub fn layer_head(part: &SitePart, l: &LayerPart) -> LayerData {
         .profile
         .as_ref()
         .and_then(|p| p.layers.iter().find(|w| w.layer.same_as(&layer.at)));
+    let texture = TextureClass::of_layer(layer.sand_pct, layer.silt_pct, layer.clay_pct);
     LayerData {
         top_cm: layer.at.top_cm,
         bottom_cm: layer.at.bottom_cm,
@@ -846,6 +899,7 @@ pub fn layer_head(part: &SitePart, l: &LayerPart) -> LayerData {
         sand_pct: layer.sand_pct,
         silt_pct: layer.silt_pct,
         clay_pct: layer.clay_pct,
+        texture_class: texture.map(|t| t.name().to_string()),
         organic_carbon_pct: layer.organic_carbon_pct,
         bulk_density_g_cm3: layer.bulk_density_g_cm3,
         ks_cm_per_day: layer.ks_cm_per_day,
@@ -862,6 +916,11 @@ pub fn layer_head(part: &SitePart, l: &LayerPart) -> LayerData {
             water_mm: w.water_mm,
             water_mm_interval: w.water_mm_interval,
         }),
+        texture_estimate: texture
+            .filter(|_| water.is_none_or(|w| w.fitted_cores == 0))
+            .zip(part.profile.as_ref())
+            .and_then(|(class, p)| layer_estimate(class, p.fc_kpa, p.pwp_kpa))
+            .map(TextureEstimateData::from),
         samples: Vec::new(),
     }
 }
@@ -956,6 +1015,8 @@ fn fit_data(f: &StoredFit, part: &SamplePart) -> FitData {
         id: f.id,
         model: f.model.clone(),
         requested: f.requested.clone(),
+        basis: report.map_or(BASIS_READINGS, basis_of).to_string(),
+        prior: report.and_then(|r| r.prior.clone()),
         fitted_at: rfc3339(f.created_at),
         fixed: f.fixed.iter().cloned().collect(),
         message: f.message.clone(),

@@ -11,20 +11,32 @@
 
 use super::snapshot::Snapshot;
 use crate::analysis::SumInterval;
+use crate::fit::prior::{BASIS_READINGS, basis_of};
+use crate::model::domain::Layer;
+use crate::model::texture::TextureClass;
 use crate::report::fit_table::parameter_union;
 use crate::report::fits::{derived_with_intervals, interval_notes};
 use crate::report::{csv_safe, format_number};
 
+/// A layer's texture class name, or empty.
+fn layer_texture(layer: &Layer) -> String {
+    TextureClass::of_layer(layer.sand_pct, layer.silt_pct, layer.clay_pct)
+        .map(|t| t.name().to_string())
+        .unwrap_or_default()
+}
+
 /// The fixed columns of `parameters.csv` before the parameter columns.
-pub const PARAMETER_LEAD_COLUMNS: [&str; 10] = [
+pub const PARAMETER_LEAD_COLUMNS: [&str; 12] = [
     "site",
     "layer",
     "horizon",
+    "texture",
     "top_cm",
     "bottom_cm",
     "sample",
     "kind",
     "model",
+    "basis",
     "state",
     "stale",
 ];
@@ -76,11 +88,13 @@ pub const PARAMETER_TAIL_COLUMNS: [&str; 37] = [
 /// The columns of `profiles.csv`: each available water and mm value followed by its 95 %
 /// interval, and on every row the campaign's pooled between-core variance (tau^2, (m3/m3)^2)
 /// with the number of layers it came from.
-pub const PROFILE_COLUMNS: [&str; 22] = [
+pub const PROFILE_COLUMNS: [&str; 24] = [
     "site",
     "row",
     "layer",
     "horizon",
+    "texture",
+    "basis",
     "top_cm",
     "bottom_cm",
     "lab_cores",
@@ -178,11 +192,13 @@ pub fn parameter_rows(snapshot: &Snapshot, params: &[String]) -> Vec<Vec<String>
             text(Some(&at.site)),
             layer_ref(&at.site, at.top_cm, at.bottom_cm),
             text(layer.row.stored.layer.horizon.as_deref()),
+            layer_texture(&layer.row.stored.layer),
             format_number(at.top_cm),
             format_number(at.bottom_cm),
             text(Some(&part.row.stored.sample.code)),
             part.row.stored.sample.kind.to_string(),
             text(fit.map(|f| f.model.as_str())),
+            report.map(|r| basis_of(r).to_string()).unwrap_or_default(),
             part.fit.state.label().to_string(),
             part.fit.state.is_stale().to_string(),
         ];
@@ -268,6 +284,12 @@ pub fn profile_rows(snapshot: &Snapshot) -> Vec<Vec<String>> {
                 "layer".to_string(),
                 layer_ref(&profile.site, w.layer.top_cm, w.layer.bottom_cm),
                 text(w.horizon.as_deref()),
+                w.texture.map(|t| t.name().to_string()).unwrap_or_default(),
+                match (&w.estimate, w.fitted_cores) {
+                    (Some(e), _) => e.basis.to_string(),
+                    (None, 0) => String::new(),
+                    (None, _) => BASIS_READINGS.to_string(),
+                },
                 format_number(w.layer.top_cm),
                 format_number(w.layer.bottom_cm),
                 w.lab_cores.to_string(),
@@ -293,6 +315,8 @@ pub fn profile_rows(snapshot: &Snapshot) -> Vec<Vec<String>> {
             text(Some(&profile.site)),
             "total".to_string(),
             layer_ref(&profile.site, 0.0, profile.root_zone_cm),
+            String::new(),
+            String::new(),
             String::new(),
             "0".to_string(),
             zone.clone(),

@@ -237,6 +237,9 @@ pub fn card_lines(state: &AppState, d: &SampleDetail, theme: Theme) -> Vec<Line<
             )));
         }
     }
+    if let Some(prior) = &fit.prior {
+        super::prior_card::prior_lines(&mut lines, fit, prior, theme);
+    }
     lines.push(Line::from(format!(
         "RMSE {} m3/m3  R² {}",
         num(fit.rmse, 2),
@@ -379,6 +382,7 @@ mod tests {
                 after: 0.011_8,
                 pooled: false,
             })),
+            prior: None,
         });
         let text: Vec<String> = card_lines(&state, &d, Theme::default())
             .iter()

@@ -181,19 +181,40 @@ impl DepthScreen<'_> {
                 ]));
             }
         }
-        let total = match data.total_mm_interval {
-            Some(i) => format!("{:.1} ± {:.1}", data.total_mm, i.half_width()),
-            None => format!("{:.1}", data.total_mm),
+        if let Some(line) = super::texture_fill::class_line(data) {
+            lines.push(Line::from(Span::styled(line, theme.dim())));
+        }
+        let fill = data
+            .texture_fill
+            .as_ref()
+            .filter(|_| state.depth.fill_texture);
+        if let Some(fill) = fill {
+            super::texture_fill::estimate_lines(&mut lines, fill, theme);
+        }
+        let (total_mm, interval, uncovered) = match fill {
+            Some(f) => (f.total_mm, f.total_mm_interval, f.uncovered_cm),
+            None => (data.total_mm, data.total_mm_interval, data.uncovered_cm),
         };
+        let total = match interval {
+            Some(i) => format!("{total_mm:.1} ± {:.1}", i.half_width()),
+            None => format!("{total_mm:.1}"),
+        };
+        let with = if fill.is_some() { "◌" } else { "" };
         lines.push(Line::from(Span::styled(
-            format!("total {total} mm to {} cm", data.root_zone_cm),
+            format!("{with}total {total} mm to {} cm", data.root_zone_cm),
             theme.heading(),
         )));
-        if data.uncovered_cm > 0.0 {
+        if fill.is_none() && data.texture_fill.is_some() {
+            lines.push(Line::from(Span::styled(
+                "e fills layers without a core from texture",
+                theme.dim(),
+            )));
+        }
+        if uncovered > 0.0 {
             lines.push(Line::from(Span::styled(
                 format!(
                     "{} cm of it without a fitted layer: the total is a lower bound",
-                    num(data.uncovered_cm, 3)
+                    num(uncovered, 3)
                 ),
                 theme.tone(super::super::app::Tone::Warning),
             )));

@@ -99,6 +99,13 @@ impl TreePane<'_> {
                                 .unwrap_or_default(),
                             theme.dim(),
                         ),
+                        Span::styled(
+                            layer
+                                .texture
+                                .map(|t| format!(" {}", t.code()))
+                                .unwrap_or_default(),
+                            theme.dim(),
+                        ),
                     ],
                     badges(
                         layer.samples.len(),
