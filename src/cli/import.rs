@@ -1,4 +1,5 @@
-//! `porewise import sites|layers|lab|logger`: read CSV files into a campaign, all or nothing.
+//! `porewise import sites|layers|lab|logger`: read CSV files (and .xlsx / .ods workbooks)
+//! into a campaign, all or nothing.
 
 use std::path::PathBuf;
 
@@ -15,9 +16,14 @@ use crate::store::Campaign;
 pub struct ImportArgs {
     /// The campaign file (made with `porewise init`).
     pub db: PathBuf,
-    /// One or more CSV files (comma or semicolon separated, UTF-8, header row first).
+    /// One or more CSV files (comma or semicolon separated, UTF-8, header row first) or
+    /// workbooks (.xlsx, .ods: the same columns on a header row).
     #[arg(required = true, value_name = "FILE")]
     pub files: Vec<PathBuf>,
+    /// The sheet to read from every workbook (default: the first sheet with the columns the
+    /// import needs on a header row in its top 20 rows).
+    #[arg(long, value_name = "NAME")]
+    pub sheet: Option<String>,
     /// Check everything and report what would be added, without writing.
     #[arg(long)]
     pub dry_run: bool,
@@ -60,7 +66,8 @@ pub enum ImportCommand {
     /// Suction units: suction_cm, suction_hpa, suction_kpa, suction_mpa, suction_bar, pf.
     /// Sites, layers and samples a file names are created on first sight.
     #[command(
-        after_help = "Example:\n  porewise import lab spring.sqlite plates-kpa.csv dewpoint-pf.csv"
+        after_help = "Examples:\n  porewise import lab spring.sqlite plates-kpa.csv dewpoint-pf.csv\n  \
+         porewise import lab spring.sqlite results.xlsx --sheet Plates"
     )]
     Lab(LayerImportArgs),
     /// Field logger records: site,depth_cm,sensor,sensor_id,time,value,unit (streamed).
@@ -99,7 +106,13 @@ pub fn run(cmd: &ImportCommand) -> anyhow::Result<Outcome> {
         strict: args.strict,
         allow_overlap,
     };
-    let result = import::import_files(&mut campaign, kind, &args.files, options);
+    let result = import::import_files_from(
+        &mut campaign,
+        kind,
+        &args.files,
+        options,
+        args.sheet.as_deref(),
+    );
     match &result {
         Ok(summary) => print_warnings(&summary.warnings),
         Err(ImportError::Invalid(diags)) => print_warnings(diags.warnings()),
