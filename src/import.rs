@@ -25,6 +25,7 @@ pub mod logger;
 pub mod pairs;
 pub mod sites;
 pub mod table;
+pub mod wide;
 pub mod workbook;
 
 pub use batch::{ImportBatch, ImportKind};

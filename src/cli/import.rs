@@ -70,7 +70,8 @@ pub enum ImportCommand {
          porewise import lab spring.sqlite results.xlsx --sheet Plates"
     )]
     Lab(LayerImportArgs),
-    /// Field logger records: site,depth_cm,sensor,sensor_id,time,value,unit (streamed).
+    /// Field logger records: site,depth_cm,sensor,sensor_id,time,value,unit (streamed), or
+    /// wide files (a time column, then one column per channel) with --columns map.csv.
     ///
     /// sensor is tensiometer or water_content; unit (any case) is cm, hpa, kpa, mpa or bar for
     /// suction (a negative value is a pressure, stored as suction) or fraction, m3/m3,
@@ -82,7 +83,8 @@ pub enum ImportCommand {
     #[command(
         after_help = "Examples:\n  porewise import logger spring.sqlite station-a.csv\n  \
          porewise import logger spring.sqlite local-times.csv --utc-offset +01:00 --dry-run\n  \
-         porewise import logger spring.sqlite may.csv --skip-duplicates --stuck-span 12h --spike 15kpa,5%"
+         porewise import logger spring.sqlite may.csv --skip-duplicates --stuck-span 12h --spike 15kpa,5%\n  \
+         porewise import logger spring.sqlite station-wide.csv --columns map.csv --skip-lines 3"
     )]
     Logger(super::logger::LoggerArgs),
 }
