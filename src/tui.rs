@@ -16,6 +16,7 @@
 
 pub mod action;
 pub mod app;
+mod episodes;
 pub mod keymap;
 pub mod runtime;
 pub mod theme;

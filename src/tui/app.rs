@@ -20,8 +20,10 @@ use crate::store::readings::StoredReading;
 use super::theme::Theme;
 use super::worker::JobBoard;
 
+pub mod review;
 pub mod series;
 
+pub use review::ReviewEpisode;
 pub use series::{SensorInfo, SensorSeries, SeriesData, SeriesRequest, SeriesState};
 
 /// Which screen fills the terminal.
@@ -1112,8 +1114,13 @@ impl ReviewItem {
 /// The review screen.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct ReviewState {
-    /// Open suggestions, worst first.
+    /// The rows on screen, worst first: each episode's worst suspect, or the suspects of the
+    /// opened episode.
     pub items: Vec<ReviewItem>,
+    /// The queue grouped into episodes ([`review`]), worst first.
+    pub episodes: Vec<ReviewEpisode>,
+    /// The episode opened with Enter (an index into `episodes`).
+    pub opened: Option<usize>,
     /// Index into `items`.
     pub cursor: usize,
     /// The queue has been loaded at least once.

@@ -286,8 +286,8 @@ impl Session {
                 )
                 .map(|d| Loaded::Depth(Box::new(d)))
             })),
-            Effect::LoadReview => Some(Action::Loaded(Loaded::Review(
-                load::review(conn).map_err(|e| e.to_string()),
+            Effect::LoadReview => Some(Action::Loaded(Loaded::Episodes(
+                load::review_episodes(conn).map_err(|e| e.to_string()),
             ))),
             Effect::LoadSensors => Some(Action::Loaded(Loaded::Sensors(
                 load::sensors(conn).map_err(|e| e.to_string()),
@@ -313,6 +313,26 @@ impl Session {
                 })
                 .map(|_| {
                     format!("flag on reading {reading_id} cleared; fits use it again: f refits")
+                }),
+            )),
+            Effect::DecideFlags { flag_ids, accept } => Some(Action::FlagChanged(
+                self.write(|tx| {
+                    for &id in &flag_ids {
+                        if accept {
+                            flags::accept(tx, id, None)?;
+                        } else {
+                            flags::dismiss(tx, id, None)?;
+                        }
+                    }
+                    Ok(())
+                })
+                .map(|()| {
+                    let n = crate::model::number::plural(flag_ids.len() as u64, "flag");
+                    if accept {
+                        format!("{n} accepted: left out of fits and pairing")
+                    } else {
+                        format!("{n} dismissed: kept")
+                    }
                 }),
             )),
             Effect::DecideFlag {
