@@ -21,6 +21,7 @@ pub mod open;
 pub mod pair;
 pub mod review;
 pub mod set;
+pub mod shell;
 pub mod unflag;
 
 /// porewise: soil-water retention campaigns in one SQLite file.
@@ -39,7 +40,8 @@ pub enum Command {
     Demo(demo::DemoArgs),
     /// Create an empty campaign file.
     Init(init::InitArgs),
-    /// Import sites, layers, lab retention readings or field logger records from CSV files.
+    /// Import sites, layers, lab retention readings or field logger records from CSV files
+    /// (sites, layers and lab readings also from .xlsx and .ods workbooks).
     #[command(subcommand)]
     Import(import::ImportCommand),
     /// List what a campaign file holds.
@@ -64,6 +66,10 @@ pub enum Command {
     Unflag(unflag::UnflagArgs),
     /// Which suction to measure next on each sample, and where one more reading pays most.
     Advise(advise::AdviseArgs),
+    /// Print a shell completion script (bash, zsh, fish, powershell).
+    Completions(shell::CompletionsArgs),
+    /// Print the manual page (roff): `porewise manual > porewise.1`.
+    Manual(shell::ManualArgs),
 }
 
 impl Command {
@@ -93,6 +99,8 @@ impl Command {
             Command::Flag(_) => "flag",
             Command::Unflag(_) => "unflag",
             Command::Advise(_) => "advise",
+            Command::Completions(_) => "completions",
+            Command::Manual(_) => "manual",
         };
         format!("porewise {word}")
     }
@@ -119,5 +127,7 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Flag(args) => flag::run(&args),
         Command::Unflag(args) => unflag::run(&args),
         Command::Advise(args) => advise::run(&args),
+        Command::Completions(args) => shell::completions(&args),
+        Command::Manual(args) => shell::manual(&args),
     }
 }
