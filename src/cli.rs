@@ -21,6 +21,7 @@ pub mod open;
 pub mod pair;
 pub mod review;
 pub mod set;
+pub mod shared;
 pub mod shell;
 pub mod unflag;
 

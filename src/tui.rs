@@ -19,6 +19,7 @@ pub mod app;
 mod episodes;
 pub mod keymap;
 pub mod runtime;
+pub mod signs;
 pub mod theme;
 pub mod update;
 pub mod view;

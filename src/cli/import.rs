@@ -1,40 +1,12 @@
 //! `porewise import sites|layers|lab|logger`: read CSV files (and .xlsx / .ods workbooks)
 //! into a campaign, all or nothing.
 
-use std::path::PathBuf;
-
-use anyhow::Context;
 use clap::{Args, Subcommand};
 
+pub use super::shared::ImportArgs;
+pub(crate) use super::shared::{open, print_warnings};
 use crate::error::Outcome;
-use crate::import::diagnostic::warning_line;
-use crate::import::{self, Diagnostic, ImportError, ImportKind, ImportOptions};
-use crate::store::Campaign;
-
-/// The campaign file, the input files and how to import them.
-#[derive(Debug, Args)]
-pub struct ImportArgs {
-    /// The campaign file (made with `porewise init`).
-    pub db: PathBuf,
-    /// One or more CSV files (comma or semicolon separated, UTF-8, header row first) or
-    /// workbooks (.xlsx, .ods: the same columns on a header row).
-    #[arg(required = true, value_name = "FILE")]
-    pub files: Vec<PathBuf>,
-    /// The sheet to read from every workbook (default: the first sheet with the columns the
-    /// import needs on a header row in its top 20 rows).
-    #[arg(long, value_name = "NAME")]
-    pub sheet: Option<String>,
-    /// Check everything and report what would be added, without writing.
-    #[arg(long)]
-    pub dry_run: bool,
-    /// Import a file even though the same content was imported before.
-    #[arg(long)]
-    pub force: bool,
-    /// Refuse a file that has a column porewise does not read (by default a warning on
-    /// stderr names it and the known column it resembles).
-    #[arg(long)]
-    pub strict: bool,
-}
+use crate::import::{self, ImportError, ImportKind, ImportOptions};
 
 /// The arguments of the imports that can create layers (`layers`, `lab`).
 #[derive(Debug, Args)]
@@ -122,19 +94,4 @@ pub fn run(cmd: &ImportCommand) -> anyhow::Result<Outcome> {
     }
     println!("{}", result?);
     Ok(Outcome::Success)
-}
-
-/// Print the warnings of an import on stderr, one `FILE:LINE:COLUMN: warning: ...` a line.
-pub(crate) fn print_warnings(warnings: &[Diagnostic]) {
-    for w in warnings {
-        eprintln!("{}", warning_line(w));
-    }
-}
-
-/// Open the campaign file named on the command line.
-///
-/// # Errors
-/// The file is missing, not a campaign, or from a newer porewise.
-pub(crate) fn open(db: &std::path::Path) -> anyhow::Result<Campaign> {
-    Campaign::open(db).with_context(|| format!("cannot open campaign {}", db.display()))
 }

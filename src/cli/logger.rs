@@ -6,7 +6,7 @@ use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use std::io::IsTerminal;
 use std::path::PathBuf;
 
-use super::import::ImportArgs;
+use super::shared::ImportArgs;
 use crate::error::Outcome;
 use crate::field::quality::{
     DEFAULT_SPIKE_RECORDS, DEFAULT_TENSIOMETER_LIMIT_KPA, QualitySettings, SpikeJump, parse_spike,
@@ -183,7 +183,7 @@ pub fn run(args: &LoggerArgs) -> anyhow::Result<Outcome> {
         }
         None => None,
     };
-    let mut campaign = super::import::open(&args.import.db)?;
+    let mut campaign = super::shared::open(&args.import.db)?;
     let mut bar = Bar::new();
     let summary = import_logger_files_mapped(
         &mut campaign,
@@ -194,8 +194,8 @@ pub fn run(args: &LoggerArgs) -> anyhow::Result<Outcome> {
     );
     bar.done();
     match &summary {
-        Ok(s) => super::import::print_warnings(&s.warnings),
-        Err(ImportError::Invalid(diags)) => super::import::print_warnings(diags.warnings()),
+        Ok(s) => super::shared::print_warnings(&s.warnings),
+        Err(ImportError::Invalid(diags)) => super::shared::print_warnings(diags.warnings()),
         Err(_) => {}
     }
     println!("{}", summary?);

@@ -65,7 +65,10 @@ fn legend(items: Vec<(Option<Span<'static>>, &str)>, width: usize) -> Vec<Line<'
             continue;
         }
         // Too wide for a line of its own: wrap its text, the glyph first, the rest indented.
-        let pieces = wrap(text.trim_start(), width.saturating_sub(glyph_width + 1).max(8));
+        let pieces = wrap(
+            text.trim_start(),
+            width.saturating_sub(glyph_width + 1).max(8),
+        );
         for (i, piece) in pieces.into_iter().enumerate() {
             if i == 0 {
                 line.extend(glyph.clone());
@@ -183,7 +186,10 @@ mod tests {
     fn the_legend_flows_within_the_width() {
         let items = || {
             vec![
-                (Some(Span::raw("≈")), " field pairing (in place; dotted in the depth view)"),
+                (
+                    Some(Span::raw("≈")),
+                    " field pairing (in place; dotted in the depth view)",
+                ),
                 (None, "⡇ logger series"),
                 (None, "o used"),
             ]
