@@ -212,11 +212,14 @@ impl<R: Read> WideRows<R> {
     pub fn new(table: Table<R>, map: &ChannelMap, diags: &mut Diagnostics) -> Option<Self> {
         let file = table.file().to_string();
         let header = table.header().clone();
-        let expected = format!("a time column first, then the columns {} maps", map.file);
-        let mut check = HeaderCheck::new(&file, &header, &expected, diags);
         let time = 0;
-        check.mark_used(time);
         let time_name = header.name(time).to_string();
+        let mut names = vec![time_name.clone()];
+        names.extend(map.channels.iter().map(|c| c.column.clone()));
+        // What a header of this map looks like: the time first, then the mapped columns.
+        let expected = names.join(",");
+        let mut check = HeaderCheck::new(&file, &header, &expected, diags);
+        check.mark_used(time);
         let mut channels = Vec::new();
         for channel in &map.channels {
             if let Some(index) = check.optional(&channel.column) {
@@ -252,7 +255,8 @@ impl<R: Read> WideRows<R> {
                     diags,
                     "-",
                     format!(
-                        "found no column {:?} in the header, which {} maps; expected {expected}",
+                        "found no column {:?} in the header, which {} maps; expected the time \
+                         first, then the mapped columns: {expected}",
                         channel.column, channel.place
                     ),
                 );
