@@ -215,3 +215,16 @@ fn skip_lines_works_for_the_long_form_too() {
         1,
     );
 }
+
+#[test]
+fn a_workbook_given_to_the_logger_import_is_refused_with_a_reason() {
+    let s = Scratch::new();
+    let book = s.write("station.xlsx", "not really a workbook");
+    let out = s.import("logger", &[&book], &[]).code(1);
+    assert!(
+        stderr(&out).contains("station.xlsx: logger files are read as CSV text"),
+        "{}",
+        stderr(&out)
+    );
+    assert_eq!(s.count("logger_record"), 0);
+}

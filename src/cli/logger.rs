@@ -173,6 +173,18 @@ pub fn run(args: &LoggerArgs) -> anyhow::Result<Outcome> {
              with --columns)"
         );
     }
+    if let Some(book) = args
+        .import
+        .files
+        .iter()
+        .find(|f| crate::import::workbook::is_workbook(&f.display().to_string()))
+    {
+        anyhow::bail!(
+            "{}: logger files are read as CSV text, streamed (a workbook is read whole); save \
+             the sheet as CSV first",
+            book.display()
+        );
+    }
     let map = match &args.columns {
         Some(path) => {
             let source = Source::read(path)?;
