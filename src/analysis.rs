@@ -4,6 +4,7 @@
 
 pub mod advise;
 pub mod current;
+pub mod episodes;
 pub mod fitting;
 pub mod review;
 pub mod texture;

@@ -22,6 +22,8 @@ pub mod open;
 pub mod pair;
 pub mod review;
 pub mod set;
+pub mod shared;
+pub mod shell;
 pub mod unflag;
 
 /// porewise: soil-water retention campaigns in one SQLite file.
@@ -40,7 +42,8 @@ pub enum Command {
     Demo(demo::DemoArgs),
     /// Create an empty campaign file.
     Init(init::InitArgs),
-    /// Import sites, layers, lab retention readings or field logger records from CSV files.
+    /// Import sites, layers, lab retention readings or field logger records from CSV files
+    /// (sites, layers and lab readings also from .xlsx and .ods workbooks).
     #[command(subcommand)]
     Import(import::ImportCommand),
     /// List what a campaign file holds.
@@ -67,6 +70,10 @@ pub enum Command {
     Advise(advise::AdviseArgs),
     /// Write a verified copy of a campaign, safe while it is open elsewhere.
     Backup(backup::BackupArgs),
+    /// Print a shell completion script (bash, zsh, fish, powershell).
+    Completions(shell::CompletionsArgs),
+    /// Print the manual page (roff): `porewise manual > porewise.1`.
+    Manual(shell::ManualArgs),
 }
 
 impl Command {
@@ -97,6 +104,8 @@ impl Command {
             Command::Unflag(_) => "unflag",
             Command::Advise(_) => "advise",
             Command::Backup(_) => "backup",
+            Command::Completions(_) => "completions",
+            Command::Manual(_) => "manual",
         };
         format!("porewise {word}")
     }
@@ -124,5 +133,7 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Unflag(args) => unflag::run(&args),
         Command::Advise(args) => advise::run(&args),
         Command::Backup(args) => backup::run(&args),
+        Command::Completions(args) => shell::completions(&args),
+        Command::Manual(args) => shell::manual(&args),
     }
 }

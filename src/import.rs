@@ -25,6 +25,8 @@ pub mod logger;
 pub mod pairs;
 pub mod sites;
 pub mod table;
+pub mod wide;
+pub mod workbook;
 
 pub use batch::{ImportBatch, ImportKind};
 pub use diagnostic::{Diagnostic, Diagnostics};
@@ -72,6 +74,16 @@ impl Source {
     /// SHA-256 of the content, lower-case hex.
     pub fn sha256(&self) -> String {
         hex(&Sha256::digest(&self.bytes))
+    }
+
+    /// SHA-256 of a workbook's content and the sheet read from it (a zero byte between), so
+    /// each sheet of a workbook is imported once: lower-case hex.
+    pub fn sheet_sha256(&self, sheet: &str) -> String {
+        let mut h = Sha256::new();
+        h.update(&self.bytes);
+        h.update([0u8]);
+        h.update(sheet.as_bytes());
+        hex(&h.finalize())
     }
 }
 
@@ -218,7 +230,8 @@ impl fmt::Display for ImportSummary {
 /// The problems found, when there are any.
 pub fn parse(kind: ImportKind, sources: &[Source]) -> Result<ImportBatch, Diagnostics> {
     let mut diags = Diagnostics::new();
-    let batch = read_batch(kind, sources, &mut diags);
+    let batch = read_batch(kind, sources, None, &mut diags);
+    batch.relocate(&mut diags);
     if diags.is_empty() {
         Ok(batch)
     } else {
@@ -226,12 +239,51 @@ pub fn parse(kind: ImportKind, sources: &[Source]) -> Result<ImportBatch, Diagno
     }
 }
 
-fn read_batch(kind: ImportKind, sources: &[Source], diags: &mut Diagnostics) -> ImportBatch {
+/// The columns a workbook sheet's header row must hold to be taken for a file of `kind`
+/// when no `--sheet` is named.
+pub fn header_columns(kind: ImportKind) -> &'static [&'static str] {
+    match kind {
+        ImportKind::Sites => &["site", "name", "latitude", "longitude"],
+        ImportKind::Layers => &["site", "top_cm", "bottom_cm"],
+        ImportKind::Lab => &["site", "top_cm", "bottom_cm", "sample", "method"],
+    }
+}
+
+fn read_batch(
+    kind: ImportKind,
+    sources: &[Source],
+    sheet: Option<&str>,
+    diags: &mut Diagnostics,
+) -> ImportBatch {
     let mut batch = ImportBatch::new(kind);
     let mut sites_reader = sites::SitesReader::default();
     let mut layers_reader = layers::LayersReader::default();
     let mut lab_reader = lab::LabReader::default();
     for (index, source) in sources.iter().enumerate() {
+        if workbook::is_workbook(&source.name) {
+            let opened =
+                workbook::Sheet::open(&source.name, &source.bytes, sheet, header_columns(kind));
+            let table = match opened {
+                Ok(t) => t,
+                Err(problems) => {
+                    batch
+                        .files
+                        .push(batch::SourceFile::new(&source.name, source.sha256()));
+                    diags.extend(problems);
+                    continue;
+                }
+            };
+            let mut file =
+                batch::SourceFile::new(&source.name, source.sheet_sha256(&table.place().sheet));
+            file.sheet = Some(table.place().clone());
+            batch.files.push(file);
+            match kind {
+                ImportKind::Sites => sites_reader.read(index, table, &mut batch, diags),
+                ImportKind::Layers => layers_reader.read(index, table, &mut batch, diags),
+                ImportKind::Lab => lab_reader.read(index, table, &mut batch, diags),
+            }
+            continue;
+        }
         batch
             .files
             .push(batch::SourceFile::new(&source.name, source.sha256()));
@@ -266,11 +318,26 @@ pub fn import_files(
     files: &[PathBuf],
     options: ImportOptions,
 ) -> Result<ImportSummary, ImportError> {
+    import_files_from(campaign, kind, files, options, None)
+}
+
+/// [`import_files`] reading sheet `sheet` of every workbook (`.xlsx`, `.ods`) among `files`
+/// (`None`: the first sheet with the kind's header row, [`header_columns`]).
+///
+/// # Errors
+/// As [`import_files`].
+pub fn import_files_from(
+    campaign: &mut Campaign,
+    kind: ImportKind,
+    files: &[PathBuf],
+    options: ImportOptions,
+    sheet: Option<&str>,
+) -> Result<ImportSummary, ImportError> {
     let sources = files
         .iter()
         .map(|p| Source::read(p))
         .collect::<Result<Vec<_>, _>>()?;
-    import_sources(campaign, kind, &sources, options)
+    import_sources_from(campaign, kind, &sources, options, sheet)
 }
 
 /// [`import_files`] for content already in memory.
@@ -283,12 +350,26 @@ pub fn import_sources(
     sources: &[Source],
     options: ImportOptions,
 ) -> Result<ImportSummary, ImportError> {
+    import_sources_from(campaign, kind, sources, options, None)
+}
+
+/// [`import_sources`] reading sheet `sheet` of every workbook (see [`import_files_from`]).
+///
+/// # Errors
+/// As [`import_files`], except reading.
+pub fn import_sources_from(
+    campaign: &mut Campaign,
+    kind: ImportKind,
+    sources: &[Source],
+    options: ImportOptions,
+    sheet: Option<&str>,
+) -> Result<ImportSummary, ImportError> {
     let mut diags = if options.strict {
         Diagnostics::strict()
     } else {
         Diagnostics::new()
     };
-    let mut batch = read_batch(kind, sources, &mut diags);
+    let mut batch = read_batch(kind, sources, sheet, &mut diags);
     let drafts = std::mem::take(&mut batch.readings);
     let tx = if options.dry_run {
         campaign.read_transaction()?
@@ -307,6 +388,7 @@ pub fn import_sources(
         }
     }
     let plan = apply::resolve(&tx, &batch, drafts, options.allow_overlap, &mut diags)?;
+    batch.relocate(&mut diags);
     if !diags.is_empty() {
         return Err(ImportError::Invalid(diags));
     }

@@ -16,8 +16,10 @@
 
 pub mod action;
 pub mod app;
+mod episodes;
 pub mod keymap;
 pub mod runtime;
+pub mod signs;
 pub mod theme;
 pub mod update;
 pub mod view;

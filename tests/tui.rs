@@ -476,3 +476,38 @@ fn branches_field_samples_and_flagged_records_carry_glyphs_beside_colour() {
     assert_eq!(flagged.fg, Color::Red);
     assert!(flagged.modifier.contains(Modifier::BOLD));
 }
+
+#[test]
+fn slow_queries_load_on_the_worker_and_the_newest_request_wins() {
+    use porewise::tui::action::Action;
+    use porewise::tui::runtime::Jobs;
+    use std::time::Duration;
+    let copy = demo_copy();
+    let options = SessionOptions {
+        jobs: Jobs::Background,
+        ..SessionOptions::scripted(100, 30)
+    };
+    let mut s = Session::open(&copy.file, options).expect("opens");
+    // The key returns at once: the sensors and the series are asked of the load worker.
+    type_keys(&mut s, "/TER1-field-45cm<enter>G");
+    s.dispatch(Action::ShowSeries);
+    assert!(!s.state.series.loaded);
+    assert!(screen(&s, &copy).contains("loading…"));
+    assert!(s.wait_for_loads(Duration::from_secs(60)), "loads finish");
+    assert!(s.state.series.loaded);
+    let data = s.state.series.data.as_ref().expect("a series");
+    assert_eq!(Some(&data.request), s.state.series.wanted.as_ref());
+    // Three pans before any answer: what arrives last is the newest window.
+    for _ in 0..3 {
+        s.dispatch(Action::Left);
+    }
+    let wanted = s.state.series.wanted.clone().expect("wanted");
+    assert!(s.wait_for_loads(Duration::from_secs(60)), "loads finish");
+    let data = s.state.series.data.as_ref().expect("a series");
+    assert_eq!(data.request, wanted);
+    // The review queue and the depth view load the same way.
+    s.dispatch(Action::ShowReview);
+    assert!(s.wait_for_loads(Duration::from_secs(60)), "loads finish");
+    assert!(s.state.review.loaded && !s.state.review.items.is_empty());
+    assert!(!screen(&s, &copy).contains("loading…"));
+}

@@ -1,34 +1,12 @@
-//! `porewise import sites|layers|lab|logger`: read CSV files into a campaign, all or nothing.
+//! `porewise import sites|layers|lab|logger`: read CSV files (and .xlsx / .ods workbooks)
+//! into a campaign, all or nothing.
 
-use std::path::PathBuf;
-
-use anyhow::Context;
 use clap::{Args, Subcommand};
 
+pub use super::shared::ImportArgs;
+pub(crate) use super::shared::{open, print_warnings};
 use crate::error::Outcome;
-use crate::import::diagnostic::warning_line;
-use crate::import::{self, Diagnostic, ImportError, ImportKind, ImportOptions};
-use crate::store::Campaign;
-
-/// The campaign file, the input files and how to import them.
-#[derive(Debug, Args)]
-pub struct ImportArgs {
-    /// The campaign file (made with `porewise init`).
-    pub db: PathBuf,
-    /// One or more CSV files (comma or semicolon separated, UTF-8, header row first).
-    #[arg(required = true, value_name = "FILE")]
-    pub files: Vec<PathBuf>,
-    /// Check everything and report what would be added, without writing.
-    #[arg(long)]
-    pub dry_run: bool,
-    /// Import a file even though the same content was imported before.
-    #[arg(long)]
-    pub force: bool,
-    /// Refuse a file that has a column porewise does not read (by default a warning on
-    /// stderr names it and the known column it resembles).
-    #[arg(long)]
-    pub strict: bool,
-}
+use crate::import::{self, ImportError, ImportKind, ImportOptions};
 
 /// The arguments of the imports that can create layers (`layers`, `lab`).
 #[derive(Debug, Args)]
@@ -60,10 +38,12 @@ pub enum ImportCommand {
     /// Suction units: suction_cm, suction_hpa, suction_kpa, suction_mpa, suction_bar, pf.
     /// Sites, layers and samples a file names are created on first sight.
     #[command(
-        after_help = "Example:\n  porewise import lab spring.sqlite plates-kpa.csv dewpoint-pf.csv"
+        after_help = "Examples:\n  porewise import lab spring.sqlite plates-kpa.csv dewpoint-pf.csv\n  \
+         porewise import lab spring.sqlite results.xlsx --sheet Plates"
     )]
     Lab(LayerImportArgs),
-    /// Field logger records: site,depth_cm,sensor,sensor_id,time,value,unit (streamed).
+    /// Field logger records: site,depth_cm,sensor,sensor_id,time,value,unit (streamed), or
+    /// wide files (a time column, then one column per channel) with --columns map.csv.
     ///
     /// sensor is tensiometer or water_content; unit (any case) is cm, hpa, kpa, mpa or bar for
     /// suction (a negative value is a pressure, stored as suction) or fraction, m3/m3,
@@ -75,7 +55,8 @@ pub enum ImportCommand {
     #[command(
         after_help = "Examples:\n  porewise import logger spring.sqlite station-a.csv\n  \
          porewise import logger spring.sqlite local-times.csv --utc-offset +01:00 --dry-run\n  \
-         porewise import logger spring.sqlite may.csv --skip-duplicates --stuck-span 12h --spike 15kpa,5%"
+         porewise import logger spring.sqlite may.csv --skip-duplicates --stuck-span 12h --spike 15kpa,5%\n  \
+         porewise import logger spring.sqlite station-wide.csv --columns map.csv --skip-lines 3"
     )]
     Logger(super::logger::LoggerArgs),
 }
@@ -99,7 +80,13 @@ pub fn run(cmd: &ImportCommand) -> anyhow::Result<Outcome> {
         strict: args.strict,
         allow_overlap,
     };
-    let result = import::import_files(&mut campaign, kind, &args.files, options);
+    let result = import::import_files_from(
+        &mut campaign,
+        kind,
+        &args.files,
+        options,
+        args.sheet.as_deref(),
+    );
     match &result {
         Ok(summary) => print_warnings(&summary.warnings),
         Err(ImportError::Invalid(diags)) => print_warnings(diags.warnings()),
@@ -107,19 +94,4 @@ pub fn run(cmd: &ImportCommand) -> anyhow::Result<Outcome> {
     }
     println!("{}", result?);
     Ok(Outcome::Success)
-}
-
-/// Print the warnings of an import on stderr, one `FILE:LINE:COLUMN: warning: ...` a line.
-pub(crate) fn print_warnings(warnings: &[Diagnostic]) {
-    for w in warnings {
-        eprintln!("{}", warning_line(w));
-    }
-}
-
-/// Open the campaign file named on the command line.
-///
-/// # Errors
-/// The file is missing, not a campaign, or from a newer porewise.
-pub(crate) fn open(db: &std::path::Path) -> anyhow::Result<Campaign> {
-    Campaign::open(db).with_context(|| format!("cannot open campaign {}", db.display()))
 }

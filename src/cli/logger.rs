@@ -4,15 +4,17 @@
 use clap::Args;
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use std::io::IsTerminal;
+use std::path::PathBuf;
 
-use super::import::ImportArgs;
+use super::shared::ImportArgs;
 use crate::error::Outcome;
 use crate::field::quality::{
     DEFAULT_SPIKE_RECORDS, DEFAULT_TENSIOMETER_LIMIT_KPA, QualitySettings, SpikeJump, parse_spike,
 };
 use crate::field::time::{parse_offset, parse_span};
-use crate::import::ImportError;
-use crate::import::logger::{LoggerOptions, Progress, import_logger_files};
+use crate::import::logger::{LoggerOptions, Progress, import_logger_files_mapped};
+use crate::import::wide::ChannelMap;
+use crate::import::{ImportError, Source};
 use crate::model::units::CM_PER_KPA;
 
 /// The campaign file, the logger files and how to import them.
@@ -43,6 +45,14 @@ pub struct LoggerArgs {
         value_parser = parse_spike
     )]
     pub spike: Vec<SpikeJump>,
+    /// Read wide files (a time column, then one column per channel) with this mapping file:
+    /// column,site,depth_cm,sensor,sensor_id,unit, one row per channel column.
+    #[arg(long, value_name = "MAP.CSV")]
+    pub columns: Option<PathBuf>,
+    /// Skip this many lines of logger preamble before the header (line numbers in messages
+    /// still count them).
+    #[arg(long, value_name = "N", default_value_t = 0)]
+    pub skip_lines: u64,
     /// A spike comes back within this many records; a longer excursion is a real change.
     #[arg(long, value_name = "N", default_value_t = DEFAULT_SPIKE_RECORDS,
           value_parser = super::pair::parse_count)]
@@ -103,6 +113,7 @@ impl LoggerArgs {
             utc_offset_s: self.utc_offset,
             quality,
             strict: self.import.strict,
+            skip_lines: self.skip_lines,
         }
     }
 }
@@ -156,13 +167,47 @@ impl Progress for Bar {
 /// The campaign cannot be opened, or the files are refused (every problem listed; nothing
 /// was written).
 pub fn run(args: &LoggerArgs) -> anyhow::Result<Outcome> {
-    let mut campaign = super::import::open(&args.import.db)?;
+    if args.import.sheet.is_some() {
+        anyhow::bail!(
+            "--sheet is for lab, sites and layers workbooks; logger files are CSV (wide ones \
+             with --columns)"
+        );
+    }
+    if let Some(book) = args
+        .import
+        .files
+        .iter()
+        .find(|f| crate::import::workbook::is_workbook(&f.display().to_string()))
+    {
+        anyhow::bail!(
+            "{}: logger files are read as CSV text, streamed (a workbook is read whole); save \
+             the sheet as CSV first",
+            book.display()
+        );
+    }
+    let map = match &args.columns {
+        Some(path) => {
+            let source = Source::read(path)?;
+            Some(
+                ChannelMap::read(&source.name, source.bytes.as_slice())
+                    .map_err(ImportError::Invalid)?,
+            )
+        }
+        None => None,
+    };
+    let mut campaign = super::shared::open(&args.import.db)?;
     let mut bar = Bar::new();
-    let summary = import_logger_files(&mut campaign, &args.import.files, args.options(), &mut bar);
+    let summary = import_logger_files_mapped(
+        &mut campaign,
+        &args.import.files,
+        args.options(),
+        map.as_ref(),
+        &mut bar,
+    );
     bar.done();
     match &summary {
-        Ok(s) => super::import::print_warnings(&s.warnings),
-        Err(ImportError::Invalid(diags)) => super::import::print_warnings(diags.warnings()),
+        Ok(s) => super::shared::print_warnings(&s.warnings),
+        Err(ImportError::Invalid(diags)) => super::shared::print_warnings(diags.warnings()),
         Err(_) => {}
     }
     println!("{}", summary?);

@@ -60,7 +60,7 @@ fn parse_depth(s: &str) -> Result<f64, String> {
 /// The campaign cannot be opened, the site is unknown, or nothing can be paired (nothing was
 /// written then).
 pub fn run(args: &PairArgs) -> anyhow::Result<Outcome> {
-    let mut campaign = super::import::open(&args.db)?;
+    let mut campaign = super::shared::open(&args.db)?;
     let options = PairOptions {
         site: args.site.clone(),
         depth_cm: args.depth_cm,

@@ -6,6 +6,7 @@ use anyhow::{Context, bail};
 use clap::Args;
 
 use super::list::Format;
+use crate::analysis::episodes;
 use crate::analysis::review::{self, Decided, Decision, ReviewOptions};
 use crate::error::Outcome;
 use crate::fit::outliers::{NoiseBasis, OutlierOptions};
@@ -13,7 +14,7 @@ use crate::model::number::plural;
 use crate::model::retention::ModelKind;
 use crate::model::text::shown;
 use crate::model::units::SuctionUnit;
-use crate::report::review::queue_listing;
+use crate::report::review::{episodes_listing, queue_listing};
 use crate::store::Campaign;
 use crate::store::fits::Selection;
 use crate::store::flags::FlagFilter;
@@ -24,7 +25,15 @@ Examples:
   porewise review spring.sqlite --site LEV1 --format csv
   porewise review spring.sqlite --accept 112 118 --note \"lost plate contact\"
   porewise review spring.sqlite --dismiss 87
+  porewise review spring.sqlite --accept-episode 43 --note \"dry spell past the probe's range\"
+  porewise review spring.sqlite --by-record                  one row per suspect record
   porewise review spring.sqlite --accept-all
+
+The queue is listed in episodes: consecutive suspect records of one logger sensor with the
+same kind of reason (no other record of the sensor between them) are one row, with the time
+span, the number of records and the worst record's values, score and reason; its flag column
+is the episode's id for --accept-episode and --dismiss-episode, which decide all of its records
+in one transaction. A lab reading is an episode of its own. --by-record lists every record.
 
 The checks estimate each method's measurement noise from the whole campaign (per method and
 import file: a lab's plates share one noise level), refit every sample without each reading
@@ -41,6 +50,7 @@ its time and note (porewise list DB flag-events).";
 /// Arguments of `porewise review`.
 #[derive(Debug, Args)]
 #[command(after_help = AFTER_HELP)]
+#[allow(clippy::struct_excessive_bools)] // independent switches, one per command-line flag
 pub struct ReviewArgs {
     /// The campaign file.
     pub db: PathBuf,
@@ -62,6 +72,16 @@ pub struct ReviewArgs {
     /// Dismiss the open suggestions on these readings: they stay in fits.
     #[arg(long, value_name = "READING", num_args = 1.., conflicts_with = "accept_all")]
     pub dismiss: Vec<i64>,
+    /// Accept every suggestion of these episodes (the flag ids the listing shows; any flag of
+    /// an episode names it), each episode in one transaction.
+    #[arg(long, value_name = "FLAG", num_args = 1.., conflicts_with_all = ["accept", "dismiss", "accept_all"])]
+    pub accept_episode: Vec<i64>,
+    /// Dismiss every suggestion of these episodes: their records and readings stay.
+    #[arg(long, value_name = "FLAG", num_args = 1.., conflicts_with_all = ["accept", "dismiss", "accept_all", "accept_episode"])]
+    pub dismiss_episode: Vec<i64>,
+    /// List one row per suspect reading or record instead of episodes.
+    #[arg(long)]
+    pub by_record: bool,
     /// Refresh, then accept every suggestion listed, in one transaction.
     #[arg(long)]
     pub accept_all: bool,
@@ -164,6 +184,9 @@ pub fn run(args: &ReviewArgs) -> anyhow::Result<Outcome> {
         .with_context(|| format!("cannot open campaign {}", args.db.display()))?;
     super::list::warn_unreadable(campaign.connection())?;
     let note = args.note.as_deref();
+    if !args.accept_episode.is_empty() || !args.dismiss_episode.is_empty() {
+        return decide_episodes(&mut campaign, args, note);
+    }
     if !args.accept.is_empty() || !args.dismiss.is_empty() {
         if args.site.is_some() || args.sample.is_some() {
             bail!("--accept and --dismiss take reading ids; --site and --sample do not apply");
@@ -230,7 +253,14 @@ pub fn run(args: &ReviewArgs) -> anyhow::Result<Outcome> {
         }
     }
     let queue = review::queue(&campaign, &args.filter())?;
-    let listing = queue_listing(&queue, args.units);
+    let listing = if args.by_record {
+        queue_listing(&queue, args.units)
+    } else {
+        episodes_listing(
+            &episodes::group(campaign.connection(), queue.clone())?,
+            args.units,
+        )
+    };
     match args.format {
         Format::Table => {
             if queue.is_empty() {
@@ -251,4 +281,61 @@ pub fn run(args: &ReviewArgs) -> anyhow::Result<Outcome> {
         return Ok(report_refit(&decided, true));
     }
     Ok(Outcome::Success)
+}
+
+/// `--accept-episode` / `--dismiss-episode`: find each named episode in the stored queue and
+/// decide all of its flags, one transaction per episode.
+fn decide_episodes(
+    campaign: &mut Campaign,
+    args: &ReviewArgs,
+    note: Option<&str>,
+) -> anyhow::Result<Outcome> {
+    if args.site.is_some() || args.sample.is_some() {
+        bail!(
+            "--accept-episode and --dismiss-episode take flag ids; --site and --sample do not apply"
+        );
+    }
+    let (ids, decision) = if args.accept_episode.is_empty() {
+        (&args.dismiss_episode, Decision::Dismiss)
+    } else {
+        (&args.accept_episode, Decision::Accept)
+    };
+    let queue = review::queue(campaign, &FlagFilter::default())?;
+    let grouped = episodes::group(campaign.connection(), queue)?;
+    let mut chosen: Vec<&episodes::Episode> = Vec::new();
+    for &id in ids {
+        let Some(e) = grouped.iter().find(|e| e.holds(id)) else {
+            bail!(
+                "flag {id} is not an open suggestion in the review queue (see `porewise review \
+                 DB --no-refresh`); nothing was decided"
+            );
+        };
+        if !chosen.iter().any(|c| c.id() == e.id()) {
+            chosen.push(e);
+        }
+    }
+    let mut outcome = Outcome::Success;
+    let (mut flags, mut episodes_done) = (0u64, 0u64);
+    for e in chosen {
+        let decided = episodes::decide_episode(campaign, e, decision, note, !args.no_refit)?;
+        flags += decided.flags.len() as u64;
+        episodes_done += 1;
+        if report_refit(&decided, false) == Outcome::Partial {
+            outcome = Outcome::Partial;
+        }
+    }
+    let what = match decision {
+        Decision::Accept => "accepted",
+        Decision::Dismiss => "dismissed",
+    };
+    let kept = match decision {
+        Decision::Accept => "left out of fits and pairing",
+        Decision::Dismiss => "kept",
+    };
+    println!(
+        "{what} {} in {}; {kept}",
+        plural(flags, "suggestion"),
+        plural(episodes_done, "episode")
+    );
+    Ok(outcome)
 }

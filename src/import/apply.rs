@@ -438,7 +438,7 @@ pub(crate) fn write(
         batch_ids.push(batches::insert(
             conn,
             &batches::NewBatch {
-                file_name: &f.name,
+                file_name: &f.recorded_name(),
                 sha256: &f.sha256,
                 kind: batch.kind.as_str(),
                 rows: f.rows,

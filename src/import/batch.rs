@@ -67,6 +67,8 @@ pub struct SourceFile {
     pub suction: Option<(String, SuctionUnit)>,
     /// Lab files: the water-content column's name and unit.
     pub water: Option<(String, WaterUnit)>,
+    /// A workbook's sheet: where its table sits, so problems name cells (`Plates!D14`).
+    pub sheet: Option<super::workbook::SheetPlace>,
 }
 
 impl SourceFile {
@@ -78,6 +80,16 @@ impl SourceFile {
             rows: 0,
             suction: None,
             water: None,
+            sheet: None,
+        }
+    }
+
+    /// The name recorded with the import: the file, and for a workbook the sheet read
+    /// (`lab.xlsx:Plates`).
+    pub fn recorded_name(&self) -> String {
+        match &self.sheet {
+            Some(place) => format!("{}:{}", self.name, place.sheet),
+            None => self.name.clone(),
         }
     }
 }
@@ -159,8 +171,31 @@ impl ImportBatch {
 
     /// `FILE:LINE` of an origin, for messages that point at another row.
     pub fn place(&self, origin: Origin) -> String {
-        let name = self.files.get(origin.file).map_or("?", |f| f.name.as_str());
-        format!("{name}:{}", origin.line)
+        let Some(file) = self.files.get(origin.file) else {
+            return format!("?:{}", origin.line);
+        };
+        match &file.sheet {
+            Some(place) => format!("{}:{}", file.name, place.cell(origin.line, "-")),
+            None => format!("{}:{}", file.name, origin.line),
+        }
+    }
+
+    /// Point every problem in a workbook at its cell (`lab.xlsx:Plates!D14`) instead of
+    /// `LINE:COLUMN`.
+    pub fn relocate(&self, diags: &mut super::Diagnostics) {
+        diags.relocate(|d| {
+            if d.cell.is_some() {
+                return;
+            }
+            if let Some(place) = self
+                .files
+                .iter()
+                .find(|f| f.name == d.file)
+                .and_then(|f| f.sheet.as_ref())
+            {
+                d.cell = Some(place.cell(d.line, &d.column));
+            }
+        });
     }
 
     /// The name of the file an origin points into.

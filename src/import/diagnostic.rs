@@ -20,15 +20,25 @@ pub struct Diagnostic {
     pub column: String,
     /// What was found and what was expected.
     pub message: String,
+    /// In a spreadsheet, the cell (`Plates!D14`), row (`Plates!14:14`) or nothing (empty:
+    /// the whole workbook) shown in place of `LINE:COLUMN`.
+    pub cell: Option<String>,
+}
+
+impl Diagnostic {
+    /// Where the problem is: `FILE:LINE:COLUMN`, `FILE:Sheet!D14` in a workbook, or `FILE`.
+    pub fn place(&self) -> String {
+        match self.cell.as_deref() {
+            None => format!("{}:{}:{}", self.file, self.line, self.column),
+            Some("") => self.file.clone(),
+            Some(cell) => format!("{}:{cell}", self.file),
+        }
+    }
 }
 
 impl fmt::Display for Diagnostic {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(
-            f,
-            "{}:{}:{}: {}",
-            self.file, self.line, self.column, self.message
-        )
+        write!(f, "{}: {}", self.place(), self.message)
     }
 }
 
@@ -73,6 +83,7 @@ impl Diagnostics {
                 line,
                 column: column.to_string(),
                 message: message.into(),
+                cell: None,
             });
         }
     }
@@ -91,6 +102,7 @@ impl Diagnostics {
                 line,
                 column: column.to_string(),
                 message: message.into(),
+                cell: None,
             });
         }
     }
@@ -98,7 +110,9 @@ impl Diagnostics {
     /// Add every problem and warning of another collection (its overflow count too).
     pub fn extend(&mut self, other: Diagnostics) {
         for w in other.warnings {
-            self.warn(&w.file, w.line, &w.column, w.message);
+            if self.warnings.len() < MAX_REPORTED {
+                self.warnings.push(w);
+            }
         }
         let overflow = other.total - other.items.len();
         for d in other.items {
@@ -129,6 +143,13 @@ impl Diagnostics {
     pub fn items(&self) -> &[Diagnostic] {
         &self.items
     }
+
+    /// Change where every listed problem and warning points (a workbook's rows and columns
+    /// become cell references).
+    pub fn relocate(&mut self, mut place: impl FnMut(&mut Diagnostic)) {
+        self.items.iter_mut().for_each(&mut place);
+        self.warnings.iter_mut().for_each(place);
+    }
 }
 
 impl fmt::Display for Diagnostics {
@@ -153,7 +174,7 @@ impl std::error::Error for Diagnostics {}
 
 /// A warning as printed on stderr: `FILE:LINE:COLUMN: warning: message`.
 pub fn warning_line(w: &Diagnostic) -> String {
-    format!("{}:{}:{}: warning: {}", w.file, w.line, w.column, w.message)
+    format!("{}: warning: {}", w.place(), w.message)
 }
 
 #[cfg(test)]

@@ -420,8 +420,8 @@ impl<'a> Cells<'a> {
 /// Call `each` with the cells of every data row of `table` that has one field per header
 /// column, reporting unreadable rows and rows of the wrong width. Returns the number of data
 /// rows (good or bad).
-pub(crate) fn read_rows<R: std::io::Read>(
-    table: &mut super::table::Table<R>,
+pub(crate) fn read_rows(
+    table: &mut impl super::table::RowSource,
     header: &Header,
     diags: &mut Diagnostics,
     mut each: impl FnMut(&mut Cells<'_>),

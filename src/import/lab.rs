@@ -6,13 +6,12 @@
 //! density in the file, which is resolved against the campaign when the batch is applied.
 
 use std::collections::{HashMap, HashSet};
-use std::io::Read;
 
 use super::batch::{ImportBatch, Located, Origin, ReadingDraft, SampleDraft, Water};
 use super::diagnostic::Diagnostics;
 use super::fields::{Cells, HeaderCheck, depths, finish_file, read_rows};
 use super::layers::{BULK_DENSITY_EXPECTED, BULK_DENSITY_RANGE, name_site};
-use super::table::{Header, Table};
+use super::table::{Header, RowSource};
 use crate::model::domain::{Branch, Layer, LayerRef, Method, Sample, SampleKind, Uid};
 use crate::model::retention::fredlund_xing::H_DRY_CM;
 use crate::model::units::{SuctionUnit, WaterUnit};
@@ -105,10 +104,10 @@ pub struct LabReader {
 
 impl LabReader {
     /// Read file number `file` of the batch from `table`.
-    pub fn read<R: Read>(
+    pub fn read(
         &mut self,
         file: usize,
-        mut table: Table<R>,
+        mut table: impl RowSource,
         batch: &mut ImportBatch,
         diags: &mut Diagnostics,
     ) {

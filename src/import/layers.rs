@@ -2,12 +2,11 @@
 //! organic_carbon_pct,bulk_density_g_cm3,ks_cm_per_day]`.
 
 use std::collections::{HashMap, HashSet};
-use std::io::Read;
 
 use super::batch::{ImportBatch, Located, Origin};
 use super::diagnostic::Diagnostics;
 use super::fields::{HeaderCheck, depths, finish_file, read_rows};
-use super::table::Table;
+use super::table::RowSource;
 use crate::model::domain::{Layer, LayerRef, Site, Uid};
 use crate::model::number::significant;
 
@@ -64,10 +63,10 @@ pub struct LayersReader {
 
 impl LayersReader {
     /// Read file number `file` of the batch from `table`.
-    pub fn read<R: Read>(
+    pub fn read(
         &mut self,
         file: usize,
-        mut table: Table<R>,
+        mut table: impl RowSource,
         batch: &mut ImportBatch,
         diags: &mut Diagnostics,
     ) {

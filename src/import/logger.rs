@@ -19,7 +19,7 @@ use std::cell::Cell;
 use std::collections::HashMap;
 use std::fmt;
 use std::fs::File;
-use std::io::Read;
+use std::io::{BufRead, BufReader, Read};
 use std::path::{Path, PathBuf};
 use std::rc::Rc;
 
@@ -30,6 +30,7 @@ use super::batch::Origin;
 use super::diagnostic::Diagnostics;
 use super::fields::{Cells, HeaderCheck};
 use super::table::{Table, trim_cell};
+use super::wide::{ChannelMap, WideRows};
 use super::{EarlierImport, FileSummary, ImportError};
 use crate::field::quality::{
     Mark, MarkKind, QualitySettings, SPIKE_PREFIX, STUCK_PREFIX, SensorChecker,
@@ -52,9 +53,9 @@ pub const KIND: &str = "logger";
 pub const MAX_SUCTION_CM: f64 = 1.0e7;
 
 /// Suction units a logger file may name.
-const SUCTION_UNITS: &str = "cm, hpa, kpa, mpa, bar";
+pub(crate) const SUCTION_UNITS: &str = "cm, hpa, kpa, mpa, bar";
 /// Water-content units a logger file may name.
-const WATER_UNITS: &str = "fraction, m3/m3, percent, %";
+pub(crate) const WATER_UNITS: &str = "fraction, m3/m3, percent, %";
 
 /// How a logger import runs.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
@@ -72,6 +73,8 @@ pub struct LoggerOptions {
     pub quality: QualitySettings,
     /// Refuse a file with a column porewise does not read (otherwise a warning).
     pub strict: bool,
+    /// Lines of logger preamble before the header, skipped (line numbers still count them).
+    pub skip_lines: u64,
 }
 
 /// Where an import has got to, for a progress bar. Every method does nothing by default.
@@ -173,13 +176,13 @@ impl fmt::Display for LoggerSummary {
 
 /// The unit of one row.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum RowUnit {
+pub(crate) enum RowUnit {
     Suction(SuctionUnit),
     Fraction,
     Percent,
 }
 
-fn row_unit(text: &str) -> Option<RowUnit> {
+pub(crate) fn row_unit(text: &str) -> Option<RowUnit> {
     const NAMES: [(&str, RowUnit); 9] = [
         ("kpa", RowUnit::Suction(SuctionUnit::Kpa)),
         ("cm", RowUnit::Suction(SuctionUnit::Cm)),
@@ -469,6 +472,21 @@ pub fn import_logger_files(
     options: LoggerOptions,
     progress: &mut dyn Progress,
 ) -> Result<LoggerSummary, ImportError> {
+    import_logger_files_mapped(campaign, files, options, None, progress)
+}
+
+/// [`import_logger_files`] for wide files when `map` is given: a time column, then one
+/// column per channel as the map says ([`super::wide`]).
+///
+/// # Errors
+/// As [`import_logger_files`].
+pub fn import_logger_files_mapped(
+    campaign: &mut Campaign,
+    files: &[PathBuf],
+    options: LoggerOptions,
+    map: Option<&ChannelMap>,
+    progress: &mut dyn Progress,
+) -> Result<LoggerSummary, ImportError> {
     let mut hashed = Vec::with_capacity(files.len());
     for path in files {
         hashed.push(hash_file(path)?);
@@ -541,7 +559,7 @@ pub fn import_logger_files(
         };
         run.files.push(name.clone());
         run.batch_ids.push(batch_id);
-        let rows = run.read_file(index, path, &mut diags, progress)?;
+        let rows = run.read_file(index, path, map, &mut diags, progress)?;
         if !options.dry_run {
             records::set_batch_rows(&tx, batch_id, rows)?;
         }
@@ -568,11 +586,13 @@ pub fn import_logger_files(
 }
 
 impl Run<'_> {
-    /// Read file `index`, checking and adding its rows; returns the number of data rows.
+    /// Read file `index`, checking and adding its rows; returns the number of data rows
+    /// (records, for a wide file).
     fn read_file(
         &mut self,
         index: usize,
         path: &Path,
+        map: Option<&ChannelMap>,
         diags: &mut Diagnostics,
         progress: &mut dyn Progress,
     ) -> Result<u64, ImportError> {
@@ -582,40 +602,69 @@ impl Run<'_> {
             inner: open(path)?,
             last: Rc::clone(&last_byte),
         };
-        let mut table = match Table::open(&name, reader) {
+        let skip = self.options.skip_lines;
+        let mut reader = BufReader::new(reader);
+        let mut skipped = 0u64;
+        let mut preamble = Vec::new();
+        while skipped < skip {
+            preamble.clear();
+            match reader.read_until(b'\n', &mut preamble) {
+                Ok(0) => break,
+                Ok(_) => skipped += 1,
+                Err(source) => {
+                    return Err(ImportError::Read {
+                        path: path.to_path_buf(),
+                        source,
+                    });
+                }
+            }
+        }
+        if skipped < skip {
+            diags.push(
+                &name,
+                skipped,
+                "-",
+                format!(
+                    "found {} in the file, expected a header row after the {} that \
+                     --skip-lines {skip} skips",
+                    plural(skipped, "line"),
+                    plural(skip, "line")
+                ),
+            );
+            return Ok(0);
+        }
+        // Header problems are reported at line 1 of what follows the preamble.
+        let mut head = if diags.is_strict() {
+            Diagnostics::strict()
+        } else {
+            Diagnostics::new()
+        };
+        let shift = |head: &mut Diagnostics| {
+            head.relocate(|d| {
+                if d.line > 0 {
+                    d.line += skip;
+                }
+            });
+        };
+        let table = match Table::open(&name, reader) {
             Ok(t) => t,
-            Err(problems) => {
+            Err(mut problems) => {
+                shift(&mut problems);
                 diags.extend(problems);
                 return Ok(0);
             }
         };
-        let header = table.header().clone();
-        let mut check = HeaderCheck::new(&name, &header, COLUMNS, diags);
-        let columns = Columns {
-            site: check.required("site", diags),
-            depth: check.required("depth_cm", diags),
-            sensor: check.required("sensor", diags),
-            sensor_id: check.required("sensor_id", diags),
-            time: check.required("time", diags),
-            value: check.required("value", diags),
-            unit: check.required("unit", diags),
+        let source = match map {
+            Some(map) => WideRows::new(table, map, &mut head).map(Source::Wide),
+            None => long_columns(&name, table, &mut head),
         };
-        check.unused(
-            &[
-                "site",
-                "depth_cm",
-                "sensor",
-                "sensor_id",
-                "time",
-                "value",
-                "unit",
-            ],
-            diags,
-        );
-        if !check.is_ok() {
+        shift(&mut head);
+        diags.extend(head);
+        let Some(mut source) = source else {
             return Ok(0);
-        }
-        let decimal_comma = table.decimal_comma();
+        };
+        let columns = source.columns();
+        let decimal_comma = source.decimal_comma();
         let offset = self.options.utc_offset_s;
         let mut times = TimeCache::default();
         let mut rows = 0u64;
@@ -623,22 +672,35 @@ impl Run<'_> {
         let mut last: Option<(u64, bool)> = None;
         loop {
             if rows.is_multiple_of(8192) {
-                progress.read(table.bytes_read());
+                progress.read(source.bytes_read());
             }
-            let Some(next) = table.next_record() else {
+            let (next, wide) = match &mut source {
+                Source::Long(table, header, _) => (
+                    table
+                        .next_record()
+                        .map(|r| r.map(|(line, record)| (line, record, &*header))),
+                    None,
+                ),
+                Source::Wide(w) => {
+                    let time = w.time_name().to_string();
+                    (w.next_record(), Some(time))
+                }
+            };
+            let Some(next) = next else {
                 break;
             };
             rows += 1;
-            let (line, record) = match next {
+            let (line, record, header) = match next {
                 Ok(r) => r,
                 Err((line, message)) => {
-                    diags.push(&name, line, "-", message);
-                    last = Some((line, true));
+                    diags.push(&name, line + skip, "-", message);
+                    last = Some((line + skip, true));
                     continue;
                 }
             };
+            let line = line + skip;
             let before = diags.total();
-            let parsed = Cells::new(&name, line, &header, record, decimal_comma, diags)
+            let parsed = Cells::new(&name, line, header, record, decimal_comma, diags)
                 .and_then(|mut cells| read_row(&mut cells, &columns, &mut times, offset));
             if let Some((row, utc)) = parsed {
                 let text = |col: usize| record.get(col).map_or("", trim_cell);
@@ -648,15 +710,25 @@ impl Run<'_> {
                     time_text: text(columns.time),
                     ..row
                 };
-                self.add(index, &row, &utc, &columns, &header, diags)?;
+                self.add(index, &row, &utc, &columns, header, diags)?;
+            } else if let Some(time) = wide
+                && diags
+                    .items()
+                    .last()
+                    .is_some_and(|d| d.line == line && d.column == time)
+            {
+                // A bad time is one problem, not one per channel.
+                if let Source::Wide(w) = &mut source {
+                    w.skip_row();
+                }
             }
             last = Some((line, diags.total() > before));
         }
-        progress.read(table.bytes_read());
+        progress.read(source.bytes_read());
         if rows == 0 {
             diags.push(
                 &name,
-                1,
+                1 + skip,
                 "-",
                 "found a header row and no data rows, expected at least one data row",
             );
@@ -950,6 +1022,79 @@ impl Run<'_> {
         }
         Ok(())
     }
+}
+
+/// The rows of one logger file: the long form with its header and columns, or a wide file
+/// read through its map.
+enum Source<R: Read> {
+    Long(Table<R>, super::table::Header, Columns),
+    Wide(WideRows<R>),
+}
+
+impl<R: Read> Source<R> {
+    /// The columns of the (long-form) records.
+    fn columns(&self) -> Columns {
+        match self {
+            Source::Long(_, _, c) => *c,
+            Source::Wide(_) => Columns {
+                site: 0,
+                depth: 1,
+                sensor: 2,
+                sensor_id: 3,
+                time: 4,
+                value: 5,
+                unit: 6,
+            },
+        }
+    }
+
+    fn decimal_comma(&self) -> bool {
+        match self {
+            Source::Long(t, _, _) => t.decimal_comma(),
+            Source::Wide(w) => w.decimal_comma(),
+        }
+    }
+
+    fn bytes_read(&self) -> u64 {
+        match self {
+            Source::Long(t, _, _) => t.bytes_read(),
+            Source::Wide(w) => w.bytes_read(),
+        }
+    }
+}
+
+/// Check a long-form header; `None` when it has a problem (reported).
+fn long_columns<R: Read>(
+    name: &str,
+    table: Table<R>,
+    diags: &mut Diagnostics,
+) -> Option<Source<R>> {
+    let header = table.header().clone();
+    let mut check = HeaderCheck::new(name, &header, COLUMNS, diags);
+    let columns = Columns {
+        site: check.required("site", diags),
+        depth: check.required("depth_cm", diags),
+        sensor: check.required("sensor", diags),
+        sensor_id: check.required("sensor_id", diags),
+        time: check.required("time", diags),
+        value: check.required("value", diags),
+        unit: check.required("unit", diags),
+    };
+    check.unused(
+        &[
+            "site",
+            "depth_cm",
+            "sensor",
+            "sensor_id",
+            "time",
+            "value",
+            "unit",
+        ],
+        diags,
+    );
+    check
+        .is_ok()
+        .then_some(Source::Long(table, header, columns))
 }
 
 /// Where the command learnt a sensor's depth and kind.

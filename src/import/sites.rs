@@ -1,12 +1,11 @@
 //! Sites files: `site,name,latitude,longitude[,elevation_m,notes]`, WGS 84 decimal degrees.
 
 use std::collections::HashMap;
-use std::io::Read;
 
 use super::batch::{ImportBatch, Located, Origin};
 use super::diagnostic::Diagnostics;
 use super::fields::{HeaderCheck, finish_file, read_rows};
-use super::table::Table;
+use super::table::RowSource;
 use crate::model::domain::{Site, Uid};
 
 /// The columns of a sites file, for messages.
@@ -34,10 +33,10 @@ pub struct SitesReader {
 impl SitesReader {
     /// Read file number `file` of the batch from `table`, adding its sites and reporting every
     /// bad row.
-    pub fn read<R: Read>(
+    pub fn read(
         &mut self,
         file: usize,
-        mut table: Table<R>,
+        mut table: impl RowSource,
         batch: &mut ImportBatch,
         diags: &mut Diagnostics,
     ) {

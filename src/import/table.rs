@@ -252,6 +252,38 @@ impl<R: Read> Table<R> {
     }
 }
 
+/// Rows of a table with a header, wherever they come from: a delimited text file
+/// ([`Table`]) or a spreadsheet sheet ([`super::workbook::Sheet`]). The readers of sites,
+/// layers and lab files take any row source, so a new importer gets workbooks for free.
+pub trait RowSource {
+    /// The file name used in messages.
+    fn file(&self) -> &str;
+    /// The header row.
+    fn header(&self) -> &Header;
+    /// Whether number cells may use a decimal comma (semicolon-separated text only).
+    fn decimal_comma(&self) -> bool;
+    /// The next data row with its line (a sheet's row number), `None` at the end.
+    ///
+    /// # Errors
+    /// A row that cannot be read, with its line and what went wrong.
+    fn next_record(&mut self) -> Option<Result<(u64, &csv::StringRecord), RecordError>>;
+}
+
+impl<R: Read> RowSource for Table<R> {
+    fn file(&self) -> &str {
+        Table::file(self)
+    }
+    fn header(&self) -> &Header {
+        Table::header(self)
+    }
+    fn decimal_comma(&self) -> bool {
+        Table::decimal_comma(self)
+    }
+    fn next_record(&mut self) -> Option<Result<(u64, &csv::StringRecord), RecordError>> {
+        Table::next_record(self)
+    }
+}
+
 /// `text` without leading and trailing whitespace, as [`str::trim`] but without looking at
 /// every character when the text starts and ends with a printable ASCII byte (most cells).
 pub fn trim_cell(text: &str) -> &str {

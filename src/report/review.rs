@@ -101,6 +101,66 @@ pub fn queue_listing(rows: &[FlagRow], unit: SuctionUnit) -> Listing {
     l
 }
 
+/// The review queue in episodes ([`crate::analysis::episodes`]), worst first: a logger
+/// episode's sensor, time span (`from`, `to`, UTC) and number of records, its worst record's
+/// values, score and reason; `flag` is the episode's id for `--accept-episode`.
+///
+/// Columns: `reading,sample,site,sensor,from,to,records,suction_<unit>,theta_m3_m3,score,flag,
+/// logger_record,reason`.
+pub fn episodes_listing(
+    episodes: &[crate::analysis::episodes::Episode],
+    unit: SuctionUnit,
+) -> Listing {
+    let mut l = Listing::new(
+        [
+            "reading",
+            "sample",
+            "site",
+            "sensor",
+            "from",
+            "to",
+            "records",
+            unit.column_name(),
+            "theta_m3_m3",
+            "score",
+            "flag",
+            "logger_record",
+            "reason",
+        ]
+        .into_iter()
+        .map(Column::new)
+        .collect(),
+    );
+    for e in episodes {
+        let row = e.worst();
+        let (reading, record) = match &row.subject {
+            Subject::Reading { reading_id, .. } => (Cell::Int(*reading_id), Cell::Text(None)),
+            Subject::LoggerRecord { record_id, .. } => (Cell::Text(None), Cell::Int(*record_id)),
+        };
+        let (from, to) = e
+            .span()
+            .map_or((Cell::Text(None), Cell::Text(None)), |(a, b)| {
+                (Cell::text(a), Cell::text(b))
+            });
+        l.push(vec![
+            reading,
+            row.subject.sample().map(str::to_string).into(),
+            Cell::text(row.subject.site()),
+            e.sensor_id().map(str::to_string).into(),
+            from,
+            to,
+            Cell::Int(e.len() as i64),
+            row.subject.h_cm().map(|h| unit.from_cm(h)).into(),
+            row.subject.theta().into(),
+            e.score().into(),
+            e.id().into(),
+            record,
+            Cell::text(&row.stored.flag.reason),
+        ]);
+    }
+    l
+}
+
 /// The audit trail: one row per status a flag took (`flag,from,to,by,note,at`).
 pub fn events_listing(events: &[FlagEvent]) -> Listing {
     let mut l = Listing::new(

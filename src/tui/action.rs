@@ -10,7 +10,7 @@ use crate::analysis::FitRunSummary;
 use crate::model::domain::FlagTarget;
 
 use super::app::{
-    DepthData, ReviewItem, SampleDetail, SensorInfo, SeriesData, SeriesRequest, Tree,
+    DepthData, ReviewEpisode, ReviewItem, SampleDetail, SensorInfo, SeriesData, SeriesRequest, Tree,
 };
 use super::worker::{FitRequest, JobId};
 
@@ -25,6 +25,8 @@ pub enum Loaded {
     Depth(Box<DepthData>),
     /// The review queue, worst first, or why there is none.
     Review(Result<Vec<ReviewItem>, String>),
+    /// The review queue grouped into episodes, worst first, or why there is none.
+    Episodes(Result<Vec<ReviewEpisode>, String>),
     /// Every logger sensor of the campaign, or why they cannot be read.
     Sensors(Result<Vec<SensorInfo>, String>),
     /// The series of one depth in a window.
@@ -105,6 +107,13 @@ pub enum Action {
     Accept,
     /// Dismiss it (keep the reading).
     Dismiss,
+    /// Decide every flag of a review episode in one transaction.
+    DecideFlags {
+        /// The flags.
+        flag_ids: Vec<i64>,
+        /// True to accept, false to dismiss.
+        accept: bool,
+    },
     /// Write the campaign report.
     Export,
     /// A typed character.
@@ -197,6 +206,13 @@ pub enum Effect {
         /// What it is on (for the message).
         target: FlagTarget,
         /// True to accept (exclude the reading), false to dismiss.
+        accept: bool,
+    },
+    /// Decide every flag of a review episode in one transaction.
+    DecideFlags {
+        /// The flags.
+        flag_ids: Vec<i64>,
+        /// True to accept, false to dismiss.
         accept: bool,
     },
     /// Write the campaign report.

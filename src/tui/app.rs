@@ -20,9 +20,12 @@ use crate::store::readings::StoredReading;
 use super::theme::Theme;
 use super::worker::JobBoard;
 
+pub mod review;
 pub mod series;
 pub mod texture_fill;
 
+pub use super::signs::{FitTag, Tone};
+pub use review::ReviewEpisode;
 pub use series::{SensorInfo, SensorSeries, SeriesData, SeriesRequest, SeriesState};
 
 /// Which screen fills the terminal.
@@ -128,52 +131,6 @@ pub fn plot_x(h_cm: f64) -> f64 {
         h_cm.log10().max(PLOT_X_MIN)
     } else {
         PLOT_X_MIN
-    }
-}
-
-/// Fit standing as the tree shows it.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-pub enum FitTag {
-    /// Never fitted.
-    #[default]
-    None,
-    /// Up to date.
-    Current,
-    /// Readings or flags changed since, or a later refit failed.
-    Stale,
-    /// Every attempt failed.
-    Failed,
-}
-
-impl FitTag {
-    /// From the store's standing.
-    pub fn of(state: &FitState) -> FitTag {
-        match state {
-            FitState::None => FitTag::None,
-            FitState::Current => FitTag::Current,
-            FitState::Stale(_) => FitTag::Stale,
-            FitState::Failed(_) => FitTag::Failed,
-        }
-    }
-
-    /// One-word label.
-    pub fn label(self) -> &'static str {
-        match self {
-            FitTag::None => "none",
-            FitTag::Current => "current",
-            FitTag::Stale => "stale",
-            FitTag::Failed => "failed",
-        }
-    }
-
-    /// The glyph beside a sample, so colour is not the only sign.
-    pub fn glyph(self) -> &'static str {
-        match self {
-            FitTag::None => "·",
-            FitTag::Current => "✓",
-            FitTag::Stale => "~",
-            FitTag::Failed => "✗",
-        }
     }
 }
 
@@ -1144,8 +1101,13 @@ impl ReviewItem {
 /// The review screen.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct ReviewState {
-    /// Open suggestions, worst first.
+    /// The rows on screen, worst first: each episode's worst suspect, or the suspects of the
+    /// opened episode.
     pub items: Vec<ReviewItem>,
+    /// The queue grouped into episodes ([`review`]), worst first.
+    pub episodes: Vec<ReviewEpisode>,
+    /// The episode opened with Enter (an index into `episodes`).
+    pub opened: Option<usize>,
     /// Index into `items`.
     pub cursor: usize,
     /// The queue has been loaded at least once.
@@ -1177,18 +1139,6 @@ pub enum Input {
     },
     /// Asking whether to quit while a fit is running.
     ConfirmQuit,
-}
-
-/// How a status message reads.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-pub enum Tone {
-    /// Plain information.
-    #[default]
-    Info,
-    /// Something did not happen.
-    Warning,
-    /// Something failed.
-    Error,
 }
 
 /// The status line's message.

@@ -456,19 +456,21 @@ impl Default for KeyTable {
             bind(
                 &[Key::char('a')],
                 Action::Accept,
-                "accept: leave the reading out and refit (a record out of pairing)",
+                "accept: leave the reading out and refit (a record out of pairing); on an \
+                 episode, all of its records",
                 Some("accept"),
             ),
             bind(
                 &[Key::char('d')],
                 Action::Dismiss,
-                "dismiss: keep the reading (or record)",
+                "dismiss: keep the reading (or record); on an episode, all of its records",
                 Some("dismiss"),
             ),
             bind(
                 &[Key::plain(KeyCode::Enter)],
                 Action::Open,
-                "show the sample in the browser (a record: its series)",
+                "show the sample in the browser (a record: its series); open an episode to \
+                 decide record by record (Esc back to the list)",
                 Some("open"),
             ),
             back_to_browsing(),

@@ -36,6 +36,7 @@ use super::view;
 use super::worker::{FitRequest, JobId};
 
 mod load;
+mod loader;
 
 /// The state of the campaign file a cached value was read at: SQLite's data version and this
 /// connection's total change count.
@@ -150,6 +151,8 @@ pub struct Session {
     campaign: Campaign,
     settings: CampaignSettings,
     worker: Option<Worker>,
+    /// The load worker (background sessions): series, review, sensors and depth queries.
+    loader: Option<loader::Loader>,
     /// The campaign's pooled between-core variance, with the file state it was read at.
     pooled: Option<(PoolKey, Option<BetweenCores>)>,
     /// The UI state.
@@ -189,14 +192,18 @@ impl Session {
             size: options.size,
             ..AppState::default()
         };
-        let worker = match options.jobs {
-            Jobs::Background => Some(Worker::spawn(path.to_path_buf())),
-            Jobs::Inline => None,
+        let (worker, loader) = match options.jobs {
+            Jobs::Background => (
+                Some(Worker::spawn(path.to_path_buf())),
+                Some(loader::Loader::spawn(path.to_path_buf(), settings.clone())),
+            ),
+            Jobs::Inline => (None, None),
         };
         let mut session = Session {
             campaign,
             settings,
             worker,
+            loader,
             pooled: None,
             state,
             keys: KeyTable::default(),
@@ -235,6 +242,11 @@ impl Session {
                 got.push(action);
             }
         }
+        if let Some(loader) = &self.loader {
+            while let Ok(action) = loader.results.try_recv() {
+                got.push(action);
+            }
+        }
         let any = !got.is_empty();
         for action in got {
             self.dispatch(action);
@@ -256,6 +268,27 @@ impl Session {
         true
     }
 
+    /// Wait up to `timeout` until the load worker has answered every request (tests and
+    /// benchmarks); true when it has.
+    pub fn wait_for_loads(&mut self, timeout: Duration) -> bool {
+        let deadline = std::time::Instant::now() + timeout;
+        loop {
+            // Idle first, then take what it sent: an answer sent before it went idle is in.
+            let idle = self.loader.as_ref().is_none_or(loader::Loader::idle);
+            let got = self.poll_worker();
+            // Answers may ask for more loads; idle counts only when nothing came.
+            if idle && !got && self.loader.as_ref().is_none_or(loader::Loader::idle) {
+                return true;
+            }
+            if std::time::Instant::now() > deadline {
+                return false;
+            }
+            if !got {
+                std::thread::sleep(Duration::from_millis(5));
+            }
+        }
+    }
+
     /// Draw the UI on any backend.
     ///
     /// # Errors
@@ -266,6 +299,22 @@ impl Session {
     }
 
     fn execute(&mut self, effect: Effect) -> Option<Action> {
+        if let Some(loader) = &self.loader {
+            let job = match &effect {
+                Effect::LoadReview => Some(loader::Job::Review),
+                Effect::LoadSensors => Some(loader::Job::Sensors),
+                Effect::LoadSeries(request) => Some(loader::Job::Series(request.clone())),
+                Effect::LoadDepth { site, root_zone_cm } => Some(loader::Job::Depth {
+                    site: site.clone(),
+                    root_zone_cm: *root_zone_cm,
+                }),
+                _ => None,
+            };
+            if let Some(job) = job {
+                loader.submit(job);
+                return None;
+            }
+        }
         let conn = self.campaign.connection();
         let loaded = |r: crate::store::Result<Loaded>| {
             Some(r.map_or_else(|e| Action::LoadFailed(e.to_string()), Action::Loaded))
@@ -286,8 +335,8 @@ impl Session {
                 )
                 .map(|d| Loaded::Depth(Box::new(d)))
             })),
-            Effect::LoadReview => Some(Action::Loaded(Loaded::Review(
-                load::review(conn).map_err(|e| e.to_string()),
+            Effect::LoadReview => Some(Action::Loaded(Loaded::Episodes(
+                load::review_episodes(conn).map_err(|e| e.to_string()),
             ))),
             Effect::LoadSensors => Some(Action::Loaded(Loaded::Sensors(
                 load::sensors(conn).map_err(|e| e.to_string()),
@@ -313,6 +362,26 @@ impl Session {
                 })
                 .map(|_| {
                     format!("flag on reading {reading_id} cleared; fits use it again: f refits")
+                }),
+            )),
+            Effect::DecideFlags { flag_ids, accept } => Some(Action::FlagChanged(
+                self.write(|tx| {
+                    for &id in &flag_ids {
+                        if accept {
+                            flags::accept(tx, id, None)?;
+                        } else {
+                            flags::dismiss(tx, id, None)?;
+                        }
+                    }
+                    Ok(())
+                })
+                .map(|()| {
+                    let n = crate::model::number::plural(flag_ids.len() as u64, "flag");
+                    if accept {
+                        format!("{n} accepted: left out of fits and pairing")
+                    } else {
+                        format!("{n} dismissed: kept")
+                    }
                 }),
             )),
             Effect::DecideFlag {

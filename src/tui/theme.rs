@@ -6,7 +6,7 @@
 
 use ratatui::style::{Color, Modifier, Style};
 
-use super::app::{FitTag, Tone};
+use super::signs::{FitTag, Tone};
 
 /// The palette in use.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

@@ -8,7 +8,8 @@ use crate::model::retention::ModelKind;
 use super::action::{Action, Effect, Loaded};
 use super::app::series::{AROUND_S, SensorPick, panned, zoomed};
 use super::app::{
-    AppState, Detail, Input, NodeKey, Pane, Screen, SeriesRequest, Suspect, Tone, Tree, TreeRow,
+    AppState, Detail, Input, NodeKey, Pane, ReviewEpisode, Screen, SeriesRequest, Suspect, Tone,
+    Tree, TreeRow,
 };
 use super::worker::{FitRequest, FitScope, Submitted};
 
@@ -234,8 +235,19 @@ fn on_loaded(state: &mut AppState, loaded: Loaded) -> Vec<Effect> {
             Vec::new()
         }
         Loaded::Review(Ok(items)) => {
-            state.review.cursor = state.review.cursor.min(items.len().saturating_sub(1));
-            state.review.items = items;
+            let episodes = items.into_iter().map(ReviewEpisode::single).collect();
+            update(state, Action::Loaded(Loaded::Episodes(Ok(episodes))))
+        }
+        Loaded::Review(Err(why)) | Loaded::Episodes(Err(why)) => {
+            state.review.items.clear();
+            state.review.episodes.clear();
+            state.review.opened = None;
+            state.review.loaded = true;
+            state.review.unavailable = Some(why);
+            Vec::new()
+        }
+        Loaded::Episodes(Ok(episodes)) => {
+            state.review.set_episodes(episodes);
             state.review.loaded = true;
             state.review.unavailable = None;
             if state.screen == Screen::Review {
@@ -243,12 +255,6 @@ fn on_loaded(state: &mut AppState, loaded: Loaded) -> Vec<Effect> {
             } else {
                 Vec::new()
             }
-        }
-        Loaded::Review(Err(why)) => {
-            state.review.items.clear();
-            state.review.loaded = true;
-            state.review.unavailable = Some(why);
-            Vec::new()
         }
         Loaded::Sensors(Ok(sensors)) => {
             let series = &mut state.series;
@@ -1112,7 +1118,7 @@ fn open_in_browser(state: &mut AppState, sample_id: i64) -> Vec<Effect> {
 
 /// After the review cursor moved: show the item's sample with its reading highlighted, or the
 /// series around a suspect record.
-fn follow_review(state: &mut AppState) -> Vec<Effect> {
+pub(super) fn follow_review(state: &mut AppState) -> Vec<Effect> {
     let Some(item) = state.review_item().cloned() else {
         return Vec::new();
     };
@@ -1158,6 +1164,9 @@ fn on_review(state: &mut AppState, action: &Action) -> Vec<Effect> {
     if let Some(cursor) = moved(state, state.review.cursor, len, action) {
         state.review.cursor = cursor;
         return follow_review(state);
+    }
+    if let Some(effects) = super::episodes::on_review(state, action) {
+        return effects;
     }
     match action {
         Action::Accept | Action::Dismiss if refuse_while_fitting(state) => Vec::new(),

@@ -17,8 +17,8 @@ use crate::store::{CampaignSettings, Result, StoreError, logger, readings};
 
 use super::super::app::series::{SensorSeries, Thinner};
 use super::super::app::{
-    DepthData, FlagMark, ReviewItem, SampleDetail, SampleParts, SensorInfo, SeriesData,
-    SeriesRequest, Suspect, Tree,
+    DepthData, FlagMark, ReviewEpisode, ReviewItem, SampleDetail, SampleParts, SensorInfo,
+    SeriesData, SeriesRequest, Suspect, Tree,
 };
 
 /// The tree: outline, fit standings and flag counts.
@@ -158,55 +158,63 @@ pub fn depth(
     ))
 }
 
-/// The review queue: open suggestions on readings and logger records, worst first.
+/// The review queue (open suggestions on readings and logger records) in episodes
+/// (`analysis::episodes`), worst first.
 ///
 /// # Errors
 /// An SQLite error.
-pub fn review(conn: &Connection) -> Result<Vec<ReviewItem>> {
-    Ok(flags::queue(conn, &FlagFilter::default())?
+pub fn review_episodes(conn: &Connection) -> Result<Vec<ReviewEpisode>> {
+    let rows = flags::queue(conn, &FlagFilter::default())?;
+    Ok(crate::analysis::episodes::group(conn, rows)?
         .into_iter()
-        .filter_map(|row| {
-            let suspect = match row.subject {
-                Subject::Reading {
-                    reading_id,
-                    sample_id,
-                    sample,
-                    h_cm,
-                    theta,
-                    ..
-                } => Suspect::Reading {
-                    reading_id,
-                    sample_id,
-                    sample,
-                    h_cm,
-                    theta,
-                },
-                Subject::LoggerRecord {
-                    record_id,
-                    site,
-                    depth_cm,
-                    sensor,
-                    sensor_id,
-                    time,
-                    value,
-                } => Suspect::Record {
-                    record_id,
-                    site,
-                    depth_cm,
-                    kind: sensor.parse().ok()?,
-                    sensor_id,
-                    time: parse_instant(&time, Some(0)).ok()?,
-                    value,
-                },
-            };
-            Some(ReviewItem {
-                flag_id: row.stored.id,
-                suspect,
-                reason: row.stored.flag.reason,
-                score: row.stored.flag.score,
-            })
+        .filter_map(|e| {
+            let items: Vec<ReviewItem> = e.rows.into_iter().filter_map(review_item).collect();
+            (!items.is_empty()).then_some(ReviewEpisode { items })
         })
         .collect())
+}
+
+/// A queue row as the review screen shows it (`None` for a record the screen cannot read).
+fn review_item(row: flags::FlagRow) -> Option<ReviewItem> {
+    let suspect = match row.subject {
+        Subject::Reading {
+            reading_id,
+            sample_id,
+            sample,
+            h_cm,
+            theta,
+            ..
+        } => Suspect::Reading {
+            reading_id,
+            sample_id,
+            sample,
+            h_cm,
+            theta,
+        },
+        Subject::LoggerRecord {
+            record_id,
+            site,
+            depth_cm,
+            sensor,
+            sensor_id,
+            time,
+            value,
+        } => Suspect::Record {
+            record_id,
+            site,
+            depth_cm,
+            kind: sensor.parse().ok()?,
+            sensor_id,
+            time: parse_instant(&time, Some(0)).ok()?,
+            value,
+        },
+    };
+    Some(ReviewItem {
+        flag_id: row.stored.id,
+        suspect,
+        reason: row.stored.flag.reason,
+        score: row.stored.flag.score,
+    })
 }
 
 /// Every logger sensor of the campaign with its first and last record and its flagged

@@ -40,34 +40,100 @@ fn wrap(text: &str, width: usize) -> Vec<String> {
     out
 }
 
+/// Flow legend items (a styled glyph and its text) into lines of at most `width` characters,
+/// two spaces between items; an item wider than a line is wrapped at spaces, indented.
+fn legend(items: Vec<(Option<Span<'static>>, &str)>, width: usize) -> Vec<Line<'static>> {
+    let mut out = Vec::new();
+    let mut line: Vec<Span<'static>> = Vec::new();
+    let mut used = 0;
+    for (glyph, text) in items {
+        let glyph_width = glyph.as_ref().map_or(0, |g| g.content.chars().count());
+        let item_width = glyph_width + text.chars().count();
+        let gap = if used == 0 { 0 } else { 2 };
+        if used > 0 && used + gap + item_width > width {
+            out.push(Line::from(std::mem::take(&mut line)));
+            used = 0;
+        }
+        if used > 0 {
+            line.push(Span::raw("  "));
+            used += 2;
+        }
+        if item_width <= width.saturating_sub(used) {
+            line.extend(glyph);
+            line.push(Span::raw(text.to_string()));
+            used += item_width;
+            continue;
+        }
+        // Too wide for a line of its own: wrap its text, the glyph first, the rest indented.
+        let pieces = wrap(
+            text.trim_start(),
+            width.saturating_sub(glyph_width + 1).max(8),
+        );
+        for (i, piece) in pieces.into_iter().enumerate() {
+            if i == 0 {
+                line.extend(glyph.clone());
+                line.push(Span::raw(format!(" {piece}")));
+            } else {
+                out.push(Line::from(std::mem::take(&mut line)));
+                line.push(Span::raw(format!("{:glyph_width$} {piece}", "")));
+            }
+            used = line.iter().map(|s| s.content.chars().count()).sum();
+        }
+    }
+    if !line.is_empty() {
+        out.push(Line::from(line));
+    }
+    out
+}
+
 impl HelpScreen<'_> {
     /// Every help line for columns `width` wide.
     pub fn lines(&self, width: usize) -> Vec<Line<'static>> {
         let theme = self.state.theme;
         let text_width = width.saturating_sub(KEY_WIDTH + 1).max(10);
-        let mut lines = vec![
-            Line::from(Span::styled("Signs", theme.heading())),
-            Line::from(vec![
-                Span::styled(FitTag::Current.glyph(), theme.fit_tag(FitTag::Current)),
-                Span::raw(" current fit  "),
-                Span::styled(FitTag::Stale.glyph(), theme.fit_tag(FitTag::Stale)),
-                Span::raw(" stale  "),
-                Span::styled(FitTag::Failed.glyph(), theme.fit_tag(FitTag::Failed)),
-                Span::raw(" failed  "),
-                Span::raw(FitTag::None.glyph()),
-                Span::raw(" not fitted"),
-            ]),
-            Line::from(vec![
-                Span::styled("⚑", theme.flag()),
-                Span::raw(" flagged readings  ┆ FC, PWP  ⠁⠂ 95 % band"),
-            ]),
-            Line::from("o used  ▼ drying  ▲ wetting  x excluded  ◆ selected reading"),
-            Line::from(vec![
-                Span::styled(super::FIELD_TAG, theme.field_tag()),
-                Span::raw(" field pairing (in place; dotted in the depth view)  ⡇ logger series"),
-            ]),
-            Line::from(""),
+        let glyph = |g: &str, style| Some(Span::styled(g.to_string(), style));
+        let plain = |g: &str| Some(Span::raw(g.to_string()));
+        let groups: Vec<Vec<(Option<Span<'static>>, &str)>> = vec![
+            vec![
+                (
+                    glyph(FitTag::Current.glyph(), theme.fit_tag(FitTag::Current)),
+                    " current fit",
+                ),
+                (
+                    glyph(FitTag::Stale.glyph(), theme.fit_tag(FitTag::Stale)),
+                    " stale",
+                ),
+                (
+                    glyph(FitTag::Failed.glyph(), theme.fit_tag(FitTag::Failed)),
+                    " failed",
+                ),
+                (plain(FitTag::None.glyph()), " not fitted"),
+            ],
+            vec![
+                (glyph("⚑", theme.flag()), " flagged readings"),
+                (None, "┆ FC, PWP"),
+                (None, "⠁⠂ 95 % band"),
+            ],
+            vec![
+                (None, "o used"),
+                (None, "▼ drying"),
+                (None, "▲ wetting"),
+                (None, "x excluded"),
+                (None, "◆ selected reading"),
+            ],
+            vec![
+                (
+                    glyph(super::FIELD_TAG, theme.field_tag()),
+                    " field pairing (in place; dotted in the depth view)",
+                ),
+                (None, "⡇ logger series"),
+            ],
         ];
+        let mut lines = vec![Line::from(Span::styled("Signs", theme.heading()))];
+        for group in groups {
+            lines.extend(legend(group, width));
+        }
+        lines.push(Line::from(""));
         for (title, entries) in self.keys.help_sections() {
             lines.push(Line::from(Span::styled(title, theme.heading())));
             for (keys, help) in entries {
@@ -115,6 +181,37 @@ impl Widget for HelpScreen<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_legend_flows_within_the_width() {
+        let items = || {
+            vec![
+                (
+                    Some(Span::raw("≈")),
+                    " field pairing (in place; dotted in the depth view)",
+                ),
+                (None, "⡇ logger series"),
+                (None, "o used"),
+            ]
+        };
+        let text = |lines: Vec<Line<'static>>| -> Vec<String> {
+            lines.iter().map(ToString::to_string).collect()
+        };
+        assert_eq!(
+            text(legend(items(), 80)),
+            vec!["≈ field pairing (in place; dotted in the depth view)  ⡇ logger series  o used"]
+        );
+        let narrow = text(legend(items(), 30));
+        assert_eq!(
+            narrow,
+            vec![
+                "≈ field pairing (in place;",
+                "  dotted in the depth view)",
+                "⡇ logger series  o used",
+            ]
+        );
+        assert!(narrow.iter().all(|l| l.chars().count() <= 30));
+    }
 
     #[test]
     fn help_wraps_at_spaces() {

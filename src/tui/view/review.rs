@@ -9,7 +9,7 @@ use ratatui::widgets::{Paragraph, Row, Widget, Wrap};
 
 use crate::model::domain::SensorKind;
 
-use super::super::app::{AppState, Detail, ReviewItem, Suspect};
+use super::super::app::{AppState, Detail, ReviewEpisode, ReviewItem, Suspect};
 use super::curve::CurvePlot;
 use super::series::{SeriesPlot, date_text, time_text};
 use super::{
@@ -31,13 +31,16 @@ impl Widget for ReviewScreen<'_> {
         let [list_area, right] =
             Layout::horizontal([Constraint::Length(list_width), Constraint::Fill(1)]).areas(area);
         let review = &state.review;
-        let inner = framed(
-            format!("Review · {} suspected, worst first", review.items.len()),
-            true,
-            theme,
-            list_area,
-            buf,
-        );
+        let suspects: usize = review.episodes.iter().map(ReviewEpisode::len).sum();
+        let title = match review.opened_episode() {
+            Some(e) => format!("Review · episode of {} · Esc back", e.len()),
+            None if suspects > review.items.len() => format!(
+                "Review · {} episodes ({suspects} flags)",
+                review.items.len()
+            ),
+            None => format!("Review · {} suspected, worst first", review.items.len()),
+        };
+        let inner = framed(title, true, theme, list_area, buf);
         if let Some(why) = &review.unavailable {
             Paragraph::new(why.clone())
                 .wrap(Wrap { trim: true })
@@ -66,7 +69,14 @@ impl Widget for ReviewScreen<'_> {
                 .skip(offset)
                 .take(height)
                 .map(|(i, item)| {
-                    let [what, h, theta] = columns(item, state, room);
+                    let group = match review.opened {
+                        None => review.episodes.get(i).filter(|e| e.len() > 1),
+                        Some(_) => None,
+                    };
+                    let [mut what, h, theta] = columns(item, state, room);
+                    if let Some(e) = group {
+                        what = episode_text(e, room);
+                    }
                     let row = Row::new(vec![opt_num(item.score, 3), what, h, theta]);
                     cursor_row(row, i == review.cursor, true, theme)
                 });
@@ -124,12 +134,82 @@ impl Widget for ReviewScreen<'_> {
             }
         }
         let inner = framed("Suspect", false, theme, detail_area, buf);
-        if let Some(item) = state.review_item() {
+        if let Some(e) = review.episode().filter(|e| e.len() > 1) {
+            Paragraph::new(episode_lines(e, state))
+                .wrap(Wrap { trim: true })
+                .render(inner, buf);
+        } else if let Some(item) = state.review_item() {
             Paragraph::new(suspect_lines(item, state))
                 .wrap(Wrap { trim: true })
                 .render(inner, buf);
         }
     }
+}
+
+/// An episode's list text: sensor, time span and number of records, shortened to `room`.
+fn episode_text(e: &ReviewEpisode, room: usize) -> String {
+    let sensor = match e.worst().map(|i| &i.suspect) {
+        Some(Suspect::Record { sensor_id, .. }) => shown(sensor_id).into_owned(),
+        _ => String::new(),
+    };
+    let at = |t: i64, f: &str| {
+        chrono::DateTime::from_timestamp(t, 0)
+            .map(|t| t.format(f).to_string())
+            .unwrap_or_default()
+    };
+    let n = e.len();
+    let Some((from, to)) = e.span() else {
+        return format!("{sensor} ×{n}");
+    };
+    let span = if at(from, "%F") == at(to, "%F") {
+        format!("{} {}–{}h", at(from, "%m-%d"), at(from, "%H"), at(to, "%H"))
+    } else {
+        format!("{}h–{}h", at(from, "%m-%d %H"), at(to, "%d %H"))
+    };
+    let full = format!("{sensor} {span} ×{n}");
+    if full.chars().count() <= room {
+        full
+    } else {
+        format!("{sensor} {} ×{n}", at(from, "%m-%d"))
+    }
+}
+
+/// The suspect box of an episode: sensor, count, span, worst value and score, the worst
+/// record's reason and the keys.
+fn episode_lines(e: &ReviewEpisode, state: &AppState) -> Vec<Line<'static>> {
+    let theme = state.theme;
+    let Some(worst) = e.worst() else {
+        return Vec::new();
+    };
+    let [what, h, theta] = columns(worst, state, usize::MAX);
+    let value = if h.is_empty() {
+        format!("θ {theta}")
+    } else {
+        format!("h {h} {}", state.units.symbol())
+    };
+    let score = worst.score.map_or_else(|| "–".to_string(), |s| num(s, 3));
+    let head = what.split(' ').take(2).collect::<Vec<_>>().join(" ");
+    let span = e
+        .span()
+        .map(|(a, b)| format!(" · {} to {}", time_text(a), time_text(b)))
+        .unwrap_or_default();
+    vec![
+        Line::from(vec![
+            Span::styled(head, theme.heading()),
+            Span::raw(format!(
+                " · {} records{span} · worst {value} · score {score}",
+                e.len()
+            )),
+        ]),
+        Line::from(shown(&worst.reason).into_owned()),
+        Line::from(Span::styled(
+            format!(
+                "a accepts all {n} · d dismisses all {n} · Enter opens them one by one",
+                n = e.len()
+            ),
+            theme.dim(),
+        )),
+    ]
 }
 
 /// A suspect's list columns: what it is, its suction and its water content.

@@ -438,10 +438,16 @@ impl Widget for SeriesScreen<'_> {
         let series = &state.series;
         let title = match (&series.data, series.current()) {
             (Some(d), Some(s)) => format!(
-                "Series · {} · {} cm · {} · ←→ +- w",
+                "Series · {} · {} cm · {} · {}",
                 s.site,
                 num(s.depth_cm, 4),
-                window_text(d.window)
+                window_text(d.window),
+                // A newer window is on its way: say so over the one still shown.
+                if series.wanted.as_ref() == Some(&d.request) {
+                    "←→ +- w"
+                } else {
+                    "loading…"
+                }
             ),
             _ => "Series".to_string(),
         };
