@@ -78,6 +78,7 @@ impl Command {
                     import::ImportCommand::Sites(_) => "sites",
                     import::ImportCommand::Layers(_) => "layers",
                     import::ImportCommand::Lab(_) => "lab",
+                    import::ImportCommand::Conductivity(_) => "conductivity",
                     import::ImportCommand::Logger(_) => "logger",
                 };
                 return format!("porewise import {kind}");

@@ -17,6 +17,7 @@ use crate::store::{Campaign, StoreError};
 
 mod apply;
 pub mod batch;
+pub mod conductivity;
 pub mod diagnostic;
 mod fields;
 pub mod lab;
@@ -169,18 +170,32 @@ pub struct ImportCounts {
     pub samples_updated: u64,
     /// New readings.
     pub readings_added: u64,
+    /// New measured conductivity readings.
+    pub conductivity_added: u64,
+    /// Samples that got a measured Ks.
+    pub ks_added: u64,
 }
 
 impl fmt::Display for ImportSummary {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         let c = &self.counts;
-        let added = format!(
+        let mut added = format!(
             "{}, {}, {}, {}",
             plural(c.sites_added, "site"),
             plural(c.layers_added, "layer"),
             plural(c.samples_added, "sample"),
             plural(c.readings_added, "reading")
         );
+        if self.kind == ImportKind::Conductivity {
+            added = format!(
+                "{}, {}, {}, {}, {}",
+                plural(c.sites_added, "site"),
+                plural(c.layers_added, "layer"),
+                plural(c.samples_added, "sample"),
+                plural(c.conductivity_added, "conductivity reading"),
+                plural(c.ks_added, "Ks value")
+            );
+        }
         let files = plural(self.files.len() as u64, "file");
         if self.dry_run {
             write!(f, "dry run: {files} valid; would add {added}")?;
@@ -231,6 +246,7 @@ fn read_batch(kind: ImportKind, sources: &[Source], diags: &mut Diagnostics) -> 
     let mut sites_reader = sites::SitesReader::default();
     let mut layers_reader = layers::LayersReader::default();
     let mut lab_reader = lab::LabReader::default();
+    let mut k_reader = conductivity::ConductivityReader::default();
     for (index, source) in sources.iter().enumerate() {
         batch
             .files
@@ -246,6 +262,7 @@ fn read_batch(kind: ImportKind, sources: &[Source], diags: &mut Diagnostics) -> 
             ImportKind::Sites => sites_reader.read(index, table, &mut batch, diags),
             ImportKind::Layers => layers_reader.read(index, table, &mut batch, diags),
             ImportKind::Lab => lab_reader.read(index, table, &mut batch, diags),
+            ImportKind::Conductivity => k_reader.read(index, table, &mut batch, diags),
         }
     }
     batch
@@ -307,14 +324,18 @@ pub fn import_sources(
         }
     }
     let plan = apply::resolve(&tx, &batch, drafts, options.allow_overlap, &mut diags)?;
+    let k_plan = conductivity::resolve(&tx, &batch, &mut diags)?;
     if !diags.is_empty() {
         return Err(ImportError::Invalid(diags));
     }
-    let counts = plan.counts();
+    let mut counts = plan.counts();
+    counts.conductivity_added = batch.conductivity.readings.len() as u64;
+    counts.ks_added = k_plan.ks_count();
     let batch_ids = if options.dry_run {
         Vec::new()
     } else {
         let ids = apply::write(&tx, &batch, plan, options.force)?;
+        conductivity::write(&tx, &batch, &k_plan, &ids)?;
         tx.commit().map_err(StoreError::from)?;
         ids
     };

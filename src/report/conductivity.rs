@@ -1,0 +1,80 @@
+//! The measured-conductivity listing (`porewise list DB conductivity`).
+
+use std::collections::HashMap;
+
+use super::table::{Cell, Column, Listing};
+use crate::model::units::{ConductivityUnit, SuctionUnit};
+use crate::store::conductivity::{SampleKs, StoredConductivity};
+
+/// One row per measured K: id, sample and layer, where it was measured (suction in `unit` or
+/// water content), K in `k_unit`, the sample's measured Ks and its layer's, method, day,
+/// notes and the `FILE:LINE` it came from. A K(h) listing's CSV imports as a conductivity
+/// file.
+pub fn conductivity_listing<S: std::hash::BuildHasher>(
+    rows: &[StoredConductivity],
+    unit: SuctionUnit,
+    k_unit: ConductivityUnit,
+    ks: &HashMap<i64, SampleKs, S>,
+) -> Listing {
+    let k_name = k_unit.column_name("conductivity");
+    let ks_name = k_unit.column_name("ks");
+    let layer_ks_name = k_unit.column_name("layer_ks");
+    let names = [
+        "reading",
+        "sample",
+        "site",
+        "top_cm",
+        "bottom_cm",
+        unit.column_name(),
+        "theta",
+        k_name.as_str(),
+        ks_name.as_str(),
+        layer_ks_name.as_str(),
+        "method",
+        "measured_on",
+        "notes",
+        "source",
+        "uid",
+    ];
+    let columns = names
+        .iter()
+        .map(|n| {
+            if *n == "uid" {
+                Column::export_only(*n)
+            } else {
+                Column::new(*n)
+            }
+        })
+        .collect();
+    let mut l = Listing::new(columns);
+    let in_unit = |v: Option<f64>| v.map(|v| k_unit.from_cm_per_day(v));
+    for r in rows {
+        let x = &r.reading;
+        let sample_ks = ks.get(&r.sample_id).copied().unwrap_or_default();
+        let suction = match x.at.h_cm() {
+            Some(h) => Cell::Decimal(unit.cm_to_decimal(h), unit.from_cm(h)),
+            None => Cell::Real(None),
+        };
+        l.push(vec![
+            r.id.into(),
+            Cell::text(&x.sample),
+            Cell::text(&r.layer.site),
+            Cell::exact(Some(r.layer.top_cm)),
+            Cell::exact(Some(r.layer.bottom_cm)),
+            suction,
+            Cell::exact(x.at.theta()),
+            Cell::exact(in_unit(Some(x.k_cm_per_day))),
+            Cell::exact(in_unit(sample_ks.sample)),
+            Cell::exact(in_unit(sample_ks.layer)),
+            x.method.clone().into(),
+            x.measured_on.map(|d| d.to_string()).into(),
+            x.notes.clone().into(),
+            r.source_file
+                .as_ref()
+                .map(|f| format!("{f}:{}", x.line))
+                .into(),
+            Cell::text(x.uid.as_str()),
+        ]);
+    }
+    l
+}
