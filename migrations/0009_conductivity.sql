@@ -52,3 +52,10 @@ CREATE TABLE conductivity_reading (
 ) STRICT;
 CREATE INDEX conductivity_reading_sample ON conductivity_reading (sample_id, h_cm, theta);
 CREATE INDEX conductivity_reading_batch ON conductivity_reading (batch_id);
+
+-- A fit made with the sample's measured conductivity (`porewise fit --with-conductivity`):
+-- the whole joint report (Ks, L, the covariance of every parameter, the statistics of each
+-- data set and jointly, the weighting) and the conductivity readings used, as JSON. The row's
+-- own parameters, standard errors, covariance and report are those of the retention
+-- parameters, so everything that reads retention fits reads a joint fit too.
+ALTER TABLE fit ADD COLUMN joint TEXT CHECK (joint IS NULL OR json_valid(joint));

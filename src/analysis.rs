@@ -5,6 +5,7 @@
 pub mod advise;
 pub mod current;
 pub mod fitting;
+pub mod joint;
 pub mod review;
 pub mod water;
 

@@ -8,10 +8,12 @@ use clap::{Parser, Subcommand};
 use crate::error::Outcome;
 
 pub mod advise;
+pub mod current;
 pub mod curve;
 pub mod demo;
 pub mod export;
 pub mod fit;
+pub mod fit_joint;
 pub mod flag;
 pub mod import;
 pub mod init;
@@ -52,6 +54,8 @@ pub enum Command {
     Pair(pair::PairArgs),
     /// Fit retention models to a campaign's samples, or to a plain CSV file with --input.
     Fit(fit::FitArgs),
+    /// Choose which fit of a sample's history is current (retention-only or with conductivity).
+    Current(current::CurrentArgs),
     /// Tabulate a retention curve for given parameters.
     Curve(curve::CurveArgs),
     /// Write the campaign summary: parameter and profile tables, JSON, GeoJSON, HTML report.
@@ -94,6 +98,7 @@ impl Command {
             Command::Flag(_) => "flag",
             Command::Unflag(_) => "unflag",
             Command::Advise(_) => "advise",
+            Command::Current(_) => "current",
         };
         format!("porewise {word}")
     }
@@ -120,5 +125,6 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Flag(args) => flag::run(&args),
         Command::Unflag(args) => unflag::run(&args),
         Command::Advise(args) => advise::run(&args),
+        Command::Current(args) => current::run(&args),
     }
 }

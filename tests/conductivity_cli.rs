@@ -207,3 +207,168 @@ fn a_dry_run_writes_nothing() {
     assert_eq!(s.count("conductivity_reading"), 0);
     assert_eq!(s.count("sample"), 0);
 }
+
+/// Run porewise with `args` from the fixture directory; the campaign path goes where `DB` is.
+fn run(s: &Scratch, args: &[&str]) -> assert_cmd::assert::Assert {
+    let db = s.db.display().to_string();
+    let args: Vec<String> = args
+        .iter()
+        .map(|a| {
+            if *a == "DB" {
+                db.clone()
+            } else {
+                (*a).to_string()
+            }
+        })
+        .collect();
+    common::porewise().args(&args).assert()
+}
+
+#[test]
+fn a_joint_fit_is_recorded_beside_the_retention_fit_and_either_can_be_current() {
+    let s = Scratch::new();
+    s.import_ok("lab", &["valid/lab_kpa.csv"]);
+    s.import_ok("conductivity", &["valid/conductivity_lv_a1.csv"]);
+    run(
+        &s,
+        &["fit", "DB", "--sample", "LV-A1", "--model", "van-genuchten"],
+    )
+    .success();
+    let out = run(
+        &s,
+        &["fit", "DB", "--sample", "LV-A1", "--with-conductivity"],
+    )
+    .success();
+    assert!(
+        stdout(&out).contains("fitted 1 sample with van-genuchten+conductivity; 0 failed"),
+        "{}",
+        stdout(&out)
+    );
+    let history = s.list(&["fits", "--sample", "LV-A1", "--all", "--format", "csv"]);
+    let lines: Vec<&str> = history.lines().collect();
+    assert_eq!(lines.len(), 3, "{history}");
+    assert!(
+        lines[1].starts_with("1,LV-A1,van-genuchten,van-genuchten,ok,,"),
+        "{history}"
+    );
+    assert!(
+        lines[2].starts_with("2,LV-A1,van-genuchten,van-genuchten+conductivity,ok,yes,"),
+        "{history}"
+    );
+    // Ks and L with their errors, both SSEs and the weighting.
+    let joint = s.list(&["conductivity-fits", "--format", "json"]);
+    let rows: serde_json::Value = serde_json::from_str(&joint).expect("json");
+    let row = &rows[0];
+    assert_eq!(row["fit"], 2);
+    assert_eq!(row["conductivity_model"], "mualem-van-genuchten");
+    assert_eq!(row["weighting"], "estimated");
+    let ks = row["ks_cm_per_day"].as_f64().expect("ks");
+    // The file's K values were made (invented) from Ks 28 cm/day, L -0.4, noise sd 0.08 in
+    // log10 K; the fit finds them within a few standard errors.
+    let ks_se = row["ks_cm_per_day_se"].as_f64().expect("se");
+    assert!((ks - 28.0).abs() < 3.0 * ks_se, "Ks {ks} ± {ks_se}");
+    let l = row["pore_connectivity"].as_f64().expect("L");
+    let l_se = row["pore_connectivity_se"].as_f64().expect("se");
+    assert!((l + 0.4).abs() < 3.0 * l_se, "L {l} ± {l_se}");
+    assert_eq!(row["n_theta"], 6);
+    assert_eq!(row["n_k"], 9);
+    assert!(row["sse_theta"].as_f64().is_some() && row["sse_log10_k"].as_f64().is_some());
+    // The retention-only fit is made current again, then the joint one.
+    let back = run(&s, &["current", "DB", "1"]).success();
+    assert_eq!(
+        stdout(&back).trim(),
+        "fit 1 is now the current fit of sample LV-A1 (was fit 2)"
+    );
+    let joint = s.list(&["conductivity-fits", "--format", "csv"]);
+    assert!(
+        joint
+            .lines()
+            .nth(1)
+            .is_some_and(|l| l.starts_with("2,LV-A1,LV,,")),
+        "{joint}"
+    );
+    run(&s, &["current", "DB", "2"]).success();
+    let missing = run(&s, &["current", "DB", "99"]).code(1);
+    assert!(
+        stderr(&missing).contains("no fit 99"),
+        "{}",
+        stderr(&missing)
+    );
+}
+
+#[test]
+fn joint_fits_refuse_what_they_cannot_do() {
+    let s = Scratch::new();
+    s.import_ok("lab", &["valid/lab_kpa.csv"]);
+    s.import_ok("conductivity", &["valid/conductivity_lv_a1.csv"]);
+    let err = |args: &[&str]| stderr(&run(&s, args).code(1));
+    assert!(
+        err(&["fit", "DB", "--with-conductivity", "--model", "campbell"])
+            .contains("Campbell has no Mualem conductivity form"),
+    );
+    assert!(
+        err(&["fit", "DB", "--with-conductivity", "--model", "auto"]).contains("fits one model")
+    );
+    assert!(
+        err(&["fit", "DB", "--with-conductivity", "--k-weight", "0"])
+            .contains("--k-weight 0: expected a finite number above 0")
+    );
+    assert!(
+        err(&[
+            "fit",
+            "DB",
+            "--with-conductivity",
+            "--fix",
+            "pore_connectivity=40"
+        ])
+        .contains("expected pore_connectivity from -10 to 10")
+    );
+    // A sample without conductivity readings asked for by name: exit 3 and said why.
+    let out = run(
+        &s,
+        &[
+            "fit",
+            "DB",
+            "--with-conductivity",
+            "--sample",
+            "LV-B1",
+            "--sample",
+            "LV-A1",
+        ],
+    )
+    .code(3);
+    assert!(
+        stderr(&out).contains("sample LV-B1: not fitted: it has no conductivity readings"),
+        "{}",
+        stderr(&out)
+    );
+    // Ks held at the measured value, L held, a user weight: all stated in the fit.
+    run(
+        &s,
+        &[
+            "fit",
+            "DB",
+            "--with-conductivity",
+            "--sample",
+            "LV-A1",
+            "--ks",
+            "measured",
+            "--fix",
+            "pore_connectivity=0.5",
+            "--k-weight",
+            "0.001",
+        ],
+    )
+    .success();
+    let joint = s.list(&["conductivity-fits", "--format", "json"]);
+    let rows: serde_json::Value = serde_json::from_str(&joint).expect("json");
+    let last = rows.as_array().and_then(|a| a.last()).expect("a row");
+    assert_eq!(last["ks_cm_per_day"], 31.5);
+    assert_eq!(last["pore_connectivity"], 0.5);
+    assert_eq!(last["weighting"], "user 0.001");
+    assert!(
+        last["notes"]
+            .as_str()
+            .is_some_and(|n| n.contains("Ks held at 31.5"))
+    );
+}

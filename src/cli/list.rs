@@ -13,7 +13,7 @@ use crate::report::Listing;
 use crate::report::campaign::{
     layers_listing, readings_listing_with_flags, samples_listing, sites_listing,
 };
-use crate::report::conductivity::conductivity_listing;
+use crate::report::conductivity::{conductivity_listing, joint_fits_listing};
 use crate::report::fits::{fits_listing, history_listing, pooled_note, profiles_listing};
 use crate::report::review::{events_listing, flags_listing};
 use crate::store::conductivity as store_k;
@@ -45,6 +45,9 @@ pub enum What {
     /// Measured conductivity: K at a suction or a water content, with the sample's and its
     /// layer's measured Ks (unit: --k-units).
     Conductivity,
+    /// Fits made with measured conductivity (history included): Ks and L with their errors,
+    /// the statistics of each data set and jointly, the weighting.
+    ConductivityFits,
 }
 
 /// Output format.
@@ -214,6 +217,7 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
             }
             conductivity_listing(&rows, args.units, args.k_units, &ks)
         }
+        What::ConductivityFits => joint_fits_listing(&store_k::joint_fits(conn, filter)?),
         What::Profiles => {
             let list = profiles(conn, &campaign.settings()?, args.root_zone_cm, filter.site)?;
             note = Some(pooled_note(&list));

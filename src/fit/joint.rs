@@ -23,7 +23,7 @@ use super::config::{Domain, FitOptions};
 use super::driver::{Canonical, Hooks, Readings, fit_curve_with};
 use super::error::FitError;
 use super::models::fit_model;
-use super::report::FitReport;
+use super::report::{FitReport, ParamMatrix};
 use crate::model::conductivity::{ConductivityModel, DEFAULT_PORE_CONNECTIVITY};
 use crate::model::curve::{CurveModel, ParamSpec};
 use crate::model::derived::gradient::conductivity_gradient;
@@ -672,4 +672,71 @@ pub fn fit_joint(data: &JointData<'_>, options: &JointOptions) -> Result<JointRe
         fit: report,
         notes,
     })
+}
+
+impl JointReport {
+    /// The joint fit seen as a retention fit, for everything that reads retention fits
+    /// (derived values and their intervals, bands, listings, the card): the retention
+    /// parameters with their joint standard errors, the covariance restricted to them (the
+    /// marginal covariance), the water-content statistics of the retention set (unweighted,
+    /// m3/m3, with n and k of that set), and the retention readings' diagnostics at their
+    /// suctions.
+    pub fn retention_view(&self, h_cm: &[f64]) -> FitReport {
+        let nr = self.kind.params().len();
+        let mut fit = self.fit.clone();
+        fit.model = self.kind.id().to_string();
+        fit.parameters.truncate(nr);
+        let names: Vec<String> = fit.parameters.iter().map(|p| p.name.clone()).collect();
+        let restrict = |m: &ParamMatrix| {
+            let keep: Vec<usize> = m
+                .names
+                .iter()
+                .enumerate()
+                .filter(|(_, n)| names.contains(n))
+                .map(|(i, _)| i)
+                .collect();
+            ParamMatrix {
+                names: keep.iter().map(|&i| m.names[i].clone()).collect(),
+                rows: keep
+                    .iter()
+                    .map(|&i| keep.iter().map(|&j| m.rows[i][j]).collect())
+                    .collect(),
+            }
+        };
+        fit.covariance = fit.covariance.as_ref().map(restrict);
+        fit.correlation = fit.correlation.as_ref().map(restrict);
+        let n = self.retention.n;
+        let k = fit
+            .parameters
+            .iter()
+            .filter(|p| !p.fixed && p.at_bound.is_none())
+            .count();
+        fit.n_points = n;
+        fit.n_free_params = k;
+        fit.sse = self.retention.sse;
+        fit.rmse = self.retention.rmse;
+        fit.residual_sd = (n > k).then(|| (self.retention.sse / (n - k) as f64).sqrt());
+        fit.r2 = self.retention.r2;
+        let (aic, aicc, bic) = super::stats::information_criteria(n, k, fit.sse);
+        fit.aic = aic;
+        fit.aicc = aicc;
+        fit.bic = bic;
+        fit.n_criteria_params = super::stats::criteria_parameters(k);
+        fit.readings.truncate(n);
+        for (r, &h) in fit.readings.iter_mut().zip(h_cm) {
+            r.x = h;
+        }
+        let mut notes = vec![format!(
+            "fitted with {} measured conductivit{} ({})",
+            self.conductivity.n,
+            if self.conductivity.n == 1 { "y" } else { "ies" },
+            self.conductivity_model.display_name()
+        )];
+        notes.extend(self.notes.iter().cloned());
+        if let Some(m) = &self.fit.message {
+            notes.push(m.clone());
+        }
+        fit.message = Some(notes.join("; "));
+        fit
+    }
 }

@@ -78,3 +78,74 @@ pub fn conductivity_listing<S: std::hash::BuildHasher>(
     }
     l
 }
+
+/// One row per fit made with measured conductivity (current or in the history): the model
+/// and conductivity model, Ks and L with their standard errors, each set's n, SSE, RMSE and
+/// R2 (water content in m3/m3, conductivity in log10 of cm/day), the joint s and AICc, the
+/// weighting and its noise estimates, and the fit's notes.
+pub fn joint_fits_listing(rows: &[crate::store::conductivity::JointRow]) -> Listing {
+    let names = [
+        "fit",
+        "sample",
+        "site",
+        "current",
+        "model",
+        "conductivity_model",
+        "ks_cm_per_day",
+        "ks_cm_per_day_se",
+        "pore_connectivity",
+        "pore_connectivity_se",
+        "n_theta",
+        "sse_theta",
+        "rmse_theta_m3_m3",
+        "r2_theta",
+        "n_k",
+        "sse_log10_k",
+        "rmse_log10_k",
+        "r2_log10_k",
+        "joint_s",
+        "joint_aicc",
+        "weighting",
+        "sigma_theta_m3_m3",
+        "sigma_log10_k",
+        "notes",
+    ];
+    let mut l = Listing::new(names.iter().map(|n| Column::new(*n)).collect());
+    for row in rows {
+        let r = &row.record.report;
+        let nr = r.kind.params().len();
+        let ks = &r.fit.parameters[nr];
+        let lp = &r.fit.parameters[nr + 1];
+        let weighting = match r.weighting {
+            crate::fit::joint::Weighting::Estimated => "estimated".to_string(),
+            crate::fit::joint::Weighting::User { weight } => format!("user {weight}"),
+        };
+        l.push(vec![
+            row.fit_id.into(),
+            Cell::text(&row.sample),
+            Cell::text(&row.site),
+            Cell::text(if row.current { "yes" } else { "" }),
+            Cell::text(r.kind.id()),
+            Cell::text(r.conductivity_model.id()),
+            Cell::exact(Some(ks.value)),
+            Cell::exact(ks.se),
+            Cell::exact(Some(lp.value)),
+            Cell::exact(lp.se),
+            (r.retention.n as u64).into(),
+            Cell::exact(Some(r.retention.sse)),
+            Cell::exact(Some(r.retention.rmse)),
+            Cell::exact(r.retention.r2),
+            (r.conductivity.n as u64).into(),
+            Cell::exact(Some(r.conductivity.sse)),
+            Cell::exact(Some(r.conductivity.rmse)),
+            Cell::exact(r.conductivity.r2),
+            Cell::exact(r.fit.residual_sd),
+            Cell::exact(r.fit.aicc),
+            Cell::text(weighting),
+            Cell::exact(r.retention.sigma),
+            Cell::exact(r.conductivity.sigma),
+            Cell::text(r.notes.join("; ")),
+        ]);
+    }
+    l
+}

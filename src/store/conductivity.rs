@@ -2,7 +2,7 @@
 //! content) and a core's measured Ks, with the file and line each came from.
 
 use chrono::NaiveDate;
-use rusqlite::{Connection, Row, params};
+use rusqlite::{Connection, OptionalExtension, Row, params};
 
 use super::sql_types::{LenientDate, opt_date};
 use super::{Filter, Result};
@@ -221,4 +221,134 @@ pub fn set_sample_ks(
     conn.prepare_cached("UPDATE sample SET ks_cm_per_day = ?2, ks_batch_id = ?3 WHERE id = ?1")?
         .execute(params![id, ks_cm_per_day, batch])?;
     Ok(())
+}
+
+/// What a joint fit row stores besides its retention view: the joint report and the
+/// conductivity readings it used.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct JointRecord {
+    /// The whole joint fit.
+    pub report: crate::fit::joint::JointReport,
+    /// Ids of the conductivity readings used, in the report's order.
+    pub conductivity_reading_ids: Vec<i64>,
+    /// Where a held Ks came from (`sample`, `layer`), when it was the measured one.
+    pub ks_source: Option<String>,
+}
+
+/// Attach a joint record to fit `fit_id` (in the transaction that inserted it).
+///
+/// # Errors
+/// A record that does not encode, or an SQLite error.
+pub fn set_joint(conn: &Connection, fit_id: i64, record: &JointRecord) -> Result<()> {
+    let text = serde_json::to_string(record)
+        .map_err(|e| super::StoreError::Corrupt(format!("cannot encode: {e}")))?;
+    conn.prepare_cached("UPDATE fit SET joint = ?2 WHERE id = ?1")?
+        .execute(params![fit_id, text])?;
+    Ok(())
+}
+
+/// The joint record of fit `fit_id`, if it is a joint fit.
+///
+/// # Errors
+/// A stored record that does not decode, or an SQLite error.
+pub fn joint_of(conn: &Connection, fit_id: i64) -> Result<Option<JointRecord>> {
+    let text: Option<String> = conn
+        .prepare_cached("SELECT joint FROM fit WHERE id = ?1")?
+        .query_row([fit_id], |r| r.get(0))
+        .optional()?
+        .flatten();
+    text.map(|t| {
+        serde_json::from_str(&t).map_err(|e| {
+            super::StoreError::Corrupt(format!("fit {fit_id}: joint report does not decode: {e}"))
+        })
+    })
+    .transpose()
+}
+
+/// Make fit `fit_id` its sample's current fit (a retention-only or a joint fit of its
+/// history); returns the sample's code and the fit that was current before.
+///
+/// # Errors
+/// [`super::StoreError::Refused`] for a fit that does not exist or failed; an SQLite error.
+pub fn make_current(conn: &Connection, fit_id: i64) -> Result<(String, Option<i64>)> {
+    let row: Option<(i64, String, String)> = conn
+        .prepare_cached(
+            "SELECT f.sample_id, f.status, m.code FROM fit f JOIN sample m ON f.sample_id = m.id
+             WHERE f.id = ?1",
+        )?
+        .query_row([fit_id], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))
+        .optional()?;
+    let Some((sample_id, status, code)) = row else {
+        return Err(super::StoreError::Refused(format!(
+            "no fit {fit_id}; `porewise list DB fits --sample CODE --all` lists a sample's fits"
+        )));
+    };
+    if status != "ok" {
+        return Err(super::StoreError::Refused(format!(
+            "fit {fit_id} failed and cannot be current; choose a fit with status ok"
+        )));
+    }
+    let before: Option<i64> = conn
+        .prepare_cached("SELECT id FROM fit WHERE sample_id = ?1 AND is_current = 1")?
+        .query_row([sample_id], |r| r.get(0))
+        .optional()?;
+    conn.prepare_cached("UPDATE fit SET is_current = 0 WHERE sample_id = ?1 AND is_current = 1")?
+        .execute([sample_id])?;
+    conn.prepare_cached("UPDATE fit SET is_current = 1 WHERE id = ?1")?
+        .execute([fit_id])?;
+    Ok((code, before))
+}
+
+/// A stored joint fit, for listings.
+#[derive(Debug, Clone, PartialEq)]
+pub struct JointRow {
+    /// Fit id.
+    pub fit_id: i64,
+    /// Sample code.
+    pub sample: String,
+    /// Site code.
+    pub site: String,
+    /// Whether it is the sample's current fit.
+    pub current: bool,
+    /// The joint record.
+    pub record: JointRecord,
+}
+
+/// Every joint fit of the samples `filter` selects (the history included), by site, sample
+/// and fit id.
+///
+/// # Errors
+/// A stored record that does not decode, or an SQLite error.
+pub fn joint_fits(conn: &Connection, filter: Filter<'_>) -> Result<Vec<JointRow>> {
+    let mut stmt = conn.prepare(
+        "SELECT f.id, m.code, s.code, f.is_current, f.joint FROM fit f
+         JOIN sample m ON f.sample_id = m.id JOIN layer l ON m.layer_id = l.id
+         JOIN site s ON l.site_id = s.id
+         WHERE f.joint IS NOT NULL AND (?1 IS NULL OR s.code = ?1) AND (?2 IS NULL OR m.code = ?2)
+         ORDER BY s.code, l.top_cm, l.bottom_cm, m.code, f.id",
+    )?;
+    let rows = stmt.query_map(params![filter.site, filter.sample], |r| {
+        Ok((
+            r.get::<_, i64>(0)?,
+            r.get::<_, String>(1)?,
+            r.get::<_, String>(2)?,
+            r.get::<_, bool>(3)?,
+            r.get::<_, String>(4)?,
+        ))
+    })?;
+    let mut out = Vec::new();
+    for row in rows {
+        let (fit_id, sample, site, current, text) = row?;
+        let record = serde_json::from_str(&text).map_err(|e| {
+            super::StoreError::Corrupt(format!("fit {fit_id}: joint report does not decode: {e}"))
+        })?;
+        out.push(JointRow {
+            fit_id,
+            sample,
+            site,
+            current,
+            record,
+        });
+    }
+    Ok(out)
 }
