@@ -372,3 +372,66 @@ fn joint_fits_refuse_what_they_cannot_do() {
             .is_some_and(|n| n.contains("Ks held at 31.5"))
     );
 }
+
+#[test]
+fn the_export_carries_conductivity_readings_and_the_joint_fit() {
+    let s = Scratch::new();
+    s.import_ok("lab", &["valid/lab_kpa.csv"]);
+    s.import_ok("conductivity", &["valid/conductivity_lv_a1.csv"]);
+    run(
+        &s,
+        &["fit", "DB", "--sample", "LV-A1", "--with-conductivity"],
+    )
+    .success();
+    let out = s.dir.path().join("out");
+    let out_text = out.display().to_string();
+    run(&s, &["export", "DB", "--to", &out_text]).success();
+    let json: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(out.join("campaign.json")).expect("campaign.json"),
+    )
+    .expect("json");
+    assert_eq!(json["schema_version"], 4);
+    let sample = &json["data"]["sites"][0]["layers"][0]["samples"][0];
+    assert_eq!(sample["code"], "LV-A1");
+    assert_eq!(sample["ks_cm_per_day"], 31.5);
+    let k = sample["conductivity_readings"]
+        .as_array()
+        .expect("readings");
+    assert_eq!(k.len(), 9);
+    assert_eq!(k[0]["suction_cm"], 4.0);
+    assert_eq!(k[0]["k_cm_per_day"], 15.9);
+    assert_eq!(k[0]["used_in_fit"], true);
+    assert_eq!(
+        k[0]["provenance"]["file_name"],
+        "valid/conductivity_lv_a1.csv"
+    );
+    let joint = &sample["fit"]["joint"];
+    assert_eq!(joint["conductivity_model"], "mualem-van-genuchten");
+    assert!(
+        joint["ks_cm_per_day"]["se"]
+            .as_f64()
+            .is_some_and(|v| v > 0.0)
+    );
+    assert_eq!(
+        joint["covariance"]["names"].as_array().map(Vec::len),
+        Some(6)
+    );
+    // The derived K uses the fitted Ks and L, with an interval over every parameter.
+    let derived = &sample["fit"]["derived"];
+    let ks = joint["ks_cm_per_day"]["value"].as_f64().expect("ks");
+    assert_eq!(derived["ks_cm_per_day"].as_f64(), Some(ks));
+    assert!(
+        derived["intervals"]["k_field_capacity_cm_per_day"]["note"]
+            .as_str()
+            .is_some_and(|n| n.contains("Ks and L included"))
+    );
+    let mut reader = csv::Reader::from_path(out.join("parameters.csv")).expect("csv");
+    let header = reader.headers().expect("header").clone();
+    let row = reader.records().next().expect("LV-A1").expect("record");
+    let at = |name: &str| &row[header.iter().position(|h| h == name).expect(name)];
+    assert_eq!(at("sample"), "LV-A1");
+    assert_eq!(at("fitted_with_conductivity"), "yes");
+    assert_eq!(at("ks_fitted_cm_per_day").parse::<f64>().ok(), Some(ks));
+    assert_eq!(at("n_conductivity"), "9");
+    assert_eq!(at("conductivity_weighting"), "estimated");
+}

@@ -240,3 +240,43 @@ fn fit_one(input: &Input, request: &JointRequest) -> Outcome {
             .map_err(|e| e.to_string()),
     }
 }
+
+/// A joint fit's derived conductivity: K at field capacity and wilting point from the fitted
+/// Ks and L (not the layer's Ks and L = 0.5 that a retention-only fit's K uses), each with
+/// its interval over every parameter of the joint fit.
+pub fn adjust_derived(
+    derived: &mut crate::analysis::water::FitDerived,
+    record: &JointRecord,
+    settings: &crate::store::campaign::CampaignSettings,
+) {
+    use crate::model::units::CM_PER_KPA;
+    let r = &record.report;
+    derived.ks_cm_per_day = Some(r.ks());
+    derived.conductivity_model = Some(r.conductivity_model);
+    let at = |kpa: f64| r.conductivity_interval(kpa * CM_PER_KPA);
+    let (fc, pwp) = (at(settings.fc_kpa), at(settings.pwp_kpa));
+    derived.k_field_capacity_cm_per_day = fc.as_ref().map(|v| v.0);
+    derived.k_wilting_point_cm_per_day = pwp.as_ref().map(|v| v.0);
+    derived.intervals.k_field_capacity_cm_per_day = fc.and_then(|v| v.1);
+    derived.intervals.k_wilting_point_cm_per_day = pwp.and_then(|v| v.1);
+}
+
+/// A current fit's derived values, its conductivity taken from the joint fit when it is one
+/// (see [`adjust_derived`]); unchanged for a retention-only fit.
+///
+/// # Errors
+/// A stored joint record that does not decode, or an SQLite error.
+pub fn with_joint(
+    conn: &rusqlite::Connection,
+    fit: Option<&crate::store::fits::StoredFit>,
+    derived: Option<crate::analysis::water::FitDerived>,
+    settings: &crate::store::campaign::CampaignSettings,
+) -> Result<Option<crate::analysis::water::FitDerived>, StoreError> {
+    let (Some(fit), Some(mut derived)) = (fit, derived) else {
+        return Ok(None);
+    };
+    if let Some(record) = store_k::joint_of(conn, fit.id)? {
+        adjust_derived(&mut derived, &record, settings);
+    }
+    Ok(Some(derived))
+}

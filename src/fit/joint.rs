@@ -740,3 +740,61 @@ impl JointReport {
         fit
     }
 }
+
+impl JointReport {
+    /// K(h), cm/day, with its 95 % delta-method interval over every parameter of the joint
+    /// fit (Ks and L included), formed on the log scale with t(0.975, n - k) of the joint fit.
+    /// The interval is `None` when the fit has no covariance.
+    pub fn conductivity_interval(
+        &self,
+        h_cm: f64,
+    ) -> Option<(f64, Option<super::delta::Interval95>)> {
+        let p = self.retention_values();
+        let (ks, l) = (self.ks(), self.pore_connectivity());
+        let k = self.conductivity_model.conductivity(h_cm, &p, ks, l)?;
+        let Some(cov) = self.fit.covariance.as_ref() else {
+            return Some((k, None));
+        };
+        let mut grad = conductivity_gradient(self.conductivity_model, h_cm, &p, ks, l)?;
+        grad.push(k / ks);
+        let se = self.kind.retention().effective_saturation(h_cm, &p);
+        grad.push(if se > 0.0 { k * se.ln() } else { 0.0 });
+        let names: Vec<&str> = self
+            .fit
+            .parameters
+            .iter()
+            .map(|e| e.name.as_str())
+            .collect();
+        let mut variance = 0.0;
+        for (a, ga) in names.iter().zip(&grad) {
+            for (b, gb) in names.iter().zip(&grad) {
+                if let Some(c) = cov.get(a, b) {
+                    variance += ga * c * gb;
+                }
+            }
+        }
+        if !(variance.is_finite() && variance >= 0.0 && k > 0.0) {
+            return Some((k, None));
+        }
+        let sd = variance.sqrt();
+        let dof = self.fit.n_points.saturating_sub(self.fit.n_free_params);
+        if dof == 0 {
+            return Some((k, None));
+        }
+        let Some(t) = super::stats::t975(dof) else {
+            return Some((k, None));
+        };
+        let half = t * sd / k;
+        Some((
+            k,
+            Some(super::delta::Interval95 {
+                lo95: k * (-half).exp(),
+                hi95: k * half.exp(),
+                se: sd,
+                scale: super::report::IntervalScale::Log,
+                method: super::delta::IntervalMethod::DeltaMethod,
+                note: Some("over every parameter of the joint fit, Ks and L included".to_string()),
+            }),
+        ))
+    }
+}

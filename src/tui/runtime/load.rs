@@ -105,6 +105,7 @@ pub fn sample(
             f.conductivity,
         )
     });
+    let derived = crate::analysis::joint::with_joint(conn, fit.as_ref(), derived, settings)?;
     let advice = match &fit {
         Some(f) if info.kind == SampleKind::LabCore => advise_sample(
             conn,
