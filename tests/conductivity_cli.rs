@@ -435,3 +435,79 @@ fn the_export_carries_conductivity_readings_and_the_joint_fit() {
     assert_eq!(at("n_conductivity"), "9");
     assert_eq!(at("conductivity_weighting"), "estimated");
 }
+
+#[test]
+fn curve_tabulates_k_of_a_joint_fit_from_its_own_ks_and_l() {
+    let s = Scratch::new();
+    s.import_ok("lab", &["valid/lab_kpa.csv"]);
+    s.import_ok("conductivity", &["valid/conductivity_lv_a1.csv"]);
+    run(
+        &s,
+        &["fit", "DB", "--sample", "LV-A1", "--model", "van-genuchten"],
+    )
+    .success();
+    let plain = run(
+        &s,
+        &[
+            "curve",
+            "--from",
+            "DB",
+            "--sample",
+            "LV-A1",
+            "--suction-cm",
+            "100",
+        ],
+    )
+    .success();
+    assert_eq!(
+        stdout(&plain).lines().next(),
+        Some("suction_cm,theta,effective_saturation,capacity_per_cm")
+    );
+    run(
+        &s,
+        &["fit", "DB", "--sample", "LV-A1", "--with-conductivity"],
+    )
+    .success();
+    let joint = s.list(&["conductivity-fits", "--format", "json"]);
+    let rows: serde_json::Value = serde_json::from_str(&joint).expect("json");
+    let ks = rows[0]["ks_cm_per_day"].as_f64().expect("ks");
+    // At h = 0 the curve is saturated: K = Ks exactly.
+    let out = run(
+        &s,
+        &[
+            "curve",
+            "--from",
+            "DB",
+            "--sample",
+            "LV-A1",
+            "--suction-cm",
+            "0,100",
+        ],
+    )
+    .success();
+    let text = stdout(&out);
+    let lines: Vec<&str> = text.lines().collect();
+    assert_eq!(
+        lines[0],
+        "suction_cm,theta,effective_saturation,capacity_per_cm,relative_conductivity,\
+         conductivity_cm_per_day,conductivity_model"
+    );
+    let first: Vec<&str> = lines[1].split(',').collect();
+    assert_eq!(first[4], "1");
+    assert_eq!(first[5].parse::<f64>().ok(), Some(ks));
+    assert_eq!(first[6], "mualem-van-genuchten");
+    let refused = run(
+        &s,
+        &[
+            "curve",
+            "--from",
+            "DB",
+            "--sample",
+            "LV-A1",
+            "--ks-cm-per-day",
+            "10",
+        ],
+    )
+    .code(1);
+    assert!(stderr(&refused).contains("its K uses the fitted Ks and L"));
+}
