@@ -8,6 +8,8 @@
 //! sd 0.1 in log10 K. The measured Ks on the first row differs from the curve's Ks by noise
 //! of sd 0.25 in ln (a falling-head test on the same core). All of it is invented.
 
+use std::fmt::Write as _;
+
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
@@ -76,14 +78,15 @@ pub fn file(cores: &[Core]) -> DemoFile {
                 String::new()
             };
             let notes = if j == 0 { "Ks by falling head" } else { "" };
-            text.push_str(&format!(
-                "{},{:.0},{:.0},{},evaporation,{h:.0},{},{ks_cell},2026-06-{day:02},{notes}\n",
+            let _ = writeln!(
+                text,
+                "{},{:.0},{:.0},{},evaporation,{h:.0},{},{ks_cell},2026-06-{day:02},{notes}",
                 core.site,
                 core.top_cm,
                 core.bottom_cm,
                 core.code,
                 significant3(k),
-            ));
+            );
         }
     }
     DemoFile { name: FILE, text }
