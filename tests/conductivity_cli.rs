@@ -434,6 +434,46 @@ fn the_export_carries_conductivity_readings_and_the_joint_fit() {
     assert_eq!(at("ks_fitted_cm_per_day").parse::<f64>().ok(), Some(ks));
     assert_eq!(at("n_conductivity"), "9");
     assert_eq!(at("conductivity_weighting"), "estimated");
+    // The page draws the site's conductivity beside its retention chart: the 9 measured K,
+    // the joint fit's curve and the core's measured Ks.
+    let html = std::fs::read_to_string(out.join("report.html")).expect("report.html");
+    let start = html
+        .find("aria-label=\"Measured and fitted hydraulic conductivity of site LV\"")
+        .expect("a conductivity chart");
+    let svg = &html[start..start + html[start..].find("</svg>").expect("svg end")];
+    assert!(svg.matches("<circle").count() >= 9, "measured K drawn");
+    assert!(svg.contains("conductivity K, cm/day (log scale)"));
+    assert!(
+        html.contains("bars at the left edge: each core&#39;s measured Ks")
+            || html.contains("bars at the left edge: each core's measured Ks")
+    );
+}
+
+#[test]
+fn a_site_without_conductivity_has_no_conductivity_chart() {
+    let s = Scratch::new();
+    s.import_ok("lab", &["valid/lab_kpa.csv"]);
+    run(
+        &s,
+        &["fit", "DB", "--sample", "LV-A1", "--model", "van-genuchten"],
+    )
+    .success();
+    let out = s.dir.path().join("out");
+    run(
+        &s,
+        &[
+            "export",
+            "DB",
+            "--to",
+            &out.display().to_string(),
+            "--format",
+            "html",
+        ],
+    )
+    .success();
+    let html = std::fs::read_to_string(out.join("report.html")).expect("report.html");
+    assert!(html.contains("Retention curves and readings of site LV"));
+    assert!(!html.contains("hydraulic conductivity of site"));
 }
 
 #[test]
