@@ -107,7 +107,7 @@ fn buffer(s: &Session) -> ratatui::buffer::Buffer {
 }
 
 /// Keys that bring each pane up, from a fresh session.
-const PANES: [(&str, &str); 21] = [
+const PANES: [(&str, &str); 24] = [
     ("start", ""),
     ("site_open", "<enter>"),
     ("layer_summary", "<enter>j"),
@@ -136,6 +136,14 @@ const PANES: [(&str, &str); 21] = [
     ("series_zoomed_later", "/TER1-A-a<enter>G4++l"),
     ("series_no_loggers", "4"),
     ("review_logger_record", "3jjjjj"),
+    // A core fitted with its measured conductivity: the K(h) view and the card with Ks and L.
+    ("conductivity_fitted", "/TER1-Bt-b<enter>Gc"),
+    (
+        "conductivity_card",
+        "/TER1-Bt-b<enter>G<tab><tab><tab>jjjjjjjj",
+    ),
+    // A core without measured K: the prediction from its layer's Ks, in kPa.
+    ("conductivity_predicted_kpa", "/LEV1-Ap-a<enter>Gcu"),
 ];
 
 #[test]

@@ -92,6 +92,8 @@ pub enum Action {
     CycleUnits,
     /// Show or hide the 95 % band.
     ToggleBand,
+    /// Curve pane: water content or conductivity against suction.
+    ToggleConductivity,
     /// Sum the profile's available water 10 cm deeper.
     DeeperRootZone,
     /// Sum it 10 cm shallower.

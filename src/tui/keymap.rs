@@ -354,6 +354,12 @@ impl Default for KeyTable {
                 Some("band"),
             ),
             bind(
+                &[Key::char('c')],
+                Action::ToggleConductivity,
+                "curve pane: θ(h) or K(h) (measured K, the fitted or predicted K curve, Ks)",
+                Some("K(h)"),
+            ),
+            bind(
                 &[Key::char('x')],
                 Action::Export,
                 "export the campaign report",
@@ -716,6 +722,7 @@ mod tests {
             Action::CycleModel,
             Action::CycleUnits,
             Action::ToggleBand,
+            Action::ToggleConductivity,
             Action::DeeperRootZone,
             Action::ShallowerRootZone,
             Action::ToggleFlag,

@@ -821,6 +821,18 @@ fn on_global(state: &mut AppState, action: &Action) -> Option<Vec<Effect>> {
             );
             Vec::new()
         }
+        Action::ToggleConductivity => {
+            state.show_conductivity = !state.show_conductivity;
+            state.say(
+                Tone::Info,
+                if state.show_conductivity {
+                    "curve pane: conductivity K against suction"
+                } else {
+                    "curve pane: water content against suction"
+                },
+            );
+            Vec::new()
+        }
         Action::Export => {
             state.say(Tone::Info, "exporting…");
             vec![Effect::Export]
@@ -1483,6 +1495,11 @@ mod tests {
         assert_eq!(state.units, crate::tui::app::AxisUnit::Pf);
         update(&mut state, Action::ToggleBand);
         assert!(state.band);
+        update(&mut state, Action::ToggleConductivity);
+        assert!(state.show_conductivity);
+        assert!(state.status.text.contains("conductivity K"));
+        update(&mut state, Action::ToggleConductivity);
+        assert!(!state.show_conductivity);
     }
 
     #[test]
