@@ -475,3 +475,34 @@ fn branches_field_samples_and_flagged_records_carry_glyphs_beside_colour() {
     assert_eq!(flagged.fg, Color::Red);
     assert!(flagged.modifier.contains(Modifier::BOLD));
 }
+
+/// `C` refits the selected core with its measured conductivity: a new joint fit becomes
+/// current; a core without measured K is named and keeps its fit.
+#[test]
+fn a_joint_refit_from_the_keyboard() {
+    let copy = demo_copy();
+    let mut s = session(&copy, 100, 30);
+    let joint = "SELECT count(*) FROM fit WHERE joint IS NOT NULL";
+    let before = count(&copy, joint);
+    type_keys(&mut s, "/TER1-Bt-b<enter>GC");
+    assert_eq!(count(&copy, joint), before + 1);
+    let current: i64 = count(
+        &copy,
+        "SELECT count(*) FROM fit f JOIN sample m ON m.id = f.sample_id
+         WHERE m.code = 'TER1-Bt-b' AND f.is_current = 1 AND f.joint IS NOT NULL
+           AND f.requested = 'van-genuchten+conductivity'",
+    );
+    assert_eq!(current, 1);
+    let fits = count(&copy, "SELECT count(*) FROM fit");
+    type_keys(&mut s, "<esc>/LEV1-Ap-a<enter>GC");
+    assert_eq!(
+        count(&copy, "SELECT count(*) FROM fit"),
+        fits,
+        "nothing recorded"
+    );
+    let text = screen(&s, &copy);
+    assert!(
+        text.contains("1 could not be fitted (LEV1-Ap-a: no conductivity"),
+        "{text}"
+    );
+}

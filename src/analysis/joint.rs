@@ -280,3 +280,38 @@ pub fn with_joint(
     }
     Ok(Some(derived))
 }
+
+/// A joint refit asked for from the terminal UI: the selected samples fitted with `kind`,
+/// estimated weights, Ks and L free; samples without conductivity readings are reported as
+/// not fitted (nothing is recorded for them).
+///
+/// # Errors
+/// [`StoreError::Refused`] for a model without a Mualem form; as [`fit_campaign_joint`].
+pub fn refit_joint(
+    campaign: &mut Campaign,
+    selection: &Selection,
+    kind: ModelKind,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<FitRunSummary, StoreError> {
+    if joint_conductivity_model(kind).is_none() {
+        return Err(StoreError::Refused(format!(
+            "{} has no Mualem conductivity form: choose van Genuchten, free m, Brooks-Corey, \
+             Kosugi or Durner with m",
+            kind.display_name()
+        )));
+    }
+    let request = JointRequest {
+        kind,
+        fixed: Vec::new(),
+        ks: KsChoice::Free,
+        weighting: Weighting::Estimated,
+    };
+    let (mut summary, skipped) = fit_campaign_joint(campaign, selection, &request, progress)?;
+    for code in skipped {
+        summary.failed.push((
+            code,
+            "no conductivity readings (porewise import conductivity)".to_string(),
+        ));
+    }
+    Ok(summary)
+}

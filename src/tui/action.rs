@@ -82,6 +82,8 @@ pub enum Action {
     StartFilter,
     /// Refit the selected sample.
     RefitSample,
+    /// Refit the selected sample with its measured conductivity (a joint fit).
+    RefitSampleWithConductivity,
     /// Refit every sample of the selected site.
     RefitSite,
     /// Refit every sample of the campaign.

@@ -330,6 +330,12 @@ impl Default for KeyTable {
                 None,
             ),
             bind(
+                &[Key::char('C')],
+                Action::RefitSampleWithConductivity,
+                "refit the selected sample with its measured conductivity (the model of m; van Genuchten for auto)",
+                None,
+            ),
+            bind(
                 &[Key::ctrl('f')],
                 Action::RefitAll,
                 "refit every sample of the campaign",
@@ -717,6 +723,7 @@ mod tests {
             Action::ToggleHelp,
             Action::StartFilter,
             Action::RefitSample,
+            Action::RefitSampleWithConductivity,
             Action::RefitSite,
             Action::RefitAll,
             Action::CycleModel,

@@ -686,9 +686,15 @@ fn series_pick(state: &AppState) -> Option<SensorPick> {
 }
 
 fn submit_fit(state: &mut AppState, scope: FitScope) -> Vec<Effect> {
+    submit_fit_with(state, scope, false)
+}
+
+/// [`submit_fit`], retention only or with the measured conductivity.
+fn submit_fit_with(state: &mut AppState, scope: FitScope, with_conductivity: bool) -> Vec<Effect> {
     let request = FitRequest {
         scope,
         choice: state.choice,
+        with_conductivity,
     };
     match state.jobs.submit(request.clone()) {
         Submitted::Start(job) => {
@@ -783,6 +789,14 @@ fn on_global(state: &mut AppState, action: &Action) -> Option<Vec<Effect>> {
                 submit_fit(state, FitScope::Sample { id, code, site })
             } else {
                 state.say(Tone::Warning, "select a sample first (F refits a site)");
+                Vec::new()
+            }
+        }
+        Action::RefitSampleWithConductivity => {
+            if let Some((id, code, site)) = target_sample(state) {
+                submit_fit_with(state, FitScope::Sample { id, code, site }, true)
+            } else {
+                state.say(Tone::Warning, "select a sample first");
                 Vec::new()
             }
         }
@@ -1331,6 +1345,7 @@ mod tests {
                 request: FitRequest {
                     scope: FitScope::All,
                     choice: ModelChoice::One(ModelKind::VanGenuchten),
+                    with_conductivity: false,
                 },
             }]
         );
@@ -1500,6 +1515,23 @@ mod tests {
         assert!(state.status.text.contains("conductivity K"));
         update(&mut state, Action::ToggleConductivity);
         assert!(!state.show_conductivity);
+    }
+
+    #[test]
+    fn a_refit_with_conductivity_asks_the_worker_for_a_joint_fit() {
+        let mut state = on_first_sample();
+        let effects = update(&mut state, Action::RefitSampleWithConductivity);
+        let Some(Effect::StartFit { request, .. }) = effects.first().cloned() else {
+            panic!("{effects:?}");
+        };
+        assert!(request.with_conductivity);
+        assert!(matches!(request.scope, FitScope::Sample { id: 1, .. }));
+        assert_eq!(request.joint_kind(), ModelKind::VanGenuchten);
+        assert!(
+            request
+                .to_string()
+                .ends_with("(van-genuchten with conductivity)")
+        );
     }
 
     #[test]
