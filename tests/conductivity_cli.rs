@@ -273,6 +273,7 @@ fn a_joint_fit_is_recorded_beside_the_retention_fit_and_either_can_be_current() 
     assert_eq!(row["n_theta"], 6);
     assert_eq!(row["n_k"], 9);
     assert!(row["sse_theta"].as_f64().is_some() && row["sse_log10_k"].as_f64().is_some());
+    assert_eq!(row["k_readings"], "as fitted");
     // The retention-only fit is made current again, then the joint one.
     let back = run(&s, &["current", "DB", "1"]).success();
     assert_eq!(
@@ -294,6 +295,11 @@ fn a_joint_fit_is_recorded_beside_the_retention_fit_and_either_can_be_current() 
         "{}",
         stderr(&missing)
     );
+    // Another K reading of the sample: the listing says the joint fit no longer has them all.
+    s.import_ok("conductivity", &["valid/conductivity_lv_a1_more.csv"]);
+    let joint = s.list(&["conductivity-fits", "--format", "json"]);
+    let rows: serde_json::Value = serde_json::from_str(&joint).expect("json");
+    assert_eq!(rows[0]["k_readings"], "changed since the fit");
 }
 
 #[test]

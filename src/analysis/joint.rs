@@ -54,6 +54,7 @@ pub fn requested_text(kind: ModelKind) -> String {
 /// One sample's conductivity data, read with its retention input.
 struct Input {
     fit: FitInput,
+    fingerprint: String,
     ids: Vec<i64>,
     k_at: Vec<KPoint>,
     k: Vec<f64>,
@@ -85,6 +86,7 @@ pub fn fit_campaign_joint(
             let rows = store_k::of_sample(&tx, fit.sample.id)?;
             let ks = store_k::ks_of_sample(&tx, fit.sample.id)?;
             out.push(Input {
+                fingerprint: store_k::fingerprint(&rows),
                 ids: rows.iter().map(|r| r.id).collect(),
                 k_at: rows
                     .iter()
@@ -163,6 +165,7 @@ pub fn fit_campaign_joint(
                         report,
                         conductivity_reading_ids: input.ids.clone(),
                         ks_source,
+                        conductivity_fingerprint: Some(input.fingerprint.clone()),
                     },
                 )?;
                 match failure {

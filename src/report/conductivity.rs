@@ -79,7 +79,8 @@ pub fn conductivity_listing<S: std::hash::BuildHasher>(
     l
 }
 
-/// One row per fit made with measured conductivity (current or in the history): the model
+/// One row per fit made with measured conductivity (current or in the history): whether the
+/// sample's conductivity readings are still those it used (`k_readings`), the model
 /// and conductivity model, Ks and L with their standard errors, each set's n, SSE, RMSE and
 /// R2 (water content in m3/m3, conductivity in log10 of cm/day), the joint s and AICc, the
 /// weighting and its noise estimates, and the fit's notes.
@@ -89,6 +90,7 @@ pub fn joint_fits_listing(rows: &[crate::store::conductivity::JointRow]) -> List
         "sample",
         "site",
         "current",
+        "k_readings",
         "model",
         "conductivity_model",
         "ks_cm_per_day",
@@ -125,6 +127,11 @@ pub fn joint_fits_listing(rows: &[crate::store::conductivity::JointRow]) -> List
             Cell::text(&row.sample),
             Cell::text(&row.site),
             Cell::text(if row.current { "yes" } else { "" }),
+            Cell::text(match row.conductivity_unchanged {
+                Some(true) => "as fitted",
+                Some(false) => "changed since the fit",
+                None => "",
+            }),
             Cell::text(r.kind.id()),
             Cell::text(r.conductivity_model.id()),
             Cell::exact(Some(ks.value)),

@@ -233,6 +233,29 @@ pub struct JointRecord {
     pub conductivity_reading_ids: Vec<i64>,
     /// Where a held Ks came from (`sample`, `layer`), when it was the measured one.
     pub ks_source: Option<String>,
+    /// SHA-256 of the conductivity readings used ([`fingerprint`]), to tell when they changed.
+    #[serde(default)]
+    pub conductivity_fingerprint: Option<String>,
+}
+
+/// SHA-256 (hex) of conductivity readings: ids, where measured and K, in id order. Changes
+/// when a reading is added or removed or any value of one changes.
+pub fn fingerprint(readings: &[StoredConductivity]) -> String {
+    use sha2::{Digest, Sha256};
+    let mut sorted: Vec<&StoredConductivity> = readings.iter().collect();
+    sorted.sort_by_key(|r| r.id);
+    let mut hasher = Sha256::new();
+    for r in sorted {
+        hasher.update(r.id.to_le_bytes());
+        let (tag, at) = match r.reading.at {
+            Where::Suction(h) => (0u8, h),
+            Where::Water(t) => (1u8, t),
+        };
+        hasher.update([tag]);
+        hasher.update(at.to_bits().to_le_bytes());
+        hasher.update(r.reading.k_cm_per_day.to_bits().to_le_bytes());
+    }
+    crate::model::number::hex(&hasher.finalize())
 }
 
 /// Attach a joint record to fit `fit_id` (in the transaction that inserted it).
@@ -302,6 +325,9 @@ pub fn make_current(conn: &Connection, fit_id: i64) -> Result<(String, Option<i6
 /// A stored joint fit, for listings.
 #[derive(Debug, Clone, PartialEq)]
 pub struct JointRow {
+    /// Whether the sample's conductivity readings are still those the fit used (`None` for a
+    /// fit recorded without their fingerprint).
+    pub conductivity_unchanged: Option<bool>,
     /// Fit id.
     pub fit_id: i64,
     /// Sample code.
@@ -339,10 +365,18 @@ pub fn joint_fits(conn: &Connection, filter: Filter<'_>) -> Result<Vec<JointRow>
     let mut out = Vec::new();
     for row in rows {
         let (fit_id, sample, site, current, text) = row?;
-        let record = serde_json::from_str(&text).map_err(|e| {
+        let record: JointRecord = serde_json::from_str(&text).map_err(|e| {
             super::StoreError::Corrupt(format!("fit {fit_id}: joint report does not decode: {e}"))
         })?;
+        let sample_id: i64 = conn
+            .prepare_cached("SELECT sample_id FROM fit WHERE id = ?1")?
+            .query_row([fit_id], |r| r.get(0))?;
+        let conductivity_unchanged = match &record.conductivity_fingerprint {
+            Some(f) => Some(*f == fingerprint(&of_sample(conn, sample_id)?)),
+            None => None,
+        };
         out.push(JointRow {
+            conductivity_unchanged,
             fit_id,
             sample,
             site,
