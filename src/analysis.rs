@@ -6,6 +6,7 @@ pub mod advise;
 pub mod current;
 pub mod episodes;
 pub mod fitting;
+pub mod joint;
 pub mod review;
 pub mod texture;
 pub mod water;

@@ -9,10 +9,12 @@ use crate::error::Outcome;
 
 pub mod advise;
 pub mod backup;
+pub mod current;
 pub mod curve;
 pub mod demo;
 pub mod export;
 pub mod fit;
+pub mod fit_joint;
 pub mod flag;
 pub mod import;
 pub mod init;
@@ -56,6 +58,8 @@ pub enum Command {
     Pair(pair::PairArgs),
     /// Fit retention models to a campaign's samples, or to a plain CSV file with --input.
     Fit(fit::FitArgs),
+    /// Choose which fit of a sample's history is current (retention-only or with conductivity).
+    Current(current::CurrentArgs),
     /// Tabulate a retention curve for given parameters.
     Curve(curve::CurveArgs),
     /// Write the campaign summary: parameter and profile tables, JSON, GeoJSON, HTML report.
@@ -88,6 +92,7 @@ impl Command {
                     import::ImportCommand::Sites(_) => "sites",
                     import::ImportCommand::Layers(_) => "layers",
                     import::ImportCommand::Lab(_) => "lab",
+                    import::ImportCommand::Conductivity(_) => "conductivity",
                     import::ImportCommand::Logger(_) => "logger",
                 };
                 return format!("porewise import {kind}");
@@ -106,6 +111,7 @@ impl Command {
             Command::Backup(_) => "backup",
             Command::Completions(_) => "completions",
             Command::Manual(_) => "manual",
+            Command::Current(_) => "current",
         };
         format!("porewise {word}")
     }
@@ -135,5 +141,6 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Backup(args) => backup::run(&args),
         Command::Completions(args) => shell::completions(&args),
         Command::Manual(args) => shell::manual(&args),
+        Command::Current(args) => current::run(&args),
     }
 }

@@ -10,6 +10,7 @@
 //! The files are committed in `demo-db/`; a test checks that they equal what this generator
 //! writes, so they cannot drift. Nothing here is real: names, places and values are invented.
 
+pub mod conductivity;
 pub mod logger;
 
 use rand::{Rng, SeedableRng};
@@ -389,6 +390,9 @@ pub fn generate() -> Vec<DemoFile> {
         b',',
         "site,top_cm,bottom_cm,sample,method,pf,water_g_per_g,bulk_density_g_cm3,measured_on",
     );
+    // The true curves of the cores that get conductivity data (drawn above as for every core;
+    // the conductivity file has its own generator, so the other files do not change).
+    let mut k_cores = Vec::new();
 
     // Metres to degrees near the equator (WGS 84 mean radius, common practice).
     let deg_per_m = 1.0 / 111_195.0;
@@ -428,6 +432,19 @@ pub fn generate() -> Vec<DemoFile> {
                 let alpha = tex.alpha * (0.15 * unit.sample(&mut rng)).exp();
                 let n = 1.0 + (tex.n - 1.0) * (0.08 * unit.sample(&mut rng)).exp();
                 let noise = rng.random_range(0.004..0.008);
+                if site.code == conductivity::SITE {
+                    k_cores.push(conductivity::Core {
+                        site: site.code,
+                        top_cm: top,
+                        bottom_cm: bottom,
+                        code: code.clone(),
+                        theta_r,
+                        theta_s,
+                        alpha,
+                        n,
+                        layer_ks: ks,
+                    });
+                }
                 // The core's own porosity varies about the layer's, but never below its theta_s.
                 let core_porosity = (porosity + 0.008 * unit.sample(&mut rng)).max(theta_s + 0.015);
                 let core_density = PARTICLE_DENSITY_G_CM3 * (1.0 - core_porosity);
@@ -505,6 +522,7 @@ pub fn generate() -> Vec<DemoFile> {
         lab_a.finish("lab-a-levee-terrace.csv"),
         lab_b.finish("lab-b-backswamp.csv"),
         lab_c.finish("lab-c-basin.csv"),
+        conductivity::file(&k_cores),
         logger::file(),
     ]
 }

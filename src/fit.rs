@@ -10,6 +10,7 @@ pub mod delta;
 pub mod design;
 mod driver;
 mod error;
+pub mod joint;
 mod models;
 pub mod outliers;
 pub mod pooling;

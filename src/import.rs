@@ -17,6 +17,7 @@ use crate::store::{Campaign, StoreError};
 
 mod apply;
 pub mod batch;
+pub mod conductivity;
 pub mod diagnostic;
 mod fields;
 pub mod lab;
@@ -181,18 +182,32 @@ pub struct ImportCounts {
     pub samples_updated: u64,
     /// New readings.
     pub readings_added: u64,
+    /// New measured conductivity readings.
+    pub conductivity_added: u64,
+    /// Samples that got a measured Ks.
+    pub ks_added: u64,
 }
 
 impl fmt::Display for ImportSummary {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         let c = &self.counts;
-        let added = format!(
+        let mut added = format!(
             "{}, {}, {}, {}",
             plural(c.sites_added, "site"),
             plural(c.layers_added, "layer"),
             plural(c.samples_added, "sample"),
             plural(c.readings_added, "reading")
         );
+        if self.kind == ImportKind::Conductivity {
+            added = format!(
+                "{}, {}, {}, {}, {}",
+                plural(c.sites_added, "site"),
+                plural(c.layers_added, "layer"),
+                plural(c.samples_added, "sample"),
+                plural(c.conductivity_added, "conductivity reading"),
+                plural(c.ks_added, "Ks value")
+            );
+        }
         let files = plural(self.files.len() as u64, "file");
         if self.dry_run {
             write!(f, "dry run: {files} valid; would add {added}")?;
@@ -245,7 +260,9 @@ pub fn header_columns(kind: ImportKind) -> &'static [&'static str] {
     match kind {
         ImportKind::Sites => &["site", "name", "latitude", "longitude"],
         ImportKind::Layers => &["site", "top_cm", "bottom_cm"],
-        ImportKind::Lab => &["site", "top_cm", "bottom_cm", "sample", "method"],
+        ImportKind::Lab | ImportKind::Conductivity => {
+            &["site", "top_cm", "bottom_cm", "sample", "method"]
+        }
     }
 }
 
@@ -259,6 +276,7 @@ fn read_batch(
     let mut sites_reader = sites::SitesReader::default();
     let mut layers_reader = layers::LayersReader::default();
     let mut lab_reader = lab::LabReader::default();
+    let mut k_reader = conductivity::ConductivityReader::default();
     for (index, source) in sources.iter().enumerate() {
         if workbook::is_workbook(&source.name) {
             let opened =
@@ -281,6 +299,7 @@ fn read_batch(
                 ImportKind::Sites => sites_reader.read(index, table, &mut batch, diags),
                 ImportKind::Layers => layers_reader.read(index, table, &mut batch, diags),
                 ImportKind::Lab => lab_reader.read(index, table, &mut batch, diags),
+                ImportKind::Conductivity => k_reader.read(index, table, &mut batch, diags),
             }
             continue;
         }
@@ -298,6 +317,7 @@ fn read_batch(
             ImportKind::Sites => sites_reader.read(index, table, &mut batch, diags),
             ImportKind::Layers => layers_reader.read(index, table, &mut batch, diags),
             ImportKind::Lab => lab_reader.read(index, table, &mut batch, diags),
+            ImportKind::Conductivity => k_reader.read(index, table, &mut batch, diags),
         }
     }
     batch
@@ -388,15 +408,19 @@ pub fn import_sources_from(
         }
     }
     let plan = apply::resolve(&tx, &batch, drafts, options.allow_overlap, &mut diags)?;
+    let k_plan = conductivity::resolve(&tx, &batch, &mut diags)?;
     batch.relocate(&mut diags);
     if !diags.is_empty() {
         return Err(ImportError::Invalid(diags));
     }
-    let counts = plan.counts();
+    let mut counts = plan.counts();
+    counts.conductivity_added = batch.conductivity.readings.len() as u64;
+    counts.ks_added = k_plan.ks_count();
     let batch_ids = if options.dry_run {
         Vec::new()
     } else {
         let ids = apply::write(&tx, &batch, plan, options.force)?;
+        conductivity::write(&tx, &batch, &k_plan, &ids)?;
         tx.commit().map_err(StoreError::from)?;
         ids
     };

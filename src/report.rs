@@ -2,6 +2,7 @@
 
 pub mod advice;
 pub mod campaign;
+pub mod conductivity;
 pub mod csv_safe;
 pub mod curve_table;
 pub mod export;

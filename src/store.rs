@@ -10,6 +10,7 @@ use std::path::PathBuf;
 pub mod backup;
 pub mod batches;
 pub mod campaign;
+pub mod conductivity;
 pub mod db;
 pub mod fits;
 pub mod flags;

@@ -133,3 +133,39 @@ fn demo_builds_from_scratch_and_a_second_run_reuses_it() {
     let stderr = String::from_utf8_lossy(&second.get_output().stderr).into_owned();
     assert!(!stderr.contains("building"), "second run rebuilt: {stderr}");
 }
+
+#[test]
+fn the_terrace_cores_are_fitted_with_their_measured_conductivity() {
+    let tmp = fresh_demo_dir();
+    assert_cmd::Command::cargo_bin("porewise")
+        .expect("binary")
+        .args(["demo", "--no-ui", "--dir"])
+        .arg(tmp.path())
+        .assert()
+        .success();
+    let campaign = porewise::store::Campaign::open(&tmp.path().join("demo.sqlite")).expect("opens");
+    let conn = campaign.connection();
+    let rows = porewise::store::conductivity::joint_fits(conn, porewise::store::Filter::default())
+        .expect("joint fits");
+    // Six TER1 cores, each with its joint fit current and its K readings all used.
+    assert_eq!(rows.len(), 6);
+    for row in &rows {
+        assert_eq!(row.site, "TER1");
+        assert!(row.current, "{}", row.sample);
+        let r = &row.record.report;
+        assert!(r.fit.converged, "{}: {:?}", row.sample, r.fit.message);
+        assert!((7..=10).contains(&r.conductivity.n), "{}", row.sample);
+        assert_eq!(row.record.conductivity_reading_ids.len(), r.conductivity.n);
+    }
+    let k_rows = porewise::demo::generate()
+        .iter()
+        .find(|f| f.name == porewise::demo::conductivity::FILE)
+        .map(|f| f.text.lines().count() - 1)
+        .expect("conductivity file");
+    let stored: i64 = conn
+        .query_row("SELECT count(*) FROM conductivity_reading", [], |r| {
+            r.get(0)
+        })
+        .expect("count");
+    assert_eq!(stored as usize, k_rows);
+}

@@ -107,7 +107,7 @@ fn buffer(s: &Session) -> ratatui::buffer::Buffer {
 }
 
 /// Keys that bring each pane up, from a fresh session.
-const PANES: [(&str, &str); 24] = [
+const PANES: [(&str, &str); 27] = [
     ("start", ""),
     ("site_open", "<enter>"),
     ("layer_summary", "<enter>j"),
@@ -145,6 +145,14 @@ const PANES: [(&str, &str); 24] = [
     // The same with the key that fills it from texture, marked ≈.
     ("depth_texture_filled", "/BAS1<enter>G2e"),
     ("review_logger_record", "3jjjjj"),
+    // A core fitted with its measured conductivity: the K(h) view and the card with Ks and L.
+    ("conductivity_fitted", "/TER1-Bt-b<enter>Gc"),
+    (
+        "conductivity_card",
+        "/TER1-Bt-b<enter>G<tab><tab><tab>jjjjjjjj",
+    ),
+    // A core without measured K: the prediction from its layer's Ks, in kPa.
+    ("conductivity_predicted_kpa", "/LEV1-Ap-a<enter>Gcu"),
 ];
 
 #[test]
@@ -510,4 +518,35 @@ fn slow_queries_load_on_the_worker_and_the_newest_request_wins() {
     assert!(s.wait_for_loads(Duration::from_secs(60)), "loads finish");
     assert!(s.state.review.loaded && !s.state.review.items.is_empty());
     assert!(!screen(&s, &copy).contains("loading…"));
+}
+
+/// `C` refits the selected core with its measured conductivity: a new joint fit becomes
+/// current; a core without measured K is named and keeps its fit.
+#[test]
+fn a_joint_refit_from_the_keyboard() {
+    let copy = demo_copy();
+    let mut s = session(&copy, 100, 30);
+    let joint = "SELECT count(*) FROM fit WHERE joint IS NOT NULL";
+    let before = count(&copy, joint);
+    type_keys(&mut s, "/TER1-Bt-b<enter>GC");
+    assert_eq!(count(&copy, joint), before + 1);
+    let current: i64 = count(
+        &copy,
+        "SELECT count(*) FROM fit f JOIN sample m ON m.id = f.sample_id
+         WHERE m.code = 'TER1-Bt-b' AND f.is_current = 1 AND f.joint IS NOT NULL
+           AND f.requested = 'van-genuchten+conductivity'",
+    );
+    assert_eq!(current, 1);
+    let fits = count(&copy, "SELECT count(*) FROM fit");
+    type_keys(&mut s, "<esc>/LEV1-Ap-a<enter>GC");
+    assert_eq!(
+        count(&copy, "SELECT count(*) FROM fit"),
+        fits,
+        "nothing recorded"
+    );
+    let text = screen(&s, &copy);
+    assert!(
+        text.contains("1 could not be fitted (LEV1-Ap-a: no conductivity"),
+        "{text}"
+    );
 }

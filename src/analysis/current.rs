@@ -66,6 +66,7 @@ pub fn sample_fits_with(
                 conductivity.or(f.conductivity),
             )
         });
+        let derived = super::joint::with_joint(conn, fit.as_ref(), derived, settings)?;
         out.push(SampleFit {
             sample,
             state,

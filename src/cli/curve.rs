@@ -40,9 +40,21 @@ fn after_help() -> String {
 #[derive(Debug, Args)]
 #[command(after_help = after_help())]
 pub struct CurveArgs {
-    /// Retention model identifier (see the list below).
-    #[arg(long, value_name = "NAME")]
-    pub model: String,
+    /// Retention model identifier (see the list below); not with --from.
+    #[arg(
+        long,
+        value_name = "NAME",
+        required_unless_present = "from",
+        conflicts_with = "from"
+    )]
+    pub model: Option<String>,
+    /// Tabulate the current fit of --sample in this campaign file instead of --model/--set; a
+    /// fit made with measured conductivity adds K from its fitted Ks and L.
+    #[arg(long, value_name = "DB", requires = "sample", conflicts_with = "set")]
+    pub from: Option<std::path::PathBuf>,
+    /// With --from: the sample whose current fit is tabulated.
+    #[arg(long, value_name = "CODE", requires = "from")]
+    pub sample: Option<String>,
 
     /// Parameter values as NAME=VALUE, comma-separated or repeated; every parameter is needed.
     #[arg(long = "set", value_name = "NAME=VALUE,...", value_delimiter = ',')]
@@ -96,7 +108,10 @@ fn parse_form(s: &str) -> Result<ConductivityForm, String> {
 /// An unknown model, a missing, unknown, repeated or out-of-bounds parameter, a bad suction,
 /// Ks or L, or a failure to write stdout.
 pub fn run(args: &CurveArgs) -> anyhow::Result<Outcome> {
-    let kind: ModelKind = args.model.parse()?;
+    if let (Some(db), Some(code)) = (&args.from, &args.sample) {
+        return run_from(args, db, code);
+    }
+    let kind: ModelKind = args.model.as_deref().unwrap_or_default().parse()?;
     let pairs = args
         .set
         .iter()
@@ -114,6 +129,60 @@ pub fn run(args: &CurveArgs) -> anyhow::Result<Outcome> {
         .ks_cm_per_day
         .map(|ks| ConductivitySpec::new(kind, ks, args.pore_connectivity, args.conductivity))
         .transpose()?;
+    let rows = curve_rows(&curve, &suctions, spec);
+    write_curve_csv(io::stdout().lock(), &rows, spec.map(|s| s.model))
+        .context("writing the table")?;
+    Ok(Outcome::Success)
+}
+
+/// `curve --from DB --sample CODE`: the sample's current fit; K from a joint fit's own Ks and
+/// L (Ks and L options are refused there), or from --ks-cm-per-day for a retention-only fit.
+fn run_from(args: &CurveArgs, db: &std::path::Path, code: &str) -> anyhow::Result<Outcome> {
+    use crate::store::{Campaign, conductivity, fits, samples};
+    let campaign =
+        Campaign::open(db).with_context(|| format!("cannot open campaign {}", db.display()))?;
+    let conn = campaign.connection();
+    let sample = samples::find(conn, code)?.with_context(|| {
+        format!(
+            "no sample {code:?} in {}; `porewise list {0} samples` shows the codes",
+            db.display()
+        )
+    })?;
+    let fit = fits::current(conn, sample.id)?
+        .with_context(|| format!("sample {code:?} has no current fit; fit it first"))?;
+    let report = fit
+        .report
+        .as_ref()
+        .with_context(|| format!("fit {} of sample {code:?} has no report", fit.id))?;
+    let kind: ModelKind = fit.model.parse()?;
+    let curve = RetentionCurve::new(kind, report.values()).context("the stored fit")?;
+    let suctions = match (&args.suction_cm, &args.suction_kpa) {
+        (Some(cm), _) => suctions_to_cm(cm, SuctionUnit::Cm).context("--suction-cm")?,
+        (None, Some(kpa)) => suctions_to_cm(kpa, SuctionUnit::Kpa).context("--suction-kpa")?,
+        (None, None) => default_suctions_cm(),
+    };
+    let spec = match conductivity::joint_of(conn, fit.id)? {
+        Some(record) => {
+            if args.ks_cm_per_day.is_some() || args.conductivity.is_some() {
+                anyhow::bail!(
+                    "fit {} of sample {code:?} was made with measured conductivity: its K uses \
+                     the fitted Ks and L; leave out --ks-cm-per-day, --pore-connectivity and \
+                     --conductivity",
+                    fit.id
+                );
+            }
+            let r = &record.report;
+            Some(ConductivitySpec {
+                model: r.conductivity_model,
+                ks_cm_per_day: r.ks(),
+                pore_connectivity: r.pore_connectivity(),
+            })
+        }
+        None => args
+            .ks_cm_per_day
+            .map(|ks| ConductivitySpec::new(kind, ks, args.pore_connectivity, args.conductivity))
+            .transpose()?,
+    };
     let rows = curve_rows(&curve, &suctions, spec);
     write_curve_csv(io::stdout().lock(), &rows, spec.map(|s| s.model))
         .context("writing the table")?;

@@ -8,6 +8,7 @@ use clap::Args;
 
 use crate::analysis::ModelChoice;
 use crate::analysis::advise::{AdviseOptions, advise};
+use crate::analysis::joint::{JointRequest, KsChoice, fit_campaign_joint};
 use crate::analysis::review::{ReviewOptions, refresh};
 use crate::analysis::texture::{PriorRule, fit_campaign_with_prior};
 
@@ -15,9 +16,11 @@ use crate::analysis::texture::{PriorRule, fit_campaign_with_prior};
 const DEMO_PRIOR_MAX_READINGS: u32 = 5;
 use crate::error::Outcome;
 use crate::fit::FitOptions;
+use crate::fit::joint::Weighting;
 use crate::import::logger::{LoggerOptions, import_logger_files};
 use crate::import::{ImportKind, ImportOptions, import_files};
 use crate::model::number::significant;
+use crate::model::retention::ModelKind;
 use crate::store::campaign::{DEFAULT_FC_KPA, DEFAULT_PWP_KPA, remove_with_journal};
 use crate::store::fits::Selection;
 use crate::store::pairing::{PairOptions, pair_campaign};
@@ -89,10 +92,12 @@ impl Sources {
     }
 }
 
-/// The sources in `dir`: `sites.csv`, `layers.csv`, every `lab-*.csv` and every `logger-*.csv`.
+/// The sources in `dir`: `sites.csv`, `layers.csv`, every `lab-*.csv`, every
+/// `conductivity-*.csv` and every `logger-*.csv`.
 fn sources(dir: &Path) -> anyhow::Result<Sources> {
     let mut labs = Vec::new();
     let mut loggers = Vec::new();
+    let mut conductivity = Vec::new();
     for entry in std::fs::read_dir(dir).with_context(|| format!("cannot read {}", dir.display()))? {
         let path = entry?.path();
         let is_csv = path
@@ -106,15 +111,19 @@ fn sources(dir: &Path) -> anyhow::Result<Sources> {
             labs.push(path);
         } else if is_csv && name.starts_with("logger-") {
             loggers.push(path);
+        } else if is_csv && name.starts_with("conductivity-") {
+            conductivity.push(path);
         }
     }
     labs.sort();
     loggers.sort();
+    conductivity.sort();
     Ok(Sources {
         tables: vec![
             (ImportKind::Sites, vec![dir.join("sites.csv")]),
             (ImportKind::Layers, vec![dir.join("layers.csv")]),
             (ImportKind::Lab, labs),
+            (ImportKind::Conductivity, conductivity),
         ],
         loggers,
     })
@@ -240,6 +249,26 @@ fn build(file: &Path, sources: &Sources) -> anyhow::Result<()> {
         eprintln!(
             "review: {} suspect readings wait in the queue (porewise review {})",
             review.raised,
+            file.display()
+        );
+        // The cores with measured conductivity are fitted again with it (after the review, whose
+        // refits are retention-only): their joint fit becomes current, the auto fit stays in
+        // the history.
+        let (joint, _) = fit_campaign_joint(
+            &mut campaign,
+            &Selection::all(),
+            &JointRequest {
+                kind: ModelKind::VanGenuchten,
+                fixed: Vec::new(),
+                ks: KsChoice::Free,
+                weighting: Weighting::Estimated,
+            },
+            &|_, _| {},
+        )?;
+        eprintln!(
+            "conductivity: {} cores fitted with their measured K (porewise list {} \
+             conductivity-fits)",
+            joint.fitted.len(),
             file.display()
         );
         let settings = campaign.settings()?;

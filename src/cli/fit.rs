@@ -33,6 +33,7 @@ Examples:
   porewise fit --input lab.csv --flag-outliers --flags-output suspects.csv
   porewise fit spring.sqlite --model brooks-corey --conductivity mualem
   porewise fit spring.sqlite --sample LV-Ap-a --prior texture
+  porewise fit spring.sqlite --with-conductivity --model kosugi --ks measured
 
 With a campaign file, each new fit becomes its sample's current one (older fits stay as
 history: porewise list DB fits --sample CODE --all); a failed refit is recorded with its
@@ -93,11 +94,30 @@ pub struct FitArgs {
     /// the model has it (Brooks-Corey: burdine, the default, or mualem); the export names it.
     #[arg(long, value_name = "FORM", requires = "db", value_parser = parse_form)]
     pub conductivity: Option<ConductivityForm>,
+    /// With DB: fit each sample's retention readings and measured conductivity together
+    /// (Mualem forms; --model one of van-genuchten, the default here, van-genuchten-free-m,
+    /// brooks-corey, kosugi, durner); samples without conductivity readings are left alone.
+    #[arg(long, requires = "db", conflicts_with = "conductivity")]
+    pub with_conductivity: bool,
+    /// With --with-conductivity: the weight of the log10 K residuals against the water-content
+    /// residuals (m3/m3); default: each set weighted by its own estimated noise.
+    #[arg(long, value_name = "W", requires = "with_conductivity")]
+    pub k_weight: Option<f64>,
+    /// With --with-conductivity: `free` (default) estimates Ks; `measured` holds it at the
+    /// sample's measured Ks, else its layer's.
+    #[arg(long, value_name = "free|measured", requires = "with_conductivity", value_parser = parse_ks)]
+    pub ks: Option<crate::analysis::joint::KsChoice>,
     /// With DB: `texture` fits van Genuchten with each sample's layer texture-class prior
     /// (Carsel & Parrish 1988; layers without sand/silt/clay get the readings-only fit);
     /// `none` fits the readings alone where the campaign default (porewise set
     /// --texture-prior N) would use the prior.
-    #[arg(long, value_name = "texture|none", requires = "db", value_parser = parse_prior)]
+    #[arg(
+        long,
+        value_name = "texture|none",
+        requires = "db",
+        conflicts_with = "with_conductivity",
+        value_parser = parse_prior
+    )]
     pub prior: Option<PriorArg>,
 }
 
@@ -115,6 +135,14 @@ fn parse_prior(s: &str) -> Result<PriorArg, String> {
         "texture" => Ok(PriorArg::Texture),
         "none" => Ok(PriorArg::None),
         _ => Err(format!("`{s}`: expected texture or none")),
+    }
+}
+
+fn parse_ks(s: &str) -> Result<crate::analysis::joint::KsChoice, String> {
+    match s.trim().to_ascii_lowercase().as_str() {
+        "free" => Ok(crate::analysis::joint::KsChoice::Free),
+        "measured" => Ok(crate::analysis::joint::KsChoice::Measured),
+        _ => Err(format!("{s:?}: expected free or measured")),
     }
 }
 
@@ -436,6 +464,9 @@ fn flag_outliers(
 /// Bad input for the user (exit 1): no `--input`, an unreadable or invalid file (each problem
 /// at `FILE:LINE:COLUMN`), an unknown model or parameter, an output that cannot be written.
 pub fn run(args: &FitArgs) -> anyhow::Result<Outcome> {
+    if let (true, Some(db)) = (args.with_conductivity, &args.db) {
+        return super::fit_joint::run(args, db);
+    }
     let choice: ModelChoice = args
         .model
         .as_deref()

@@ -1,5 +1,5 @@
-//! `porewise import sites|layers|lab|logger`: read CSV files (and .xlsx / .ods workbooks)
-//! into a campaign, all or nothing.
+//! `porewise import sites|layers|lab|conductivity|logger`: read CSV files (and, for sites,
+//! layers and lab readings, .xlsx / .ods workbooks) into a campaign, all or nothing.
 
 use clap::{Args, Subcommand};
 
@@ -42,6 +42,16 @@ pub enum ImportCommand {
          porewise import lab spring.sqlite results.xlsx --sheet Plates"
     )]
     Lab(LayerImportArgs),
+    /// Measured conductivity: site,top_cm,bottom_cm,sample,method,suction_<unit>|pf|theta|theta_pct,conductivity_<unit>[,ks_<unit>,measured_on,notes].
+    ///
+    /// One K per row, at a suction (K(h)) or at a water content (K(theta)); units
+    /// conductivity_cm_per_day, conductivity_cm_per_h, conductivity_mm_per_h,
+    /// conductivity_m_per_s, stored in cm/day. ks_<unit> gives the core's measured saturated
+    /// conductivity (one per sample). Sites, layers and samples are created on first sight.
+    #[command(
+        after_help = "Example:\n  porewise import conductivity spring.sqlite evaporation-k.csv"
+    )]
+    Conductivity(LayerImportArgs),
     /// Field logger records: site,depth_cm,sensor,sensor_id,time,value,unit (streamed), or
     /// wide files (a time column, then one column per channel) with --columns map.csv.
     ///
@@ -71,6 +81,7 @@ pub fn run(cmd: &ImportCommand) -> anyhow::Result<Outcome> {
         ImportCommand::Sites(a) => (ImportKind::Sites, a, false),
         ImportCommand::Layers(a) => (ImportKind::Layers, &a.import, a.allow_overlap),
         ImportCommand::Lab(a) => (ImportKind::Lab, &a.import, a.allow_overlap),
+        ImportCommand::Conductivity(a) => (ImportKind::Conductivity, &a.import, a.allow_overlap),
         ImportCommand::Logger(a) => return super::logger::run(a),
     };
     let mut campaign = open(&args.db)?;

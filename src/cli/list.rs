@@ -8,13 +8,15 @@ use clap::{Args, ValueEnum};
 use crate::analysis::water::DEFAULT_ROOT_ZONE_CM;
 use crate::analysis::{profiles, sample_fits};
 use crate::error::Outcome;
-use crate::model::units::SuctionUnit;
+use crate::model::units::{ConductivityUnit, SuctionUnit};
 use crate::report::Listing;
 use crate::report::campaign::{
     layers_listing, readings_listing_with_flags, samples_listing, sites_listing,
 };
+use crate::report::conductivity::{conductivity_listing, joint_fits_listing};
 use crate::report::fits::{fits_listing, history_listing, pooled_note, profiles_listing};
 use crate::report::review::{events_listing, flags_listing};
+use crate::store::conductivity as store_k;
 use crate::store::fits::{self as store_fits, Selection};
 use crate::store::flags::{self, FlagFilter};
 use crate::store::{Campaign, Filter, layers, readings, samples, sites};
@@ -40,6 +42,12 @@ pub enum What {
     Flags,
     /// Every status change of every flag, with its time and note (the audit trail).
     FlagEvents,
+    /// Measured conductivity: K at a suction or a water content, with the sample's and its
+    /// layer's measured Ks (unit: --k-units).
+    Conductivity,
+    /// Fits made with measured conductivity (history included): Ks and L with their errors,
+    /// the statistics of each data set and jointly, the weighting.
+    ConductivityFits,
 }
 
 /// Output format.
@@ -57,7 +65,7 @@ pub enum Format {
 /// Arguments of `porewise list`.
 #[derive(Debug, Args)]
 #[command(
-    after_help = "Examples:\n  porewise list spring.sqlite\n  porewise list spring.sqlite readings --site LV --units kpa\n  porewise list spring.sqlite samples --format csv > samples.csv\n  porewise list spring.sqlite fits --site LV\n  porewise list spring.sqlite fits --sample LV-Ap-a --all\n  porewise list spring.sqlite profiles --root-zone-cm 60\n  porewise list spring.sqlite profiles --fill-from-texture\n  porewise list spring.sqlite flags --sample LV-Ap-a\n  porewise list spring.sqlite flag-events"
+    after_help = "Examples:\n  porewise list spring.sqlite\n  porewise list spring.sqlite readings --site LV --units kpa\n  porewise list spring.sqlite samples --format csv > samples.csv\n  porewise list spring.sqlite fits --site LV\n  porewise list spring.sqlite fits --sample LV-Ap-a --all\n  porewise list spring.sqlite profiles --root-zone-cm 60\n  porewise list spring.sqlite profiles --fill-from-texture\n  porewise list spring.sqlite flags --sample LV-Ap-a\n  porewise list spring.sqlite flag-events\n  porewise list spring.sqlite conductivity --sample LV-Ap-a --k-units m/s"
 )]
 pub struct ListArgs {
     /// The campaign file.
@@ -88,6 +96,9 @@ pub struct ListArgs {
     /// Suction unit for readings: cm, hpa, kpa, mpa, bar or pf.
     #[arg(long, default_value = "cm", value_parser = parse_unit, value_name = "UNIT")]
     pub units: SuctionUnit,
+    /// Conductivity unit for `conductivity`: cm/day, cm/h, mm/h or m/s.
+    #[arg(long, default_value = "cm/day", value_parser = ConductivityUnit::parse, value_name = "UNIT")]
+    pub k_units: ConductivityUnit,
 }
 
 fn parse_unit(s: &str) -> Result<SuctionUnit, String> {
@@ -153,7 +164,7 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
     if let Some(code) = &args.sample {
         if matches!(args.what, What::Sites | What::Layers | What::Profiles) {
             bail!(
-                "--sample filters samples, readings, fits and flags, not sites, layers or profiles"
+                "--sample filters samples, readings, fits, flags and conductivity, not sites, layers or profiles"
             );
         }
         if samples::find(conn, code)?.is_none() {
@@ -201,6 +212,17 @@ pub fn run(args: &ListArgs) -> anyhow::Result<Outcome> {
             events_listing(&events)
         }
         What::Fits => fits(conn, args)?,
+        What::Conductivity => {
+            let rows = store_k::list(conn, filter)?;
+            let mut ks = std::collections::HashMap::new();
+            for r in &rows {
+                if let std::collections::hash_map::Entry::Vacant(e) = ks.entry(r.sample_id) {
+                    e.insert(store_k::ks_of_sample(conn, r.sample_id)?);
+                }
+            }
+            conductivity_listing(&rows, args.units, args.k_units, &ks)
+        }
+        What::ConductivityFits => joint_fits_listing(&store_k::joint_fits(conn, filter)?),
         What::Profiles => {
             let settings = campaign.settings()?;
             let mut list = profiles(conn, &settings, args.root_zone_cm, filter.site)?;

@@ -57,6 +57,7 @@ impl Plan {
             samples_added,
             samples_updated,
             readings_added: self.readings.len() as u64,
+            ..ImportCounts::default()
         }
     }
 }

@@ -17,6 +17,9 @@ pub enum ImportKind {
     Layers,
     /// Lab retention file: `site,top_cm,bottom_cm,sample,method,suction_<unit>,theta[,...]`.
     Lab,
+    /// Measured conductivity file: `site,top_cm,bottom_cm,sample,method,suction_<unit>|theta,
+    /// conductivity_<unit>[,ks_<unit>,...]`.
+    Conductivity,
 }
 
 impl ImportKind {
@@ -26,6 +29,7 @@ impl ImportKind {
             ImportKind::Sites => "sites",
             ImportKind::Layers => "layers",
             ImportKind::Lab => "lab",
+            ImportKind::Conductivity => "conductivity",
         }
     }
 }
@@ -154,6 +158,8 @@ pub struct ImportBatch {
     pub samples: Vec<Located<SampleDraft>>,
     /// Readings.
     pub readings: Vec<Located<ReadingDraft>>,
+    /// Measured conductivity readings and Ks values (conductivity files).
+    pub conductivity: super::conductivity::ConductivityBatch,
 }
 
 impl ImportBatch {
@@ -166,6 +172,7 @@ impl ImportBatch {
             layers: Vec::new(),
             samples: Vec::new(),
             readings: Vec::new(),
+            conductivity: super::conductivity::ConductivityBatch::default(),
         }
     }
 

@@ -26,7 +26,7 @@ pub const COLUMNS: &str = "site,top_cm,bottom_cm,sample,method,suction_<unit>|pf
 pub const MAX_SUCTION_CM: f64 = H_DRY_CM;
 
 /// Every suction column name, for messages.
-fn suction_names() -> String {
+pub(crate) fn suction_names() -> String {
     let names: Vec<&str> = SuctionUnit::ALL.iter().map(|u| u.column_name()).collect();
     names.join(", ")
 }
@@ -36,7 +36,7 @@ const WATER_NAMES: &str = "theta, theta_pct, water_g_per_g";
 
 /// Find the one column of a kind (suction or water content), reporting unknown units,
 /// a second column and a missing one.
-fn unit_column<U: Copy>(
+pub(crate) fn unit_column<U: Copy>(
     check: &mut HeaderCheck<'_>,
     header: &Header,
     diags: &mut Diagnostics,
@@ -269,7 +269,7 @@ impl LabReader {
 
 /// The suction cell in cm: 0 or more (pF may be any number, `-inf` being 0 cm), at most
 /// [`MAX_SUCTION_CM`].
-fn read_suction(cells: &mut Cells<'_>, col: usize, unit: SuctionUnit) -> Option<f64> {
+pub(crate) fn read_suction(cells: &mut Cells<'_>, col: usize, unit: SuctionUnit) -> Option<f64> {
     let (v, h) = cells.suction(col, unit)?;
     if unit != SuctionUnit::Pf && v < 0.0 {
         let found = cells.found(col);

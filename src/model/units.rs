@@ -9,7 +9,10 @@ use std::str::FromStr;
 
 use serde::{Deserialize, Serialize};
 
+mod conductivity;
 mod exact;
+
+pub use conductivity::ConductivityUnit;
 
 /// Standard gravity in m/s2 (CGPM 1901), which fixes 1 cm of water = 98.0665 Pa.
 pub const STANDARD_GRAVITY: f64 = 9.806_65;

@@ -41,6 +41,7 @@
 //! the one a shell stands in).
 
 pub mod chart;
+pub mod chart_k;
 pub mod geojson;
 pub mod html;
 pub mod schema;
@@ -627,6 +628,7 @@ fn write_files(
         }
         let mut tally = snapshot::SiteTally::default();
         let mut chart_data = page.is_some().then(|| chart::ChartData::new(&site));
+        let mut k_chart_data = page.is_some().then(|| chart_k::KChartData::new(&site));
         let mut rows_spool = match page {
             Some(_) => Some(create(ROWS_SPOOL)?),
             None => None,
@@ -650,6 +652,9 @@ fn write_files(
                     (page.as_mut(), chart_data.as_mut(), rows_spool.as_mut())
                 {
                     data.add(&batch);
+                    if let Some(k) = k_chart_data.as_mut() {
+                        k.add(&batch);
+                    }
                     let mut text = String::new();
                     for part in &batch.sites {
                         html::parameter_rows(&mut text, &batch, part);
@@ -678,6 +683,13 @@ fn write_files(
                     message,
                 }
             })?;
+            let k_svg = match &k_chart_data {
+                Some(k) => chart_k::k_chart_svg(k).map_err(|message| ExportError::Encode {
+                    file: REPORT_FILE,
+                    message,
+                })?,
+                None => None,
+            };
             counter.step();
             html::contents_row(&mut p.contents, index, &site, &tally);
             let mut text = String::new();
@@ -686,6 +698,7 @@ fn write_files(
                 index,
                 &site,
                 svg.as_deref(),
+                k_svg.as_deref(),
                 &walk.sample_counts(),
             );
             let write = |sections: &mut Sink| -> io::Result<()> {

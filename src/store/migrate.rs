@@ -18,6 +18,7 @@ pub const MIGRATIONS: &[&str] = &[
     include_str!("../../migrations/0006_oven_dry_suction.sql"),
     include_str!("../../migrations/0007_measured_on_repair.sql"),
     include_str!("../../migrations/0008_texture.sql"),
+    include_str!("../../migrations/0009_conductivity.sql"),
 ];
 
 /// `application_id` written by the first migration, so a porewise file can be recognised.
@@ -112,7 +113,7 @@ mod tests {
                 |r| r.get(0),
             )
             .expect("count");
-        assert_eq!(tables, 10);
+        assert_eq!(tables, 11);
         let app: i64 = conn
             .pragma_query_value(None, "application_id", |r| r.get(0))
             .expect("application id");

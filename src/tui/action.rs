@@ -84,6 +84,8 @@ pub enum Action {
     StartFilter,
     /// Refit the selected sample.
     RefitSample,
+    /// Refit the selected sample with its measured conductivity (a joint fit).
+    RefitSampleWithConductivity,
     /// Refit every sample of the selected site.
     RefitSite,
     /// Refit every sample of the campaign.
@@ -94,6 +96,8 @@ pub enum Action {
     CycleUnits,
     /// Show or hide the 95 % band.
     ToggleBand,
+    /// Curve pane: water content or conductivity against suction.
+    ToggleConductivity,
     /// Sum the profile's available water 10 cm deeper.
     DeeperRootZone,
     /// Sum it 10 cm shallower.

@@ -20,6 +20,7 @@ use crate::store::readings::StoredReading;
 use super::theme::Theme;
 use super::worker::JobBoard;
 
+pub mod conductivity;
 pub mod review;
 pub mod series;
 pub mod texture_fill;
@@ -582,6 +583,8 @@ pub struct SampleDetail {
     pub fc_kpa: f64,
     /// Wilting point, kPa.
     pub pwp_kpa: f64,
+    /// Its conductivity view (measured K, fitted or predicted K(h), Ks), when it has one.
+    pub conductivity: Option<conductivity::ConductivityPanel>,
 }
 
 /// A curve as (log10 h, theta) points and its band as (log10 h, lower, upper).
@@ -725,6 +728,7 @@ impl SampleDetail {
             x_max,
             fc_kpa: parts.fc_kpa,
             pwp_kpa: parts.pwp_kpa,
+            conductivity: None,
         }
     }
 
@@ -1185,6 +1189,8 @@ pub struct AppState {
     pub units: AxisUnit,
     /// Show the 95 % band.
     pub band: bool,
+    /// The curve pane shows conductivity K(h) instead of theta(h).
+    pub show_conductivity: bool,
     /// Model for the next refit.
     pub choice: ModelChoice,
     /// Text being typed, or a question.
@@ -1317,6 +1323,7 @@ pub(crate) mod fixtures {
             x_max: PLOT_X_MAX,
             fc_kpa: 33.0,
             pwp_kpa: 1500.0,
+            conductivity: None,
         }
     }
 }

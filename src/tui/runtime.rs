@@ -113,6 +113,14 @@ impl Worker {
                     let progress = |done: usize, total: usize| {
                         let _ = result_tx.send(Action::FitProgress { job, done, total });
                     };
+                    if request.with_conductivity {
+                        return crate::analysis::joint::refit_joint(
+                            c,
+                            &request.scope.selection(),
+                            request.joint_kind(),
+                            &progress,
+                        );
+                    }
                     fit_campaign(
                         c,
                         &request.scope.selection(),
@@ -476,13 +484,22 @@ impl Session {
             }
             None
         } else {
-            let result = fit_campaign(
-                &mut self.campaign,
-                &request.scope.selection(),
-                request.choice,
-                &FitOptions::new(),
-                &|_, _| {},
-            )
+            let result = if request.with_conductivity {
+                crate::analysis::joint::refit_joint(
+                    &mut self.campaign,
+                    &request.scope.selection(),
+                    request.joint_kind(),
+                    &|_, _| {},
+                )
+            } else {
+                fit_campaign(
+                    &mut self.campaign,
+                    &request.scope.selection(),
+                    request.choice,
+                    &FitOptions::new(),
+                    &|_, _| {},
+                )
+            }
             .map_err(|e| e.to_string());
             Some(Action::FitFinished { job, result })
         }

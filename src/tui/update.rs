@@ -692,9 +692,15 @@ fn series_pick(state: &AppState) -> Option<SensorPick> {
 }
 
 fn submit_fit(state: &mut AppState, scope: FitScope) -> Vec<Effect> {
+    submit_fit_with(state, scope, false)
+}
+
+/// [`submit_fit`], retention only or with the measured conductivity.
+fn submit_fit_with(state: &mut AppState, scope: FitScope, with_conductivity: bool) -> Vec<Effect> {
     let request = FitRequest {
         scope,
         choice: state.choice,
+        with_conductivity,
     };
     match state.jobs.submit(request.clone()) {
         Submitted::Start(job) => {
@@ -792,6 +798,14 @@ fn on_global(state: &mut AppState, action: &Action) -> Option<Vec<Effect>> {
                 Vec::new()
             }
         }
+        Action::RefitSampleWithConductivity => {
+            if let Some((id, code, site)) = target_sample(state) {
+                submit_fit_with(state, FitScope::Sample { id, code, site }, true)
+            } else {
+                state.say(Tone::Warning, "select a sample first");
+                Vec::new()
+            }
+        }
         Action::RefitSite => {
             if let Some(site) = target_site(state) {
                 submit_fit(state, FitScope::Site(site))
@@ -823,6 +837,18 @@ fn on_global(state: &mut AppState, action: &Action) -> Option<Vec<Effect>> {
                     "95 % band of the fitted curve shown"
                 } else {
                     "95 % band hidden"
+                },
+            );
+            Vec::new()
+        }
+        Action::ToggleConductivity => {
+            state.show_conductivity = !state.show_conductivity;
+            state.say(
+                Tone::Info,
+                if state.show_conductivity {
+                    "curve pane: conductivity K against suction"
+                } else {
+                    "curve pane: water content against suction"
                 },
             );
             Vec::new()
@@ -1336,6 +1362,7 @@ mod tests {
                 request: FitRequest {
                     scope: FitScope::All,
                     choice: ModelChoice::One(ModelKind::VanGenuchten),
+                    with_conductivity: false,
                 },
             }]
         );
@@ -1500,6 +1527,28 @@ mod tests {
         assert_eq!(state.units, crate::tui::app::AxisUnit::Pf);
         update(&mut state, Action::ToggleBand);
         assert!(state.band);
+        update(&mut state, Action::ToggleConductivity);
+        assert!(state.show_conductivity);
+        assert!(state.status.text.contains("conductivity K"));
+        update(&mut state, Action::ToggleConductivity);
+        assert!(!state.show_conductivity);
+    }
+
+    #[test]
+    fn a_refit_with_conductivity_asks_the_worker_for_a_joint_fit() {
+        let mut state = on_first_sample();
+        let effects = update(&mut state, Action::RefitSampleWithConductivity);
+        let Some(Effect::StartFit { request, .. }) = effects.first().cloned() else {
+            panic!("{effects:?}");
+        };
+        assert!(request.with_conductivity);
+        assert!(matches!(request.scope, FitScope::Sample { id: 1, .. }));
+        assert_eq!(request.joint_kind(), ModelKind::VanGenuchten);
+        assert!(
+            request
+                .to_string()
+                .ends_with("(van-genuchten with conductivity)")
+        );
     }
 
     #[test]

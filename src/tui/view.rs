@@ -19,6 +19,7 @@ use super::theme::Theme;
 
 pub mod card;
 pub mod chrome;
+pub mod conductivity;
 pub mod curve;
 pub mod depth;
 pub mod help;

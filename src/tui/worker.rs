@@ -84,11 +84,33 @@ pub struct FitRequest {
     pub scope: FitScope,
     /// One model or `auto`.
     pub choice: ModelChoice,
+    /// Fit the retention readings and the measured conductivity together (one model; `auto`
+    /// stands for van Genuchten here).
+    pub with_conductivity: bool,
 }
 
 impl fmt::Display for FitRequest {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{} ({})", self.scope, self.choice)
+        if self.with_conductivity {
+            write!(
+                f,
+                "{} ({} with conductivity)",
+                self.scope,
+                self.joint_kind().id()
+            )
+        } else {
+            write!(f, "{} ({})", self.scope, self.choice)
+        }
+    }
+}
+
+impl FitRequest {
+    /// The model of a fit with conductivity: the one chosen, van Genuchten for `auto`.
+    pub fn joint_kind(&self) -> crate::model::retention::ModelKind {
+        match self.choice {
+            ModelChoice::One(kind) => kind,
+            ModelChoice::Auto => crate::model::retention::ModelKind::VanGenuchten,
+        }
     }
 }
 
@@ -225,6 +247,7 @@ mod tests {
                 site: site.into(),
             },
             choice: ModelChoice::Auto,
+            with_conductivity: false,
         }
     }
 
@@ -270,6 +293,7 @@ mod tests {
         board.submit(FitRequest {
             scope: FitScope::Site("A".into()),
             choice: ModelChoice::Auto,
+            with_conductivity: false,
         });
         board.submit(sample(7, "A"));
         let done = board.finish(JobId(1));

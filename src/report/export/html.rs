@@ -538,9 +538,34 @@ pub fn site_section(
     chart: Option<&str>,
 ) {
     let counts: Vec<usize> = part.layers.iter().map(|l| l.samples.len()).collect();
-    section_start(out, index, part, chart, &counts);
+    match super::chart_k::site_k_chart(part) {
+        Ok(k_chart) => section_start(out, index, part, chart, k_chart.as_deref(), &counts),
+        Err(e) => {
+            section_start(out, index, part, chart, None, &counts);
+            let _ = writeln!(out, "<p class=\"muted\">{}</p>", escape(&e));
+        }
+    }
     parameter_rows(out, s, part);
     section_end(out, part);
+}
+
+/// The conductivity chart of a site, with its caption.
+fn conductivity_figure(out: &mut String, code: &str, svg: &str) {
+    let label = format!("Measured and fitted hydraulic conductivity of site {code}");
+    let svg = svg.replacen(
+        "<svg ",
+        &format!("<svg role=\"img\" aria-label=\"{}\" ", escape(&label)),
+        1,
+    );
+    let _ = writeln!(
+        out,
+        "<figure>\n{svg}<figcaption>Hydraulic conductivity K against suction, both on log axes. \
+         Dots: measured K (K(θ) readings at the suction where the sample's fitted curve holds \
+         that θ); lines: the K(h) of fits made with measured conductivity (Mualem's form with \
+         the fitted Ks and L); bars at the left edge: each core's measured Ks. One colour per \
+         layer. Beyond the measured suctions the curves are extrapolations.</figcaption>\n\
+         </figure>"
+    );
 }
 
 /// A site's section up to its parameter table's rows: heading, location, chart, the layer
@@ -550,6 +575,7 @@ pub fn section_start(
     index: usize,
     part: &SitePart,
     chart: Option<&str>,
+    k_chart: Option<&str>,
     counts: &[usize],
 ) {
     let site = &part.row.stored.site;
@@ -604,6 +630,9 @@ pub fn section_start(
                 "<p class=\"muted\">No readings and no fits to draw.</p>"
             );
         }
+    }
+    if let Some(svg) = k_chart {
+        conductivity_figure(out, &site.code, svg);
     }
     layer_table(out, part, counts);
     let _ = writeln!(

@@ -3,7 +3,7 @@
 //! Layout (schema version [`SCHEMA_VERSION`]):
 //!
 //! ```text
-//! { "format": "porewise-campaign", "schema_version": 3,
+//! { "format": "porewise-campaign", "schema_version": 4,
 //!   "program": {"name", "version"}, "exported_at", "fingerprint_sha256",
 //!   "data": { "campaign", "scope", "imports": [..],
 //!             "sites": [ { ..., "profile", "layers": [ { ..., "water", "samples": [
@@ -32,6 +32,11 @@
 //! Version 4 added texture: each layer's `texture_class` and, for a layer with a class and
 //! no fitted lab core, its `texture_estimate` (class-mean curve, available water with the
 //! class spread as interval, source); each fit's `basis` and `prior`.
+//! Version 4 also added measured conductivity: each sample's `ks_cm_per_day` (measured) and
+//! `conductivity_readings` (K in cm/day at `suction_cm` or `theta_m3_m3`, with provenance and
+//! whether the current fit used it), and for a fit made with them `fit.joint` (the
+//! conductivity model, `ks_cm_per_day` and `pore_connectivity` with their errors, the
+//! covariance of every parameter, the weighting, the statistics of each set and jointly).
 //!
 //! A few members reuse the fit engine's documented types ([`ParamEstimate`], [`ParamMatrix`],
 //! [`Termination`], [`DerivedValues`], [`Ranking`]), the analysis' interval types
@@ -312,8 +317,69 @@ pub struct SampleData {
     pub fit_state: FitState,
     /// Readings, by suction.
     pub readings: Vec<ReadingData>,
+    /// The core's measured saturated conductivity, cm/day (schema 4).
+    pub ks_cm_per_day: Option<f64>,
+    /// Measured conductivity readings: K(h) by suction, then K(theta) (schema 4).
+    pub conductivity_readings: Vec<ConductivityReadingData>,
     /// The current fit, if any.
     pub fit: Option<FitData>,
+}
+
+/// One measured conductivity (schema 4).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ConductivityReadingData {
+    /// Id (local to the campaign file).
+    pub id: i64,
+    /// Stable identifier (UUID).
+    pub uid: String,
+    /// Suction it was measured at, cm (K(h)); `null` for K(theta).
+    pub suction_cm: Option<f64>,
+    /// Water content it was measured at, m3/m3 (K(theta)); `null` for K(h).
+    pub theta_m3_m3: Option<f64>,
+    /// Hydraulic conductivity, cm/day.
+    pub k_cm_per_day: f64,
+    /// Method as the lab wrote it.
+    pub method: Option<String>,
+    /// Day measured.
+    pub measured_on: Option<NaiveDate>,
+    /// Free text.
+    pub notes: Option<String>,
+    /// File and line it came from.
+    pub provenance: ProvenanceData,
+    /// Used by the current fit (a fit made with conductivity).
+    pub used_in_fit: bool,
+}
+
+/// What a fit made with measured conductivity adds (schema 4): Ks and L with their
+/// errors, the covariance of every parameter, the statistics of each set and jointly.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct JointFitData {
+    /// The conductivity model fitted.
+    pub conductivity_model: crate::model::conductivity::ConductivityModel,
+    /// Fitted (or held) Ks, cm/day.
+    pub ks_cm_per_day: ParamEstimate,
+    /// Fitted (or held) Mualem L.
+    pub pore_connectivity: ParamEstimate,
+    /// Where a held Ks came from (`sample`, `layer`).
+    pub ks_source: Option<String>,
+    /// s^2 (J'WJ)^-1 over every free parameter of the joint fit.
+    pub covariance: Option<ParamMatrix>,
+    /// The weighting of the two sets.
+    pub weighting: crate::fit::joint::Weighting,
+    /// Refits made for consistent weights, and whether they became consistent.
+    pub refits: usize,
+    /// Whether the estimated weights became consistent.
+    pub weights_consistent: bool,
+    /// Water-content statistics (m3/m3).
+    pub retention: crate::fit::joint::SetStatistics,
+    /// log10 K statistics (K in cm/day).
+    pub conductivity: crate::fit::joint::SetStatistics,
+    /// Joint weighted SSE, s, AICc, n and k.
+    pub joint: FitStatistics,
+    /// The conductivity readings used, in the order of the residuals.
+    pub conductivity_reading_ids: Vec<i64>,
+    /// The fit's notes.
+    pub notes: Vec<String>,
 }
 
 /// One retention reading.
@@ -437,6 +503,8 @@ pub struct FitData {
     pub ranking: Option<Ranking>,
     /// Derived values under the campaign's field capacity and wilting point.
     pub derived: Option<DerivedData>,
+    /// For a fit made with measured conductivity: Ks, L and the joint statistics (schema 4).
+    pub joint: Option<JointFitData>,
 }
 
 /// Goodness-of-fit statistics of one fit (definitions in the report's methods section).
@@ -988,7 +1056,51 @@ pub fn sample_data(s: &Snapshot, part: &SamplePart) -> SampleData {
                 flags: s.flags_of(r.id).iter().map(flag_data).collect(),
             })
             .collect(),
+        ks_cm_per_day: part.ks.sample,
+        conductivity_readings: part
+            .conductivity
+            .iter()
+            .map(|c| ConductivityReadingData {
+                id: c.id,
+                uid: c.reading.uid.to_string(),
+                suction_cm: c.reading.at.h_cm(),
+                theta_m3_m3: c.reading.at.theta(),
+                k_cm_per_day: c.reading.k_cm_per_day,
+                method: c.reading.method.clone(),
+                measured_on: c.reading.measured_on,
+                notes: c.reading.notes.clone(),
+                provenance: ProvenanceData {
+                    import_id: c.reading.batch,
+                    file_name: c.source_file.clone(),
+                    line: (c.reading.line > 0).then_some(c.reading.line),
+                },
+                used_in_fit: part
+                    .joint
+                    .as_ref()
+                    .is_some_and(|j| j.conductivity_reading_ids.contains(&c.id)),
+            })
+            .collect(),
         fit: fit.map(|f| fit_data(f, part)),
+    }
+}
+
+fn joint_data(record: &crate::store::conductivity::JointRecord) -> JointFitData {
+    let r = &record.report;
+    let nr = r.kind.params().len();
+    JointFitData {
+        conductivity_model: r.conductivity_model,
+        ks_cm_per_day: r.fit.parameters[nr].clone(),
+        pore_connectivity: r.fit.parameters[nr + 1].clone(),
+        ks_source: record.ks_source.clone(),
+        covariance: r.fit.covariance.clone(),
+        weighting: r.weighting,
+        refits: r.refits,
+        weights_consistent: r.weights_consistent,
+        retention: r.retention.clone(),
+        conductivity: r.conductivity.clone(),
+        joint: statistics(&r.fit),
+        conductivity_reading_ids: record.conductivity_reading_ids.clone(),
+        notes: r.notes.clone(),
     }
 }
 
@@ -1053,6 +1165,7 @@ fn fit_data(f: &StoredFit, part: &SamplePart) -> FitData {
             k_field_capacity_cm_per_day: d.k_field_capacity_cm_per_day,
             k_wilting_point_cm_per_day: d.k_wilting_point_cm_per_day,
         }),
+        joint: part.joint.as_ref().map(joint_data),
     }
 }
 

@@ -47,6 +47,12 @@ pub struct SamplePart {
     pub fit: SampleFit,
     /// Its readings, by suction.
     pub readings: Vec<StoredReading>,
+    /// Its measured conductivity readings.
+    pub conductivity: Vec<crate::store::conductivity::StoredConductivity>,
+    /// Its measured Ks and its layer's.
+    pub ks: crate::store::conductivity::SampleKs,
+    /// The joint record of its current fit, when that fit was made with conductivity.
+    pub joint: Option<crate::store::conductivity::JointRecord>,
 }
 
 /// One site with its layers and its available-water profile.
@@ -380,6 +386,14 @@ impl SiteWalk {
                     frame.conductivity.or(f.conductivity),
                 )
             });
+            let derived =
+                crate::analysis::joint::with_joint(conn, fit.as_ref(), derived, &frame.settings)?;
+            let joint = match &fit {
+                Some(f) => crate::store::conductivity::joint_of(conn, f.id)?,
+                None => None,
+            };
+            let conductivity = crate::store::conductivity::of_sample(conn, id)?;
+            let ks = crate::store::conductivity::ks_of_sample(conn, id)?;
             let readings = readings::of_sample(conn, id)?;
             for r in &readings {
                 if let Some(list) = self.flags.get(&r.id) {
@@ -402,6 +416,9 @@ impl SiteWalk {
                     derived,
                 },
                 readings,
+                conductivity,
+                ks,
+                joint,
             });
             progress();
         }

@@ -85,6 +85,21 @@ pub const PARAMETER_TAIL_COLUMNS: [&str; 37] = [
     "state_detail",
 ];
 
+/// The columns of `parameters.csv` after the tail, for a fit made with measured
+/// conductivity (empty otherwise): its fitted Ks and L with their standard errors, the
+/// conductivity readings used, the log10 K sum of squares and RMSE, and the weighting.
+pub const PARAMETER_JOINT_COLUMNS: [&str; 9] = [
+    "fitted_with_conductivity",
+    "ks_fitted_cm_per_day",
+    "ks_fitted_cm_per_day_se",
+    "pore_connectivity",
+    "pore_connectivity_se",
+    "n_conductivity",
+    "sse_log10_k",
+    "rmse_log10_k",
+    "conductivity_weighting",
+];
+
 /// The columns of `profiles.csv`: each available water and mm value followed by its 95 %
 /// interval, and on every row the campaign's pooled between-core variance (tau^2, (m3/m3)^2)
 /// with the number of layers it came from.
@@ -164,6 +179,7 @@ pub fn parameters_header(params: &[String]) -> Vec<String> {
         .chain(params.iter().cloned())
         .chain(params.iter().map(|p| format!("{p}_se")))
         .chain(PARAMETER_TAIL_COLUMNS.iter().map(ToString::to_string))
+        .chain(PARAMETER_JOINT_COLUMNS.iter().map(ToString::to_string))
         .collect()
 }
 
@@ -237,9 +253,35 @@ pub fn parameter_rows(snapshot: &Snapshot, params: &[String]) -> Vec<Vec<String>
                 .unwrap_or_default(),
             text(Some(&state_detail(&part.fit.state))),
         ]);
+        row.extend(joint_cells(part.joint.as_ref()));
         rows.push(row);
     }
     rows
+}
+
+/// The [`PARAMETER_JOINT_COLUMNS`] of a sample's current fit.
+fn joint_cells(joint: Option<&crate::store::conductivity::JointRecord>) -> Vec<String> {
+    let Some(record) = joint else {
+        return vec![String::new(); PARAMETER_JOINT_COLUMNS.len()];
+    };
+    let r = &record.report;
+    let nr = r.kind.params().len();
+    let (ks, l) = (&r.fit.parameters[nr], &r.fit.parameters[nr + 1]);
+    let weighting = match r.weighting {
+        crate::fit::joint::Weighting::Estimated => "estimated".to_string(),
+        crate::fit::joint::Weighting::User { weight } => format!("user {}", format_number(weight)),
+    };
+    vec![
+        "yes".to_string(),
+        num(Some(ks.value)),
+        num(ks.se),
+        num(Some(l.value)),
+        num(l.se),
+        r.conductivity.n.to_string(),
+        num(Some(r.conductivity.sse)),
+        num(Some(r.conductivity.rmse)),
+        weighting,
+    ]
 }
 
 /// The reasons of a stale fit or the message of a failed one; empty otherwise.

@@ -105,6 +105,7 @@ pub fn sample(
             f.conductivity,
         )
     });
+    let derived = crate::analysis::joint::with_joint(conn, fit.as_ref(), derived, settings)?;
     let advice = match &fit {
         Some(f) if info.kind == SampleKind::LabCore => advise_sample(
             conn,
@@ -116,7 +117,14 @@ pub fn sample(
         )?,
         _ => None,
     };
-    Ok(SampleDetail::from_parts(&SampleParts {
+    let conductivity = crate::store::conductivity::of_sample(conn, sample_id)?;
+    let measured_ks = crate::store::conductivity::ks_of_sample(conn, sample_id)?;
+    let joint = match &fit {
+        Some(f) => crate::store::conductivity::joint_of(conn, f.id)?,
+        None => None,
+    };
+    let k_model = derived.as_ref().and_then(|d| d.conductivity_model);
+    let mut detail = SampleDetail::from_parts(&SampleParts {
         info: &info,
         layer: &layer,
         state,
@@ -127,7 +135,20 @@ pub fn sample(
         fc_kpa: settings.fc_kpa,
         pwp_kpa: settings.pwp_kpa,
         advice,
-    }))
+    });
+    let curve = fit
+        .as_ref()
+        .and_then(|f| f.report.as_ref())
+        .and_then(crate::analysis::water::curve_of);
+    detail.conductivity = crate::tui::app::conductivity::ConductivityPanel::new(
+        &conductivity,
+        measured_ks,
+        curve.as_ref(),
+        k_model,
+        joint.as_ref(),
+        [crate::tui::app::PLOT_X_MIN, detail.x_max],
+    );
+    Ok(detail)
 }
 
 /// One site's depth view; its layer intervals with the campaign's between-core variance

@@ -15,6 +15,7 @@ use crate::model::retention::ModelKind;
 use crate::model::units::CM_PER_KPA;
 use crate::report::fits::state_text;
 
+use super::super::app::conductivity::KCurveSource;
 use super::super::app::{AppState, AxisUnit, Detail, FitTag, NextStep, SampleDetail, model_tag};
 use super::super::theme::Theme;
 use super::{framed, kpa_text, num, opt_num, suction_text, theta_text};
@@ -200,13 +201,20 @@ pub fn card_lines(state: &AppState, d: &SampleDetail, theme: Theme) -> Vec<Line<
         ),
         theme.dim(),
     )));
+    // A fit made with measured conductivity: Ks and L with their errors below the retention
+    // parameters.
+    let joint: Vec<&crate::fit::ParamEstimate> = match d.conductivity.as_ref().map(|c| &c.source) {
+        Some(KCurveSource::Fitted { ks, l }) => vec![ks.as_ref(), l.as_ref()],
+        _ => Vec::new(),
+    };
     let name_width = fit
         .parameters
         .iter()
+        .chain(joint.iter().copied())
         .map(|p| p.name.len())
         .max()
         .unwrap_or(0);
-    for p in &fit.parameters {
+    for p in fit.parameters.iter().chain(joint.iter().copied()) {
         // At a kink the standard error is one-sided: shown as approximate.
         let approx = if p.kink_cm.is_some() { "≈" } else { "" };
         let (value, se) = match (p.fixed, p.se) {

@@ -67,6 +67,16 @@ impl Widget for CurvePane<'_> {
         let state = self.state;
         let theme = state.theme;
         let title = match &state.detail {
+            Detail::Ready(d) if state.show_conductivity => format!(
+                "K(h) · {} · cm/day vs {}{}",
+                crate::model::text::shown(&d.code),
+                state.units.symbol(),
+                if state.units == super::super::app::AxisUnit::Pf {
+                    ""
+                } else {
+                    " (log)"
+                }
+            ),
             Detail::Ready(d) => format!(
                 "Curve · {} · θ vs {}{}",
                 crate::model::text::shown(&d.code),
@@ -81,6 +91,9 @@ impl Widget for CurvePane<'_> {
         };
         let inner = framed(title, self.focused, theme, area, buf);
         match &state.detail {
+            Detail::Ready(detail) if state.show_conductivity => {
+                super::conductivity::ConductivityPlot { state, detail }.render(inner, buf);
+            }
             Detail::Ready(detail) => CurvePlot {
                 state,
                 detail,
