@@ -180,10 +180,10 @@ pub const CHUNK_BUDGET: Duration = Duration::from_millis(500);
 pub const CHUNK_PAUSE: Duration = Duration::from_millis(120);
 
 /// One sample's fitted attempt, ready to record: its model, its failure, its encoded row.
-struct Outcome {
-    model: String,
-    failure: Option<String>,
-    row: Result<EncodedFit, StoreError>,
+pub(crate) struct Outcome {
+    pub(crate) model: String,
+    pub(crate) failure: Option<String>,
+    pub(crate) row: Result<EncodedFit, StoreError>,
 }
 
 /// Fit the selected samples of a campaign in parallel and record every attempt.
@@ -268,8 +268,30 @@ pub fn fit_campaign_with(
             }
         })
         .collect();
+    record_in_chunks(
+        campaign,
+        inputs.iter().zip(outcomes.into_iter().map(|o| (o, ()))),
+        total,
+        |_, ()| {},
+    )
+}
+
+/// Record encoded attempts, in order, in short write transactions ([`CHUNK_BUDGET`] each,
+/// [`CHUNK_PAUSE`] between them), each sample's readings checked (`fits::unchanged`) before
+/// its attempt is recorded; `on_fitted(code, extra)` is called for each successful fit
+/// recorded. Shared by every campaign fit that fits outside the write lock.
+///
+/// # Errors
+/// [`StoreError::Busy`] or an SQLite error; after a first transaction,
+/// [`StoreError::PartlyRecorded`].
+pub(crate) fn record_in_chunks<'a, T>(
+    campaign: &mut Campaign,
+    attempts: impl Iterator<Item = (&'a FitInput, (Outcome, T))>,
+    total: usize,
+    mut on_fitted: impl FnMut(&str, T),
+) -> Result<FitRunSummary, StoreError> {
     let mut summary = FitRunSummary::default();
-    let mut pending = inputs.iter().zip(outcomes).peekable();
+    let mut pending = attempts.peekable();
     let mut recorded = 0;
     let partly = |e: StoreError, recorded: usize| {
         if recorded == 0 {
@@ -288,7 +310,8 @@ pub fn fit_campaign_with(
             .map_err(|e| partly(e, recorded))?;
         let started = Instant::now();
         let mut chunk = FitRunSummary::default();
-        for (input, outcome) in pending.by_ref() {
+        let mut fitted_extras = Vec::new();
+        for (input, (outcome, extra)) in pending.by_ref() {
             let code = &input.sample.code;
             let recorded_row = fits::unchanged(&tx, input).and_then(|same| {
                 if same {
@@ -302,6 +325,7 @@ pub fn fit_campaign_with(
             } else if let Some(reason) = outcome.failure {
                 chunk.failed.push((code.clone(), reason));
             } else {
+                fitted_extras.push((code.clone(), extra));
                 chunk.fitted.push((code.clone(), outcome.model));
             }
             if started.elapsed() >= CHUNK_BUDGET {
@@ -312,6 +336,9 @@ pub fn fit_campaign_with(
             .map_err(|e| partly(StoreError::from(e), recorded))?;
         recorded += chunk.fitted.len() + chunk.failed.len();
         summary.extend(chunk);
+        for (code, extra) in fitted_extras {
+            on_fitted(&code, extra);
+        }
         if pending.peek().is_some() {
             std::thread::sleep(CHUNK_PAUSE);
         }

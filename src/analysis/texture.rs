@@ -8,13 +8,12 @@
 
 use std::collections::BTreeMap;
 use std::sync::atomic::{AtomicUsize, Ordering};
-use std::time::Instant;
 
 use rayon::prelude::*;
 use rusqlite::Connection;
 
 use super::fitting::{
-    CHUNK_BUDGET, CHUNK_PAUSE, COMMIT_WAIT, FitAttempt, FitRunSummary, ModelChoice, fit_input,
+    FitAttempt, FitRunSummary, ModelChoice, Outcome, fit_input, record_in_chunks,
 };
 use super::water::{SiteProfile, SumInterval, TextureEstimate, recompute_totals};
 use rand::SeedableRng;
@@ -243,58 +242,28 @@ pub fn fit_campaign_with_prior(
                 .push((input.sample.code.clone(), input.sample.layer.clone()));
         }
     }
-    let mut pending = inputs.iter().zip(outcomes).peekable();
-    let mut recorded = 0;
-    let partly = |e: StoreError, recorded: usize| {
-        if recorded == 0 {
-            e
-        } else {
-            StoreError::PartlyRecorded {
-                recorded,
-                total,
-                source: Box::new(e),
+    let mut with_prior = Vec::new();
+    let attempts = outcomes.into_iter().map(|(model, failure, row, class)| {
+        (
+            Outcome {
+                model,
+                failure,
+                row,
+            },
+            class,
+        )
+    });
+    summary.run = record_in_chunks(
+        campaign,
+        inputs.iter().zip(attempts),
+        total,
+        |code, class| {
+            if let Some(class) = class {
+                with_prior.push((code.to_string(), class));
             }
-        }
-    };
-    while pending.peek().is_some() {
-        let tx = campaign
-            .transaction_waiting(COMMIT_WAIT)
-            .map_err(|e| partly(e, recorded))?;
-        let started = Instant::now();
-        let mut chunk = FitRunSummary::default();
-        let mut chunk_prior = Vec::new();
-        for (input, (model, failure, row, class)) in pending.by_ref() {
-            let code = &input.sample.code;
-            let recorded_row = fits::unchanged(&tx, input).and_then(|same| {
-                if same {
-                    fits::insert(&tx, &row?).map(|_| true)
-                } else {
-                    Ok(false)
-                }
-            });
-            if !recorded_row.map_err(|e| partly(e, recorded))? {
-                chunk.changed.push(code.clone());
-            } else if let Some(reason) = failure {
-                chunk.failed.push((code.clone(), reason));
-            } else {
-                if let Some(class) = class {
-                    chunk_prior.push((code.clone(), class));
-                }
-                chunk.fitted.push((code.clone(), model));
-            }
-            if started.elapsed() >= CHUNK_BUDGET {
-                break;
-            }
-        }
-        tx.commit()
-            .map_err(|e| partly(StoreError::from(e), recorded))?;
-        recorded += chunk.fitted.len() + chunk.failed.len();
-        summary.run.extend(chunk);
-        summary.with_prior.extend(chunk_prior);
-        if pending.peek().is_some() {
-            std::thread::sleep(CHUNK_PAUSE);
-        }
-    }
+        },
+    )?;
+    summary.with_prior = with_prior;
     Ok(summary)
 }
 
