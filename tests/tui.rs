@@ -550,3 +550,40 @@ fn a_joint_refit_from_the_keyboard() {
         "{text}"
     );
 }
+
+/// `f` refits as `porewise fit` would: the demo campaign's default gives samples with at most
+/// five readings the texture prior, so the four-reading core is refitted with it, and a core
+/// with more readings without it.
+#[test]
+fn a_refit_from_the_keyboard_follows_the_campaign_texture_prior_default() {
+    let copy = demo_copy();
+    let mut s = session(&copy, 100, 30);
+    let current = |code: &str| -> i64 {
+        count(
+            &copy,
+            &format!(
+                "SELECT f.id FROM fit f JOIN sample m ON m.id = f.sample_id
+                 WHERE m.code = '{code}' AND f.is_current = 1"
+            ),
+        )
+    };
+    let requested = |code: &str| -> String {
+        rusqlite::Connection::open(&copy.file)
+            .expect("open")
+            .query_row(
+                "SELECT f.requested FROM fit f JOIN sample m ON m.id = f.sample_id
+                 WHERE m.code = ?1 AND f.is_current = 1",
+                [code],
+                |r| r.get(0),
+            )
+            .expect("a current fit")
+    };
+    let before = current("TER1-A-c");
+    type_keys(&mut s, "/TER1-A-c<enter>Gf");
+    assert!(current("TER1-A-c") > before, "a new fit is current");
+    assert_eq!(requested("TER1-A-c"), "van-genuchten+texture-prior");
+    let before = current("TER1-A-b");
+    type_keys(&mut s, "<esc>/TER1-A-b<enter>Gf");
+    assert!(current("TER1-A-b") > before, "a new fit is current");
+    assert_eq!(requested("TER1-A-b"), "auto");
+}

@@ -149,6 +149,48 @@ fn classes(
     Ok(out)
 }
 
+/// The campaign's default prior rule for a fit of `choice` with nothing fixed: the texture
+/// prior for samples with at most the campaign's N readings when the user set one
+/// (`porewise set --texture-prior N`), for `auto` and van Genuchten fits only.
+///
+/// # Errors
+/// An SQLite error.
+pub fn default_rule(
+    conn: &Connection,
+    choice: ModelChoice,
+    options: &FitOptions,
+) -> Result<PriorRule, StoreError> {
+    if !options.fixed().is_empty()
+        || !matches!(
+            choice,
+            ModelChoice::Auto | ModelChoice::One(ModelKind::VanGenuchten)
+        )
+    {
+        return Ok(PriorRule::Never);
+    }
+    Ok(crate::store::texture::prior_default(conn)?.map_or(PriorRule::Never, PriorRule::AtMost))
+}
+
+/// A campaign fit under the campaign's default prior rule ([`default_rule`]): the plain
+/// campaign fit when there is none. The terminal UI's refits go through here, so they fit
+/// as `porewise fit` does.
+///
+/// # Errors
+/// As [`super::fit_campaign`].
+pub fn fit_campaign_by_default(
+    campaign: &mut Campaign,
+    selection: &Selection,
+    choice: ModelChoice,
+    options: &FitOptions,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<FitRunSummary, StoreError> {
+    match default_rule(campaign.connection(), choice, options)? {
+        PriorRule::Never => super::fit_campaign(campaign, selection, choice, options, progress),
+        rule => fit_campaign_with_prior(campaign, selection, choice, options, rule, None, progress)
+            .map(|s| s.run),
+    }
+}
+
 /// What a campaign fit with a prior rule did, beyond [`FitRunSummary`].
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct PriorRunSummary {

@@ -8,7 +8,7 @@ use rayon::prelude::*;
 
 use indicatif::{ProgressBar, ProgressStyle};
 
-use crate::analysis::texture::{PriorRule, fit_campaign_with_prior};
+use crate::analysis::texture::{PriorRule, default_rule, fit_campaign_with_prior};
 use crate::analysis::{ModelChoice, fit_campaign_with, fit_choice};
 use crate::error::Outcome;
 use crate::fit::outliers::{OutlierOptions, OutlierSample, review};
@@ -172,16 +172,8 @@ fn run_campaign(
         Some(PriorArg::Texture) => PriorRule::Always,
         // The campaign default applies to auto and van Genuchten fits, not to another model
         // asked for by name nor to fits with parameters held (--fix).
-        None if args.fix.is_empty()
-            && matches!(
-                choice,
-                ModelChoice::Auto | ModelChoice::One(ModelKind::VanGenuchten)
-            ) =>
-        {
-            crate::store::texture::prior_default(campaign.connection())?
-                .map_or(PriorRule::Never, PriorRule::AtMost)
-        }
-        Some(PriorArg::None) | None => PriorRule::Never,
+        None => default_rule(campaign.connection(), choice, options)?,
+        Some(PriorArg::None) => PriorRule::Never,
     };
     if rule != PriorRule::Never {
         return run_with_prior(args, &mut campaign, &selection, choice, options, rule);

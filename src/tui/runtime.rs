@@ -22,7 +22,8 @@ use ratatui::crossterm::event::{self, Event, KeyEvent};
 use ratatui::{DefaultTerminal, Terminal};
 
 use crate::analysis::advise::PoolCache;
-use crate::analysis::{BetweenCores, between_cores, fit_campaign};
+use crate::analysis::texture::fit_campaign_by_default;
+use crate::analysis::{BetweenCores, FitRunSummary, between_cores};
 use crate::fit::FitOptions;
 use crate::model::domain::FlagTarget;
 use crate::store::{Campaign, CampaignSettings, StoreError, flags};
@@ -113,21 +114,7 @@ impl Worker {
                     let progress = |done: usize, total: usize| {
                         let _ = result_tx.send(Action::FitProgress { job, done, total });
                     };
-                    if request.with_conductivity {
-                        return crate::analysis::joint::refit_joint(
-                            c,
-                            &request.scope.selection(),
-                            request.joint_kind(),
-                            &progress,
-                        );
-                    }
-                    fit_campaign(
-                        c,
-                        &request.scope.selection(),
-                        request.choice,
-                        &FitOptions::new(),
-                        &progress,
-                    )
+                    run_fit(c, &request, &progress)
                 })()
                 .map_err(|e| e.to_string());
                 if result_tx.send(Action::FitFinished { job, result }).is_err() {
@@ -484,26 +471,35 @@ impl Session {
             }
             None
         } else {
-            let result = if request.with_conductivity {
-                crate::analysis::joint::refit_joint(
-                    &mut self.campaign,
-                    &request.scope.selection(),
-                    request.joint_kind(),
-                    &|_, _| {},
-                )
-            } else {
-                fit_campaign(
-                    &mut self.campaign,
-                    &request.scope.selection(),
-                    request.choice,
-                    &FitOptions::new(),
-                    &|_, _| {},
-                )
-            }
-            .map_err(|e| e.to_string());
+            let result =
+                run_fit(&mut self.campaign, &request, &|_, _| {}).map_err(|e| e.to_string());
             Some(Action::FitFinished { job, result })
         }
     }
+}
+
+/// One refit the user asked for: jointly with measured conductivity, or as `porewise fit`
+/// would (the campaign's texture-prior default included).
+fn run_fit(
+    campaign: &mut Campaign,
+    request: &FitRequest,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<FitRunSummary, StoreError> {
+    if request.with_conductivity {
+        return crate::analysis::joint::refit_joint(
+            campaign,
+            &request.scope.selection(),
+            request.joint_kind(),
+            progress,
+        );
+    }
+    fit_campaign_by_default(
+        campaign,
+        &request.scope.selection(),
+        request.choice,
+        &FitOptions::new(),
+        progress,
+    )
 }
 
 /// How often the loop wakes without input (spinner, worker results), ms.
