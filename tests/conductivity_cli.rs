@@ -557,3 +557,49 @@ fn curve_tabulates_k_of_a_joint_fit_from_its_own_ks_and_l() {
     .code(1);
     assert!(stderr(&refused).contains("its K uses the fitted Ks and L"));
 }
+
+/// Accepting a suspect reading of a core whose current fit is joint refits it jointly: the
+/// review's refit keeps the kind of fit the user chose.
+#[test]
+fn a_review_refit_of_a_joint_fit_stays_joint() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let src = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-db");
+    for file in porewise::demo::generate() {
+        std::fs::copy(src.join(file.name), dir.path().join(file.name)).expect("copy");
+    }
+    let db = porewise::cli::demo::ensure_built(dir.path()).expect("demo builds");
+    let conn = rusqlite::Connection::open(&db).expect("open");
+    let current = |conn: &rusqlite::Connection| -> (i64, Option<String>, bool) {
+        conn.query_row(
+            "SELECT f.id, f.requested, f.joint IS NOT NULL FROM fit f
+             JOIN sample m ON m.id = f.sample_id
+             WHERE m.code = 'TER1-A-a' AND f.is_current = 1",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
+        )
+        .expect("a current fit")
+    };
+    let (before, requested, joint) = current(&conn);
+    assert!(joint, "the demo fits TER1-A-a jointly ({requested:?})");
+    let reading: i64 = conn
+        .query_row(
+            "SELECT r.id FROM flag g JOIN reading r ON r.id = g.reading_id
+             JOIN sample m ON m.id = r.sample_id
+             WHERE m.code = 'TER1-A-a' AND g.status = 'suggested'",
+            [],
+            |r| r.get(0),
+        )
+        .expect("the planted suspect");
+    drop(conn);
+    common::porewise()
+        .arg("review")
+        .arg(&db)
+        .args(["--accept", &reading.to_string()])
+        .assert()
+        .success();
+    let conn = rusqlite::Connection::open(&db).expect("open");
+    let (after, requested, joint) = current(&conn);
+    assert!(after > before, "refitted");
+    assert!(joint, "{requested:?}");
+    assert_eq!(requested.as_deref(), Some("van-genuchten+conductivity"));
+}

@@ -46,9 +46,12 @@ pub struct JointRequest {
     pub weighting: Weighting,
 }
 
+/// What a joint fit's `requested` text ends with, after its model's id.
+pub const REQUESTED_SUFFIX: &str = "+conductivity";
+
 /// The `requested` text of a joint fit row (`van-genuchten+conductivity`).
 pub fn requested_text(kind: ModelKind) -> String {
-    format!("{}+conductivity", kind.id())
+    format!("{}{REQUESTED_SUFFIX}", kind.id())
 }
 
 /// One sample's conductivity data, read with its retention input.

@@ -335,12 +335,25 @@ pub fn refit_samples(campaign: &mut Campaign, sample_ids: &[i64]) -> Result<FitR
     }
     // Group the samples by (requested model, fixed values, conductivity) so each group is one run.
     let mut groups: BTreeMap<(String, String, Option<ConductivityForm>), Group> = BTreeMap::new();
+    let mut joint: Vec<(crate::model::retention::ModelKind, Vec<String>)> = Vec::new();
     for sample in fits::samples(campaign.connection(), &Selection::all())? {
         if !wanted.contains(&sample.id) {
             continue;
         }
         let current = fits::current(campaign.connection(), sample.id)?;
         let requested = current.as_ref().and_then(|f| f.requested.as_deref());
+        // A joint fit with measured conductivity is refitted jointly (estimated weights, Ks
+        // and L free, as the terminal UI's joint refit).
+        if let Some(kind) = requested
+            .and_then(|r| r.strip_suffix(super::joint::REQUESTED_SUFFIX))
+            .and_then(|k| k.parse::<crate::model::retention::ModelKind>().ok())
+        {
+            match joint.iter_mut().find(|(k, _)| *k == kind) {
+                Some((_, codes)) => codes.push(sample.code),
+                None => joint.push((kind, vec![sample.code])),
+            }
+            continue;
+        }
         // A fit with the texture prior is refitted with it (see `texture`).
         let with_prior = requested == Some(super::texture::REQUESTED_WITH_PRIOR);
         let choice = if with_prior {
@@ -374,6 +387,18 @@ pub fn refit_samples(campaign: &mut Campaign, sample_ids: &[i64]) -> Result<FitR
         entry.3.push(sample.code);
     }
     let mut summary = FitRunSummary::default();
+    for (kind, codes) in joint {
+        let selection = Selection {
+            samples: codes,
+            ..Selection::default()
+        };
+        summary.extend(super::joint::refit_joint(
+            campaign,
+            &selection,
+            kind,
+            &|_, _| {},
+        )?);
+    }
     for ((requested, _, _), (choice, options, conductivity, codes)) in groups {
         let selection = Selection {
             samples: codes,
