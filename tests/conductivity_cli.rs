@@ -295,11 +295,16 @@ fn a_joint_fit_is_recorded_beside_the_retention_fit_and_either_can_be_current() 
         "{}",
         stderr(&missing)
     );
-    // Another K reading of the sample: the listing says the joint fit no longer has them all.
+    let reason = "conductivity readings changed since the joint fit";
+    assert!(!s.list(&["fits", "--sample", "LV-A1"]).contains(reason));
+    // Another K reading of the sample: the listing says the joint fit no longer has them all,
+    // and the current (joint) fit is stale for it.
     s.import_ok("conductivity", &["valid/conductivity_lv_a1_more.csv"]);
     let joint = s.list(&["conductivity-fits", "--format", "json"]);
     let rows: serde_json::Value = serde_json::from_str(&joint).expect("json");
     assert_eq!(rows[0]["k_readings"], "changed since the fit");
+    let fits = s.list(&["fits", "--sample", "LV-A1"]);
+    assert!(fits.contains(reason), "{fits}");
 }
 
 #[test]

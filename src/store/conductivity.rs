@@ -258,6 +258,23 @@ pub fn fingerprint(readings: &[StoredConductivity]) -> String {
     crate::model::number::hex(&hasher.finalize())
 }
 
+/// Whether the conductivity readings of sample `sample_id` changed since its joint fit
+/// `fit_id` was made: `None` for a fit that is not joint or recorded no fingerprint.
+///
+/// # Errors
+/// An SQLite error.
+pub fn changed_since(conn: &Connection, fit_id: i64, sample_id: i64) -> Result<Option<bool>> {
+    let recorded: Option<String> = conn
+        .prepare_cached(
+            "SELECT json_extract(joint, '$.conductivity_fingerprint') FROM fit WHERE id = ?1",
+        )?
+        .query_row([fit_id], |r| r.get(0))?;
+    match recorded {
+        None => Ok(None),
+        Some(fp) => Ok(Some(fp != fingerprint(&of_sample(conn, sample_id)?))),
+    }
+}
+
 /// Attach a joint record to fit `fit_id` (in the transaction that inserted it).
 ///
 /// # Errors

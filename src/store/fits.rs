@@ -716,6 +716,8 @@ pub enum StaleReason {
     ReadingsChanged,
     /// A later attempt to refit the sample failed; the message says why.
     RefitFailed(String),
+    /// A joint fit's conductivity readings were added, changed or removed since the fit.
+    ConductivityChanged,
 }
 
 impl std::fmt::Display for StaleReason {
@@ -723,6 +725,9 @@ impl std::fmt::Display for StaleReason {
         match self {
             StaleReason::ReadingsChanged => f.write_str("readings changed since the fit"),
             StaleReason::RefitFailed(m) => write!(f, "a later refit failed: {m}"),
+            StaleReason::ConductivityChanged => {
+                f.write_str("conductivity readings changed since the joint fit")
+            }
         }
     }
 }
@@ -813,6 +818,11 @@ pub fn summaries(conn: &Connection, samples: &[SampleInfo]) -> Result<HashMap<i6
             failed.insert(sample, (id, message));
         }
     }
+    // Current joint fits: their conductivity readings are checked too.
+    let joint: HashSet<i64> = conn
+        .prepare_cached("SELECT id FROM fit WHERE is_current = 1 AND joint IS NOT NULL")?
+        .query_map([], |r| r.get(0))?
+        .collect::<rusqlite::Result<_>>()?;
     let mut out = HashMap::with_capacity(samples.len());
     for sample in samples {
         let fail = failed.get(&sample.id);
@@ -827,6 +837,11 @@ pub fn summaries(conn: &Connection, samples: &[SampleInfo]) -> Result<HashMap<i6
                 let moved = *rev != revision.get(&sample.id).copied();
                 if moved && readings_fingerprint(conn, sample.id)? != *fp {
                     reasons.push(StaleReason::ReadingsChanged);
+                }
+                if joint.contains(id)
+                    && super::conductivity::changed_since(conn, *id, sample.id)? == Some(true)
+                {
+                    reasons.push(StaleReason::ConductivityChanged);
                 }
                 if let Some((fail_id, message)) = fail
                     && fail_id > id
