@@ -253,8 +253,27 @@ type Chart<'a, 'b> = ChartContext<
     Cartesian2d<plotters::coord::combinators::LogCoord<f64>, RangedCoordf64>,
 >;
 
-fn draw_err<E: std::fmt::Debug>(e: E) -> String {
+pub(super) fn draw_err<E: std::fmt::Debug>(e: E) -> String {
     format!("cannot draw the chart: {e:?}")
+}
+
+/// The series legend of every report chart: upper right, on a white box with a grey border.
+///
+/// # Errors
+/// The backend's drawing error, as text.
+pub(super) fn draw_legend<'a, DB, CT>(chart: &mut ChartContext<'a, DB, CT>) -> Result<(), String>
+where
+    DB: DrawingBackend + 'a,
+    CT: CoordTranslate,
+{
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .background_style(WHITE.mix(0.9))
+        .border_style(RGBColor(0x99, 0x99, 0x99))
+        .label_font(("sans-serif", 14))
+        .draw()
+        .map_err(draw_err)
 }
 
 /// Vertical dashed lines at field capacity and the wilting point, labelled.
@@ -541,14 +560,7 @@ pub fn chart_svg(settings: &CampaignSettings, data: &ChartData) -> Result<Option
             .legend(|(x, y)| {
                 DashedPathElement::new(vec![(x - 10, y), (x + 10, y)], 6, 5, BLACK.stroke_width(1))
             });
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.9))
-            .border_style(RGBColor(0x99, 0x99, 0x99))
-            .label_font(("sans-serif", 14))
-            .draw()
-            .map_err(draw_err)?;
+        draw_legend(&mut chart)?;
         root.present().map_err(draw_err)?;
     }
     Ok(Some(svg))

@@ -5,7 +5,7 @@
 
 use plotters::prelude::*;
 
-use super::chart::{CHART_SIZE, decade_label, layer_colour, layer_label};
+use super::chart::{CHART_SIZE, decade_label, draw_err, draw_legend, layer_colour, layer_label};
 use super::snapshot::{SamplePart, SitePart, Snapshot};
 use crate::fit::joint::JointReport;
 use crate::store::conductivity::Where;
@@ -101,10 +101,6 @@ pub fn site_k_chart(site: &SitePart) -> Result<Option<String>, String> {
         }
     }
     k_chart_svg(&data)
-}
-
-fn draw_err<E: std::fmt::Debug>(e: E) -> String {
-    format!("cannot draw the conductivity chart: {e:?}")
 }
 
 /// The SVG of gathered conductivity data; `None` when the site has no measured K and no joint
@@ -236,14 +232,7 @@ pub fn k_chart_svg(data: &KChartData) -> Result<Option<String>, String> {
             .legend(|(x, y)| {
                 PathElement::new(vec![(x - 10, y), (x + 10, y)], BLACK.stroke_width(4))
             });
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.9))
-            .border_style(RGBColor(0x99, 0x99, 0x99))
-            .label_font(("sans-serif", 14))
-            .draw()
-            .map_err(draw_err)?;
+        draw_legend(&mut chart)?;
         root.present().map_err(draw_err)?;
     }
     Ok(Some(svg))
