@@ -16,7 +16,7 @@ use rusqlite::Connection;
 
 use super::batch::{ImportBatch, Located, Origin, SampleDraft};
 use super::diagnostic::Diagnostics;
-use super::fields::{Cells, HeaderCheck, depths, finish_file, read_rows};
+use super::fields::{Cells, HeaderCheck, SampleColumns, depths, finish_file, read_rows};
 use super::lab::{read_suction, suction_names, unit_column};
 use super::layers::name_site;
 use super::table::{Header, RowSource};
@@ -258,11 +258,13 @@ impl ConductivityReader {
         let name = table.file().to_string();
         let header = table.header().clone();
         let mut check = HeaderCheck::new(&name, &header, COLUMNS, diags);
-        let c_site = check.required("site", diags);
-        let c_top = check.required("top_cm", diags);
-        let c_bottom = check.required("bottom_cm", diags);
-        let c_sample = check.required("sample", diags);
-        let c_method = check.required("method", diags);
+        let SampleColumns {
+            site: c_site,
+            top: c_top,
+            bottom: c_bottom,
+            sample: c_sample,
+            method: c_method,
+        } = check.sample_columns(diags);
         let at = at_column(&mut check, &header, diags);
         let k = unit_column(
             &mut check,

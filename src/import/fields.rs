@@ -100,6 +100,18 @@ impl<'a> HeaderCheck<'a> {
         diags.push(self.file, 1, column, message);
     }
 
+    /// The five columns that place a sample (`site`, `top_cm`, `bottom_cm`, `sample`,
+    /// `method`), each required: the start of a lab or conductivity file.
+    pub(crate) fn sample_columns(&mut self, diags: &mut Diagnostics) -> SampleColumns {
+        SampleColumns {
+            site: self.required("site", diags),
+            top: self.required("top_cm", diags),
+            bottom: self.required("bottom_cm", diags),
+            sample: self.required("sample", diags),
+            method: self.required("method", diags),
+        }
+    }
+
     /// The index of a column the file must have (reports it missing otherwise).
     pub(crate) fn required(&mut self, name: &str, diags: &mut Diagnostics) -> usize {
         if let Some(i) = self.header.find(name) {
@@ -580,4 +592,19 @@ mod tests {
         assert_eq!(edit_distance("", "abc"), 3);
         assert_eq!(edit_distance("same", "same"), 0);
     }
+}
+
+/// Indexes of the columns that place a sample in a lab or conductivity file.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct SampleColumns {
+    /// `site`.
+    pub site: usize,
+    /// `top_cm`.
+    pub top: usize,
+    /// `bottom_cm`.
+    pub bottom: usize,
+    /// `sample`.
+    pub sample: usize,
+    /// `method`.
+    pub method: usize,
 }

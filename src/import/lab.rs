@@ -9,7 +9,7 @@ use std::collections::{HashMap, HashSet};
 
 use super::batch::{ImportBatch, Located, Origin, ReadingDraft, SampleDraft, Water};
 use super::diagnostic::Diagnostics;
-use super::fields::{Cells, HeaderCheck, depths, finish_file, read_rows};
+use super::fields::{Cells, HeaderCheck, SampleColumns, depths, finish_file, read_rows};
 use super::layers::{BULK_DENSITY_EXPECTED, BULK_DENSITY_RANGE, name_site};
 use super::table::{Header, RowSource};
 use crate::model::domain::{Branch, Layer, LayerRef, Method, Sample, SampleKind, Uid};
@@ -114,11 +114,13 @@ impl LabReader {
         let name = table.file().to_string();
         let header = table.header().clone();
         let mut check = HeaderCheck::new(&name, &header, COLUMNS, diags);
-        let c_site = check.required("site", diags);
-        let c_top = check.required("top_cm", diags);
-        let c_bottom = check.required("bottom_cm", diags);
-        let c_sample = check.required("sample", diags);
-        let c_method = check.required("method", diags);
+        let SampleColumns {
+            site: c_site,
+            top: c_top,
+            bottom: c_bottom,
+            sample: c_sample,
+            method: c_method,
+        } = check.sample_columns(diags);
         let suction = unit_column(
             &mut check,
             &header,
