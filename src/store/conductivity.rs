@@ -364,7 +364,7 @@ pub struct JointRow {
 /// A stored record that does not decode, or an SQLite error.
 pub fn joint_fits(conn: &Connection, filter: Filter<'_>) -> Result<Vec<JointRow>> {
     let mut stmt = conn.prepare(
-        "SELECT f.id, m.code, s.code, f.is_current, f.joint FROM fit f
+        "SELECT f.id, m.code, s.code, f.is_current, f.joint, f.sample_id FROM fit f
          JOIN sample m ON f.sample_id = m.id JOIN layer l ON m.layer_id = l.id
          JOIN site s ON l.site_id = s.id
          WHERE f.joint IS NOT NULL AND (?1 IS NULL OR s.code = ?1) AND (?2 IS NULL OR m.code = ?2)
@@ -377,17 +377,15 @@ pub fn joint_fits(conn: &Connection, filter: Filter<'_>) -> Result<Vec<JointRow>
             r.get::<_, String>(2)?,
             r.get::<_, bool>(3)?,
             r.get::<_, String>(4)?,
+            r.get::<_, i64>(5)?,
         ))
     })?;
     let mut out = Vec::new();
     for row in rows {
-        let (fit_id, sample, site, current, text) = row?;
+        let (fit_id, sample, site, current, text, sample_id) = row?;
         let record: JointRecord = serde_json::from_str(&text).map_err(|e| {
             super::StoreError::Corrupt(format!("fit {fit_id}: joint report does not decode: {e}"))
         })?;
-        let sample_id: i64 = conn
-            .prepare_cached("SELECT sample_id FROM fit WHERE id = ?1")?
-            .query_row([fit_id], |r| r.get(0))?;
         let conductivity_unchanged = match &record.conductivity_fingerprint {
             Some(f) => Some(*f == fingerprint(&of_sample(conn, sample_id)?)),
             None => None,
