@@ -3,7 +3,7 @@
 
 mod common;
 
-use std::io::{BufRead, BufReader};
+use std::io::Read;
 use std::path::{Path, PathBuf};
 use std::process::Stdio;
 
@@ -174,10 +174,16 @@ fn a_listing_cut_short_by_its_reader_stops_quietly() {
         .stderr(Stdio::piped())
         .spawn()
         .expect("spawn");
-    let mut first = String::new();
-    BufReader::new(child.stdout.take().expect("stdout"))
-        .read_line(&mut first)
-        .expect("a line");
+    // Read the first line a byte at a time and close the pipe: a buffered reader would take
+    // up to 8 KiB, and with the pipe's 64 KiB the writer could finish before the close.
+    let mut stdout = child.stdout.take().expect("stdout");
+    let mut bytes = Vec::new();
+    let mut byte = [0u8; 1];
+    while stdout.read(&mut byte).expect("read") == 1 && byte[0] != b'\n' {
+        bytes.push(byte[0]);
+    }
+    drop(stdout);
+    let first = String::from_utf8_lossy(&bytes).into_owned();
     assert!(first.starts_with("reading"), "{first}");
     let out = child.wait_with_output().expect("wait");
     let err = String::from_utf8_lossy(&out.stderr);

@@ -19,6 +19,7 @@ pub const MIGRATIONS: &[&str] = &[
     include_str!("../../migrations/0007_measured_on_repair.sql"),
     include_str!("../../migrations/0008_texture.sql"),
     include_str!("../../migrations/0009_conductivity.sql"),
+    include_str!("../../migrations/0010_uids_everywhere.sql"),
 ];
 
 /// `application_id` written by the first migration, so a porewise file can be recognised.
