@@ -8,6 +8,7 @@ pub mod derived;
 pub mod domain;
 pub mod golden;
 pub mod number;
+pub mod ptf;
 pub mod retention;
 pub mod special;
 pub mod text;

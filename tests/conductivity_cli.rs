@@ -157,11 +157,11 @@ fn good_files_import_in_every_unit_and_list_back() {
     assert_eq!(
         lines[0],
         "reading,sample,site,top_cm,bottom_cm,suction_cm,theta,conductivity_cm_per_day,\
-         ks_cm_per_day,layer_ks_cm_per_day,method,measured_on,notes,source,uid"
+         ks_cm_per_day,layer_ks_cm_per_day,flag,method,measured_on,notes,source,uid"
     );
     assert!(
         lines[1].starts_with(
-            "1,LV-K1,LV,0,20,25,,3.1,41.5,,evaporation,2026-05-12,,\
+            "1,LV-K1,LV,0,20,25,,3.1,41.5,,,evaporation,2026-05-12,,\
              valid/conductivity_evaporation.csv:2,"
         ),
         "{}",
@@ -401,7 +401,7 @@ fn the_export_carries_conductivity_readings_and_the_joint_fit() {
         &std::fs::read_to_string(out.join("campaign.json")).expect("campaign.json"),
     )
     .expect("json");
-    assert_eq!(json["schema_version"], 4);
+    assert_eq!(json["schema_version"], 5);
     let sample = &json["data"]["sites"][0]["layers"][0]["samples"][0];
     assert_eq!(sample["code"], "LV-A1");
     assert_eq!(sample["ks_cm_per_day"], 31.5);
@@ -607,4 +607,138 @@ fn a_review_refit_of_a_joint_fit_stays_joint() {
     assert!(after > before, "refitted");
     assert!(joint, "{requested:?}");
     assert_eq!(requested.as_deref(), Some("van-genuchten+conductivity"));
+}
+
+#[test]
+fn a_flagged_conductivity_reading_leaves_joint_fits_until_unflagged() {
+    let s = Scratch::new();
+    s.import_ok("lab", &["valid/lab_kpa.csv"]);
+    s.import_ok("conductivity", &["valid/conductivity_lv_a1.csv"]);
+    run(
+        &s,
+        &["fit", "DB", "--sample", "LV-A1", "--with-conductivity"],
+    )
+    .success();
+    let n_k = |s: &Scratch| {
+        let joint = s.list(&["conductivity-fits", "--format", "json"]);
+        let rows: serde_json::Value = serde_json::from_str(&joint).expect("json");
+        rows.as_array().expect("rows").last().expect("a joint fit")["n_k"]
+            .as_i64()
+            .expect("n_k")
+    };
+    assert_eq!(n_k(&s), 9);
+    let listing = s.list(&["conductivity", "--format", "csv"]);
+    let first: i64 = listing
+        .lines()
+        .nth(1)
+        .and_then(|l| l.split(',').next())
+        .and_then(|id| id.parse().ok())
+        .expect("a conductivity reading id");
+    let id = first.to_string();
+    // A retention reading id is not a conductivity reading id: the flag names its kind.
+    let out = run(
+        &s,
+        &[
+            "flag",
+            "DB",
+            &id,
+            "--conductivity",
+            "--reason",
+            "sensor drift",
+        ],
+    )
+    .success();
+    assert_eq!(
+        stdout(&out).trim(),
+        format!(
+            "conductivity reading {id} flagged (flag 1); left out of joint fits; the joint fit \
+             of LV-A1 is stale until refitted (porewise fit DB --sample LV-A1 \
+             --with-conductivity)"
+        )
+    );
+    let again = run(
+        &s,
+        &["flag", "DB", &id, "--conductivity", "--reason", "twice"],
+    )
+    .code(1);
+    assert!(
+        stderr(&again).contains(&format!("conductivity reading {id} is already flagged")),
+        "{}",
+        stderr(&again)
+    );
+    let missing = run(
+        &s,
+        &["flag", "DB", "9999", "--conductivity", "--reason", "x"],
+    )
+    .code(1);
+    assert!(
+        stderr(&missing).contains("conductivity reading"),
+        "{}",
+        stderr(&missing)
+    );
+    // Listings: the reading is marked, the flag names it in its own column.
+    let listing = s.list(&["conductivity", "--format", "csv"]);
+    let header: Vec<&str> = listing.lines().next().expect("header").split(',').collect();
+    let flag_col = header
+        .iter()
+        .position(|c| *c == "flag")
+        .expect("flag column");
+    let row: Vec<&str> = listing.lines().nth(1).expect("row").split(',').collect();
+    assert_eq!(row[flag_col], "excluded", "{listing}");
+    let flags = s.list(&["flags", "--format", "csv"]);
+    assert!(
+        flags
+            .lines()
+            .nth(1)
+            .is_some_and(|l| l.starts_with(&format!("1,,,{id},LV-A1,LV,"))),
+        "{flags}"
+    );
+    assert!(
+        s.list(&["fits", "--sample", "LV-A1"])
+            .contains("conductivity readings changed since the joint fit")
+    );
+    // The refit leaves the flagged reading out.
+    run(
+        &s,
+        &["fit", "DB", "--sample", "LV-A1", "--with-conductivity"],
+    )
+    .success();
+    assert_eq!(n_k(&s), 8);
+    assert!(
+        !s.list(&["fits", "--sample", "LV-A1"])
+            .contains("conductivity readings changed since the joint fit")
+    );
+    // Unflagged, it is back, and the fit made without it is stale again.
+    let out = run(
+        &s,
+        &[
+            "unflag",
+            "DB",
+            &id,
+            "--conductivity",
+            "--note",
+            "drift corrected",
+        ],
+    )
+    .success();
+    assert!(
+        stdout(&out).starts_with(&format!(
+            "conductivity reading {id} back in fits (1 flag cleared)"
+        )),
+        "{}",
+        stdout(&out)
+    );
+    assert!(
+        s.list(&["fits", "--sample", "LV-A1"])
+            .contains("conductivity readings changed since the joint fit")
+    );
+    run(
+        &s,
+        &["fit", "DB", "--sample", "LV-A1", "--with-conductivity"],
+    )
+    .success();
+    assert_eq!(n_k(&s), 9);
+    // The audit trail keeps both decisions.
+    let events = s.list(&["flag-events", "--format", "csv"]);
+    assert_eq!(events.lines().count(), 3, "{events}");
 }

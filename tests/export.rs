@@ -970,6 +970,40 @@ fn the_demo_campaign_exports_every_sample() {
         })
         .collect();
     assert_eq!(with_estimate, [(90.0, Some("clay"))]);
+    // Beside the class mean, the pedotransfer estimate from its sand, clay and organic carbon
+    // (Saxton & Rawls 2006): the library's value, named in the page too.
+    let ck = layers
+        .iter()
+        .find(|l| l.texture_estimate.is_some())
+        .expect("the texture-only layer");
+    let ptf = ck
+        .pedotransfer_estimate
+        .as_ref()
+        .expect("a pedotransfer estimate");
+    let want = porewise::analysis::texture::pedotransfer_estimate(
+        ck.sand_pct,
+        ck.clay_pct,
+        ck.organic_carbon_pct,
+        doc.data.campaign.field_capacity_kpa,
+        doc.data.campaign.wilting_point_kpa,
+    )
+    .expect("computable");
+    assert_eq!(*ptf, want);
+    assert!(ptf.available_water_m3_m3 > 0.0 && ptf.theta_fc_m3_m3 < ptf.theta_s_m3_m3);
+    assert!(
+        estimates[0].contains(&format!(
+            "FC {}",
+            porewise::model::number::significant(ptf.theta_fc_m3_m3, 3).expect("digits")
+        )),
+        "{estimates:?}"
+    );
+    assert!(
+        layers
+            .iter()
+            .filter(|l| l.pedotransfer_estimate.is_some())
+            .all(|l| l.texture_estimate.is_some()),
+        "only layers without a fitted core get one"
+    );
     assert!(layers.iter().all(|l| l.texture_class.is_some()));
     let four = layers
         .iter()

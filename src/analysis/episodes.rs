@@ -64,7 +64,7 @@ impl Episode {
         fn time(r: &FlagRow) -> Option<&str> {
             match &r.subject {
                 Subject::LoggerRecord { time, .. } => Some(time.as_str()),
-                Subject::Reading { .. } => None,
+                Subject::Reading { .. } | Subject::ConductivityReading { .. } => None,
             }
         }
         Some((time(self.rows.first()?)?, time(self.rows.last()?)?))
@@ -74,7 +74,7 @@ impl Episode {
     pub fn sensor_id(&self) -> Option<&str> {
         match &self.worst().subject {
             Subject::LoggerRecord { sensor_id, .. } => Some(sensor_id),
-            Subject::Reading { .. } => None,
+            Subject::Reading { .. } | Subject::ConductivityReading { .. } => None,
         }
     }
 
@@ -114,7 +114,9 @@ pub fn group_with<E>(
     let mut episodes = Vec::new();
     for row in rows {
         match &row.subject {
-            Subject::Reading { .. } => episodes.push(Episode::new(vec![row])),
+            Subject::Reading { .. } | Subject::ConductivityReading { .. } => {
+                episodes.push(Episode::new(vec![row]));
+            }
             Subject::LoggerRecord {
                 site, sensor_id, ..
             } => {
@@ -138,7 +140,7 @@ pub fn group_with<E>(
                 Subject::LoggerRecord {
                     time, record_id, ..
                 } => (time.clone(), *record_id),
-                Subject::Reading { .. } => (String::new(), 0),
+                Subject::Reading { .. } | Subject::ConductivityReading { .. } => (String::new(), 0),
             };
             t(a).cmp(&t(b)).then(a.stored.id.cmp(&b.stored.id))
         });
@@ -169,7 +171,9 @@ pub fn group_with<E>(
 fn record_id(row: &FlagRow) -> i64 {
     match &row.subject {
         Subject::LoggerRecord { record_id, .. } => *record_id,
-        Subject::Reading { reading_id, .. } => *reading_id,
+        Subject::Reading { reading_id, .. } | Subject::ConductivityReading { reading_id, .. } => {
+            *reading_id
+        }
     }
 }
 

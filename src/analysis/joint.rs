@@ -86,10 +86,14 @@ pub fn fit_campaign_joint(
         selection.check(&tx)?;
         let mut out = Vec::new();
         for fit in fits::inputs(&tx, selection)? {
-            let rows = store_k::of_sample(&tx, fit.sample.id)?;
+            let all = store_k::of_sample(&tx, fit.sample.id)?;
             let ks = store_k::ks_of_sample(&tx, fit.sample.id)?;
+            // The fingerprint covers the flagged readings too (flagging one makes the joint
+            // fit stale); the fit uses the others.
+            let fingerprint = store_k::fingerprint(&all);
+            let rows: Vec<_> = all.into_iter().filter(|r| !r.excluded).collect();
             out.push(Input {
-                fingerprint: store_k::fingerprint(&rows),
+                fingerprint,
                 ids: rows.iter().map(|r| r.id).collect(),
                 k_at: rows
                     .iter()

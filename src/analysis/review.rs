@@ -430,55 +430,76 @@ pub fn refit_samples(campaign: &mut Campaign, sample_ids: &[i64]) -> Result<FitR
     Ok(summary)
 }
 
-/// Flag a reading by hand (it is left out of fits at once); returns the flag id.
+/// Flag a reading or a conductivity reading by hand (it is left out of fits at once);
+/// returns the flag id.
 ///
 /// # Errors
 /// As [`flags::flag_manual`].
 pub fn flag_reading(
     campaign: &mut Campaign,
-    reading: i64,
+    target: FlagTarget,
     reason: &str,
     note: Option<&str>,
 ) -> Result<i64> {
     let tx = campaign.transaction()?;
-    let id = flags::flag_manual(&tx, FlagTarget::Reading(reading), reason, note)?;
+    let id = flags::flag_manual(&tx, target, reason, note)?;
     tx.commit()?;
     Ok(id)
 }
 
-/// Clear every flag that leaves a reading out of fits; returns the flag ids.
+/// Clear every flag that leaves a reading (or conductivity reading) out of fits; returns the
+/// flag ids.
 ///
 /// # Errors
 /// As [`flags::clear_target`].
 pub fn unflag_reading(
     campaign: &mut Campaign,
-    reading: i64,
+    target: FlagTarget,
     note: Option<&str>,
 ) -> Result<Vec<i64>> {
     let tx = campaign.transaction()?;
-    let ids = flags::clear_target(&tx, FlagTarget::Reading(reading), note)?;
+    let ids = flags::clear_target(&tx, target, note)?;
     tx.commit()?;
     Ok(ids)
 }
 
-/// The sample of a reading and where its fit stands now (after a flag change, say).
+/// The sample of a reading or conductivity reading and where its fit stands now (after a
+/// flag change, say).
 ///
 /// # Errors
-/// [`StoreError::Unknown`] for a reading that does not exist, or an SQLite error.
+/// [`StoreError::Unknown`] for a reading that does not exist (or a logger record, which has
+/// no sample), or an SQLite error.
 pub fn fit_state_of_reading(
     conn: &rusqlite::Connection,
-    reading: i64,
+    target: FlagTarget,
 ) -> Result<(String, fits::FitState)> {
     use rusqlite::OptionalExtension as _;
-    let code: Option<String> = conn
-        .prepare_cached(
+    let (sql, id, what) = match target {
+        FlagTarget::Reading(id) => (
             "SELECT m.code FROM reading r JOIN sample m ON m.id = r.sample_id WHERE r.id = ?1",
-        )?
-        .query_row([reading], |r| r.get(0))
+            id,
+            "reading",
+        ),
+        FlagTarget::ConductivityReading(id) => (
+            "SELECT m.code FROM conductivity_reading c JOIN sample m ON m.id = c.sample_id
+             WHERE c.id = ?1",
+            id,
+            "conductivity reading",
+        ),
+        FlagTarget::LoggerRecord(id) => {
+            return Err(StoreError::Unknown {
+                what: "sample of logger record",
+                code: id.to_string(),
+            });
+        }
+    };
+    let code: Option<String> = conn
+        .prepare_cached(sql)?
+        .query_row([id], |r| r.get(0))
         .optional()?;
     let code = code.ok_or_else(|| StoreError::Unknown {
-        what: "reading",
-        code: reading.to_string(),
+        what,
+        code: id.to_string(),
     })?;
     let samples = fits::samples(
         conn,

@@ -6,6 +6,7 @@
 //! readings' noise is the campaign's pooled method noise ([`super::advise::method_noise`])
 //! where it has enough degrees of freedom, else [`DEFAULT_NOISE_SD`].
 
+use crate::model::ptf::{OM_PER_OC, SAXTON_RAWLS_SOURCE, SaxtonRawls};
 use std::collections::BTreeMap;
 use std::sync::atomic::{AtomicUsize, Ordering};
 
@@ -405,6 +406,49 @@ pub fn layer_estimate(class: TextureClass, fc_kpa: f64, pwp_kpa: f64) -> Option<
     })
 }
 
+/// A layer's second estimate beside the class mean: a continuous pedotransfer function of its
+/// sand, clay and organic carbon ([`SaxtonRawls`]), at the campaign's field capacity and
+/// wilting point. It is not put in profile sums (the class mean, with its spread, is).
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct PedotransferEstimate {
+    /// Where the numbers come from.
+    pub source: String,
+    /// Water content at field capacity, m3/m3.
+    pub theta_fc_m3_m3: f64,
+    /// Water content at the wilting point, m3/m3.
+    pub theta_pwp_m3_m3: f64,
+    /// Available water between them, m3/m3.
+    pub available_water_m3_m3: f64,
+    /// Water content at saturation, m3/m3.
+    pub theta_s_m3_m3: f64,
+    /// Saturated conductivity, cm/day.
+    pub ks_cm_per_day: f64,
+}
+
+/// [`PedotransferEstimate`] of a layer with sand, clay and organic carbon (% by mass); `None`
+/// when one is missing, the inputs are out of range, or field capacity or wilting point lie
+/// outside the 0-1500 kPa the equations cover.
+pub fn pedotransfer_estimate(
+    sand_pct: Option<f64>,
+    clay_pct: Option<f64>,
+    organic_carbon_pct: Option<f64>,
+    fc_kpa: f64,
+    pwp_kpa: f64,
+) -> Option<PedotransferEstimate> {
+    let om = organic_carbon_pct? * OM_PER_OC;
+    let sr = SaxtonRawls::new(sand_pct?, clay_pct?, om)?;
+    let fc = sr.theta_at(fc_kpa)?;
+    let pwp = sr.theta_at(pwp_kpa)?;
+    Some(PedotransferEstimate {
+        source: SAXTON_RAWLS_SOURCE.to_string(),
+        theta_fc_m3_m3: fc,
+        theta_pwp_m3_m3: pwp,
+        available_water_m3_m3: fc - pwp,
+        theta_s_m3_m3: sr.theta_s,
+        ks_cm_per_day: sr.ks_cm_per_day(),
+    })
+}
+
 /// Fill the layers of `profiles` that have a texture but no fitted lab core with their
 /// class's estimate ([`layer_estimate`]), marked as such, and recompute the totals. Layers
 /// with a fitted core keep their measured value.
@@ -492,5 +536,24 @@ mod tests {
             &FitOptions::new(),
         );
         assert!(none.report.is_none() && none.failure().is_some());
+    }
+
+    #[test]
+    #[allow(clippy::unreadable_literal)] // digits as the reference table prints them
+    fn the_pedotransfer_estimate_is_the_saxton_rawls_curve_at_the_campaign_suctions() {
+        // Loam at its representative point, organic matter 2.5 % (organic carbon 2.5 / 1.724):
+        // theta_33 0.2796101649 and theta_1500 0.1370236 (Saxton & Rawls 2006, Table 1
+        // equations; values of table T7 of the project's soil reference).
+        let e = pedotransfer_estimate(Some(40.0), Some(20.0), Some(2.5 / OM_PER_OC), 33.0, 1500.0)
+            .expect("estimate");
+        assert!((e.theta_fc_m3_m3 - 0.2796101649).abs() < 1e-9, "{e:?}");
+        assert!((e.theta_pwp_m3_m3 - 0.1370236).abs() < 1e-7, "{e:?}");
+        assert!((e.available_water_m3_m3 - (0.2796101649 - 0.1370236)).abs() < 1e-7);
+        // 15.4756564 mm/h = 37.14157536 cm/day.
+        assert!((e.ks_cm_per_day - 15.4756564 * 2.4).abs() < 1e-5, "{e:?}");
+        assert!(e.source.starts_with("Saxton & Rawls (2006)"));
+        // Without organic carbon, or with a wilting point beyond the equations' range: none.
+        assert!(pedotransfer_estimate(Some(40.0), Some(20.0), None, 33.0, 1500.0).is_none());
+        assert!(pedotransfer_estimate(Some(40.0), Some(20.0), Some(1.0), 33.0, 2000.0).is_none());
     }
 }

@@ -5,7 +5,7 @@ use std::path::PathBuf;
 use anyhow::Context;
 use clap::Args;
 
-use super::flag::fit_note;
+use super::flag::{fit_note, target, what};
 use crate::analysis::review::{fit_state_of_reading, unflag_reading};
 use crate::error::Outcome;
 use crate::model::number::plural;
@@ -19,8 +19,13 @@ use crate::store::Campaign;
 pub struct UnflagArgs {
     /// The campaign file.
     pub db: PathBuf,
-    /// The reading id (as `porewise list DB readings` shows it).
+    /// The reading id (as `porewise list DB readings` shows it), or with --conductivity the
+    /// conductivity reading id (as `porewise list DB conductivity` shows it).
     pub reading: i64,
+    /// READING is a measured conductivity reading: it is left out of (taken back into) joint
+    /// fits of retention and conductivity.
+    #[arg(long)]
+    pub conductivity: bool,
     /// A note kept with the change.
     #[arg(long, value_name = "TEXT")]
     pub note: Option<String>,
@@ -33,11 +38,12 @@ pub struct UnflagArgs {
 pub fn run(args: &UnflagArgs) -> anyhow::Result<Outcome> {
     let mut campaign = Campaign::open(&args.db)
         .with_context(|| format!("cannot open campaign {}", args.db.display()))?;
-    let ids = unflag_reading(&mut campaign, args.reading, args.note.as_deref())?;
-    let (sample, state) = fit_state_of_reading(campaign.connection(), args.reading)?;
+    let target = target(args.reading, args.conductivity);
+    let ids = unflag_reading(&mut campaign, target, args.note.as_deref())?;
+    let (sample, state) = fit_state_of_reading(campaign.connection(), target)?;
     println!(
-        "reading {} back in fits ({} cleared); {}",
-        args.reading,
+        "{} back in fits ({} cleared); {}",
+        what(target),
         plural(ids.len() as u64, "flag"),
         fit_note(&sample, &state)
     );

@@ -367,6 +367,8 @@ pub enum FlagTarget {
     Reading(i64),
     /// A field logger record.
     LoggerRecord(i64),
+    /// A measured conductivity reading (flagged ones are left out of joint fits).
+    ConductivityReading(i64),
 }
 
 /// A mark on a suspect reading or logger record, with its review trail.

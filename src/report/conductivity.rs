@@ -30,6 +30,7 @@ pub fn conductivity_listing<S: std::hash::BuildHasher>(
         k_name.as_str(),
         ks_name.as_str(),
         layer_ks_name.as_str(),
+        "flag",
         "method",
         "measured_on",
         "notes",
@@ -66,6 +67,9 @@ pub fn conductivity_listing<S: std::hash::BuildHasher>(
             Cell::exact(in_unit(Some(x.k_cm_per_day))),
             Cell::exact(in_unit(sample_ks.sample)),
             Cell::exact(in_unit(sample_ks.layer)),
+            r.excluded
+                .then(|| crate::store::flags::Mark::Excluded.label().to_string())
+                .into(),
             x.method.clone().into(),
             x.measured_on.map(|d| d.to_string()).into(),
             x.notes.clone().into(),

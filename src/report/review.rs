@@ -8,17 +8,28 @@ fn time(t: chrono::DateTime<chrono::Utc>) -> Cell {
     Cell::text(t.to_rfc3339_opts(chrono::SecondsFormat::Secs, true))
 }
 
-/// Flags with their subject: reading id (or logger record id), sample, suction in `unit`,
-/// water content, score and reason; `queue` order is kept as given.
+/// The subject's id in the column of its kind: (reading, logger record, conductivity reading).
+fn subject_ids(subject: &Subject) -> (Cell, Cell, Cell) {
+    let none = || Cell::Text(None);
+    match subject {
+        Subject::Reading { reading_id, .. } => (Cell::Int(*reading_id), none(), none()),
+        Subject::LoggerRecord { record_id, .. } => (none(), Cell::Int(*record_id), none()),
+        Subject::ConductivityReading { reading_id, .. } => (none(), none(), Cell::Int(*reading_id)),
+    }
+}
+
+/// Flags with their subject: reading id (or logger record id, or conductivity reading id),
+/// sample, suction in `unit`, water content, score and reason; `queue` order is kept as given.
 ///
-/// Columns: `flag,reading,logger_record,sample,site,suction_<unit>,theta_m3_m3,status,origin,
-/// score,reason,note,created_at,decided_at`.
+/// Columns: `flag,reading,logger_record,conductivity_reading,sample,site,suction_<unit>,
+/// theta_m3_m3,status,origin,score,reason,note,created_at,decided_at`.
 pub fn flags_listing(rows: &[FlagRow], unit: SuctionUnit) -> Listing {
     let mut l = Listing::new(
         [
             "flag",
             "reading",
             "logger_record",
+            "conductivity_reading",
             "sample",
             "site",
             unit.column_name(),
@@ -37,14 +48,12 @@ pub fn flags_listing(rows: &[FlagRow], unit: SuctionUnit) -> Listing {
     );
     for row in rows {
         let flag = &row.stored.flag;
-        let (reading, record) = match &row.subject {
-            Subject::Reading { reading_id, .. } => (Cell::Int(*reading_id), Cell::Text(None)),
-            Subject::LoggerRecord { record_id, .. } => (Cell::Text(None), Cell::Int(*record_id)),
-        };
+        let (reading, record, conductivity) = subject_ids(&row.subject);
         l.push(vec![
             row.stored.id.into(),
             reading,
             record,
+            conductivity,
             row.subject.sample().map(str::to_string).into(),
             Cell::text(row.subject.site()),
             row.subject.h_cm().map(|h| unit.from_cm(h)).into(),
@@ -82,10 +91,9 @@ pub fn queue_listing(rows: &[FlagRow], unit: SuctionUnit) -> Listing {
         .collect(),
     );
     for row in rows {
-        let (reading, record) = match &row.subject {
-            Subject::Reading { reading_id, .. } => (Cell::Int(*reading_id), Cell::Text(None)),
-            Subject::LoggerRecord { record_id, .. } => (Cell::Text(None), Cell::Int(*record_id)),
-        };
+        // The checks raise no suggestion on conductivity readings (only manual flags), so
+        // the queue holds readings and logger records.
+        let (reading, record, _) = subject_ids(&row.subject);
         l.push(vec![
             reading,
             row.subject.sample().map(str::to_string).into(),
@@ -133,10 +141,9 @@ pub fn episodes_listing(
     );
     for e in episodes {
         let row = e.worst();
-        let (reading, record) = match &row.subject {
-            Subject::Reading { reading_id, .. } => (Cell::Int(*reading_id), Cell::Text(None)),
-            Subject::LoggerRecord { record_id, .. } => (Cell::Text(None), Cell::Int(*record_id)),
-        };
+        // The checks raise no suggestion on conductivity readings (only manual flags), so
+        // the queue holds readings and logger records.
+        let (reading, record, _) = subject_ids(&row.subject);
         let (from, to) = e
             .span()
             .map_or((Cell::Text(None), Cell::Text(None)), |(a, b)| {

@@ -71,11 +71,14 @@ pub struct StoredConductivity {
     pub layer: LayerRef,
     /// Name of the imported file it came from.
     pub source_file: Option<String>,
+    /// Left out of joint fits by a flag (an accepted flag, or a manual one not cleared).
+    pub excluded: bool,
 }
 
 const COLUMNS: &str = "c.id, c.sample_id, m.code, c.h_cm, c.theta, c.k_cm_per_day, c.method, \
      c.measured_at, c.notes, c.batch_id, c.source_line, c.uid, b.file_name, s.code, l.top_cm, \
-     l.bottom_cm";
+     l.bottom_cm, EXISTS (SELECT 1 FROM flag f WHERE f.conductivity_reading_id = c.id \
+     AND (f.status = 'accepted' OR (f.status = 'suggested' AND f.origin = 'manual')))";
 
 const FROM: &str = "conductivity_reading c JOIN sample m ON c.sample_id = m.id \
      JOIN layer l ON m.layer_id = l.id JOIN site s ON l.site_id = s.id \
@@ -111,6 +114,7 @@ fn from_row(r: &Row<'_>) -> rusqlite::Result<StoredConductivity> {
             uid: r.get(11)?,
         },
         source_file: r.get(12)?,
+        excluded: r.get(16)?,
         layer: LayerRef {
             site: r.get(13)?,
             top_cm: r.get(14)?,
@@ -238,8 +242,10 @@ pub struct JointRecord {
     pub conductivity_fingerprint: Option<String>,
 }
 
-/// SHA-256 (hex) of conductivity readings: ids, where measured and K, in id order. Changes
-/// when a reading is added or removed or any value of one changes.
+/// SHA-256 (hex) of conductivity readings: ids, where measured, K and whether a flag leaves
+/// the reading out, in id order. Changes when a reading is added or removed, any value of one
+/// changes, or it is flagged or unflagged. (The exclusion enters only when set, so files
+/// without conductivity flags keep the fingerprints their joint fits recorded.)
 pub fn fingerprint(readings: &[StoredConductivity]) -> String {
     use sha2::{Digest, Sha256};
     let mut sorted: Vec<&StoredConductivity> = readings.iter().collect();
@@ -254,6 +260,9 @@ pub fn fingerprint(readings: &[StoredConductivity]) -> String {
         hasher.update([tag]);
         hasher.update(at.to_bits().to_le_bytes());
         hasher.update(r.reading.k_cm_per_day.to_bits().to_le_bytes());
+        if r.excluded {
+            hasher.update(b"excluded");
+        }
     }
     crate::model::number::hex(&hasher.finalize())
 }
@@ -303,6 +312,45 @@ pub fn joint_of(conn: &Connection, fit_id: i64) -> Result<Option<JointRecord>> {
         })
     })
     .transpose()
+}
+
+/// The fit to make current next when the user steps through a sample's kinds of fit: the
+/// newest successful fit of each request (`van-genuchten`, `auto`, a fit with conductivity,
+/// one with the texture prior), newest first; the one after the current fit's kind, wrapping
+/// round, with its kind. `None` when the sample has fewer than two kinds.
+///
+/// # Errors
+/// An SQLite error.
+pub fn next_current(conn: &Connection, sample_id: i64) -> Result<Option<(i64, String)>> {
+    let mut stmt = conn.prepare_cached(
+        "SELECT id, coalesce(requested, model), is_current FROM fit
+         WHERE sample_id = ?1 AND status = 'ok' ORDER BY id DESC",
+    )?;
+    let rows = stmt.query_map([sample_id], |r| {
+        Ok((
+            r.get::<_, i64>(0)?,
+            r.get::<_, String>(1)?,
+            r.get::<_, bool>(2)?,
+        ))
+    })?;
+    // (newest fit of the kind, whether the current fit is of this kind)
+    let mut kinds: Vec<(String, i64, bool)> = Vec::new();
+    for row in rows {
+        let (id, kind, current) = row?;
+        match kinds.iter_mut().find(|(k, _, _)| *k == kind) {
+            Some(entry) => entry.2 |= current,
+            None => kinds.push((kind, id, current)),
+        }
+    }
+    if kinds.len() < 2 {
+        return Ok(None);
+    }
+    let next = match kinds.iter().position(|(_, _, current)| *current) {
+        Some(i) => (i + 1) % kinds.len(),
+        None => 0,
+    };
+    let (kind, id, _) = kinds.swap_remove(next);
+    Ok(Some((id, kind)))
 }
 
 /// Make fit `fit_id` its sample's current fit (a retention-only or a joint fit of its
@@ -400,4 +448,76 @@ pub fn joint_fits(conn: &Connection, filter: Filter<'_>) -> Result<Vec<JointRow>
         });
     }
     Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::store::Campaign;
+
+    fn campaign_with_fits(fits: &[(i64, &str, &str, bool)]) -> Campaign {
+        let c = Campaign::in_memory("t", 33.0, 1500.0).expect("campaign");
+        let conn = c.connection();
+        conn.execute_batch(
+            "INSERT INTO site (id, uid, code) VALUES (1, '00000000-0000-4000-8000-000000000001', 'S');
+             INSERT INTO layer (id, uid, site_id, top_cm, bottom_cm)
+                 VALUES (1, '00000000-0000-4000-8000-000000000002', 1, 0, 10);
+             INSERT INTO sample (id, uid, layer_id, code, kind)
+                 VALUES (1, '00000000-0000-4000-8000-000000000003', 1, 'S-a', 'lab_core');",
+        )
+        .expect("fixture");
+        for (id, requested, status, current) in fits {
+            conn.execute(
+                "INSERT INTO fit (id, sample_id, model, parameters, statistics, n_points,
+                     readings_fingerprint, created_at, is_current, status, requested)
+                 VALUES (?1, 1, 'van-genuchten', '{}', '{}', 6, 'x', '2026-06-01T00:00:00Z',
+                         ?2, ?3, ?4)",
+                params![id, current, status, requested],
+            )
+            .expect("fit");
+        }
+        c
+    }
+
+    #[test]
+    fn the_next_current_fit_steps_through_the_newest_fit_of_each_kind() {
+        let joint = "van-genuchten+conductivity";
+        let c = campaign_with_fits(&[
+            (1, "van-genuchten", "ok", false),
+            (2, joint, "ok", false),
+            (3, "van-genuchten", "ok", true),
+            (4, joint, "failed", false),
+            (5, "auto", "ok", false),
+        ]);
+        let conn = c.connection();
+        // Kinds newest first: auto (5), van-genuchten (3, current), joint (2; 4 failed).
+        assert_eq!(
+            next_current(conn, 1).expect("next"),
+            Some((2, joint.into()))
+        );
+        make_current(conn, 2).expect("current");
+        assert_eq!(
+            next_current(conn, 1).expect("next"),
+            Some((5, "auto".into()))
+        );
+        make_current(conn, 5).expect("current");
+        assert_eq!(
+            next_current(conn, 1).expect("next"),
+            Some((3, "van-genuchten".into()))
+        );
+        // An older fit of a kind that is current counts for its kind.
+        make_current(conn, 1).expect("current");
+        assert_eq!(
+            next_current(conn, 1).expect("next"),
+            Some((2, joint.into()))
+        );
+    }
+
+    #[test]
+    fn one_kind_of_fit_has_no_other_to_step_to() {
+        let c = campaign_with_fits(&[(1, "auto", "ok", false), (2, "auto", "ok", true)]);
+        assert_eq!(next_current(c.connection(), 1).expect("next"), None);
+        let none = campaign_with_fits(&[]);
+        assert_eq!(next_current(none.connection(), 1).expect("next"), None);
+    }
 }

@@ -1,4 +1,4 @@
-//! Flags on readings and logger records: suggestions from the checks, the user's own flags,
+//! Flags on readings, logger records and measured conductivity readings: suggestions from the checks, the user's own flags,
 //! their review (accept, dismiss, clear) and the audit trail.
 //!
 //! A flag is never deleted and its status changes are never overwritten: triggers of schema
@@ -118,21 +118,44 @@ pub enum Subject {
         /// Suction in cm (tensiometer) or water content in m3/m3.
         value: f64,
     },
+    /// A measured conductivity reading.
+    ConductivityReading {
+        /// Conductivity reading id (as `list conductivity` shows it).
+        reading_id: i64,
+        /// Database id of its sample.
+        sample_id: i64,
+        /// Sample code.
+        sample: String,
+        /// The sample's layer (site and depths).
+        layer: LayerRef,
+        /// Suction head, cm, for a K(h) reading.
+        h_cm: Option<f64>,
+        /// Water content, m3/m3, for a K(theta) reading.
+        theta: Option<f64>,
+        /// Hydraulic conductivity, cm/day.
+        k_cm_per_day: f64,
+        /// Measurement method, as imported.
+        method: Option<String>,
+    },
 }
 
 impl Subject {
     /// The site code.
     pub fn site(&self) -> &str {
         match self {
-            Subject::Reading { layer, .. } => &layer.site,
+            Subject::Reading { layer, .. } | Subject::ConductivityReading { layer, .. } => {
+                &layer.site
+            }
             Subject::LoggerRecord { site, .. } => site,
         }
     }
 
-    /// The sample code (readings only).
+    /// The sample code (readings and conductivity readings only).
     pub fn sample(&self) -> Option<&str> {
         match self {
-            Subject::Reading { sample, .. } => Some(sample),
+            Subject::Reading { sample, .. } | Subject::ConductivityReading { sample, .. } => {
+                Some(sample)
+            }
             Subject::LoggerRecord { .. } => None,
         }
     }
@@ -141,6 +164,7 @@ impl Subject {
     pub fn h_cm(&self) -> Option<f64> {
         match self {
             Subject::Reading { h_cm, .. } => Some(*h_cm),
+            Subject::ConductivityReading { h_cm, .. } => *h_cm,
             Subject::LoggerRecord { sensor, value, .. } => {
                 (sensor == "tensiometer").then_some(*value)
             }
@@ -151,6 +175,7 @@ impl Subject {
     pub fn theta(&self) -> Option<f64> {
         match self {
             Subject::Reading { theta, .. } => Some(*theta),
+            Subject::ConductivityReading { theta, .. } => *theta,
             Subject::LoggerRecord { sensor, value, .. } => {
                 (sensor == "water_content").then_some(*value)
             }
@@ -162,6 +187,9 @@ impl Subject {
         match self {
             Subject::Reading { reading_id, .. } => FlagTarget::Reading(*reading_id),
             Subject::LoggerRecord { record_id, .. } => FlagTarget::LoggerRecord(*record_id),
+            Subject::ConductivityReading { reading_id, .. } => {
+                FlagTarget::ConductivityReading(*reading_id)
+            }
         }
     }
 }
@@ -248,27 +276,33 @@ pub struct FlagFilter {
     pub sample: Option<String>,
 }
 
-fn target_ids(target: FlagTarget) -> (Option<i64>, Option<i64>) {
+/// The flag table's three target columns: reading, logger record, conductivity reading.
+type TargetIds = (Option<i64>, Option<i64>, Option<i64>);
+
+fn target_ids(target: FlagTarget) -> TargetIds {
     match target {
-        FlagTarget::Reading(id) => (Some(id), None),
-        FlagTarget::LoggerRecord(id) => (None, Some(id)),
+        FlagTarget::Reading(id) => (Some(id), None, None),
+        FlagTarget::LoggerRecord(id) => (None, Some(id), None),
+        FlagTarget::ConductivityReading(id) => (None, None, Some(id)),
     }
 }
 
-fn target_of(reading: Option<i64>, record: Option<i64>) -> rusqlite::Result<FlagTarget> {
-    match (reading, record) {
-        (Some(id), None) => Ok(FlagTarget::Reading(id)),
-        (None, Some(id)) => Ok(FlagTarget::LoggerRecord(id)),
+fn target_of(ids: TargetIds) -> rusqlite::Result<FlagTarget> {
+    match ids {
+        (Some(id), None, None) => Ok(FlagTarget::Reading(id)),
+        (None, Some(id), None) => Ok(FlagTarget::LoggerRecord(id)),
+        (None, None, Some(id)) => Ok(FlagTarget::ConductivityReading(id)),
         _ => Err(rusqlite::Error::FromSqlConversionFailure(
             1,
             rusqlite::types::Type::Null,
-            "a flag must be on exactly one reading or logger record".into(),
+            "a flag must be on exactly one reading, logger record or conductivity reading".into(),
         )),
     }
 }
 
 const FLAG_COLUMNS: &str = "f.id, f.reading_id, f.logger_record_id, f.reason, f.score, \
-     f.origin, f.status, f.note, f.created_at, f.decided_at, f.rule, f.decided_by";
+     f.origin, f.status, f.note, f.created_at, f.decided_at, f.rule, f.decided_by, \
+     f.conductivity_reading_id";
 
 fn flag_from_row(r: &Row<'_>) -> rusqlite::Result<StoredFlag> {
     Ok(StoredFlag {
@@ -279,7 +313,7 @@ fn flag_from_row(r: &Row<'_>) -> rusqlite::Result<StoredFlag> {
             .map(|t| Actor::parse(&t))
             .transpose()?,
         flag: Flag {
-            target: target_of(r.get(1)?, r.get(2)?)?,
+            target: target_of((r.get(1)?, r.get(2)?, r.get(12)?))?,
             reason: r.get(3)?,
             score: r.get(4)?,
             origin: r.get(5)?,
@@ -291,42 +325,64 @@ fn flag_from_row(r: &Row<'_>) -> rusqlite::Result<StoredFlag> {
     })
 }
 
-/// Subject columns (from index 12) for [`ROW_FROM`].
+/// Subject columns (from index 13) for [`ROW_FROM`].
 const SUBJECT_COLUMNS: &str = "r.sample_id, m.code, s.code, l.top_cm, l.bottom_cm, r.h_cm, \
-     r.theta, r.method, gs.code, g.depth_cm, g.sensor, g.sensor_id, g.time, g.value";
+     r.theta, r.method, gs.code, g.depth_cm, g.sensor, g.sensor_id, g.time, g.value, \
+     k.sample_id, km.code, ks.code, kl.top_cm, kl.bottom_cm, k.h_cm, k.theta, k.k_cm_per_day, \
+     k.method";
 
+/// Flags joined to their subjects. The site and sample of any flag are
+/// `coalesce(s.code, gs.code, ks.code)` and `coalesce(m.code, km.code)`.
 const ROW_FROM: &str = "flag f
      LEFT JOIN reading r ON r.id = f.reading_id
      LEFT JOIN sample m ON m.id = r.sample_id
      LEFT JOIN layer l ON l.id = m.layer_id
      LEFT JOIN site s ON s.id = l.site_id
      LEFT JOIN logger_record g ON g.id = f.logger_record_id
-     LEFT JOIN site gs ON gs.id = g.site_id";
+     LEFT JOIN site gs ON gs.id = g.site_id
+     LEFT JOIN conductivity_reading k ON k.id = f.conductivity_reading_id
+     LEFT JOIN sample km ON km.id = k.sample_id
+     LEFT JOIN layer kl ON kl.id = km.layer_id
+     LEFT JOIN site ks ON ks.id = kl.site_id";
 
 fn row_from_row(r: &Row<'_>) -> rusqlite::Result<FlagRow> {
     let stored = flag_from_row(r)?;
     let subject = match stored.flag.target {
         FlagTarget::Reading(reading_id) => Subject::Reading {
             reading_id,
-            sample_id: r.get(12)?,
-            sample: r.get(13)?,
+            sample_id: r.get(13)?,
+            sample: r.get(14)?,
             layer: LayerRef {
-                site: r.get(14)?,
-                top_cm: r.get(15)?,
-                bottom_cm: r.get(16)?,
+                site: r.get(15)?,
+                top_cm: r.get(16)?,
+                bottom_cm: r.get(17)?,
             },
-            h_cm: r.get(17)?,
-            theta: r.get(18)?,
-            method: r.get(19)?,
+            h_cm: r.get(18)?,
+            theta: r.get(19)?,
+            method: r.get(20)?,
         },
         FlagTarget::LoggerRecord(record_id) => Subject::LoggerRecord {
             record_id,
-            site: r.get(20)?,
-            depth_cm: r.get(21)?,
-            sensor: r.get(22)?,
-            sensor_id: r.get(23)?,
-            time: r.get(24)?,
-            value: r.get(25)?,
+            site: r.get(21)?,
+            depth_cm: r.get(22)?,
+            sensor: r.get(23)?,
+            sensor_id: r.get(24)?,
+            time: r.get(25)?,
+            value: r.get(26)?,
+        },
+        FlagTarget::ConductivityReading(reading_id) => Subject::ConductivityReading {
+            reading_id,
+            sample_id: r.get(27)?,
+            sample: r.get(28)?,
+            layer: LayerRef {
+                site: r.get(29)?,
+                top_cm: r.get(30)?,
+                bottom_cm: r.get(31)?,
+            },
+            h_cm: r.get(32)?,
+            theta: r.get(33)?,
+            k_cm_per_day: r.get(34)?,
+            method: r.get(35)?,
         },
     };
     Ok(FlagRow { stored, subject })
@@ -340,6 +396,11 @@ fn check_target(conn: &Connection, target: FlagTarget) -> Result<()> {
             "SELECT 1 FROM logger_record WHERE id = ?1",
             id,
             "logger record",
+        ),
+        FlagTarget::ConductivityReading(id) => (
+            "SELECT 1 FROM conductivity_reading WHERE id = ?1",
+            id,
+            "conductivity reading",
         ),
     };
     let found: Option<i64> = conn
@@ -360,12 +421,14 @@ fn check_target(conn: &Connection, target: FlagTarget) -> Result<()> {
 /// # Errors
 /// An SQLite error.
 pub fn of_target(conn: &Connection, target: FlagTarget) -> Result<Vec<StoredFlag>> {
-    let (reading, record) = target_ids(target);
+    let (reading, record, conductivity) = target_ids(target);
     let mut stmt = conn.prepare_cached(&format!(
         "SELECT {FLAG_COLUMNS} FROM flag f
-         WHERE f.reading_id IS ?1 AND f.logger_record_id IS ?2 ORDER BY f.id"
+         WHERE f.reading_id IS ?1 AND f.logger_record_id IS ?2
+           AND f.conductivity_reading_id IS ?3
+         ORDER BY f.id"
     ))?;
-    let rows = stmt.query_map(params![reading, record], flag_from_row)?;
+    let rows = stmt.query_map(params![reading, record, conductivity], flag_from_row)?;
     Ok(rows.collect::<rusqlite::Result<_>>()?)
 }
 
@@ -418,11 +481,11 @@ pub fn suggest(conn: &Connection, suggestion: &Suggestion<'_>) -> Result<Raised>
     }) {
         return Ok(Raised::Declined(kept.id));
     }
-    let (reading, record) = target_ids(suggestion.target);
+    let (reading, record, conductivity) = target_ids(suggestion.target);
     conn.prepare_cached(
-        "INSERT INTO flag (reading_id, logger_record_id, reason, score, origin, status,
-             created_at, rule)
-         VALUES (?1, ?2, ?3, ?4, 'auto', 'suggested', ?5, ?6)",
+        "INSERT INTO flag (reading_id, logger_record_id, conductivity_reading_id, reason, score,
+             origin, status, created_at, rule)
+         VALUES (?1, ?2, ?7, ?3, ?4, 'auto', 'suggested', ?5, ?6)",
     )?
     .execute(params![
         reading,
@@ -430,7 +493,8 @@ pub fn suggest(conn: &Connection, suggestion: &Suggestion<'_>) -> Result<Raised>
         reason,
         finite(suggestion.score),
         SqlTime::now(),
-        rule
+        rule,
+        conductivity
     ])?;
     Ok(Raised::New(conn.last_insert_rowid()))
 }
@@ -470,13 +534,21 @@ pub fn flag_manual(
     }
     let note = clean(note);
     let now = SqlTime::now();
-    let (reading, record) = target_ids(target);
+    let (reading, record, conductivity) = target_ids(target);
     conn.prepare_cached(
-        "INSERT INTO flag (reading_id, logger_record_id, reason, score, origin, status, note,
-             created_at, decided_at, rule, decided_by)
-         VALUES (?1, ?2, ?3, NULL, 'manual', 'accepted', ?4, ?5, ?5, ?6, 'user')",
+        "INSERT INTO flag (reading_id, logger_record_id, conductivity_reading_id, reason, score,
+             origin, status, note, created_at, decided_at, rule, decided_by)
+         VALUES (?1, ?2, ?7, ?3, NULL, 'manual', 'accepted', ?4, ?5, ?5, ?6, 'user')",
     )?
-    .execute(params![reading, record, reason, note, now, RULE_MANUAL])?;
+    .execute(params![
+        reading,
+        record,
+        reason,
+        note,
+        now,
+        RULE_MANUAL,
+        conductivity
+    ])?;
     let id = conn.last_insert_rowid();
     let with = format!("accepted with manual flag {id}");
     for open in existing
@@ -519,13 +591,20 @@ pub fn retire(conn: &Connection, target: FlagTarget, reason: &str) -> Result<Opt
         return Ok(None);
     }
     let now = SqlTime::now();
-    let (reading, record) = target_ids(target);
+    let (reading, record, conductivity) = target_ids(target);
     conn.prepare_cached(
-        "INSERT INTO flag (reading_id, logger_record_id, reason, score, origin, status, note,
-             created_at, decided_at, rule, decided_by)
-         VALUES (?1, ?2, ?3, NULL, 'auto', 'accepted', NULL, ?4, ?4, ?5, 'checks')",
+        "INSERT INTO flag (reading_id, logger_record_id, conductivity_reading_id, reason, score,
+             origin, status, note, created_at, decided_at, rule, decided_by)
+         VALUES (?1, ?2, ?6, ?3, NULL, 'auto', 'accepted', NULL, ?4, ?4, ?5, 'checks')",
     )?
-    .execute(params![reading, record, reason, now, RULE_SUPERSEDED])?;
+    .execute(params![
+        reading,
+        record,
+        reason,
+        now,
+        RULE_SUPERSEDED,
+        conductivity
+    ])?;
     Ok(Some(conn.last_insert_rowid()))
 }
 
@@ -533,6 +612,7 @@ fn describe(target: FlagTarget) -> String {
     match target {
         FlagTarget::Reading(id) => format!("reading {id}"),
         FlagTarget::LoggerRecord(id) => format!("logger record {id}"),
+        FlagTarget::ConductivityReading(id) => format!("conductivity reading {id}"),
     }
 }
 
@@ -747,10 +827,12 @@ pub fn list(conn: &Connection, filter: &FlagFilter) -> Result<Vec<FlagRow>> {
     let mut stmt = conn.prepare_cached(&format!(
         "SELECT {FLAG_COLUMNS}, {SUBJECT_COLUMNS} FROM {ROW_FROM}
          WHERE (?1 IS NULL OR f.status = ?1) AND (?2 IS NULL OR f.origin = ?2)
-           AND (?3 IS NULL OR coalesce(s.code, gs.code) = ?3)
-           AND (?4 IS NULL OR m.code = ?4)
-         ORDER BY coalesce(s.code, gs.code), f.logger_record_id IS NOT NULL, l.top_cm, m.code,
-                  r.h_cm, g.depth_cm, g.time, f.id"
+           AND (?3 IS NULL OR coalesce(s.code, gs.code, ks.code) = ?3)
+           AND (?4 IS NULL OR coalesce(m.code, km.code) = ?4)
+         ORDER BY coalesce(s.code, gs.code, ks.code), f.logger_record_id IS NOT NULL,
+                  f.conductivity_reading_id IS NOT NULL, coalesce(l.top_cm, kl.top_cm),
+                  coalesce(m.code, km.code), r.h_cm, k.h_cm, k.theta DESC, g.depth_cm, g.time,
+                  f.id"
     ))?;
     let rows = stmt.query_map(
         params![filter.status, filter.origin, filter.site, filter.sample],
@@ -770,10 +852,11 @@ pub fn queue(conn: &Connection, filter: &FlagFilter) -> Result<Vec<FlagRow>> {
     let mut stmt = conn.prepare_cached(&format!(
         "SELECT {FLAG_COLUMNS}, {SUBJECT_COLUMNS} FROM {ROW_FROM}
          WHERE f.status = 'suggested' AND f.origin = 'auto'
-           AND (?1 IS NULL OR coalesce(s.code, gs.code) = ?1)
-           AND (?2 IS NULL OR m.code = ?2)
+           AND (?1 IS NULL OR coalesce(s.code, gs.code, ks.code) = ?1)
+           AND (?2 IS NULL OR coalesce(m.code, km.code) = ?2)
            AND NOT EXISTS (SELECT 1 FROM flag x
                WHERE x.reading_id IS f.reading_id AND x.logger_record_id IS f.logger_record_id
+                 AND x.conductivity_reading_id IS f.conductivity_reading_id
                  AND (x.status = 'accepted' OR (x.status = 'suggested' AND x.origin = 'manual')))
          ORDER BY f.score IS NULL, f.score DESC, f.id"
     ))?;
@@ -811,13 +894,15 @@ pub fn events(conn: &Connection, flag_id: i64) -> Result<Vec<FlagEvent>> {
 /// # Errors
 /// An SQLite error.
 pub fn trail(conn: &Connection, target: FlagTarget) -> Result<Vec<FlagEvent>> {
-    let (reading, record) = target_ids(target);
+    let (reading, record, conductivity) = target_ids(target);
     let mut stmt = conn.prepare_cached(
         "SELECT e.id, e.flag_id, e.from_status, e.to_status, e.actor, e.note, e.at
          FROM flag_event e JOIN flag f ON f.id = e.flag_id
-         WHERE f.reading_id IS ?1 AND f.logger_record_id IS ?2 ORDER BY e.id",
+         WHERE f.reading_id IS ?1 AND f.logger_record_id IS ?2
+           AND f.conductivity_reading_id IS ?3
+         ORDER BY e.id",
     )?;
-    let rows = stmt.query_map(params![reading, record], event_from_row)?;
+    let rows = stmt.query_map(params![reading, record, conductivity], event_from_row)?;
     Ok(rows.collect::<rusqlite::Result<_>>()?)
 }
 

@@ -86,6 +86,9 @@ pub enum Action {
     RefitSample,
     /// Refit the selected sample with its measured conductivity (a joint fit).
     RefitSampleWithConductivity,
+    /// Make the selected sample's newest fit of the next kind current (retention-only, with
+    /// conductivity, with the texture prior, ...), stepping round.
+    NextCurrentFit,
     /// Refit every sample of the selected site.
     RefitSite,
     /// Refit every sample of the campaign.
@@ -154,6 +157,8 @@ pub enum Action {
     },
     /// A flag was changed (the message says what), or could not be.
     FlagChanged(Result<String, String>),
+    /// Another fit of a sample was made current (the message says which), or could not be.
+    CurrentChanged(Result<String, String>),
     /// The export ended (the message names the file), or could not run.
     ExportFinished(Result<String, String>),
     /// Time passed (drives the busy spinner).
@@ -218,6 +223,13 @@ pub enum Effect {
         flag_ids: Vec<i64>,
         /// True to accept, false to dismiss.
         accept: bool,
+    },
+    /// Make the sample's newest fit of its next kind current.
+    NextCurrentFit {
+        /// The sample (database id).
+        sample_id: i64,
+        /// Its code, for the message.
+        code: String,
     },
     /// Write the campaign report.
     Export,

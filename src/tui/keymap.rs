@@ -336,6 +336,12 @@ impl Default for KeyTable {
                 None,
             ),
             bind(
+                &[Key::char('o')],
+                Action::NextCurrentFit,
+                "make the sample's other fit current: retention-only, with conductivity, with the texture prior (newest of each, in turn)",
+                None,
+            ),
+            bind(
                 &[Key::ctrl('f')],
                 Action::RefitAll,
                 "refit every sample of the campaign",
@@ -732,6 +738,7 @@ mod tests {
             Action::StartFilter,
             Action::RefitSample,
             Action::RefitSampleWithConductivity,
+            Action::NextCurrentFit,
             Action::RefitSite,
             Action::RefitAll,
             Action::CycleModel,

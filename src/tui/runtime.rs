@@ -405,6 +405,38 @@ impl Session {
                     (false, FlagTarget::LoggerRecord(_)) => {
                         format!("flag {flag_id} dismissed: the record is used by the next pairing")
                     }
+                    (true, FlagTarget::ConductivityReading(_)) => format!(
+                        "flag {flag_id} accepted: the conductivity reading is left out of joint fits"
+                    ),
+                    (false, FlagTarget::ConductivityReading(_)) => format!(
+                        "flag {flag_id} dismissed: the conductivity reading stays in joint fits"
+                    ),
+                }),
+            )),
+            Effect::NextCurrentFit { sample_id, code } => Some(Action::CurrentChanged(
+                self.write(|tx| {
+                    let Some((next, kind)) =
+                        crate::store::conductivity::next_current(tx, sample_id)?
+                    else {
+                        return Ok(None);
+                    };
+                    let (_, before) = crate::store::conductivity::make_current(tx, next)?;
+                    Ok(Some((next, before, kind)))
+                })
+                .map(|changed| {
+                    let code = crate::model::text::shown(&code);
+                    match changed {
+                        None => format!(
+                            "{code} has one kind of fit: C fits it with its measured \
+                             conductivity, f with the model of m"
+                        ),
+                        Some((fit, Some(before), kind)) => {
+                            format!("fit {fit} ({kind}) is now current for {code} (was fit {before})")
+                        }
+                        Some((fit, None, kind)) => {
+                            format!("fit {fit} ({kind}) is now current for {code}")
+                        }
+                    }
                 }),
             )),
             Effect::Export => Some(Action::ExportFinished(self.export())),

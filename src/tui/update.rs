@@ -46,11 +46,13 @@ pub fn update(state: &mut AppState, action: Action) -> Vec<Effect> {
             Vec::new()
         }
         Action::FitFinished { job, result } => on_fit_finished(state, job, result),
-        Action::FlagChanged(Ok(message)) => {
+        Action::FlagChanged(Ok(message)) | Action::CurrentChanged(Ok(message)) => {
             state.say(Tone::Info, message);
             reload(state)
         }
-        Action::FlagChanged(Err(message)) | Action::ExportFinished(Err(message)) => {
+        Action::FlagChanged(Err(message))
+        | Action::CurrentChanged(Err(message))
+        | Action::ExportFinished(Err(message)) => {
             state.say(Tone::Warning, message);
             Vec::new()
         }
@@ -511,6 +513,14 @@ fn on_global(state: &mut AppState, action: &Action) -> Option<Vec<Effect>> {
         Action::RefitSampleWithConductivity => {
             if let Some((id, code, site)) = target_sample(state) {
                 submit_fit_with(state, FitScope::Sample { id, code, site }, true)
+            } else {
+                state.say(Tone::Warning, "select a sample first");
+                Vec::new()
+            }
+        }
+        Action::NextCurrentFit => {
+            if let Some((sample_id, code, _)) = target_sample(state) {
+                vec![Effect::NextCurrentFit { sample_id, code }]
             } else {
                 state.say(Tone::Warning, "select a sample first");
                 Vec::new()

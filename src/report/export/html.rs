@@ -8,7 +8,7 @@
 //! [`escape`]. The export time is on one line of its own (`<p class="exported">`); nothing
 //! else in the page changes between two exports of the same campaign.
 
-use crate::analysis::texture::layer_estimate;
+use crate::analysis::texture::{layer_estimate, pedotransfer_estimate};
 use crate::model::texture::TextureClass;
 use std::fmt::Write as _;
 
@@ -709,10 +709,29 @@ fn texture_estimates(out: &mut String, part: &SitePart) {
         };
         let aw = crate::report::fits::interval_text(e.available_water, e.interval.as_ref());
         let [tr, ts, a, n] = e.parameters;
+        let ptf = pedotransfer_estimate(
+            l.sand_pct,
+            l.clay_pct,
+            l.organic_carbon_pct,
+            profile.fc_kpa,
+            profile.pwp_kpa,
+        )
+        .map_or_else(
+            || "— (needs sand, clay and organic carbon)".to_string(),
+            |p| {
+                format!(
+                    "{} (FC {}, PWP {})",
+                    significant(p.available_water_m3_m3, 3).unwrap_or_default(),
+                    significant(p.theta_fc_m3_m3, 3).unwrap_or_default(),
+                    significant(p.theta_pwp_m3_m3, 3).unwrap_or_default()
+                )
+            },
+        );
         let _ = writeln!(
             rows,
             "<tr><td>◌ {label}</td><td>{class}</td><td class=\"num\">{aw}</td>\
-             <td class=\"num\">θr {tr}, θs {ts}, α {a} 1/cm, n {n}</td><td>{source}</td></tr>",
+             <td class=\"num\">θr {tr}, θs {ts}, α {a} 1/cm, n {n}</td>\
+             <td class=\"num\">{ptf}</td><td>{source}</td></tr>",
             label = escape(&layer_label(layer)),
             source = escape(&e.source),
         );
@@ -724,10 +743,11 @@ fn texture_estimates(out: &mut String, part: &SitePart) {
         out,
         "<h3>Estimates from texture (not measured)</h3>\n<p class=\"muted\">Layers with a texture \
          class and no fitted lab core: the class-mean van Genuchten curve, its interval the class \
-         spread. They are not in the profile sum; <code>porewise list DB profiles \
+         spread; beside it, for a layer with sand, clay and organic carbon, the Saxton &amp; Rawls (2006) \
+         pedotransfer equations (organic matter 1.724 × organic carbon; no adjustments). They are not in the profile sum; <code>porewise list DB profiles \
          --fill-from-texture</code> adds them to it, marked ◌.</p>\n<table>\n<thead><tr><th>layer</th>\
          <th>texture class</th><th>available water ± 95&#160;%, m³/m³</th><th>class-mean parameters</th>\
-         <th>source</th></tr></thead>\n<tbody>\n{rows}</tbody>\n</table>"
+         <th>pedotransfer available water, m³/m³</th><th>source</th></tr></thead>\n<tbody>\n{rows}</tbody>\n</table>"
     );
 }
 

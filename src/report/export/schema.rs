@@ -3,7 +3,7 @@
 //! Layout (schema version [`SCHEMA_VERSION`]):
 //!
 //! ```text
-//! { "format": "porewise-campaign", "schema_version": 4,
+//! { "format": "porewise-campaign", "schema_version": 5,
 //!   "program": {"name", "version"}, "exported_at", "fingerprint_sha256",
 //!   "data": { "campaign", "scope", "imports": [..],
 //!             "sites": [ { ..., "profile", "layers": [ { ..., "water", "samples": [
@@ -38,6 +38,10 @@
 //! conductivity model, `ks_cm_per_day` and `pore_connectivity` with their errors, the
 //! covariance of every parameter, the weighting, the statistics of each set and jointly).
 //!
+//! Version 5 added `excluded` to each conductivity reading: a flag leaves it out of joint
+//! fits (`porewise flag DB ID --conductivity`); and each layer's `pedotransfer_estimate`
+//! (Saxton & Rawls 2006, for a layer with sand, clay and organic carbon and no fitted core).
+//!
 //! A few members reuse the fit engine's documented types ([`ParamEstimate`], [`ParamMatrix`],
 //! [`Termination`], [`DerivedValues`], [`Ranking`]), the analysis' interval types
 //! ([`DerivedIntervals`], [`SumInterval`], [`BetweenCores`]) and the store's [`FitState`]; a change to
@@ -52,7 +56,9 @@ use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
 use super::snapshot::{LayerPart, ReadingFlag, SamplePart, SitePart, Snapshot};
-use crate::analysis::texture::{LayerEstimate, layer_estimate};
+use crate::analysis::texture::{
+    LayerEstimate, PedotransferEstimate, layer_estimate, pedotransfer_estimate,
+};
 use crate::analysis::water::{BetweenCores, DerivedIntervals, LayerWater, SumInterval};
 use crate::fit::prior::{BASIS_READINGS, PriorBasis, basis_of};
 use crate::fit::{FitReport, Interval95, ParamEstimate, ParamMatrix, Termination};
@@ -64,7 +70,7 @@ use crate::model::texture::TextureClass;
 use crate::store::fits::{FitState, Ranking, StoredFit};
 
 /// The version of this document layout; bumped on any change to it.
-pub const SCHEMA_VERSION: u32 = 4;
+pub const SCHEMA_VERSION: u32 = 5;
 
 /// The value of the `format` member, naming what the document is.
 pub const FORMAT: &str = "porewise-campaign";
@@ -232,6 +238,9 @@ pub struct LayerData {
     /// For a layer with a texture class and no fitted lab core: its estimate from the class
     /// (basis `texture only`, not in the profile sum).
     pub texture_estimate: Option<TextureEstimateData>,
+    /// For a layer with sand, clay and organic carbon and no fitted lab core: the Saxton &
+    /// Rawls (2006) pedotransfer estimate (schema 5; not in the profile sum).
+    pub pedotransfer_estimate: Option<PedotransferEstimate>,
     /// Samples, by code.
     pub samples: Vec<SampleData>,
 }
@@ -348,6 +357,8 @@ pub struct ConductivityReadingData {
     pub provenance: ProvenanceData,
     /// Used by the current fit (a fit made with conductivity).
     pub used_in_fit: bool,
+    /// Left out of joint fits by a flag (schema 5).
+    pub excluded: bool,
 }
 
 /// What a fit made with measured conductivity adds (schema 4): Ks and L with their
@@ -989,6 +1000,19 @@ pub fn layer_head(part: &SitePart, l: &LayerPart) -> LayerData {
             .zip(part.profile.as_ref())
             .and_then(|(class, p)| layer_estimate(class, p.fc_kpa, p.pwp_kpa))
             .map(TextureEstimateData::from),
+        pedotransfer_estimate: part
+            .profile
+            .as_ref()
+            .filter(|_| water.is_none_or(|w| w.fitted_cores == 0))
+            .and_then(|p| {
+                pedotransfer_estimate(
+                    layer.sand_pct,
+                    layer.clay_pct,
+                    layer.organic_carbon_pct,
+                    p.fc_kpa,
+                    p.pwp_kpa,
+                )
+            }),
         samples: Vec::new(),
     }
 }
@@ -1078,6 +1102,7 @@ pub fn sample_data(s: &Snapshot, part: &SamplePart) -> SampleData {
                     .joint
                     .as_ref()
                     .is_some_and(|j| j.conductivity_reading_ids.contains(&c.id)),
+                excluded: c.excluded,
             })
             .collect(),
         fit: fit.map(|f| fit_data(f, part)),

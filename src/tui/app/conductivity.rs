@@ -35,6 +35,8 @@ pub struct ConductivityPanel {
     /// Measured K as (log10 h, log10 K); K(theta) readings at the suction where the current
     /// fit holds that theta (left out without a fit).
     pub points: Vec<(f64, f64)>,
+    /// Measured K left out of joint fits by a flag, placed as `points` are.
+    pub excluded: Vec<(f64, f64)>,
     /// K(theta) readings that could not be placed on the suction axis.
     pub unplaced: usize,
     /// The K curve as (log10 h, log10 K).
@@ -61,13 +63,21 @@ impl ConductivityPanel {
     ) -> Option<ConductivityPanel> {
         let mut unplaced = 0;
         let mut points = Vec::new();
+        let mut excluded = Vec::new();
         for r in readings {
             let h = match r.reading.at {
                 Where::Suction(h) => Some(h),
                 Where::Water(theta) => curve.and_then(|c| c.suction_at(theta)),
             };
             match h.filter(|h| *h > 0.0) {
-                Some(h) => points.push((h.log10(), r.reading.k_cm_per_day.log10())),
+                Some(h) => {
+                    let point = (h.log10(), r.reading.k_cm_per_day.log10());
+                    if r.excluded {
+                        excluded.push(point);
+                    } else {
+                        points.push(point);
+                    }
+                }
                 None => unplaced += 1,
             }
         }
@@ -101,11 +111,16 @@ impl ConductivityPanel {
         } else {
             (Vec::new(), KCurveSource::None, None)
         };
-        if points.is_empty() && curve_pts.is_empty() && measured_ks.value().is_none() {
+        if points.is_empty()
+            && excluded.is_empty()
+            && curve_pts.is_empty()
+            && measured_ks.value().is_none()
+        {
             return None;
         }
         Some(ConductivityPanel {
             points,
+            excluded,
             unplaced,
             curve: curve_pts,
             source,
@@ -171,6 +186,7 @@ mod tests {
                 bottom_cm: 10.0,
             },
             source_file: None,
+            excluded: false,
         }
     }
 

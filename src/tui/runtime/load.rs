@@ -229,6 +229,9 @@ fn review_item(row: flags::FlagRow) -> Option<ReviewItem> {
             time: parse_instant(&time, Some(0)).ok()?,
             value,
         },
+        // The checks raise no suggestion on conductivity readings; the review screen shows
+        // retention readings and logger records.
+        Subject::ConductivityReading { .. } => return None,
     };
     Some(ReviewItem {
         flag_id: row.stored.id,

@@ -602,3 +602,22 @@ fn help_opens_over_any_screen_and_closes_back_to_it() {
     update(&mut state, Action::Back);
     assert_eq!(state.screen, Screen::Review);
 }
+
+#[test]
+fn the_other_fit_key_asks_for_the_selected_samples_next_current_fit() {
+    let mut state = on_first_sample();
+    let effects = update(&mut state, Action::NextCurrentFit);
+    assert!(
+        matches!(
+            effects.as_slice(),
+            [Effect::NextCurrentFit { sample_id: 1, .. }]
+        ),
+        "{effects:?}"
+    );
+    let effects = update(
+        &mut state,
+        Action::CurrentChanged(Ok("fit 2 is now current".into())),
+    );
+    assert!(state.status.text.contains("fit 2 is now current"));
+    assert!(!effects.is_empty(), "the sample and tree are reloaded");
+}

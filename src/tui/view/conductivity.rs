@@ -10,6 +10,7 @@ use ratatui::widgets::{Paragraph, Widget};
 
 use super::super::app::conductivity::{ConductivityPanel, KCurveSource};
 use super::super::app::{AppState, PLOT_X_MIN, SampleDetail};
+use super::curve::EXCLUDED;
 use super::plot::{Grid, Tick, draw_polyline, render_canvas, x_ticks};
 use crate::model::number::significant;
 
@@ -107,6 +108,11 @@ impl Widget for ConductivityPlot<'_> {
         if let Some((x, y)) = panel.measured_ks.sample.and_then(at_left) {
             buf.set_string(x, y, MEASURED_KS, theme.point());
         }
+        for &(lx, lk) in &panel.excluded {
+            if let Some((x, y)) = grid.cell(plot, lx, lk) {
+                buf.set_string(x, y, EXCLUDED, theme.excluded_point());
+            }
+        }
         for &(lx, lk) in &panel.points {
             if let Some((x, y)) = grid.cell(plot, lx, lk) {
                 buf.set_string(x, y, MEASURED, theme.point());
@@ -122,6 +128,10 @@ fn legend(panel: &ConductivityPanel, theme: super::super::theme::Theme) -> Vec<S
         Span::styled(MEASURED, theme.point()),
         Span::raw(format!(" K ({}) ", panel.points.len())),
     ];
+    if !panel.excluded.is_empty() {
+        out.push(Span::styled(EXCLUDED, theme.excluded_point()));
+        out.push(Span::raw(format!(" flagged ({}) ", panel.excluded.len())));
+    }
     if panel.measured_ks.sample.is_some() {
         out.push(Span::styled(MEASURED_KS, theme.point()));
         out.push(Span::raw(" Ks lab "));
