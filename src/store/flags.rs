@@ -608,7 +608,8 @@ pub fn retire(conn: &Connection, target: FlagTarget, reason: &str) -> Result<Opt
     Ok(Some(conn.last_insert_rowid()))
 }
 
-fn describe(target: FlagTarget) -> String {
+/// `reading 12`, `logger record 3` or `conductivity reading 7`, for messages.
+pub fn describe(target: FlagTarget) -> String {
     match target {
         FlagTarget::Reading(id) => format!("reading {id}"),
         FlagTarget::LoggerRecord(id) => format!("logger record {id}"),

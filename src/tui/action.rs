@@ -194,17 +194,17 @@ pub enum Effect {
         /// What to fit.
         request: FitRequest,
     },
-    /// Flag a reading by hand (excluding it from fits).
+    /// Flag a reading (or a conductivity reading) by hand, excluding it from fits.
     SetFlag {
-        /// The reading.
-        reading_id: i64,
+        /// The reading or conductivity reading.
+        target: FlagTarget,
         /// Why.
         reason: String,
     },
     /// Clear the live flag of a reading (it is used by fits again).
     ClearFlag {
-        /// The reading.
-        reading_id: i64,
+        /// The reading or conductivity reading.
+        target: FlagTarget,
         /// The reviewer's note (may be empty).
         note: String,
     },

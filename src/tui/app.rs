@@ -10,7 +10,7 @@ use std::collections::{BTreeSet, HashMap};
 use crate::analysis::{BetweenCores, FitDerived, ModelChoice, SampleFit, SiteProfile, SumInterval};
 use crate::fit::ParamEstimate;
 use crate::fit::band::confidence_band;
-use crate::model::domain::{Branch, SampleKind, SensorKind};
+use crate::model::domain::{Branch, FlagTarget, SampleKind, SensorKind};
 use crate::model::retention::ModelKind;
 use crate::model::units::{CM_PER_KPA, SuctionUnit};
 use crate::store::fits::{FitState, FitSummary, Ranking, SampleInfo, StoredFit};
@@ -545,7 +545,6 @@ impl ReviewItem {
 
     /// The flag's target.
     pub fn target(&self) -> crate::model::domain::FlagTarget {
-        use crate::model::domain::FlagTarget;
         match &self.suspect {
             Suspect::Reading { reading_id, .. } => FlagTarget::Reading(*reading_id),
             Suspect::Record { record_id, .. } => FlagTarget::LoggerRecord(*record_id),
@@ -585,8 +584,8 @@ pub enum Input {
     Filter(String),
     /// Typing the reason for flagging (or the note for clearing) a reading.
     Reason {
-        /// The reading.
-        reading_id: i64,
+        /// The reading or conductivity reading.
+        target: FlagTarget,
         /// True to set a flag, false to clear the one it has.
         flag: bool,
         /// What is typed so far.
@@ -666,6 +665,29 @@ impl AppState {
     /// The reading highlighted in the readings table and on the curve.
     pub fn selected_reading(&self) -> Option<&ReadingView> {
         self.detail.ready()?.readings.get(self.reading)
+    }
+
+    /// The measured K readings the readings pane lists instead of the retention readings:
+    /// `Some` while the curve pane shows K(h) for a sample that has a conductivity view.
+    pub fn k_readings(&self) -> Option<&[conductivity::KReadingView]> {
+        if !self.show_conductivity {
+            return None;
+        }
+        Some(&self.detail.ready()?.conductivity.as_ref()?.readings)
+    }
+
+    /// The measured K under the readings cursor in the K view.
+    pub fn selected_k_reading(&self) -> Option<&conductivity::KReadingView> {
+        self.k_readings()?.get(self.reading)
+    }
+
+    /// How many rows the readings cursor moves over: the K readings in the K view, else the
+    /// retention readings.
+    pub fn reading_rows(&self) -> usize {
+        self.k_readings().map_or_else(
+            || self.detail.ready().map_or(0, |d| d.readings.len()),
+            <[_]>::len,
+        )
     }
 
     /// Set a status message.

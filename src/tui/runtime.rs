@@ -340,23 +340,33 @@ impl Session {
                 loaded(load::series(conn, &request).map(|d| Loaded::Series(Box::new(d))))
             }
             Effect::StartFit { job, request } => self.start_fit(job, request),
-            Effect::SetFlag { reading_id, reason } => Some(Action::FlagChanged(
-                self.write(|tx| {
-                    flags::flag_manual(tx, FlagTarget::Reading(reading_id), &reason, None)
-                })
-                .map(|id| {
-                    format!(
-                        "reading {reading_id} flagged (flag {id}); it is left out of fits: f refits"
-                    )
-                }),
+            Effect::SetFlag { target, reason } => Some(Action::FlagChanged(
+                self.write(|tx| flags::flag_manual(tx, target, &reason, None))
+                    .map(|id| match target {
+                        FlagTarget::ConductivityReading(k) => format!(
+                            "conductivity reading {k} flagged (flag {id}); it is left out of \
+                             joint fits: C refits"
+                        ),
+                        _ => format!(
+                            "{} flagged (flag {id}); it is left out of fits: f refits",
+                            flags::describe(target)
+                        ),
+                    }),
             )),
-            Effect::ClearFlag { reading_id, note } => Some(Action::FlagChanged(
+            Effect::ClearFlag { target, note } => Some(Action::FlagChanged(
                 self.write(|tx| {
                     let note = (!note.is_empty()).then_some(note.as_str());
-                    flags::clear_target(tx, FlagTarget::Reading(reading_id), note)
+                    flags::clear_target(tx, target, note)
                 })
-                .map(|_| {
-                    format!("flag on reading {reading_id} cleared; fits use it again: f refits")
+                .map(|_| match target {
+                    FlagTarget::ConductivityReading(k) => format!(
+                        "flag on conductivity reading {k} cleared; joint fits use it again: C \
+                         refits"
+                    ),
+                    _ => format!(
+                        "flag on {} cleared; fits use it again: f refits",
+                        flags::describe(target)
+                    ),
                 }),
             )),
             Effect::DecideFlags { flag_ids, accept } => Some(Action::FlagChanged(

@@ -3,6 +3,7 @@
 use std::fmt::Write as _;
 
 use crate::analysis::{FitRunSummary, ModelChoice};
+use crate::model::domain::FlagTarget;
 use crate::model::retention::ModelKind;
 
 use super::action::{Action, Effect, Loaded};
@@ -78,11 +79,9 @@ pub fn update(state: &mut AppState, action: Action) -> Vec<Effect> {
         }
         intent => match state.input.clone() {
             Input::Filter(text) => on_filter_input(state, text, &intent),
-            Input::Reason {
-                reading_id,
-                flag,
-                text,
-            } => on_reason_input(state, reading_id, flag, text, &intent),
+            Input::Reason { target, flag, text } => {
+                on_reason_input(state, target, flag, text, &intent)
+            }
             Input::ConfirmQuit => on_confirm(state, &intent),
             Input::None => on_intent(state, &intent),
         },
@@ -225,7 +224,6 @@ fn on_loaded(state: &mut AppState, loaded: Loaded) -> Vec<Effect> {
         }
         Loaded::Sample(detail) => {
             if state.detail.sample_id() == Some(detail.id) {
-                let len = detail.readings.len();
                 if state.screen == Screen::Review
                     && let Some(item) = state.review_item()
                     && let Some(pos) = detail
@@ -235,8 +233,8 @@ fn on_loaded(state: &mut AppState, loaded: Loaded) -> Vec<Effect> {
                 {
                     state.reading = pos;
                 }
-                state.reading = state.reading.min(len.saturating_sub(1));
                 state.detail = Detail::Ready(detail);
+                state.reading = state.reading.min(state.reading_rows().saturating_sub(1));
             }
             Vec::new()
         }
@@ -563,6 +561,8 @@ fn on_global(state: &mut AppState, action: &Action) -> Option<Vec<Effect>> {
         }
         Action::ToggleConductivity => {
             state.show_conductivity = !state.show_conductivity;
+            // The readings pane lists the measured K in the K view: its cursor starts over.
+            state.reading = 0;
             state.say(
                 Tone::Info,
                 if state.show_conductivity {
@@ -633,15 +633,22 @@ fn start_flag(state: &mut AppState) {
     if refuse_while_fitting(state) {
         return;
     }
-    let Some(reading) = state.selected_reading() else {
+    let picked = if state.k_readings().is_some() {
+        state
+            .selected_k_reading()
+            .map(|k| (FlagTarget::ConductivityReading(k.id), k.excluded))
+    } else {
+        state
+            .selected_reading()
+            .map(|r| (FlagTarget::Reading(r.id), r.excluded))
+    };
+    let Some((target, excluded)) = picked else {
         state.say(Tone::Warning, "open a sample and pick a reading first");
         return;
     };
-    let flag = !reading.excluded;
-    let reading_id = reading.id;
     state.input = Input::Reason {
-        reading_id,
-        flag,
+        target,
+        flag: !excluded,
         text: String::new(),
     };
 }

@@ -29,6 +29,23 @@ pub enum KCurveSource {
     None,
 }
 
+/// One measured K as the readings pane lists it in the K view.
+#[derive(Debug, Clone, PartialEq)]
+pub struct KReadingView {
+    /// Conductivity reading id (as `list conductivity` shows it).
+    pub id: i64,
+    /// Where it was measured.
+    pub at: Where,
+    /// K, cm/day.
+    pub k_cm_per_day: f64,
+    /// Method as the lab wrote it.
+    pub method: Option<String>,
+    /// Left out of joint fits by a flag.
+    pub excluded: bool,
+    /// Its place on the plot (log10 h, log10 K), when it has one.
+    pub point: Option<(f64, f64)>,
+}
+
 /// What the conductivity view draws.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ConductivityPanel {
@@ -37,6 +54,8 @@ pub struct ConductivityPanel {
     pub points: Vec<(f64, f64)>,
     /// Measured K left out of joint fits by a flag, placed as `points` are.
     pub excluded: Vec<(f64, f64)>,
+    /// Every measured K in the order of `list conductivity`, for the readings pane.
+    pub readings: Vec<KReadingView>,
     /// K(theta) readings that could not be placed on the suction axis.
     pub unplaced: usize,
     /// The K curve as (log10 h, log10 K).
@@ -64,22 +83,28 @@ impl ConductivityPanel {
         let mut unplaced = 0;
         let mut points = Vec::new();
         let mut excluded = Vec::new();
+        let mut listed = Vec::with_capacity(readings.len());
         for r in readings {
             let h = match r.reading.at {
                 Where::Suction(h) => Some(h),
                 Where::Water(theta) => curve.and_then(|c| c.suction_at(theta)),
             };
-            match h.filter(|h| *h > 0.0) {
-                Some(h) => {
-                    let point = (h.log10(), r.reading.k_cm_per_day.log10());
-                    if r.excluded {
-                        excluded.push(point);
-                    } else {
-                        points.push(point);
-                    }
-                }
+            let point = h
+                .filter(|h| *h > 0.0)
+                .map(|h| (h.log10(), r.reading.k_cm_per_day.log10()));
+            match point {
+                Some(point) if r.excluded => excluded.push(point),
+                Some(point) => points.push(point),
                 None => unplaced += 1,
             }
+            listed.push(KReadingView {
+                id: r.id,
+                at: r.reading.at,
+                k_cm_per_day: r.reading.k_cm_per_day,
+                method: r.reading.method.clone(),
+                excluded: r.excluded,
+                point,
+            });
         }
         let grid = |f: &dyn Fn(f64) -> Option<f64>| -> Vec<(f64, f64)> {
             (0..K_CURVE_POINTS)
@@ -121,6 +146,7 @@ impl ConductivityPanel {
         Some(ConductivityPanel {
             points,
             excluded,
+            readings: listed,
             unplaced,
             curve: curve_pts,
             source,

@@ -124,7 +124,7 @@ pub(super) fn on_browse(state: &mut AppState, action: &Action) -> Vec<Effect> {
     match state.focus {
         Pane::Tree => on_tree(state, action),
         Pane::Curve | Pane::Readings => {
-            let len = state.detail.ready().map_or(0, |d| d.readings.len());
+            let len = state.reading_rows();
             let step = match action {
                 Action::Left if state.focus == Pane::Curve => Some(&Action::Up),
                 Action::Right if state.focus == Pane::Curve => Some(&Action::Down),

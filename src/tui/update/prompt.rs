@@ -64,7 +64,7 @@ pub(super) fn on_filter_input(
 
 pub(super) fn on_reason_input(
     state: &mut AppState,
-    reading_id: i64,
+    target: FlagTarget,
     flag: bool,
     mut text: String,
     action: &Action,
@@ -90,21 +90,17 @@ pub(super) fn on_reason_input(
             }
             state.input = Input::None;
             return vec![if flag {
-                Effect::SetFlag { reading_id, reason }
+                Effect::SetFlag { target, reason }
             } else {
                 Effect::ClearFlag {
-                    reading_id,
+                    target,
                     note: reason,
                 }
             }];
         }
         _ => return Vec::new(),
     }
-    state.input = Input::Reason {
-        reading_id,
-        flag,
-        text,
-    };
+    state.input = Input::Reason { target, flag, text };
     Vec::new()
 }
 

@@ -169,7 +169,7 @@ fn flagging_asks_for_a_reason_and_clearing_for_a_note() {
     assert_eq!(
         state.input,
         Input::Reason {
-            reading_id: 10,
+            target: FlagTarget::Reading(10),
             flag: true,
             text: String::new()
         }
@@ -187,7 +187,7 @@ fn flagging_asks_for_a_reason_and_clearing_for_a_note() {
     assert_eq!(
         update(&mut state, Action::Submit),
         vec![Effect::SetFlag {
-            reading_id: 10,
+            target: FlagTarget::Reading(10),
             reason: "plate  leak".into()
         }]
     );
@@ -197,7 +197,7 @@ fn flagging_asks_for_a_reason_and_clearing_for_a_note() {
     assert_eq!(
         update(&mut state, Action::Submit),
         vec![Effect::ClearFlag {
-            reading_id: 12,
+            target: FlagTarget::Reading(12),
             note: String::new()
         }]
     );
@@ -620,4 +620,71 @@ fn the_other_fit_key_asks_for_the_selected_samples_next_current_fit() {
     );
     assert!(state.status.text.contains("fit 2 is now current"));
     assert!(!effects.is_empty(), "the sample and tree are reloaded");
+}
+
+#[test]
+fn in_the_k_view_the_readings_pane_flags_measured_conductivity() {
+    use crate::store::conductivity::{SampleKs, Where};
+    use crate::tui::app::conductivity::{ConductivityPanel, KCurveSource, KReadingView};
+    let mut state = on_first_sample();
+    let k = |id, h: f64, excluded| KReadingView {
+        id,
+        at: Where::Suction(h),
+        k_cm_per_day: 1.0 / h,
+        method: Some("evaporation".into()),
+        excluded,
+        point: Some((h.log10(), -h.log10())),
+    };
+    let Detail::Ready(d) = &mut state.detail else {
+        panic!("a sample is open");
+    };
+    d.conductivity = Some(ConductivityPanel {
+        points: vec![(1.0, -1.0)],
+        excluded: vec![(2.0, -2.0)],
+        readings: vec![k(7, 10.0, false), k(8, 100.0, true)],
+        unplaced: 0,
+        curve: Vec::new(),
+        source: KCurveSource::None,
+        model: None,
+        measured_ks: SampleKs::default(),
+    });
+    state.reading = 3;
+    update(&mut state, Action::ToggleConductivity);
+    assert_eq!(state.reading, 0, "the cursor starts on the first K");
+    assert_eq!(state.reading_rows(), 2);
+    state.focus = Pane::Readings;
+    update(&mut state, Action::Down);
+    update(&mut state, Action::Down);
+    assert_eq!(state.reading, 1, "the cursor stays within the K readings");
+    // The flagged K is cleared; the other is flagged with a reason.
+    update(&mut state, Action::ToggleFlag);
+    assert_eq!(
+        update(&mut state, Action::Submit),
+        vec![Effect::ClearFlag {
+            target: FlagTarget::ConductivityReading(8),
+            note: String::new()
+        }]
+    );
+    update(&mut state, Action::Up);
+    update(&mut state, Action::ToggleFlag);
+    for c in "ring leaked".chars() {
+        update(&mut state, Action::Char(c));
+    }
+    assert_eq!(
+        update(&mut state, Action::Submit),
+        vec![Effect::SetFlag {
+            target: FlagTarget::ConductivityReading(7),
+            reason: "ring leaked".into()
+        }]
+    );
+    // Back in the θ(h) view the same key flags retention readings.
+    update(&mut state, Action::ToggleConductivity);
+    update(&mut state, Action::ToggleFlag);
+    assert!(matches!(
+        state.input,
+        Input::Reason {
+            target: FlagTarget::Reading(10),
+            ..
+        }
+    ));
 }

@@ -10,7 +10,7 @@ use ratatui::widgets::{Paragraph, Widget};
 
 use super::super::app::conductivity::{ConductivityPanel, KCurveSource};
 use super::super::app::{AppState, PLOT_X_MIN, SampleDetail};
-use super::curve::EXCLUDED;
+use super::curve::{EXCLUDED, SELECTED};
 use super::plot::{Grid, Tick, draw_polyline, render_canvas, x_ticks};
 use crate::model::number::significant;
 
@@ -117,6 +117,14 @@ impl Widget for ConductivityPlot<'_> {
             if let Some((x, y)) = grid.cell(plot, lx, lk) {
                 buf.set_string(x, y, MEASURED, theme.point());
             }
+        }
+        // The measured K under the readings cursor, as the θ(h) view marks its reading.
+        if let Some((x, y)) = state
+            .selected_k_reading()
+            .and_then(|k| k.point)
+            .and_then(|(lx, lk)| grid.cell(plot, lx, lk))
+        {
+            buf.set_string(x, y, SELECTED, theme.selected_point());
         }
         Line::from(legend(panel, theme)).render(legend_row, buf);
     }

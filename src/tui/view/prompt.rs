@@ -7,6 +7,8 @@ use ratatui::widgets::{Clear, Paragraph, Widget, Wrap};
 
 use super::super::app::{AppState, Input};
 use super::{framed, suction_text, theta_text};
+use crate::model::domain::FlagTarget;
+use crate::store::conductivity::Where;
 
 /// The overlay, drawn last.
 pub struct Overlay<'a> {
@@ -31,39 +33,30 @@ impl Widget for Overlay<'_> {
         let state = self.state;
         let theme = state.theme;
         let (title, lines): (String, Vec<Line<'static>>) = match &state.input {
-            Input::Reason {
-                reading_id,
-                flag,
-                text,
-            } => {
-                let reading = state
-                    .detail
-                    .ready()
-                    .and_then(|d| d.readings.iter().find(|r| r.id == *reading_id));
-                let what = reading.map_or_else(
-                    || format!("reading {reading_id}"),
-                    |r| {
-                        format!(
-                            "reading {} (h {} {}, θ {})",
-                            r.id,
-                            suction_text(r.h_cm, state.units),
-                            state.units.symbol(),
-                            theta_text(r.theta)
-                        )
-                    },
-                );
-                let (title, label, hint) = if *flag {
-                    (
+            Input::Reason { target, flag, text } => {
+                let what = flag_subject(state, *target);
+                let joint = matches!(target, FlagTarget::ConductivityReading(_));
+                let (title, label, hint) = match (*flag, joint) {
+                    (true, false) => (
                         format!("Flag {what}"),
                         "reason: ",
                         "It is left out of fits until the flag is cleared. Enter saves, Esc abandons.",
-                    )
-                } else {
-                    (
+                    ),
+                    (true, true) => (
+                        format!("Flag {what}"),
+                        "reason: ",
+                        "It is left out of joint fits until the flag is cleared. Enter saves, Esc abandons.",
+                    ),
+                    (false, false) => (
                         format!("Clear the flag on {what}"),
                         "note (optional): ",
                         "Fits use it again. Enter clears, Esc abandons.",
-                    )
+                    ),
+                    (false, true) => (
+                        format!("Clear the flag on {what}"),
+                        "note (optional): ",
+                        "Joint fits use it again. Enter clears, Esc abandons.",
+                    ),
                 };
                 (
                     title,
@@ -108,5 +101,50 @@ impl Widget for Overlay<'_> {
         Paragraph::new(lines)
             .wrap(Wrap { trim: false })
             .render(inner, buf);
+    }
+}
+
+/// What a flag prompt is about: the reading with its suction and water content, or the
+/// conductivity reading with where it was measured and its K.
+fn flag_subject(state: &AppState, target: FlagTarget) -> String {
+    let detail = state.detail.ready();
+    match target {
+        FlagTarget::Reading(id) => detail
+            .and_then(|d| d.readings.iter().find(|r| r.id == id))
+            .map_or_else(
+                || format!("reading {id}"),
+                |r| {
+                    format!(
+                        "reading {} (h {} {}, θ {})",
+                        r.id,
+                        suction_text(r.h_cm, state.units),
+                        state.units.symbol(),
+                        theta_text(r.theta)
+                    )
+                },
+            ),
+        FlagTarget::ConductivityReading(id) => detail
+            .and_then(|d| d.conductivity.as_ref())
+            .and_then(|c| c.readings.iter().find(|k| k.id == id))
+            .map_or_else(
+                || format!("conductivity reading {id}"),
+                |k| {
+                    let at = match k.at {
+                        Where::Suction(h) => {
+                            format!(
+                                "h {} {}",
+                                suction_text(h, state.units),
+                                state.units.symbol()
+                            )
+                        }
+                        Where::Water(t) => format!("θ {}", theta_text(t)),
+                    };
+                    format!(
+                        "conductivity reading {id} ({at}, K {} cm/day)",
+                        crate::model::number::significant(k.k_cm_per_day, 3).unwrap_or_default()
+                    )
+                },
+            ),
+        FlagTarget::LoggerRecord(id) => format!("logger record {id}"),
     }
 }

@@ -7,10 +7,14 @@ use ratatui::layout::{Constraint, Rect};
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Paragraph, Row, Widget};
 
+use super::super::app::conductivity::KReadingView;
 use super::super::app::{AppState, Detail, ReadingView};
+use super::conductivity::MEASURED;
+use super::curve::EXCLUDED;
 use super::curve::point_glyph;
 use super::{cursor_row, framed, render_table, scroll_offset, suction_text, theta_text};
 use crate::model::text::shown;
+use crate::store::conductivity::Where;
 
 /// The readings pane.
 pub struct ReadingsPane<'a> {
@@ -44,6 +48,10 @@ impl Widget for ReadingsPane<'_> {
             Paragraph::new("No sample open.").render(inner, buf);
             return;
         };
+        if let Some(k) = state.k_readings() {
+            render_k(self.state, self.focused, &d.code, k, area, buf);
+            return;
+        }
         let excluded = d.readings.iter().filter(|r| r.excluded).count();
         let title = format!(
             "Readings · {} · {} used, {} excluded{}",
@@ -109,4 +117,91 @@ impl Widget for ReadingsPane<'_> {
         ];
         render_table(header, rows, &widths, inner, buf);
     }
+}
+
+/// The readings pane in the K view: each measured K (suction or water content, K in cm/day,
+/// method, flag); `t` flags the one under the cursor out of joint fits.
+fn render_k(
+    state: &AppState,
+    focused: bool,
+    code: &str,
+    k: &[KReadingView],
+    area: Rect,
+    buf: &mut Buffer,
+) {
+    let theme = state.theme;
+    let excluded = k.iter().filter(|r| r.excluded).count();
+    let title = format!(
+        "Measured K · {} · {} used, {} flagged{}",
+        shown(code),
+        k.len() - excluded,
+        excluded,
+        if state.focus == super::super::app::Pane::Readings {
+            " · t flags"
+        } else {
+            ""
+        }
+    );
+    let inner = framed(title, focused, theme, area, buf);
+    if inner.height < 2 {
+        return;
+    }
+    if k.is_empty() {
+        Paragraph::new("No measured conductivity (porewise import conductivity).")
+            .render(inner, buf);
+        return;
+    }
+    let header = Row::new(vec![
+        " ".to_string(),
+        format!("h {}", state.units.symbol()),
+        "θ".to_string(),
+        "K cm/day".to_string(),
+        "method".to_string(),
+        "flag".to_string(),
+    ])
+    .style(theme.heading());
+    let height = usize::from(inner.height - 1);
+    let offset = scroll_offset(state.reading, k.len(), height);
+    let rows = k
+        .iter()
+        .enumerate()
+        .skip(offset)
+        .take(height)
+        .map(|(i, r)| {
+            let (h, theta) = match r.at {
+                Where::Suction(h) => (suction_text(h, state.units), String::new()),
+                Where::Water(t) => (String::new(), theta_text(t)),
+            };
+            let row = Row::new(vec![
+                Line::from(if r.excluded {
+                    Span::styled(EXCLUDED, theme.excluded_point())
+                } else {
+                    Span::styled(MEASURED, theme.point())
+                }),
+                Line::from(h),
+                Line::from(theta),
+                Line::from(
+                    crate::model::number::significant(r.k_cm_per_day, 3).unwrap_or_default(),
+                ),
+                Line::from(shown(r.method.as_deref().unwrap_or_default()).into_owned()),
+                Line::from(Span::styled(
+                    if r.excluded {
+                        "excluded from joint fits"
+                    } else {
+                        ""
+                    },
+                    theme.flag(),
+                )),
+            ]);
+            cursor_row(row, i == state.reading, focused, theme)
+        });
+    let widths = [
+        Constraint::Length(1),
+        Constraint::Length(7),
+        Constraint::Length(5),
+        Constraint::Length(9),
+        Constraint::Length(if inner.width >= 70 { 14 } else { 9 }),
+        Constraint::Fill(1),
+    ];
+    render_table(header, rows, &widths, inner, buf);
 }
