@@ -13,7 +13,8 @@ use crate::store::exchange::{self, MergePlan, Preferences, RowKind};
 
 /// Arguments of `porewise merge`.
 #[derive(Debug, Args)]
-#[command(after_help = "Rows are matched by their stable ids (logger records by site, sensor and time); rows both\n\
+#[command(
+    after_help = "Rows are matched by their stable ids (logger records by site, sensor and time); rows both\n\
                   files hold alike are skipped, so merging the same file twice changes nothing. A row\n\
                   changed differently in the two files is a conflict: every one is listed and nothing is\n\
                   written unless --prefer resolves it. Two different rows with the same code (two sites\n\
@@ -22,7 +23,8 @@ use crate::store::exchange::{self, MergePlan, Preferences, RowKind};
                   logger, flags, flag-events, fits. `newer` decides flags (by decision time) and fits\n\
                   (by creation time) only.\n\n\
                   Examples:\n  porewise merge spring.sqlite laptop-b.sqlite --dry-run\n  \
-                  porewise merge spring.sqlite laptop-b.sqlite laptop-c.sqlite --prefer flags=newer --prefer readings=into")]
+                  porewise merge spring.sqlite laptop-b.sqlite laptop-c.sqlite --prefer flags=newer --prefer readings=into"
+)]
 pub struct MergeArgs {
     /// The campaign file to merge into (written).
     pub into: PathBuf,
@@ -74,7 +76,11 @@ pub fn run(args: &MergeArgs) -> anyhow::Result<Outcome> {
     for (path, plan) in &plans {
         println!(
             "{} from {} (rows):",
-            if args.dry_run { "would merge" } else { "merging" },
+            if args.dry_run {
+                "would merge"
+            } else {
+                "merging"
+            },
             shown(&path.display().to_string())
         );
         print!("{}", plan.render());
@@ -105,8 +111,13 @@ pub fn run(args: &MergeArgs) -> anyhow::Result<Outcome> {
     }
     if plans.iter().all(|(_, p)| p.writes_nothing()) {
         println!(
-            "nothing to merge: {} already holds every row",
-            shown(&args.into.display().to_string())
+            "nothing to write: {} holds every row of the other {} or keeps its own version",
+            shown(&args.into.display().to_string()),
+            if args.from.len() == 1 {
+                "file"
+            } else {
+                "files"
+            }
         );
         return Ok(Outcome::Success);
     }

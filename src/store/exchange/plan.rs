@@ -1036,10 +1036,19 @@ impl MergePlan {
     /// can be planned one after another before anything is written. Fits keep the readings
     /// key they came with (the file they land in decides whether they still match).
     pub fn merged(&self, into: &CampaignRows) -> CampaignRows {
-        fn overlay<T: Clone>(base: &[T], replace: &[T], insert: &[T], uid: fn(&T) -> &str) -> Vec<T> {
+        fn overlay<T: Clone>(
+            base: &[T],
+            replace: &[T],
+            insert: &[T],
+            uid: fn(&T) -> &str,
+        ) -> Vec<T> {
             let by_uid: HashMap<&str, &T> = replace.iter().map(|r| (uid(r), r)).collect();
             base.iter()
-                .map(|r| by_uid.get(uid(r)).map_or_else(|| r.clone(), |n| (*n).clone()))
+                .map(|r| {
+                    by_uid
+                        .get(uid(r))
+                        .map_or_else(|| r.clone(), |n| (*n).clone())
+                })
                 .chain(insert.iter().cloned())
                 .collect()
         }
@@ -1060,7 +1069,10 @@ impl MergePlan {
             }
         }
         CampaignRows {
-            campaign: self.campaign.clone().unwrap_or_else(|| into.campaign.clone()),
+            campaign: self
+                .campaign
+                .clone()
+                .unwrap_or_else(|| into.campaign.clone()),
             batches: overlay(&into.batches, &rep.batches, &ins.batches, |r| &r.uid),
             sites: overlay(&into.sites, &rep.sites, &ins.sites, |r| &r.uid),
             layers: overlay(&into.layers, &rep.layers, &ins.layers, |r| &r.uid),
