@@ -35,7 +35,7 @@ fn peak_kib() -> u64 {
 
 fn uid(rng: &mut ChaCha8Rng) -> String {
     let b: [u8; 16] = rng.random();
-    let h: String = b.iter().map(|x| format!("{x:02x}")).collect();
+    let h = porewise::model::number::hex(&b);
     format!(
         "{}-{}-4{}-8{}-{}",
         &h[0..8],
@@ -57,9 +57,7 @@ fn generate(path: &Path, records: usize) {
             .prepare("INSERT INTO site (uid, code) VALUES (?1, ?2)")
             .expect("prepare");
         let mut layer = tx
-            .prepare(
-                "INSERT INTO layer (uid, site_id, top_cm, bottom_cm) VALUES (?1, ?2, ?3, ?4)",
-            )
+            .prepare("INSERT INTO layer (uid, site_id, top_cm, bottom_cm) VALUES (?1, ?2, ?3, ?4)")
             .expect("prepare");
         for s in 0..SITES {
             site.execute(params![uid(&mut rng), format!("G{s:03}")])
@@ -280,7 +278,7 @@ fn main() {
     library_merge("generated into an empty file", &big_empty, &big);
     let files: Vec<PathBuf> = vec![big_a, big_b, big_empty];
     for f in files {
-        let size = std::fs::metadata(&f).map(|m| m.len()).unwrap_or(0);
+        let size = std::fs::metadata(&f).map_or(0, |m| m.len());
         println!("{}: {} MiB", f.display(), size >> 20);
     }
 }
