@@ -684,3 +684,34 @@ fn several_files_merge_in_one_transaction() {
         rows_of(built_demo()).readings.len() + 14
     );
 }
+
+#[test]
+fn hostile_text_in_a_conflict_is_shown_escaped() {
+    let l = laptops();
+    // A right-to-left override and an escape sequence in a site's name and a new sample's code.
+    sql(
+        &l.b,
+        "UPDATE site SET name = 'Levee ' || char(8238) || 'tserc' WHERE id = 1",
+    );
+    sql(
+        &l.b,
+        "INSERT INTO sample (uid, layer_id, code, kind) VALUES
+            ('00000000-0000-4000-8000-000000000031', 1, 'X' || char(27) || '[31m', 'lab_core')",
+    );
+    sql(
+        &l.a,
+        "INSERT INTO sample (uid, layer_id, code, kind) VALUES
+            ('00000000-0000-4000-8000-000000000032', 1, 'X' || char(27) || '[31m', 'lab_core')",
+    );
+    let out = merge(&l.a, &l.b, &[]).code(1);
+    let text = stdout(&out);
+    assert!(
+        !text.contains('\u{202e}') && !text.contains('\u{1b}'),
+        "{text:?}"
+    );
+    assert!(text.contains("| FROM \"Levee \\u{202e}tserc\""), "{text}");
+    assert!(
+        text.contains("samples: code \"X\\u{1b}[31m\" is "),
+        "{text}"
+    );
+}
