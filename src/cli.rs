@@ -20,6 +20,7 @@ pub mod import;
 pub mod init;
 pub mod list;
 pub mod logger;
+pub mod merge;
 pub mod open;
 pub mod pair;
 pub mod review;
@@ -74,6 +75,8 @@ pub enum Command {
     Advise(advise::AdviseArgs),
     /// Write a verified copy of a campaign, safe while it is open elsewhere.
     Backup(backup::BackupArgs),
+    /// Bring other copies of a campaign (other laptops' files) into one, by stable ids.
+    Merge(merge::MergeArgs),
     /// Print a shell completion script (bash, zsh, fish, powershell).
     Completions(shell::CompletionsArgs),
     /// Print the manual page (roff): `porewise manual > porewise.1`.
@@ -109,6 +112,7 @@ impl Command {
             Command::Unflag(_) => "unflag",
             Command::Advise(_) => "advise",
             Command::Backup(_) => "backup",
+            Command::Merge(_) => "merge",
             Command::Completions(_) => "completions",
             Command::Manual(_) => "manual",
             Command::Current(_) => "current",
@@ -139,6 +143,7 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Unflag(args) => unflag::run(&args),
         Command::Advise(args) => advise::run(&args),
         Command::Backup(args) => backup::run(&args),
+        Command::Merge(args) => merge::run(&args),
         Command::Completions(args) => shell::completions(&args),
         Command::Manual(args) => shell::manual(&args),
         Command::Current(args) => current::run(&args),
