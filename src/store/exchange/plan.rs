@@ -448,6 +448,31 @@ struct KindRules<'r, T> {
     label: &'r dyn Fn(&T) -> String,
     /// Never resolved by preferences (the append-only audit trail).
     fixed: bool,
+    /// Two versions that differ without being a conflict, and the side to keep (flags: a
+    /// suggestion the checks refreshed on one laptop, or decided on one and still open on the
+    /// other).
+    settle: Option<fn(&T, &T) -> Option<Side>>,
+}
+
+/// Two versions of one flag that are not a conflict: the checks refresh an open suggestion's
+/// reason and score each time they run, so two open suggestions that differ only there keep
+/// INTO's; and a suggestion decided on one laptop and still open on the other takes the
+/// decision (its audit events come with it). Two different decisions are a conflict.
+fn settle_flags(into: &FlagRow, from: &FlagRow) -> Option<Side> {
+    let open = |f: &FlagRow| f.status == "suggested" && f.origin == "auto";
+    let same_flag = into.target == from.target
+        && into.origin == from.origin
+        && into.rule == from.rule
+        && into.created_at == from.created_at;
+    if !same_flag {
+        return None;
+    }
+    match (open(into), open(from)) {
+        (true, true) => (into.note == from.note).then_some(Side::Into),
+        (true, false) => Some(Side::From),
+        (false, true) => Some(Side::Into),
+        (false, false) => None,
+    }
 }
 
 /// Resolve one conflict with the preferences.
@@ -506,6 +531,18 @@ fn merge_kind<T: Serialize + Clone + PartialEq>(
         if fields.is_empty() {
             counts.identical += 1;
             continue;
+        }
+        match rules.settle.and_then(|settle| settle(mine, row)) {
+            Some(Side::Into) => {
+                counts.kept_into += 1;
+                continue;
+            }
+            Some(Side::From) => {
+                counts.took_from += 1;
+                replace.push(row.clone());
+                continue;
+            }
+            None => {}
         }
         counts.conflicting += 1;
         let order = rules.newer.map(|f| f(mine, row));
@@ -593,6 +630,7 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
             no_time: NO_TIME,
             label: &|r: &BatchRow| format!("import batch {} ({})", r.file_name, r.uid),
             fixed: false,
+            settle: None,
         },
         &into.batches,
         &from.batches,
@@ -610,6 +648,7 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
             no_time: NO_TIME,
             label: &|r: &SiteRow| format!("site {} ({})", r.code, r.uid),
             fixed: false,
+            settle: None,
         },
         &into.sites,
         &from.sites,
@@ -627,6 +666,7 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
             no_time: NO_TIME,
             label: &|r: &LayerRow| format!("layer {} ({})", labels.layer(&r.uid), r.uid),
             fixed: false,
+            settle: None,
         },
         &into.layers,
         &from.layers,
@@ -644,6 +684,7 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
             no_time: NO_TIME,
             label: &|r: &SampleRow| format!("sample {} ({})", r.code, r.uid),
             fixed: false,
+            settle: None,
         },
         &into.samples,
         &from.samples,
@@ -668,6 +709,7 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
                 )
             },
             fixed: false,
+            settle: None,
         },
         &into.readings,
         &from.readings,
@@ -691,6 +733,7 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
                 )
             },
             fixed: false,
+            settle: None,
         },
         &into.conductivity,
         &from.conductivity,
@@ -720,6 +763,7 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
                 )
             },
             fixed: false,
+            settle: Some(settle_flags),
         },
         &into.flags,
         &from.flags,
@@ -737,6 +781,7 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
             no_time: NO_TIME,
             label: &|r: &FlagEventRow| format!("flag event {} of flag {}", r.uid, r.flag_uid),
             fixed: true,
+            settle: None,
         },
         &into.flag_events,
         &from.flag_events,
@@ -763,6 +808,7 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
                 )
             },
             fixed: false,
+            settle: None,
         },
         &into.fits,
         &from.fits,
@@ -1294,5 +1340,74 @@ mod tests {
         let p = plan(&into, &from, &prefs);
         assert!(p.is_clean(), "{}", p.render());
         assert!(p.writes_nothing());
+    }
+
+    fn suggestion(reason: &str, score: f64) -> FlagRow {
+        FlagRow {
+            uid: "00000000-0000-4000-8000-00000000f1a9".into(),
+            target: FlagTarget::Conductivity("00000000-0000-4000-8000-0000000000c1".into()),
+            reason: reason.into(),
+            score: Some(score),
+            origin: "auto".into(),
+            status: "suggested".into(),
+            note: None,
+            created_at: "2026-06-01T10:00:00Z".into(),
+            decided_at: None,
+            rule: Some("leave-one-out".into()),
+            decided_by: None,
+        }
+    }
+
+    fn decided(mut f: FlagRow, status: &str, at: &str) -> FlagRow {
+        f.status = status.into();
+        f.decided_at = Some(at.into());
+        f.decided_by = Some("user".into());
+        f
+    }
+
+    fn flag_plan(into: FlagRow, from: FlagRow, prefs: &Preferences) -> MergePlan {
+        let mut a = empty("00000000-0000-4000-8000-0000000000aa");
+        let mut b = a.clone();
+        a.flags.push(into);
+        b.flags.push(from);
+        plan(&a, &b, prefs)
+    }
+
+    #[test]
+    fn refreshed_suggestions_and_one_sided_decisions_are_not_conflicts() {
+        let none = Preferences::default();
+        // The checks ran again on one laptop: the open suggestion's text and score moved.
+        let p = flag_plan(suggestion("4.1 sd", 4.1), suggestion("4.3 sd", 4.3), &none);
+        assert!(p.conflicts.is_empty(), "{}", p.render());
+        assert!(p.replace.flags.is_empty(), "INTO's text is kept");
+        // Decided on the FROM laptop, still open on INTO: the decision comes over.
+        let from = decided(
+            suggestion("4.3 sd", 4.3),
+            "accepted",
+            "2026-06-02T08:00:00Z",
+        );
+        let p = flag_plan(suggestion("4.1 sd", 4.1), from.clone(), &none);
+        assert!(p.conflicts.is_empty(), "{}", p.render());
+        assert_eq!(p.replace.flags, vec![from.clone()]);
+        // ... and the other way round INTO keeps its decision.
+        let p = flag_plan(from.clone(), suggestion("4.1 sd", 4.1), &none);
+        assert!(
+            p.conflicts.is_empty() && p.replace.flags.is_empty(),
+            "{}",
+            p.render()
+        );
+        // Two different decisions stay a conflict until the user says how to settle it.
+        let other = decided(
+            suggestion("4.1 sd", 4.1),
+            "dismissed",
+            "2026-06-03T08:00:00Z",
+        );
+        let p = flag_plan(from.clone(), other.clone(), &none);
+        assert_eq!(p.unresolved(), 1, "{}", p.render());
+        let mut newer = Preferences::default();
+        newer.add("flags=newer").expect("preference");
+        let p = flag_plan(from, other.clone(), &newer);
+        assert_eq!(p.unresolved(), 0);
+        assert_eq!(p.replace.flags, vec![other]);
     }
 }
