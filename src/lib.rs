@@ -24,6 +24,7 @@
 //! - [`cli`]: the command line, thin over the library.
 
 pub mod analysis;
+pub mod archive;
 pub mod cli;
 pub mod demo;
 pub mod error;
