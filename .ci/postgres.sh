@@ -8,7 +8,8 @@
 set -euo pipefail
 
 role=porewise_test
-password=porewise_test
+# Differs from the role name, so tests can check that no output shows it.
+password=archive-pw-71
 db=porewise_test
 port=5432
 
@@ -48,8 +49,9 @@ done
 
 if [ "$(psql_admin -c "SELECT 1 FROM pg_roles WHERE rolname = '$role'")" != 1 ]; then
     log "creating role $role"
-    psql_admin -c "CREATE ROLE $role LOGIN PASSWORD '$password' CREATEDB" >&2
+    psql_admin -c "CREATE ROLE $role LOGIN CREATEDB" >&2
 fi
+psql_admin -c "ALTER ROLE $role PASSWORD '$password'" >/dev/null
 if [ "$(psql_admin -c "SELECT 1 FROM pg_database WHERE datname = '$db'")" != 1 ]; then
     log "creating database $db"
     psql_admin -c "CREATE DATABASE $db OWNER $role" >&2

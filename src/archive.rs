@@ -7,6 +7,7 @@
 //! files in `pg_migrations/`; [`stats`] summarises the current fits of every campaign in SQL.
 
 pub mod connect;
+pub mod listing;
 pub mod migrate;
 pub mod stats;
 pub mod target;

@@ -8,6 +8,7 @@ use clap::{Parser, Subcommand};
 use crate::error::Outcome;
 
 pub mod advise;
+pub mod archive;
 pub mod backup;
 pub mod current;
 pub mod curve;
@@ -74,6 +75,9 @@ pub enum Command {
     Advise(advise::AdviseArgs),
     /// Write a verified copy of a campaign, safe while it is open elsewhere.
     Backup(backup::BackupArgs),
+    /// The shared archive on a PostgreSQL server: create it, list it, summarise its fits
+    #[command(subcommand)]
+    Archive(archive::ArchiveCommand),
     /// Print a shell completion script (bash, zsh, fish, powershell).
     Completions(shell::CompletionsArgs),
     /// Print the manual page (roff): `porewise manual > porewise.1`.
@@ -109,6 +113,7 @@ impl Command {
             Command::Unflag(_) => "unflag",
             Command::Advise(_) => "advise",
             Command::Backup(_) => "backup",
+            Command::Archive(_) => "archive",
             Command::Completions(_) => "completions",
             Command::Manual(_) => "manual",
             Command::Current(_) => "current",
@@ -139,6 +144,7 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Unflag(args) => unflag::run(&args),
         Command::Advise(args) => advise::run(&args),
         Command::Backup(args) => backup::run(&args),
+        Command::Archive(cmd) => archive::run(&cmd),
         Command::Completions(args) => shell::completions(&args),
         Command::Manual(args) => shell::manual(&args),
         Command::Current(args) => current::run(&args),
