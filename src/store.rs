@@ -12,6 +12,7 @@ pub mod batches;
 pub mod campaign;
 pub mod conductivity;
 pub mod db;
+pub mod exchange;
 pub mod fits;
 pub mod flags;
 pub mod holder;

@@ -1,0 +1,96 @@
+//! The exchange engine (`store::exchange`): reading a campaign's rows by uid, planning a
+//! merge, applying it, and the fingerprint that does not depend on local ids.
+
+use std::path::{Path, PathBuf};
+
+use porewise::store::exchange;
+use rusqlite::Connection;
+
+fn demo(dir: &Path) -> PathBuf {
+    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-db");
+    for file in porewise::demo::generate() {
+        std::fs::copy(src.join(file.name), dir.join(file.name)).expect("copy");
+    }
+    porewise::cli::demo::ensure_built(dir).expect("demo builds")
+}
+
+fn count(conn: &Connection, table: &str) -> usize {
+    let n: i64 = conn
+        .query_row(&format!("SELECT count(*) FROM {table}"), [], |r| r.get(0))
+        .expect("count");
+    usize::try_from(n).expect("count")
+}
+
+#[test]
+fn reading_the_demo_takes_every_row_and_reads_the_same_twice() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    let conn = Connection::open(&db).expect("open");
+    let rows = exchange::read(&conn).expect("read");
+    assert_eq!(rows.batches.len(), count(&conn, "import_batch"));
+    assert_eq!(rows.sites.len(), count(&conn, "site"));
+    assert_eq!(rows.layers.len(), count(&conn, "layer"));
+    assert_eq!(rows.samples.len(), count(&conn, "sample"));
+    assert_eq!(rows.readings.len(), count(&conn, "reading"));
+    assert_eq!(
+        rows.conductivity.len(),
+        count(&conn, "conductivity_reading")
+    );
+    assert_eq!(rows.logger_records(), count(&conn, "logger_record"));
+    assert_eq!(rows.flags.len(), count(&conn, "flag"));
+    assert_eq!(rows.flag_events.len(), count(&conn, "flag_event"));
+    assert_eq!(rows.fits.len(), count(&conn, "fit"));
+    // The demo's current fits match their readings, so each carries its readings key.
+    let current: Vec<_> = rows.fits.iter().filter(|f| f.is_current).collect();
+    assert!(!current.is_empty());
+    assert!(
+        current.iter().all(|f| f.readings_key.is_some()),
+        "{current:?}"
+    );
+    // Joint fits name conductivity readings by uid.
+    let joint: Vec<_> = rows
+        .fits
+        .iter()
+        .filter_map(|f| f.joint.as_deref())
+        .collect();
+    assert!(!joint.is_empty());
+    for j in &joint {
+        let v: serde_json::Value = serde_json::from_str(j).expect("json");
+        let ids = v["conductivity_reading_ids"].as_array().expect("ids");
+        assert!(!ids.is_empty());
+        assert!(
+            ids.iter()
+                .all(|id| id.as_str().is_some_and(|s| s.len() == 36)),
+            "{v}"
+        );
+        assert!(v["conductivity_fingerprint"].as_str().is_some(), "{v}");
+    }
+    let again = exchange::read(&conn).expect("read again");
+    assert_eq!(exchange::fingerprint(&rows), exchange::fingerprint(&again));
+    // A changed reading changes the fingerprint, and the fits of its sample lose their key.
+    conn.execute(
+        "UPDATE reading SET theta = theta + 0.001 WHERE id = (SELECT min(id) FROM reading)",
+        [],
+    )
+    .expect("update");
+    let changed = exchange::read(&conn).expect("read changed");
+    assert_ne!(
+        exchange::fingerprint(&rows),
+        exchange::fingerprint(&changed)
+    );
+    let sample: String = conn
+        .query_row(
+            "SELECT m.uid FROM reading r JOIN sample m ON m.id = r.sample_id
+             WHERE r.id = (SELECT min(id) FROM reading)",
+            [],
+            |r| r.get(0),
+        )
+        .expect("sample");
+    let fits: Vec<_> = changed
+        .fits
+        .iter()
+        .filter(|f| f.sample_uid == sample)
+        .collect();
+    assert!(!fits.is_empty());
+    assert!(fits.iter().all(|f| f.readings_key.is_none()));
+}
