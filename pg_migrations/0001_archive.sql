@@ -2,6 +2,7 @@
 -- and each row's own uid (the 36-character uids of the campaign files, schema 10), references
 -- as uids. Logger records have no uid: (campaign, site uid, sensor id, time) is their key.
 -- Applied by `porewise archive init` inside the archive's own schema (search_path is set to it).
+-- Foreign keys are DEFERRABLE: a push defers them, so it can replace rows in any order.
 
 CREATE TABLE campaign (
     uid text PRIMARY KEY CHECK (length(uid) = 36),
@@ -20,7 +21,7 @@ CREATE TABLE campaign (
 CREATE INDEX campaign_name ON campaign (name);
 
 CREATE TABLE import_batch (
-    campaign_uid text NOT NULL REFERENCES campaign (uid),
+    campaign_uid text NOT NULL REFERENCES campaign (uid) DEFERRABLE,
     uid text NOT NULL CHECK (length(uid) = 36),
     file_name text NOT NULL,
     sha256 text NOT NULL,
@@ -32,7 +33,7 @@ CREATE TABLE import_batch (
 );
 
 CREATE TABLE site (
-    campaign_uid text NOT NULL REFERENCES campaign (uid),
+    campaign_uid text NOT NULL REFERENCES campaign (uid) DEFERRABLE,
     uid text NOT NULL CHECK (length(uid) = 36),
     code text NOT NULL,
     name text,
@@ -46,7 +47,7 @@ CREATE TABLE site (
 );
 
 CREATE TABLE layer (
-    campaign_uid text NOT NULL REFERENCES campaign (uid),
+    campaign_uid text NOT NULL REFERENCES campaign (uid) DEFERRABLE,
     uid text NOT NULL CHECK (length(uid) = 36),
     site_uid text NOT NULL,
     top_cm double precision NOT NULL,
@@ -62,14 +63,14 @@ CREATE TABLE layer (
     -- USDA texture class name computed at push from sand, silt and clay (NULL without them).
     texture_class text,
     PRIMARY KEY (campaign_uid, uid),
-    FOREIGN KEY (campaign_uid, site_uid) REFERENCES site (campaign_uid, uid)
+    FOREIGN KEY (campaign_uid, site_uid) REFERENCES site (campaign_uid, uid) DEFERRABLE
 );
 CREATE INDEX layer_texture ON layer (texture_class);
 CREATE INDEX layer_horizon ON layer (lower(horizon));
 CREATE INDEX layer_depth ON layer (top_cm, bottom_cm);
 
 CREATE TABLE sample (
-    campaign_uid text NOT NULL REFERENCES campaign (uid),
+    campaign_uid text NOT NULL REFERENCES campaign (uid) DEFERRABLE,
     uid text NOT NULL CHECK (length(uid) = 36),
     layer_uid text NOT NULL,
     code text NOT NULL,
@@ -82,12 +83,12 @@ CREATE TABLE sample (
     ks_batch_uid text,
     PRIMARY KEY (campaign_uid, uid),
     UNIQUE (campaign_uid, code),
-    FOREIGN KEY (campaign_uid, layer_uid) REFERENCES layer (campaign_uid, uid)
+    FOREIGN KEY (campaign_uid, layer_uid) REFERENCES layer (campaign_uid, uid) DEFERRABLE
 );
 CREATE INDEX sample_layer ON sample (campaign_uid, layer_uid);
 
 CREATE TABLE reading (
-    campaign_uid text NOT NULL REFERENCES campaign (uid),
+    campaign_uid text NOT NULL REFERENCES campaign (uid) DEFERRABLE,
     uid text NOT NULL CHECK (length(uid) = 36),
     sample_uid text NOT NULL,
     h_cm double precision NOT NULL,
@@ -100,12 +101,12 @@ CREATE TABLE reading (
     batch_uid text,
     source_line bigint,
     PRIMARY KEY (campaign_uid, uid),
-    FOREIGN KEY (campaign_uid, sample_uid) REFERENCES sample (campaign_uid, uid)
+    FOREIGN KEY (campaign_uid, sample_uid) REFERENCES sample (campaign_uid, uid) DEFERRABLE
 );
 CREATE INDEX reading_sample ON reading (campaign_uid, sample_uid);
 
 CREATE TABLE conductivity_reading (
-    campaign_uid text NOT NULL REFERENCES campaign (uid),
+    campaign_uid text NOT NULL REFERENCES campaign (uid) DEFERRABLE,
     uid text NOT NULL CHECK (length(uid) = 36),
     sample_uid text NOT NULL,
     h_cm double precision,
@@ -117,11 +118,11 @@ CREATE TABLE conductivity_reading (
     batch_uid text,
     source_line bigint,
     PRIMARY KEY (campaign_uid, uid),
-    FOREIGN KEY (campaign_uid, sample_uid) REFERENCES sample (campaign_uid, uid)
+    FOREIGN KEY (campaign_uid, sample_uid) REFERENCES sample (campaign_uid, uid) DEFERRABLE
 );
 
 CREATE TABLE fit (
-    campaign_uid text NOT NULL REFERENCES campaign (uid),
+    campaign_uid text NOT NULL REFERENCES campaign (uid) DEFERRABLE,
     uid text NOT NULL CHECK (length(uid) = 36),
     sample_uid text NOT NULL,
     model text NOT NULL,
@@ -131,7 +132,8 @@ CREATE TABLE fit (
     covariance text,
     statistics text NOT NULL,
     n_points bigint NOT NULL,
-    readings_fingerprint text NOT NULL,
+    -- SHA-256 of the readings it used by uid (NULL for a stale fit; store::exchange).
+    readings_key text,
     created_at text NOT NULL,
     is_current boolean NOT NULL,
     status text NOT NULL,
@@ -140,8 +142,7 @@ CREATE TABLE fit (
     fixed text,
     report text,
     ranking text,
-    reading_uids text,
-    sample_rev bigint,
+    reading_uids text[],
     conductivity text,
     joint text,
     -- Derived at push under the campaign's field capacity and wilting point (analysis::water),
@@ -152,16 +153,18 @@ CREATE TABLE fit (
     available_water_lo95 double precision,
     available_water_hi95 double precision,
     PRIMARY KEY (campaign_uid, uid),
-    FOREIGN KEY (campaign_uid, sample_uid) REFERENCES sample (campaign_uid, uid)
+    FOREIGN KEY (campaign_uid, sample_uid) REFERENCES sample (campaign_uid, uid) DEFERRABLE
 );
 CREATE INDEX fit_sample ON fit (campaign_uid, sample_uid);
 CREATE INDEX fit_current_model ON fit (model, campaign_uid, sample_uid) WHERE is_current;
 
+-- Byte order (COLLATE "C") on the key, as the campaign files sort it, so reading a campaign's
+-- records in key order walks the primary key.
 CREATE TABLE logger_record (
-    campaign_uid text NOT NULL REFERENCES campaign (uid),
-    site_uid text NOT NULL,
-    sensor_id text NOT NULL,
-    time text NOT NULL,          -- UTC, YYYY-MM-DDTHH:MM:SSZ as the campaign file holds it
+    campaign_uid text NOT NULL REFERENCES campaign (uid) DEFERRABLE,
+    site_uid text COLLATE "C" NOT NULL,
+    sensor_id text COLLATE "C" NOT NULL,
+    time text COLLATE "C" NOT NULL,  -- UTC, YYYY-MM-DDTHH:MM:SSZ as the campaign file holds it
     depth_cm double precision NOT NULL,
     sensor text NOT NULL,
     value double precision NOT NULL,
@@ -171,7 +174,7 @@ CREATE TABLE logger_record (
 );
 
 CREATE TABLE flag (
-    campaign_uid text NOT NULL REFERENCES campaign (uid),
+    campaign_uid text NOT NULL REFERENCES campaign (uid) DEFERRABLE,
     uid text NOT NULL CHECK (length(uid) = 36),
     reading_uid text,
     -- A flag on a logger record names the record by its natural key.
@@ -192,7 +195,7 @@ CREATE TABLE flag (
 );
 
 CREATE TABLE flag_event (
-    campaign_uid text NOT NULL REFERENCES campaign (uid),
+    campaign_uid text NOT NULL REFERENCES campaign (uid) DEFERRABLE,
     uid text NOT NULL CHECK (length(uid) = 36),
     flag_uid text NOT NULL,
     from_status text,
@@ -201,5 +204,5 @@ CREATE TABLE flag_event (
     note text,
     at text NOT NULL,
     PRIMARY KEY (campaign_uid, uid),
-    FOREIGN KEY (campaign_uid, flag_uid) REFERENCES flag (campaign_uid, uid)
+    FOREIGN KEY (campaign_uid, flag_uid) REFERENCES flag (campaign_uid, uid) DEFERRABLE
 );

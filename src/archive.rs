@@ -9,6 +9,7 @@
 pub mod connect;
 pub mod listing;
 pub mod migrate;
+pub mod rows;
 pub mod stats;
 pub mod target;
 

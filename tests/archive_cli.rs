@@ -127,7 +127,7 @@ fn fill(client: &mut postgres::Client) {
         client
             .execute(
                 "INSERT INTO fit (campaign_uid, uid, sample_uid, model, parameters, statistics,
-                                  n_points, readings_fingerprint, created_at, is_current, status,
+                                  n_points, readings_key, created_at, is_current, status,
                                   available_water)
                  VALUES ($1, $2, $3, $4, $5, '{}', 8, 'x', '2026-01-02T00:00:00Z', $6, 'ok', $7)",
                 &[
