@@ -9,6 +9,7 @@
 use std::collections::HashMap;
 
 use postgres::GenericClient;
+use postgres::fallible_iterator::FallibleIterator;
 use postgres::binary_copy::BinaryCopyInWriter;
 use postgres::types::{ToSql, Type};
 
@@ -319,7 +320,6 @@ fn read_logger(client: &mut impl GenericClient, uid: &str) -> Result<Vec<LoggerS
             params,
         )
         .map_err(server("cannot read the campaign's logger records"))?;
-    use postgres::fallible_iterator::FallibleIterator;
     while let Some(r) = rows
         .next()
         .map_err(server("cannot read the campaign's logger records"))?
