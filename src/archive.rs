@@ -9,6 +9,8 @@
 pub mod connect;
 pub mod listing;
 pub mod migrate;
+pub mod pull;
+pub mod push;
 pub mod rows;
 pub mod stats;
 pub mod target;

@@ -481,12 +481,13 @@ fn copy<T>(
     Ok(())
 }
 
-/// Derived values of a current fit under the campaign's suctions: theta at field capacity and
+/// Derived values of a fit (every successful one, since which is current may change later)
+/// under the campaign's suctions: theta at field capacity and
 /// at the wilting point, available water and its 95 % interval (m3/m3).
 type Derived = [Option<f64>; 5];
 
 fn derived(fit: &FitRow, campaign: &CampaignRow) -> Derived {
-    if !fit.is_current || fit.status != "ok" {
+    if fit.status != "ok" {
         return [None; 5];
     }
     let Some(mut report) = fit
@@ -513,7 +514,7 @@ fn derived(fit: &FitRow, campaign: &CampaignRow) -> Derived {
 }
 
 /// Write new rows of a campaign (whose row is already on the server), parents first, each
-/// kind with one binary COPY; layers get their texture class, current fits their derived
+/// kind with one binary COPY; layers get their texture class, successful fits their derived
 /// values.
 ///
 /// # Errors
