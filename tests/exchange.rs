@@ -94,3 +94,44 @@ fn reading_the_demo_takes_every_row_and_reads_the_same_twice() {
     assert!(!fits.is_empty());
     assert!(fits.iter().all(|f| f.readings_key.is_none()));
 }
+
+#[test]
+fn applying_the_demo_to_an_empty_file_recreates_it_exactly() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    let source = exchange::read(&Connection::open(&db).expect("open")).expect("read");
+    let target = dir.path().join("copy.sqlite");
+    let mut campaign =
+        porewise::store::Campaign::create(&target, "placeholder", 33.0, 1500.0).expect("create");
+    let plan = exchange::recreate(&source);
+    assert!(plan.is_clean(), "{}", plan.render());
+    let tx = campaign.transaction().expect("tx");
+    exchange::apply(&tx, &plan).expect("apply");
+    tx.commit().expect("commit");
+    let copy = exchange::read(campaign.connection()).expect("read copy");
+    assert_eq!(copy.campaign, source.campaign);
+    assert_eq!(copy.fits, source.fits);
+    assert_eq!(exchange::fingerprint(&copy), exchange::fingerprint(&source));
+    // The copy's fits stand as the source's do (current, stale, failed).
+    let standing = |conn: &Connection| {
+        let samples =
+            porewise::store::fits::samples(conn, &porewise::store::fits::Selection::all())
+                .expect("samples");
+        let codes: std::collections::HashMap<i64, String> =
+            samples.iter().map(|s| (s.id, s.code.clone())).collect();
+        let mut out: Vec<(String, String)> = porewise::store::fits::summaries(conn, &samples)
+            .expect("summaries")
+            .into_iter()
+            .map(|(id, s)| (codes[&id].clone(), format!("{:?} {:?}", s.model, s.state)))
+            .collect();
+        out.sort();
+        out
+    };
+    assert_eq!(
+        standing(campaign.connection()),
+        standing(&Connection::open(&db).expect("open"))
+    );
+    // Applying the same campaign again plans nothing new.
+    let again = exchange::plan(&copy, &source, &exchange::Preferences::default());
+    assert!(again.writes_nothing(), "{}", again.render());
+}

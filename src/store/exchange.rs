@@ -14,8 +14,15 @@
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
+mod apply;
+mod plan;
 mod read;
 
+pub use apply::{Applied, apply};
+pub use plan::{
+    Collision, Conflict, KindCounts, MergePlan, Preferences, RowKind, RowSet, Side, Way, plan,
+    recreate,
+};
 pub use read::read;
 
 /// The campaign row itself (exactly one per file).
@@ -326,7 +333,7 @@ pub struct FitRow {
     /// `mualem` or `burdine`.
     pub conductivity: Option<String>,
     /// The joint record (JSON) with conductivity reading uids in place of local ids and its
-    /// conductivity fingerprint replaced as `readings_key` is (null when stale).
+    /// conductivity fingerprint replaced by the uid-based key (`stale` when stale).
     pub joint: Option<String>,
 }
 

@@ -12,6 +12,10 @@ use super::{
 };
 use crate::store::{Result, StoreError};
 
+/// What a fingerprint is replaced by when the readings it was taken of changed since: no
+/// SHA-256 is equal to it, so a fit recorded with it is stale in any file.
+pub(super) const STALE: &str = "stale";
+
 /// Local id -> uid of one table.
 type Uids = HashMap<i64, String>;
 
@@ -570,7 +574,8 @@ fn read_fits(conn: &Connection, cx: &FitContext<'_>) -> Result<Vec<FitRow>> {
 }
 
 /// A joint record with conductivity reading uids for its local ids, and its conductivity
-/// fingerprint replaced by the file-independent key (null when the readings changed since).
+/// fingerprint replaced by the file-independent key (`stale` when the readings changed since,
+/// so the fit stays stale wherever it goes; null stays null).
 fn translate_joint(uid: &str, text: &str, sample: i64, cx: &FitContext<'_>) -> Result<String> {
     let bad = |e: String| StoreError::Corrupt(format!("fit {uid}: joint record: {e}"));
     let mut value: serde_json::Value =
@@ -590,11 +595,7 @@ fn translate_joint(uid: &str, text: &str, sample: i64, cx: &FitContext<'_>) -> R
         && let Some(recorded) = fp.as_str()
     {
         let (local, key) = cx.conductivity_now(sample);
-        *fp = if recorded == local {
-            serde_json::Value::String(key)
-        } else {
-            serde_json::Value::Null
-        };
+        *fp = serde_json::Value::String(if recorded == local { key } else { STALE.into() });
     }
     serde_json::to_string(&value).map_err(|e| bad(e.to_string()))
 }

@@ -1,0 +1,1032 @@
+//! Planning a merge: pure comparison of two campaigns' rows by uid (logger records by their
+//! natural key), with the user's preferences deciding conflicts.
+
+use std::cmp::Ordering;
+use std::collections::{BTreeMap, HashMap};
+use std::fmt::Write as _;
+
+use serde::Serialize;
+
+use super::{
+    BatchRow, CampaignRow, CampaignRows, ConductivityRow, FitRow, FlagEventRow, FlagRow,
+    FlagTarget, LayerRow, LoggerPoint, LoggerSeries, ReadingRow, SampleRow, SiteRow,
+};
+use crate::model::text::shown;
+
+/// The kinds of rows a merge brings, in the order they are written.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize)]
+pub enum RowKind {
+    /// The campaign's settings.
+    Campaign,
+    /// Import batches.
+    Batches,
+    /// Sites.
+    Sites,
+    /// Layers.
+    Layers,
+    /// Samples.
+    Samples,
+    /// Retention readings.
+    Readings,
+    /// Conductivity readings.
+    Conductivity,
+    /// Logger records.
+    Logger,
+    /// Flags.
+    Flags,
+    /// Flag events (the audit trail).
+    FlagEvents,
+    /// Fits (and each sample's choice of current fit).
+    Fits,
+}
+
+impl RowKind {
+    /// Every kind, in write order.
+    pub const ALL: [RowKind; 11] = [
+        RowKind::Campaign,
+        RowKind::Batches,
+        RowKind::Sites,
+        RowKind::Layers,
+        RowKind::Samples,
+        RowKind::Readings,
+        RowKind::Conductivity,
+        RowKind::Logger,
+        RowKind::Flags,
+        RowKind::FlagEvents,
+        RowKind::Fits,
+    ];
+
+    /// The name used in reports and in `--prefer KIND=WAY`.
+    pub fn name(self) -> &'static str {
+        match self {
+            RowKind::Campaign => "campaign",
+            RowKind::Batches => "batches",
+            RowKind::Sites => "sites",
+            RowKind::Layers => "layers",
+            RowKind::Samples => "samples",
+            RowKind::Readings => "readings",
+            RowKind::Conductivity => "conductivity",
+            RowKind::Logger => "logger",
+            RowKind::Flags => "flags",
+            RowKind::FlagEvents => "flag-events",
+            RowKind::Fits => "fits",
+        }
+    }
+
+    /// The kind named `name` (as [`RowKind::name`]).
+    pub fn parse(name: &str) -> Option<RowKind> {
+        RowKind::ALL.into_iter().find(|k| k.name() == name)
+    }
+}
+
+/// How to resolve a conflict: the later version, INTO's, or FROM's.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum Way {
+    /// The version changed later (flags: decided later; fits: made later). Kinds without a
+    /// time of change cannot be resolved this way.
+    Newer,
+    /// Keep the campaign merged into.
+    Into,
+    /// Take the campaign merged from.
+    From,
+}
+
+impl Way {
+    /// The name used in `--prefer`.
+    pub fn name(self) -> &'static str {
+        match self {
+            Way::Newer => "newer",
+            Way::Into => "into",
+            Way::From => "from",
+        }
+    }
+
+    fn parse(name: &str) -> Option<Way> {
+        match name {
+            "newer" => Some(Way::Newer),
+            "into" => Some(Way::Into),
+            "from" => Some(Way::From),
+            _ => None,
+        }
+    }
+}
+
+/// The user's preferences: a way for every kind, ways per kind, and whether another campaign
+/// (another campaign uid) may be merged at all.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Preferences {
+    /// The way for kinds not named in `per_kind`.
+    pub all: Option<Way>,
+    /// Ways per kind.
+    pub per_kind: BTreeMap<RowKind, Way>,
+    /// Merge even when the two files are different campaigns (different campaign uids).
+    pub allow_other_campaign: bool,
+}
+
+impl Preferences {
+    /// Add one `--prefer` value: `WAY` for every kind or `KIND=WAY`.
+    ///
+    /// # Errors
+    /// A text naming an unknown kind or way; the message lists the known ones.
+    pub fn add(&mut self, text: &str) -> Result<(), String> {
+        let ways = "newer, into or from";
+        match text.split_once('=') {
+            None => {
+                let way = Way::parse(text)
+                    .ok_or_else(|| format!("--prefer {text:?}: expected {ways}, or KIND=WAY"))?;
+                self.all = Some(way);
+            }
+            Some((kind, way)) => {
+                let kinds: Vec<&str> = RowKind::ALL.iter().map(|k| k.name()).collect();
+                let kind = RowKind::parse(kind).ok_or_else(|| {
+                    format!(
+                        "--prefer {text:?}: unknown kind {kind:?} (kinds: {})",
+                        kinds.join(", ")
+                    )
+                })?;
+                let way = Way::parse(way)
+                    .ok_or_else(|| format!("--prefer {text:?}: expected {ways} after '='"))?;
+                self.per_kind.insert(kind, way);
+            }
+        }
+        Ok(())
+    }
+
+    /// The way chosen for `kind`, if any.
+    pub fn way(&self, kind: RowKind) -> Option<Way> {
+        self.per_kind.get(&kind).copied().or(self.all)
+    }
+}
+
+/// Which version a conflict ends with.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum Side {
+    /// INTO's version stays.
+    Into,
+    /// FROM's version is written.
+    From,
+}
+
+/// One row with the same identity and different content in the two campaigns.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Conflict {
+    /// The kind of row.
+    pub kind: RowKind,
+    /// Which row (codes, depths and uid).
+    pub what: String,
+    /// The fields that differ: name, INTO's value, FROM's value (as JSON text).
+    pub fields: Vec<(String, String, String)>,
+    /// How it was resolved (None: not resolved, the merge writes nothing).
+    pub resolved: Option<(Side, Way)>,
+    /// Why a preference given did not resolve it.
+    pub unresolved_because: Option<String>,
+}
+
+/// Two different rows (different uids) that claim the same code or place.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct Collision {
+    /// The kind of row.
+    pub kind: RowKind,
+    /// What they share (`code "S1"`, `depth 0-20 cm of site S1`).
+    pub key: String,
+    /// The row's uid in INTO.
+    pub into_uid: String,
+    /// The other row's uid in FROM.
+    pub from_uid: String,
+}
+
+/// What a merge does with one kind of row.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize)]
+pub struct KindCounts {
+    /// Rows only FROM has (written).
+    pub new: usize,
+    /// Rows both have, the same.
+    pub identical: usize,
+    /// Rows both have, different.
+    pub conflicting: usize,
+    /// Conflicts resolved by keeping INTO's version.
+    pub kept_into: usize,
+    /// Conflicts resolved by writing FROM's version.
+    pub took_from: usize,
+}
+
+/// Rows of several kinds: what a plan inserts, or what it writes over INTO's version.
+#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+pub struct RowSet {
+    /// Import batches.
+    pub batches: Vec<BatchRow>,
+    /// Sites.
+    pub sites: Vec<SiteRow>,
+    /// Layers.
+    pub layers: Vec<LayerRow>,
+    /// Samples.
+    pub samples: Vec<SampleRow>,
+    /// Retention readings.
+    pub readings: Vec<ReadingRow>,
+    /// Conductivity readings.
+    pub conductivity: Vec<ConductivityRow>,
+    /// Logger records (only the records to write in each series).
+    pub logger: Vec<LoggerSeries>,
+    /// Flags.
+    pub flags: Vec<FlagRow>,
+    /// Flag events.
+    pub flag_events: Vec<FlagEventRow>,
+    /// Fits.
+    pub fits: Vec<FitRow>,
+}
+
+/// What merging one campaign into another does: counts, conflicts, collisions, and the rows
+/// to write. Built by [`plan`] (pure); written by [`super::apply()`].
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct MergePlan {
+    /// Counts per kind, in write order.
+    pub counts: BTreeMap<RowKind, KindCounts>,
+    /// Every conflict, resolved or not, in write order of kinds.
+    pub conflicts: Vec<Conflict>,
+    /// Code collisions (never resolved by preferences).
+    pub collisions: Vec<Collision>,
+    /// Why the merge is refused as a whole (different campaigns).
+    pub refusal: Option<String>,
+    /// Rows to insert.
+    pub insert: RowSet,
+    /// Rows whose FROM version is written over INTO's (matched by uid or natural key).
+    pub replace: RowSet,
+    /// The campaign row to write (settings taken from FROM; the uid too when recreating).
+    pub campaign: Option<CampaignRow>,
+    /// Samples whose current fit becomes this fit (sample uid, fit uid).
+    pub current: Vec<(String, String)>,
+}
+
+impl MergePlan {
+    /// Whether the plan can be applied: no refusal, no collision, every conflict resolved.
+    pub fn is_clean(&self) -> bool {
+        self.refusal.is_none()
+            && self.collisions.is_empty()
+            && self.conflicts.iter().all(|c| c.resolved.is_some())
+    }
+
+    /// Conflicts no preference resolved.
+    pub fn unresolved(&self) -> usize {
+        self.conflicts
+            .iter()
+            .filter(|c| c.resolved.is_none())
+            .count()
+    }
+
+    /// Whether the plan writes nothing.
+    pub fn writes_nothing(&self) -> bool {
+        self.insert == RowSet::default()
+            && self.replace == RowSet::default()
+            && self.campaign.is_none()
+            && self.current.is_empty()
+    }
+
+    /// The report: a table of counts per kind, then every conflict with both versions and
+    /// how it was resolved, then every collision. User text goes through `shown`.
+    pub fn render(&self) -> String {
+        let mut out = String::new();
+        if let Some(refusal) = &self.refusal {
+            let _ = writeln!(out, "refused: {}", shown(refusal));
+        }
+        let _ = writeln!(
+            out,
+            "{:<13} {:>9} {:>10} {:>12} {:>10} {:>10}",
+            "kind", "new", "identical", "conflicting", "kept INTO", "took FROM"
+        );
+        for (kind, c) in &self.counts {
+            let _ = writeln!(
+                out,
+                "{:<13} {:>9} {:>10} {:>12} {:>10} {:>10}",
+                kind.name(),
+                c.new,
+                c.identical,
+                c.conflicting,
+                c.kept_into,
+                c.took_from
+            );
+        }
+        if !self.conflicts.is_empty() {
+            let _ = writeln!(out, "conflicts:");
+            for c in &self.conflicts {
+                let _ = writeln!(out, "  {}: {}", c.kind.name(), shown(&c.what));
+                for (field, a, b) in &c.fields {
+                    let _ = writeln!(out, "    {field}: INTO {} | FROM {}", shown(a), shown(b));
+                }
+                let verdict = match (c.resolved, &c.unresolved_because) {
+                    (Some((Side::Into, way)), _) => {
+                        format!("kept INTO's (--prefer {}={})", c.kind.name(), way.name())
+                    }
+                    (Some((Side::From, way)), _) => {
+                        format!("took FROM's (--prefer {}={})", c.kind.name(), way.name())
+                    }
+                    (None, Some(why)) => format!("not resolved: {why}"),
+                    (None, None) => format!(
+                        "not resolved: choose with --prefer {}=newer|into|from",
+                        c.kind.name()
+                    ),
+                };
+                let _ = writeln!(out, "    -> {verdict}");
+            }
+        }
+        if !self.collisions.is_empty() {
+            let _ = writeln!(
+                out,
+                "code collisions (two different rows, never merged; rename or remove one in its \
+                 file first):"
+            );
+            for c in &self.collisions {
+                let _ = writeln!(
+                    out,
+                    "  {}: {} is {} in INTO and {} in FROM",
+                    c.kind.name(),
+                    shown(&c.key),
+                    c.into_uid,
+                    c.from_uid
+                );
+            }
+        }
+        out
+    }
+}
+
+/// Labels of rows for the report, from both campaigns (INTO's first).
+struct Labels<'a> {
+    site_code: HashMap<&'a str, &'a str>,
+    layer: HashMap<&'a str, (&'a str, f64, f64)>,
+    sample_code: HashMap<&'a str, &'a str>,
+    reading: HashMap<&'a str, (&'a str, f64)>,
+}
+
+impl<'a> Labels<'a> {
+    fn new(into: &'a CampaignRows, from: &'a CampaignRows) -> Self {
+        let mut l = Labels {
+            site_code: HashMap::new(),
+            layer: HashMap::new(),
+            sample_code: HashMap::new(),
+            reading: HashMap::new(),
+        };
+        for rows in [from, into] {
+            for s in &rows.sites {
+                l.site_code.insert(&s.uid, &s.code);
+            }
+            for y in &rows.layers {
+                l.layer
+                    .insert(&y.uid, (y.site_uid.as_str(), y.top_cm, y.bottom_cm));
+            }
+            for s in &rows.samples {
+                l.sample_code.insert(&s.uid, &s.code);
+            }
+            for r in &rows.readings {
+                l.reading.insert(&r.uid, (r.sample_uid.as_str(), r.h_cm));
+            }
+        }
+        l
+    }
+
+    fn site(&self, uid: &str) -> String {
+        self.site_code
+            .get(uid)
+            .map_or_else(|| uid.to_string(), |c| (*c).to_string())
+    }
+
+    fn sample(&self, uid: &str) -> String {
+        self.sample_code
+            .get(uid)
+            .map_or_else(|| uid.to_string(), |c| (*c).to_string())
+    }
+
+    fn layer(&self, uid: &str) -> String {
+        self.layer.get(uid).map_or_else(
+            || uid.to_string(),
+            |(site, top, bottom)| format!("{}:{top}-{bottom} cm", self.site(site)),
+        )
+    }
+
+    fn target(&self, target: &FlagTarget) -> String {
+        match target {
+            FlagTarget::Reading(uid) => self.reading.get(uid.as_str()).map_or_else(
+                || format!("reading {uid}"),
+                |(sample, h)| format!("reading of sample {} at {h} cm", self.sample(sample)),
+            ),
+            FlagTarget::Logger(k) => format!(
+                "logger record {}/{} at {}",
+                self.site(&k.site_uid),
+                k.sensor_id,
+                k.time
+            ),
+            FlagTarget::Conductivity(uid) => format!("conductivity reading {uid}"),
+        }
+    }
+}
+
+/// The fields of two rows that differ, as JSON text, by serialising both.
+fn differences<T: Serialize>(a: &T, b: &T, ignore: &[&str]) -> Vec<(String, String, String)> {
+    let a = serde_json::to_value(a).unwrap_or_default();
+    let b = serde_json::to_value(b).unwrap_or_default();
+    let (Some(a), Some(b)) = (a.as_object(), b.as_object()) else {
+        return Vec::new();
+    };
+    a.iter()
+        .filter(|(k, _)| !ignore.contains(&k.as_str()))
+        .filter_map(|(k, va)| {
+            let vb = b.get(k).cloned().unwrap_or_default();
+            (*va != vb).then(|| (k.clone(), va.to_string(), vb.to_string()))
+        })
+        .collect()
+}
+
+/// How one kind of uid-keyed row is compared and labelled.
+struct KindRules<'r, T> {
+    kind: RowKind,
+    uid: fn(&T) -> &str,
+    /// Fields that are derived state, left out of the comparison.
+    ignore: &'r [&'r str],
+    /// Which version changed later (None: the kind has no time of change).
+    newer: Option<fn(&T, &T) -> Ordering>,
+    /// Why `newer` cannot decide this kind (when `newer` is None).
+    no_time: &'r str,
+    label: &'r dyn Fn(&T) -> String,
+    /// Never resolved by preferences (the append-only audit trail).
+    fixed: bool,
+}
+
+/// Resolve one conflict with the preferences.
+fn resolve(
+    kind: RowKind,
+    prefs: &Preferences,
+    newer: Option<Ordering>,
+    no_time: &str,
+    fixed: bool,
+) -> (Option<(Side, Way)>, Option<String>) {
+    if fixed {
+        return (
+            None,
+            Some("the flag audit trail is append-only; no preference rewrites an event".into()),
+        );
+    }
+    match prefs.way(kind) {
+        None => (None, None),
+        Some(Way::Into) => (Some((Side::Into, Way::Into)), None),
+        Some(Way::From) => (Some((Side::From, Way::From)), None),
+        Some(Way::Newer) => match newer {
+            Some(Ordering::Less) => (Some((Side::From, Way::Newer)), None),
+            Some(Ordering::Greater) => (Some((Side::Into, Way::Newer)), None),
+            Some(Ordering::Equal) => (
+                None,
+                Some("both versions carry the same time; choose into or from".into()),
+            ),
+            None => (None, Some(no_time.to_string())),
+        },
+    }
+}
+
+fn merge_kind<T: Serialize + Clone>(
+    rules: &KindRules<'_, T>,
+    into: &[T],
+    from: &[T],
+    prefs: &Preferences,
+    plan: &mut MergePlan,
+) -> (Vec<T>, Vec<T>) {
+    let by_uid: HashMap<&str, &T> = into.iter().map(|r| ((rules.uid)(r), r)).collect();
+    let mut counts = KindCounts::default();
+    let mut insert = Vec::new();
+    let mut replace = Vec::new();
+    for row in from {
+        let Some(mine) = by_uid.get((rules.uid)(row)) else {
+            counts.new += 1;
+            insert.push(row.clone());
+            continue;
+        };
+        let fields = differences(*mine, row, rules.ignore);
+        if fields.is_empty() {
+            counts.identical += 1;
+            continue;
+        }
+        counts.conflicting += 1;
+        let order = rules.newer.map(|f| f(mine, row));
+        let (resolved, because) = resolve(rules.kind, prefs, order, rules.no_time, rules.fixed);
+        match resolved {
+            Some((Side::Into, _)) => counts.kept_into += 1,
+            Some((Side::From, _)) => {
+                counts.took_from += 1;
+                replace.push(row.clone());
+            }
+            None => {}
+        }
+        plan.conflicts.push(Conflict {
+            kind: rules.kind,
+            what: (rules.label)(mine),
+            fields,
+            resolved,
+            unresolved_because: because,
+        });
+    }
+    plan.counts.insert(rules.kind, counts);
+    (insert, replace)
+}
+
+const NO_TIME: &str =
+    "these rows carry no time of change, so `newer` cannot choose; use into or from";
+
+/// Plan merging `from` into `into` with the user's `prefs`. Pure: reads nothing else.
+#[allow(clippy::too_many_lines)]
+pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> MergePlan {
+    let mut plan = MergePlan {
+        counts: BTreeMap::new(),
+        conflicts: Vec::new(),
+        collisions: Vec::new(),
+        refusal: None,
+        insert: RowSet::default(),
+        replace: RowSet::default(),
+        campaign: None,
+        current: Vec::new(),
+    };
+    let labels = Labels::new(into, from);
+
+    // The campaign: the same one (uid), and its settings.
+    if into.campaign.uid != from.campaign.uid && !prefs.allow_other_campaign {
+        plan.refusal = Some(format!(
+            "the files are two different campaigns ({} {} and {} {}); merge them anyway with \
+             --other-campaign",
+            into.campaign.name, into.campaign.uid, from.campaign.name, from.campaign.uid
+        ));
+    }
+    let mut counts = KindCounts::default();
+    let fields = differences(&into.campaign, &from.campaign, &["uid"]);
+    if fields.is_empty() {
+        counts.identical = 1;
+    } else {
+        counts.conflicting = 1;
+        let (resolved, because) = resolve(RowKind::Campaign, prefs, None, NO_TIME, false);
+        match resolved {
+            Some((Side::From, _)) => {
+                counts.took_from = 1;
+                plan.campaign = Some(CampaignRow {
+                    uid: into.campaign.uid.clone(),
+                    ..from.campaign.clone()
+                });
+            }
+            Some((Side::Into, _)) => counts.kept_into = 1,
+            None => {}
+        }
+        plan.conflicts.push(Conflict {
+            kind: RowKind::Campaign,
+            what: format!("campaign {} ({})", into.campaign.name, into.campaign.uid),
+            fields,
+            resolved,
+            unresolved_because: because,
+        });
+    }
+    plan.counts.insert(RowKind::Campaign, counts);
+
+    let (i, r) = merge_kind(
+        &KindRules {
+            kind: RowKind::Batches,
+            uid: |r: &BatchRow| &r.uid,
+            ignore: &[],
+            newer: None,
+            no_time: NO_TIME,
+            label: &|r: &BatchRow| format!("import batch {} ({})", r.file_name, r.uid),
+            fixed: false,
+        },
+        &into.batches,
+        &from.batches,
+        prefs,
+        &mut plan,
+    );
+    (plan.insert.batches, plan.replace.batches) = (i, r);
+
+    let (i, r) = merge_kind(
+        &KindRules {
+            kind: RowKind::Sites,
+            uid: |r: &SiteRow| &r.uid,
+            ignore: &[],
+            newer: None,
+            no_time: NO_TIME,
+            label: &|r: &SiteRow| format!("site {} ({})", r.code, r.uid),
+            fixed: false,
+        },
+        &into.sites,
+        &from.sites,
+        prefs,
+        &mut plan,
+    );
+    (plan.insert.sites, plan.replace.sites) = (i, r);
+
+    let (i, r) = merge_kind(
+        &KindRules {
+            kind: RowKind::Layers,
+            uid: |r: &LayerRow| &r.uid,
+            ignore: &[],
+            newer: None,
+            no_time: NO_TIME,
+            label: &|r: &LayerRow| format!("layer {} ({})", labels.layer(&r.uid), r.uid),
+            fixed: false,
+        },
+        &into.layers,
+        &from.layers,
+        prefs,
+        &mut plan,
+    );
+    (plan.insert.layers, plan.replace.layers) = (i, r);
+
+    let (i, r) = merge_kind(
+        &KindRules {
+            kind: RowKind::Samples,
+            uid: |r: &SampleRow| &r.uid,
+            ignore: &[],
+            newer: None,
+            no_time: NO_TIME,
+            label: &|r: &SampleRow| format!("sample {} ({})", r.code, r.uid),
+            fixed: false,
+        },
+        &into.samples,
+        &from.samples,
+        prefs,
+        &mut plan,
+    );
+    (plan.insert.samples, plan.replace.samples) = (i, r);
+
+    let (i, r) = merge_kind(
+        &KindRules {
+            kind: RowKind::Readings,
+            uid: |r: &ReadingRow| &r.uid,
+            ignore: &[],
+            newer: None,
+            no_time: NO_TIME,
+            label: &|r: &ReadingRow| {
+                format!(
+                    "reading of sample {} at {} cm ({})",
+                    labels.sample(&r.sample_uid),
+                    r.h_cm,
+                    r.uid
+                )
+            },
+            fixed: false,
+        },
+        &into.readings,
+        &from.readings,
+        prefs,
+        &mut plan,
+    );
+    (plan.insert.readings, plan.replace.readings) = (i, r);
+
+    let (i, r) = merge_kind(
+        &KindRules {
+            kind: RowKind::Conductivity,
+            uid: |r: &ConductivityRow| &r.uid,
+            ignore: &[],
+            newer: None,
+            no_time: NO_TIME,
+            label: &|r: &ConductivityRow| {
+                format!(
+                    "conductivity reading of sample {} ({})",
+                    labels.sample(&r.sample_uid),
+                    r.uid
+                )
+            },
+            fixed: false,
+        },
+        &into.conductivity,
+        &from.conductivity,
+        prefs,
+        &mut plan,
+    );
+    (plan.insert.conductivity, plan.replace.conductivity) = (i, r);
+
+    merge_logger(into, from, prefs, &labels, &mut plan);
+
+    let (i, r) = merge_kind(
+        &KindRules {
+            kind: RowKind::Flags,
+            uid: |r: &FlagRow| &r.uid,
+            ignore: &[],
+            newer: Some(|a: &FlagRow, b: &FlagRow| {
+                let at = |f: &FlagRow| f.decided_at.clone().unwrap_or_else(|| f.created_at.clone());
+                at(a).cmp(&at(b))
+            }),
+            no_time: NO_TIME,
+            label: &|r: &FlagRow| {
+                format!(
+                    "flag {:?} on {} ({})",
+                    r.reason,
+                    labels.target(&r.target),
+                    r.uid
+                )
+            },
+            fixed: false,
+        },
+        &into.flags,
+        &from.flags,
+        prefs,
+        &mut plan,
+    );
+    (plan.insert.flags, plan.replace.flags) = (i, r);
+
+    let (i, _) = merge_kind(
+        &KindRules {
+            kind: RowKind::FlagEvents,
+            uid: |r: &FlagEventRow| &r.uid,
+            ignore: &[],
+            newer: None,
+            no_time: NO_TIME,
+            label: &|r: &FlagEventRow| format!("flag event {} of flag {}", r.uid, r.flag_uid),
+            fixed: true,
+        },
+        &into.flag_events,
+        &from.flag_events,
+        prefs,
+        &mut plan,
+    );
+    plan.insert.flag_events = i;
+
+    // Fits never change once made, except which one is current (decided per sample below);
+    // whether one still matches its readings is the target file's to tell.
+    let (i, r) = merge_kind(
+        &KindRules {
+            kind: RowKind::Fits,
+            uid: |r: &FitRow| &r.uid,
+            ignore: &["is_current", "readings_key", "joint"],
+            newer: Some(|a: &FitRow, b: &FitRow| a.created_at.cmp(&b.created_at)),
+            no_time: NO_TIME,
+            label: &|r: &FitRow| {
+                format!(
+                    "fit {} of sample {} ({})",
+                    r.model,
+                    labels.sample(&r.sample_uid),
+                    r.uid
+                )
+            },
+            fixed: false,
+        },
+        &into.fits,
+        &from.fits,
+        prefs,
+        &mut plan,
+    );
+    (plan.insert.fits, plan.replace.fits) = (i, r);
+    merge_current(into, from, prefs, &labels, &mut plan);
+
+    collisions(into, &mut plan, &labels);
+    plan
+}
+
+/// Each sample's current fit: FROM's choice is taken where INTO has none; two different
+/// choices are a conflict of kind `fits`.
+fn merge_current(
+    into: &CampaignRows,
+    from: &CampaignRows,
+    prefs: &Preferences,
+    labels: &Labels<'_>,
+    plan: &mut MergePlan,
+) {
+    let current = |rows: &CampaignRows| -> BTreeMap<String, FitRow> {
+        rows.fits
+            .iter()
+            .filter(|f| f.is_current)
+            .map(|f| (f.sample_uid.clone(), f.clone()))
+            .collect()
+    };
+    let mine = current(into);
+    for (sample, theirs) in current(from) {
+        match mine.get(&sample) {
+            None => plan.current.push((sample, theirs.uid)),
+            Some(m) if m.uid == theirs.uid => {}
+            Some(m) => {
+                let order = m.created_at.cmp(&theirs.created_at);
+                let (resolved, because) =
+                    resolve(RowKind::Fits, prefs, Some(order), NO_TIME, false);
+                let counts = plan.counts.entry(RowKind::Fits).or_default();
+                counts.conflicting += 1;
+                match resolved {
+                    Some((Side::From, _)) => {
+                        counts.took_from += 1;
+                        plan.current.push((sample.clone(), theirs.uid.clone()));
+                    }
+                    Some((Side::Into, _)) => counts.kept_into += 1,
+                    None => {}
+                }
+                let describe = |f: &FitRow| format!("{} {} made {}", f.model, f.uid, f.created_at);
+                plan.conflicts.push(Conflict {
+                    kind: RowKind::Fits,
+                    what: format!("current fit of sample {}", labels.sample(&sample)),
+                    fields: vec![("current".into(), describe(m), describe(&theirs))],
+                    resolved,
+                    unresolved_because: because,
+                });
+            }
+        }
+    }
+}
+
+/// Logger records: a merge-join of each sensor's records by time. Content (depth, sensor
+/// kind, value) decides identity; the import they came from is provenance and not compared.
+fn merge_logger(
+    into: &CampaignRows,
+    from: &CampaignRows,
+    prefs: &Preferences,
+    labels: &Labels<'_>,
+    plan: &mut MergePlan,
+) {
+    let by_key: HashMap<(&str, &str), &LoggerSeries> = into
+        .logger
+        .iter()
+        .map(|s| ((s.site_uid.as_str(), s.sensor_id.as_str()), s))
+        .collect();
+    let mut counts = KindCounts::default();
+    let part = |s: &LoggerSeries, points: Vec<LoggerPoint>| LoggerSeries {
+        site_uid: s.site_uid.clone(),
+        sensor_id: s.sensor_id.clone(),
+        batch_uids: s.batch_uids.clone(),
+        points,
+    };
+    for theirs in &from.logger {
+        let Some(mine) = by_key.get(&(theirs.site_uid.as_str(), theirs.sensor_id.as_str())) else {
+            counts.new += theirs.points.len();
+            plan.insert.logger.push(theirs.clone());
+            continue;
+        };
+        let mut new = Vec::new();
+        let mut replace = Vec::new();
+        let mut a = mine.points.iter().peekable();
+        for p in &theirs.points {
+            while a.next_if(|q| q.time < p.time).is_some() {}
+            let Some(q) = a.next_if(|q| q.time == p.time) else {
+                new.push(p.clone());
+                continue;
+            };
+            if q.depth_cm.to_bits() == p.depth_cm.to_bits()
+                && q.sensor == p.sensor
+                && q.value.to_bits() == p.value.to_bits()
+            {
+                counts.identical += 1;
+                continue;
+            }
+            counts.conflicting += 1;
+            let (resolved, because) = resolve(RowKind::Logger, prefs, None, NO_TIME, false);
+            match resolved {
+                Some((Side::From, _)) => {
+                    counts.took_from += 1;
+                    replace.push(p.clone());
+                }
+                Some((Side::Into, _)) => counts.kept_into += 1,
+                None => {}
+            }
+            plan.conflicts.push(Conflict {
+                kind: RowKind::Logger,
+                what: format!(
+                    "logger record {}/{} at {}",
+                    labels.site(&theirs.site_uid),
+                    theirs.sensor_id,
+                    p.time
+                ),
+                fields: logger_fields(q, p),
+                resolved,
+                unresolved_because: because,
+            });
+        }
+        counts.new += new.len();
+        if !new.is_empty() {
+            plan.insert.logger.push(part(theirs, new));
+        }
+        if !replace.is_empty() {
+            plan.replace.logger.push(part(theirs, replace));
+        }
+    }
+    plan.counts.insert(RowKind::Logger, counts);
+}
+
+/// The differing fields of two logger records (depth, sensor, value).
+fn logger_fields(a: &LoggerPoint, b: &LoggerPoint) -> Vec<(String, String, String)> {
+    let mut out = Vec::new();
+    if a.depth_cm.to_bits() != b.depth_cm.to_bits() {
+        out.push((
+            "depth_cm".into(),
+            a.depth_cm.to_string(),
+            b.depth_cm.to_string(),
+        ));
+    }
+    if a.sensor != b.sensor {
+        out.push(("sensor".into(), a.sensor.clone(), b.sensor.clone()));
+    }
+    if a.value.to_bits() != b.value.to_bits() {
+        out.push(("value".into(), a.value.to_string(), b.value.to_string()));
+    }
+    out
+}
+
+/// Rows that would share a code (sites, samples) or a place (a layer's depths at a site) in
+/// the merged campaign while being different rows.
+fn collisions(into: &CampaignRows, plan: &mut MergePlan, labels: &Labels<'_>) {
+    fn check<'a, K: std::hash::Hash + Eq>(
+        kind: RowKind,
+        existing: impl Iterator<Item = (K, &'a str)>,
+        incoming: impl Iterator<Item = (K, &'a str, String)>,
+        out: &mut Vec<Collision>,
+    ) {
+        let mut seen: HashMap<K, &str> = existing.collect();
+        for (key, uid, label) in incoming {
+            match seen.get(&key) {
+                Some(other) if *other != uid => out.push(Collision {
+                    kind,
+                    key: label,
+                    into_uid: (*other).to_string(),
+                    from_uid: uid.to_string(),
+                }),
+                _ => {
+                    seen.insert(key, uid);
+                }
+            }
+        }
+    }
+    // INTO's rows as they will stand (replaced ones leave their old code behind).
+    let replaced = |uid: &str, list: &[&str]| list.contains(&uid);
+    let site_repl: Vec<&str> = plan.replace.sites.iter().map(|s| s.uid.as_str()).collect();
+    let sample_repl: Vec<&str> = plan
+        .replace
+        .samples
+        .iter()
+        .map(|s| s.uid.as_str())
+        .collect();
+    let layer_repl: Vec<&str> = plan.replace.layers.iter().map(|s| s.uid.as_str()).collect();
+    let mut found = Vec::new();
+    check(
+        RowKind::Sites,
+        into.sites
+            .iter()
+            .filter(|s| !replaced(&s.uid, &site_repl))
+            .map(|s| (s.code.clone(), s.uid.as_str())),
+        plan.insert
+            .sites
+            .iter()
+            .chain(&plan.replace.sites)
+            .map(|s| (s.code.clone(), s.uid.as_str(), format!("code {:?}", s.code))),
+        &mut found,
+    );
+    check(
+        RowKind::Samples,
+        into.samples
+            .iter()
+            .filter(|s| !replaced(&s.uid, &sample_repl))
+            .map(|s| (s.code.clone(), s.uid.as_str())),
+        plan.insert
+            .samples
+            .iter()
+            .chain(&plan.replace.samples)
+            .map(|s| (s.code.clone(), s.uid.as_str(), format!("code {:?}", s.code))),
+        &mut found,
+    );
+    let place = |l: &LayerRow| {
+        (
+            l.site_uid.clone(),
+            l.top_cm.to_bits(),
+            l.bottom_cm.to_bits(),
+        )
+    };
+    check(
+        RowKind::Layers,
+        into.layers
+            .iter()
+            .filter(|l| !replaced(&l.uid, &layer_repl))
+            .map(|l| (place(l), l.uid.as_str())),
+        plan.insert
+            .layers
+            .iter()
+            .chain(&plan.replace.layers)
+            .map(|l| {
+                (
+                    place(l),
+                    l.uid.as_str(),
+                    format!(
+                        "depth {}-{} cm of site {}",
+                        l.top_cm,
+                        l.bottom_cm,
+                        labels.site(&l.site_uid)
+                    ),
+                )
+            }),
+        &mut found,
+    );
+    plan.collisions = found;
+}
+
+/// The plan that writes all of `from` into an empty campaign file, its campaign row (uid
+/// included) too: what the archive's pull applies to a new file.
+pub fn recreate(from: &CampaignRows) -> MergePlan {
+    let empty = CampaignRows {
+        campaign: from.campaign.clone(),
+        batches: Vec::new(),
+        sites: Vec::new(),
+        layers: Vec::new(),
+        samples: Vec::new(),
+        readings: Vec::new(),
+        conductivity: Vec::new(),
+        logger: Vec::new(),
+        flags: Vec::new(),
+        flag_events: Vec::new(),
+        fits: Vec::new(),
+    };
+    let mut plan = plan(&empty, from, &Preferences::default());
+    plan.campaign = Some(from.campaign.clone());
+    plan
+}
