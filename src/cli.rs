@@ -23,6 +23,7 @@ pub mod list;
 pub mod logger;
 pub mod open;
 pub mod pair;
+pub mod push;
 pub mod review;
 pub mod set;
 pub mod shared;
@@ -75,6 +76,10 @@ pub enum Command {
     Advise(advise::AdviseArgs),
     /// Write a verified copy of a campaign, safe while it is open elsewhere.
     Backup(backup::BackupArgs),
+    /// Push a campaign file into the shared archive on a PostgreSQL server (merge rules: new rows added, conflicts refused unless resolved)
+    Push(push::PushArgs),
+    /// Pull a campaign from the shared archive into a new campaign file
+    Pull(push::PullArgs),
     /// The shared archive on a PostgreSQL server: create it, list it, summarise its fits
     #[command(subcommand)]
     Archive(archive::ArchiveCommand),
@@ -114,6 +119,8 @@ impl Command {
             Command::Advise(_) => "advise",
             Command::Backup(_) => "backup",
             Command::Archive(_) => "archive",
+            Command::Push(_) => "push",
+            Command::Pull(_) => "pull",
             Command::Completions(_) => "completions",
             Command::Manual(_) => "manual",
             Command::Current(_) => "current",
@@ -145,6 +152,8 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Advise(args) => advise::run(&args),
         Command::Backup(args) => backup::run(&args),
         Command::Archive(cmd) => archive::run(&cmd),
+        Command::Push(args) => push::run_push(&args),
+        Command::Pull(args) => push::run_pull(&args),
         Command::Completions(args) => shell::completions(&args),
         Command::Manual(args) => shell::manual(&args),
         Command::Current(args) => current::run(&args),

@@ -50,9 +50,13 @@ pub fn pull(client: &mut Client, name_or_uid: &str, out: &Path) -> Result<Pulled
         .map_err(server("cannot start reading the archive"))?;
     let campaign = find_campaign(&mut tx, name_or_uid)?;
     let rows = read_campaign(&mut tx, &campaign.uid)?.ok_or_else(|| {
-        ArchiveError::Invalid(format!("campaign {} vanished from the archive", campaign.uid))
+        ArchiveError::Invalid(format!(
+            "campaign {} vanished from the archive",
+            campaign.uid
+        ))
     })?;
-    tx.commit().map_err(server("cannot end reading the archive"))?;
+    tx.commit()
+        .map_err(server("cannot end reading the archive"))?;
     let print = fingerprint(&rows);
     let staging = staging_path(out);
     let written = write_file(&staging, &rows).and_then(|()| {
@@ -80,7 +84,10 @@ pub fn pull(client: &mut Client, name_or_uid: &str, out: &Path) -> Result<Pulled
     }
     std::fs::rename(&staging, out).map_err(|e| {
         remove_with_journal(&staging);
-        ArchiveError::Invalid(format!("cannot move the pulled file to {}: {e}", out.display()))
+        ArchiveError::Invalid(format!(
+            "cannot move the pulled file to {}: {e}",
+            out.display()
+        ))
     })?;
     Ok(Pulled {
         uid: rows.campaign.uid.clone(),

@@ -77,8 +77,9 @@ pub fn push(client: &mut Client, local: &CampaignRows, prefs: &Preferences) -> R
 
 /// A serialisation failure or a deadlock: the transaction may succeed when tried again.
 fn retryable(e: &postgres::Error) -> bool {
-    e.code()
-        .is_some_and(|c| *c == SqlState::T_R_SERIALIZATION_FAILURE || *c == SqlState::T_R_DEADLOCK_DETECTED)
+    e.code().is_some_and(|c| {
+        *c == SqlState::T_R_SERIALIZATION_FAILURE || *c == SqlState::T_R_DEADLOCK_DETECTED
+    })
 }
 
 fn push_once(
@@ -153,7 +154,9 @@ fn push_once(
         }));
     }
     let on_server = read_campaign(&mut tx, uid)?.ok_or_else(|| {
-        ArchiveError::Invalid(format!("campaign {uid} vanished from the archive during the push"))
+        ArchiveError::Invalid(format!(
+            "campaign {uid} vanished from the archive during the push"
+        ))
     })?;
     let plan = plan(&on_server, local, prefs);
     if !plan.is_clean() {
@@ -249,11 +252,20 @@ impl<'a> NewRows<'a> {
 /// children may point at them until the new versions are written).
 fn delete_replaced(tx: &mut Transaction<'_>, campaign: &str, set: &RowSet) -> Result<()> {
     let by_uid: [(&str, Vec<&str>); 9] = [
-        ("import_batch", set.batches.iter().map(|r| r.uid.as_str()).collect()),
+        (
+            "import_batch",
+            set.batches.iter().map(|r| r.uid.as_str()).collect(),
+        ),
         ("site", set.sites.iter().map(|r| r.uid.as_str()).collect()),
         ("layer", set.layers.iter().map(|r| r.uid.as_str()).collect()),
-        ("sample", set.samples.iter().map(|r| r.uid.as_str()).collect()),
-        ("reading", set.readings.iter().map(|r| r.uid.as_str()).collect()),
+        (
+            "sample",
+            set.samples.iter().map(|r| r.uid.as_str()).collect(),
+        ),
+        (
+            "reading",
+            set.readings.iter().map(|r| r.uid.as_str()).collect(),
+        ),
         (
             "conductivity_reading",
             set.conductivity.iter().map(|r| r.uid.as_str()).collect(),

@@ -9,8 +9,8 @@
 use std::collections::HashMap;
 
 use postgres::GenericClient;
-use postgres::fallible_iterator::FallibleIterator;
 use postgres::binary_copy::BinaryCopyInWriter;
+use postgres::fallible_iterator::FallibleIterator;
 use postgres::types::{ToSql, Type};
 
 use super::{ArchiveError, Result, server};
