@@ -66,3 +66,257 @@ fn the_demo_written_with_copy_reads_back_with_the_same_fingerprint() {
             .is_none()
     );
 }
+
+use common::{porewise, stderr, stdout};
+use porewise::archive::pull::pull;
+use porewise::archive::push::{PushOutcome, push};
+use porewise::store::exchange::Preferences;
+
+fn fingerprint_of(path: &Path) -> String {
+    exchange::fingerprint(&exchange::read(&Connection::open(path).expect("open")).expect("read"))
+}
+
+/// The archive's content fingerprint of a campaign: read back from the server now, and as
+/// recorded by the last push.
+fn server_fingerprints(url: &str, uid: &str) -> (String, String) {
+    let mut client = pg::client(url);
+    let rows = read_campaign(&mut client, uid)
+        .expect("read")
+        .expect("there");
+    let stored: String = client
+        .query_one("SELECT fingerprint FROM campaign WHERE uid = $1", &[&uid])
+        .expect("stored")
+        .get(0);
+    (exchange::fingerprint(&rows), stored)
+}
+
+fn campaign_uid(path: &Path) -> String {
+    Connection::open(path)
+        .expect("open")
+        .query_row("SELECT uid FROM campaign", [], |r| r.get(0))
+        .expect("uid")
+}
+
+#[test]
+fn push_pull_push_round_trip_changes_nothing() {
+    let Some((url, _)) = pg::fresh_schema("round_trip") else {
+        return;
+    };
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    let out = stdout(&porewise().arg("push").arg(&db).arg(&url).assert().success());
+    assert!(out.contains("new campaign in the archive"), "{out}");
+    assert!(
+        out.contains(":***@") && !out.contains(":archive-pw"),
+        "{out}"
+    );
+    let uid = campaign_uid(&db);
+    let (now, stored) = server_fingerprints(&url, &uid);
+    assert_eq!(now, fingerprint_of(&db));
+    assert_eq!(stored, now);
+
+    let pulled = dir.path().join("pulled.sqlite");
+    let out = stdout(
+        &porewise()
+            .args(["pull", &url, "--campaign", "Floodplain demo (invented)"])
+            .arg(&pulled)
+            .assert()
+            .success(),
+    );
+    assert!(out.contains("8832 logger records"), "{out}");
+    assert_eq!(fingerprint_of(&pulled), fingerprint_of(&db));
+    // The pulled file is an ordinary campaign: it opens and lists.
+    porewise().arg("list").arg(&pulled).assert().success();
+
+    // Pushing it back: nothing to write; the archive is as it was.
+    let out = stdout(
+        &porewise()
+            .arg("push")
+            .arg(&pulled)
+            .arg(&url)
+            .assert()
+            .success(),
+    );
+    assert!(out.contains("nothing to write"), "{out}");
+    assert_eq!(server_fingerprints(&url, &uid).0, now);
+
+    // Pull by uid; never over an existing file.
+    let err = stderr(
+        &porewise()
+            .args(["pull", &url, "--campaign", &uid])
+            .arg(&pulled)
+            .assert()
+            .code(1),
+    );
+    assert!(err.contains("exists"), "{err}");
+    let again = dir.path().join("again.sqlite");
+    porewise()
+        .args(["pull", &url, "--campaign", &uid])
+        .arg(&again)
+        .assert()
+        .success();
+    assert_eq!(fingerprint_of(&again), now);
+    let err = stderr(
+        &porewise()
+            .args(["pull", &url, "--campaign", "no such campaign"])
+            .arg(dir.path().join("none.sqlite"))
+            .assert()
+            .code(1),
+    );
+    assert!(err.contains("holds no campaign"), "{err}");
+    assert!(!dir.path().join("none.sqlite").exists());
+}
+
+#[test]
+fn a_conflicting_push_is_refused_whole_until_a_preference_resolves_it() {
+    let Some((url, _)) = pg::fresh_schema("conflicts") else {
+        return;
+    };
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    porewise().arg("push").arg(&db).arg(&url).assert().success();
+    let uid = campaign_uid(&db);
+    let before = server_fingerprints(&url, &uid).0;
+
+    // A copy with one site renamed (a conflict) and one new site (not a conflict).
+    let copy = dir.path().join("copy.sqlite");
+    std::fs::copy(&db, &copy).expect("copy");
+    let conn = Connection::open(&copy).expect("open");
+    conn.execute_batch(
+        "UPDATE site SET name = 'Levee crest, renamed' WHERE code = 'LEV1';
+         INSERT INTO site (uid, code, name) VALUES ('0f0f0f0f-0000-4000-8000-00000000abcd', 'NEW1', 'added');",
+    )
+    .expect("edit");
+    drop(conn);
+    let err = stderr(&porewise().arg("push").arg(&copy).arg(&url).assert().code(1));
+    assert!(err.contains("push refused"), "{err}");
+    assert!(err.contains("Levee crest, renamed"), "{err}");
+    assert_eq!(server_fingerprints(&url, &uid).0, before, "nothing written");
+
+    // Keep the archive's version: the new site goes in, the name stays.
+    let out = stdout(
+        &porewise()
+            .arg("push")
+            .arg(&copy)
+            .arg(&url)
+            .args(["--prefer", "sites=archive"])
+            .assert()
+            .success(),
+    );
+    assert!(out.contains("pushed"), "{out}");
+    let mut client = pg::client(&url);
+    let names: Vec<String> = client
+        .query(
+            "SELECT name FROM site WHERE code IN ('LEV1', 'NEW1') ORDER BY code",
+            &[],
+        )
+        .expect("names")
+        .iter()
+        .map(|r| r.get(0))
+        .collect();
+    assert_eq!(names, ["Levee crest", "added"]);
+    // Then this file's version.
+    porewise()
+        .arg("push")
+        .arg(&copy)
+        .arg(&url)
+        .args(["--prefer", "local"])
+        .assert()
+        .success();
+    let name: String = client
+        .query_one("SELECT name FROM site WHERE code = 'LEV1'", &[])
+        .expect("name")
+        .get(0);
+    assert_eq!(name, "Levee crest, renamed");
+    let (now, stored) = server_fingerprints(&url, &uid);
+    assert_eq!(
+        now, stored,
+        "the recorded fingerprint is the archive's content"
+    );
+    assert_eq!(now, fingerprint_of(&copy));
+}
+
+#[test]
+fn concurrent_pushes_of_edited_copies_lose_nothing() {
+    let Some((url, _)) = pg::fresh_schema("concurrent") else {
+        return;
+    };
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    let target = pg::target(&url);
+    migrate(&mut pg::client(&url), &target).expect("init");
+    let uid = campaign_uid(&db);
+    // Each copy adds a site of its own and logger records at times of its own to one
+    // existing sensor; all of them start pushing at once, the first push of the campaign
+    // among them (so two may try to create it).
+    let copies = 6;
+    let (site_id, sensor, depth, kind): (i64, String, f64, String) = Connection::open(&db)
+        .expect("open")
+        .query_row(
+            "SELECT site_id, sensor_id, depth_cm, sensor FROM logger_record LIMIT 1",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)),
+        )
+        .expect("a sensor");
+    let mut files = Vec::new();
+    for i in 0..copies {
+        let copy = dir.path().join(format!("copy{i}.sqlite"));
+        std::fs::copy(&db, &copy).expect("copy");
+        let conn = Connection::open(&copy).expect("open");
+        conn.execute(
+            "INSERT INTO site (uid, code) VALUES (?1, ?2)",
+            rusqlite::params![
+                format!("0f0f0f0f-0000-4000-8000-0000000000{i:02}"),
+                format!("NEW{i}")
+            ],
+        )
+        .expect("site");
+        for k in 0..50 {
+            conn.execute(
+                "INSERT INTO logger_record (site_id, depth_cm, sensor, sensor_id, time, value)
+                 VALUES (?1, ?2, ?3, ?4, ?5, 0.25)",
+                rusqlite::params![
+                    site_id,
+                    depth,
+                    kind,
+                    sensor,
+                    format!("2031-{:02}-{:02}T{:02}:00:00Z", i + 1, k % 28 + 1, k / 28)
+                ],
+            )
+            .expect("record");
+        }
+        files.push(copy);
+    }
+    let base = exchange::read(&Connection::open(&db).expect("open")).expect("read");
+    let barrier = std::sync::Arc::new(std::sync::Barrier::new(copies));
+    let handles: Vec<_> = files
+        .iter()
+        .map(|file| {
+            let rows = exchange::read(&Connection::open(file).expect("open")).expect("read");
+            let (url, barrier) = (url.clone(), barrier.clone());
+            std::thread::spawn(move || {
+                let mut client = pg::client(&url);
+                barrier.wait();
+                match push(&mut client, &rows, &Preferences::default()).expect("push") {
+                    PushOutcome::Done(done) => done.attempts,
+                    PushOutcome::Refused(plan) => panic!("refused:\n{}", plan.render()),
+                }
+            })
+        })
+        .collect();
+    for h in handles {
+        h.join().expect("thread");
+    }
+    let mut client = pg::client(&url);
+    let after = read_campaign(&mut client, &uid)
+        .expect("read")
+        .expect("there");
+    assert_eq!(after.sites.len(), base.sites.len() + copies);
+    assert_eq!(after.logger_records(), base.logger_records() + copies * 50);
+    let (now, stored) = server_fingerprints(&url, &uid);
+    assert_eq!(now, stored);
+    // A pull holds the union too.
+    let out = dir.path().join("union.sqlite");
+    pull(&mut client, &uid, &out).expect("pull");
+    assert_eq!(fingerprint_of(&out), now);
+}

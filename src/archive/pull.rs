@@ -60,7 +60,7 @@ pub fn pull(client: &mut Client, name_or_uid: &str, out: &Path) -> Result<Pulled
     let print = fingerprint(&rows);
     let staging = staging_path(out);
     let written = write_file(&staging, &rows).and_then(|()| {
-        let copy = exchange::read(&rusqlite::Connection::open(&staging).map_err(local)?)
+        let copy = exchange::read(&rusqlite::Connection::open(&staging).map_err(|e| local(&e))?)
             .map_err(|e| ArchiveError::Invalid(format!("cannot read the pulled file back: {e}")))?;
         if fingerprint(&copy) == print {
             Ok(())
@@ -104,7 +104,7 @@ pub fn pull(client: &mut Client, name_or_uid: &str, out: &Path) -> Result<Pulled
     })
 }
 
-fn local(e: rusqlite::Error) -> ArchiveError {
+fn local(e: &rusqlite::Error) -> ArchiveError {
     ArchiveError::Invalid(format!("the pulled file: {e}"))
 }
 
@@ -134,6 +134,6 @@ fn write_file(path: &Path, rows: &exchange::CampaignRows) -> Result<()> {
         .map_err(|e| ArchiveError::Invalid(format!("{}: {e}", path.display())))?;
     exchange::apply(&tx, &plan)
         .map_err(|e| ArchiveError::Invalid(format!("cannot write {}: {e}", path.display())))?;
-    tx.commit().map_err(local)?;
+    tx.commit().map_err(|e| local(&e))?;
     Ok(())
 }

@@ -44,7 +44,7 @@ pub enum PushOutcome {
     /// Written (or already there).
     Done(Pushed),
     /// Conflicts or collisions left unresolved: nothing was written; the plan says which.
-    Refused(MergePlan),
+    Refused(Box<MergePlan>),
 }
 
 /// Push `local` (a campaign file's rows) into the archive.
@@ -161,7 +161,7 @@ fn push_once(
     let plan = plan(&on_server, local, prefs);
     if !plan.is_clean() {
         tx.rollback().map_err(server("cannot end the push"))?;
-        return Ok(PushOutcome::Refused(plan));
+        return Ok(PushOutcome::Refused(Box::new(plan)));
     }
     let written = apply(&mut tx, &on_server, &plan)?;
     let after = merged(on_server, &plan);
@@ -354,31 +354,26 @@ pub fn merged(mut rows: CampaignRows, plan: &MergePlan) -> CampaignRows {
 
 /// Add or replace a series' points in the matching series of `all` (by time).
 fn merge_series(all: &mut Vec<LoggerSeries>, s: &LoggerSeries) {
-    let i = match all
+    let found = all
         .iter()
-        .position(|x| x.site_uid == s.site_uid && x.sensor_id == s.sensor_id)
-    {
-        Some(i) => i,
-        None => {
-            all.push(LoggerSeries {
-                site_uid: s.site_uid.clone(),
-                sensor_id: s.sensor_id.clone(),
-                batch_uids: Vec::new(),
-                points: Vec::new(),
-            });
-            all.len() - 1
-        }
-    };
+        .position(|x| x.site_uid == s.site_uid && x.sensor_id == s.sensor_id);
+    let i = found.unwrap_or_else(|| {
+        all.push(LoggerSeries {
+            site_uid: s.site_uid.clone(),
+            sensor_id: s.sensor_id.clone(),
+            batch_uids: Vec::new(),
+            points: Vec::new(),
+        });
+        all.len() - 1
+    });
     let target = &mut all[i];
     for p in &s.points {
         let batch_uid = s.batch_uids.get(p.batch as usize).cloned().flatten();
-        let batch = match target.batch_uids.iter().position(|b| *b == batch_uid) {
-            Some(b) => b,
-            None => {
-                target.batch_uids.push(batch_uid);
-                target.batch_uids.len() - 1
-            }
-        } as u32;
+        let found = target.batch_uids.iter().position(|b| *b == batch_uid);
+        let batch = found.unwrap_or_else(|| {
+            target.batch_uids.push(batch_uid);
+            target.batch_uids.len() - 1
+        }) as u32;
         let mut point = p.clone();
         point.batch = batch;
         match target.points.binary_search_by(|q| q.time.cmp(&p.time)) {
