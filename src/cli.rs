@@ -21,6 +21,7 @@ pub mod import;
 pub mod init;
 pub mod list;
 pub mod logger;
+pub mod merge;
 pub mod open;
 pub mod pair;
 pub mod push;
@@ -83,6 +84,8 @@ pub enum Command {
     /// The shared archive on a PostgreSQL server: create it, list it, summarise its fits
     #[command(subcommand)]
     Archive(archive::ArchiveCommand),
+    /// Bring other copies of a campaign (other laptops' files) into one, by stable ids.
+    Merge(merge::MergeArgs),
     /// Print a shell completion script (bash, zsh, fish, powershell).
     Completions(shell::CompletionsArgs),
     /// Print the manual page (roff): `porewise manual > porewise.1`.
@@ -121,6 +124,7 @@ impl Command {
             Command::Archive(_) => "archive",
             Command::Push(_) => "push",
             Command::Pull(_) => "pull",
+            Command::Merge(_) => "merge",
             Command::Completions(_) => "completions",
             Command::Manual(_) => "manual",
             Command::Current(_) => "current",
@@ -154,6 +158,7 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Archive(cmd) => archive::run(&cmd),
         Command::Push(args) => push::run_push(&args),
         Command::Pull(args) => push::run_pull(&args),
+        Command::Merge(args) => merge::run(&args),
         Command::Completions(args) => shell::completions(&args),
         Command::Manual(args) => shell::manual(&args),
         Command::Current(args) => current::run(&args),

@@ -5,6 +5,7 @@
 //! for each other on its row (`SELECT ... FOR UPDATE`), and a serialisation failure or
 //! deadlock is retried.
 
+use std::collections::HashMap;
 use std::time::Duration;
 
 use postgres::error::SqlState;
@@ -13,7 +14,7 @@ use postgres::{Client, Transaction};
 use super::rows::{NewRows, insert, read_campaign, upsert_campaign};
 use super::{ArchiveError, Result, server};
 use crate::store::exchange::{
-    CampaignRows, LoggerSeries, MergePlan, Preferences, RowSet, fingerprint, plan,
+    CampaignRows, FitRow, MergePlan, Preferences, RowSet, fingerprint, plan,
 };
 
 /// How many times a push is tried when the server reports a serialisation failure or a
@@ -163,8 +164,8 @@ fn push_once(
         tx.rollback().map_err(server("cannot end the push"))?;
         return Ok(PushOutcome::Refused(Box::new(plan)));
     }
-    let written = apply(&mut tx, &on_server, &plan)?;
-    let after = merged(on_server, &plan);
+    let after = plan.merged(&on_server);
+    let written = apply(&mut tx, &on_server, &plan, &after)?;
     let print = fingerprint(&after);
     record(&mut tx, uid, &print)?;
     tx.commit().map_err(server("cannot commit the push"))?;
@@ -190,8 +191,14 @@ fn record(tx: &mut Transaction<'_>, uid: &str, print: &str) -> Result<()> {
 }
 
 /// Write a clean plan into the archive: the campaign row, replaced rows (deleted, then
-/// written with the new rows), the current fits. Returns the rows written.
-fn apply(tx: &mut Transaction<'_>, on_server: &CampaignRows, plan: &MergePlan) -> Result<usize> {
+/// written with the new rows), the current fits, so that the archive holds `after` (the
+/// engine's [`MergePlan::merged`]). Returns the rows written.
+fn apply(
+    tx: &mut Transaction<'_>,
+    on_server: &CampaignRows,
+    plan: &MergePlan,
+    after: &CampaignRows,
+) -> Result<usize> {
     let campaign = plan.campaign.as_ref().unwrap_or(&on_server.campaign);
     if let Some(c) = &plan.campaign {
         upsert_campaign(tx, c)?;
@@ -199,6 +206,22 @@ fn apply(tx: &mut Transaction<'_>, on_server: &CampaignRows, plan: &MergePlan) -
     delete_replaced(tx, &campaign.uid, &plan.replace)?;
     let mut rows = rowset_rows(&plan.insert);
     rows.extend(rowset_rows(&plan.replace));
+    // Written fits stand as the merged campaign has them (the engine decides which fit of a
+    // sample is current, not the row as it came).
+    let standing: HashMap<&str, bool> = after
+        .fits
+        .iter()
+        .map(|f| (f.uid.as_str(), f.is_current))
+        .collect();
+    let fits: Vec<FitRow> = rows
+        .fits
+        .iter()
+        .map(|f| FitRow {
+            is_current: standing.get(f.uid.as_str()).copied().unwrap_or(false),
+            ..(*f).clone()
+        })
+        .collect();
+    rows.fits = fits.iter().collect();
     insert(tx, campaign, &rows)?;
     let written = rows.len() + usize::from(plan.campaign.is_some());
     for (sample, fit) in &plan.current {
@@ -297,88 +320,4 @@ fn delete_replaced(tx: &mut Transaction<'_>, campaign: &str, set: &RowSet) -> Re
         .map_err(server("cannot replace logger records"))?;
     }
     Ok(())
-}
-
-/// The archive's rows after a plan is applied (to fingerprint them without reading them
-/// again): inserted rows added, replaced rows swapped, current fits moved.
-pub fn merged(mut rows: CampaignRows, plan: &MergePlan) -> CampaignRows {
-    fn put<T: Clone>(into: &mut Vec<T>, insert: &[T], replace: &[T], uid: impl Fn(&T) -> &str) {
-        let at: std::collections::HashMap<String, usize> = into
-            .iter()
-            .enumerate()
-            .map(|(i, r)| (uid(r).to_string(), i))
-            .collect();
-        for r in replace {
-            match at.get(uid(r)) {
-                Some(&i) => into[i] = r.clone(),
-                None => into.push(r.clone()),
-            }
-        }
-        into.extend(insert.iter().cloned());
-    }
-    if let Some(c) = &plan.campaign {
-        rows.campaign = c.clone();
-    }
-    let (ins, rep) = (&plan.insert, &plan.replace);
-    put(&mut rows.batches, &ins.batches, &rep.batches, |r| &r.uid);
-    put(&mut rows.sites, &ins.sites, &rep.sites, |r| &r.uid);
-    put(&mut rows.layers, &ins.layers, &rep.layers, |r| &r.uid);
-    put(&mut rows.samples, &ins.samples, &rep.samples, |r| &r.uid);
-    put(&mut rows.readings, &ins.readings, &rep.readings, |r| &r.uid);
-    put(
-        &mut rows.conductivity,
-        &ins.conductivity,
-        &rep.conductivity,
-        |r| &r.uid,
-    );
-    put(&mut rows.flags, &ins.flags, &rep.flags, |r| &r.uid);
-    put(
-        &mut rows.flag_events,
-        &ins.flag_events,
-        &rep.flag_events,
-        |r| &r.uid,
-    );
-    put(&mut rows.fits, &ins.fits, &rep.fits, |r| &r.uid);
-    for (sample, fit) in &plan.current {
-        for f in rows.fits.iter_mut().filter(|f| &f.sample_uid == sample) {
-            f.is_current = &f.uid == fit;
-        }
-    }
-    for s in rep.logger.iter().chain(&ins.logger) {
-        merge_series(&mut rows.logger, s);
-    }
-    rows.logger
-        .sort_by(|a, b| (&a.site_uid, &a.sensor_id).cmp(&(&b.site_uid, &b.sensor_id)));
-    rows
-}
-
-/// Add or replace a series' points in the matching series of `all` (by time).
-fn merge_series(all: &mut Vec<LoggerSeries>, s: &LoggerSeries) {
-    let found = all
-        .iter()
-        .position(|x| x.site_uid == s.site_uid && x.sensor_id == s.sensor_id);
-    let i = found.unwrap_or_else(|| {
-        all.push(LoggerSeries {
-            site_uid: s.site_uid.clone(),
-            sensor_id: s.sensor_id.clone(),
-            batch_uids: Vec::new(),
-            points: Vec::new(),
-        });
-        all.len() - 1
-    });
-    let target = &mut all[i];
-    for p in &s.points {
-        let batch_uid = s.batch_uids.get(p.batch as usize).cloned().flatten();
-        let found = target.batch_uids.iter().position(|b| *b == batch_uid);
-        let batch = found.unwrap_or_else(|| {
-            target.batch_uids.push(batch_uid);
-            target.batch_uids.len() - 1
-        }) as u32;
-        let mut point = p.clone();
-        point.batch = batch;
-        match target.points.binary_search_by(|q| q.time.cmp(&p.time)) {
-            Ok(at) => target.points[at] = point,
-            Err(at) => target.points.insert(at, point),
-        }
-    }
 }

@@ -1030,3 +1030,121 @@ pub fn recreate(from: &CampaignRows) -> MergePlan {
     plan.campaign = Some(from.campaign.clone());
     plan
 }
+
+impl MergePlan {
+    /// The rows `into` holds once this plan is applied, computed in memory, so several files
+    /// can be planned one after another before anything is written. Fits keep the readings
+    /// key they came with (the file they land in decides whether they still match).
+    pub fn merged(&self, into: &CampaignRows) -> CampaignRows {
+        fn overlay<T: Clone>(
+            base: &[T],
+            replace: &[T],
+            insert: &[T],
+            uid: fn(&T) -> &str,
+        ) -> Vec<T> {
+            let by_uid: HashMap<&str, &T> = replace.iter().map(|r| (uid(r), r)).collect();
+            base.iter()
+                .map(|r| {
+                    by_uid
+                        .get(uid(r))
+                        .map_or_else(|| r.clone(), |n| (*n).clone())
+                })
+                .chain(insert.iter().cloned())
+                .collect()
+        }
+        let (ins, rep) = (&self.insert, &self.replace);
+        let mut fits = overlay(&into.fits, &rep.fits, &ins.fits, |r| &r.uid);
+        let current: HashMap<&str, &str> = self
+            .current
+            .iter()
+            .map(|(s, f)| (s.as_str(), f.as_str()))
+            .collect();
+        let new_fits: std::collections::HashSet<&str> =
+            ins.fits.iter().map(|f| f.uid.as_str()).collect();
+        for fit in &mut fits {
+            if let Some(chosen) = current.get(fit.sample_uid.as_str()) {
+                fit.is_current = fit.uid == *chosen;
+            } else if new_fits.contains(fit.uid.as_str()) {
+                fit.is_current = false;
+            }
+        }
+        CampaignRows {
+            campaign: self
+                .campaign
+                .clone()
+                .unwrap_or_else(|| into.campaign.clone()),
+            batches: overlay(&into.batches, &rep.batches, &ins.batches, |r| &r.uid),
+            sites: overlay(&into.sites, &rep.sites, &ins.sites, |r| &r.uid),
+            layers: overlay(&into.layers, &rep.layers, &ins.layers, |r| &r.uid),
+            samples: overlay(&into.samples, &rep.samples, &ins.samples, |r| &r.uid),
+            readings: overlay(&into.readings, &rep.readings, &ins.readings, |r| &r.uid),
+            conductivity: overlay(
+                &into.conductivity,
+                &rep.conductivity,
+                &ins.conductivity,
+                |r| &r.uid,
+            ),
+            logger: merged_logger(&into.logger, &rep.logger, &ins.logger),
+            flags: overlay(&into.flags, &rep.flags, &ins.flags, |r| &r.uid),
+            flag_events: overlay(&into.flag_events, &[], &ins.flag_events, |r| &r.uid),
+            fits,
+        }
+    }
+}
+
+/// Logger series with replaced and inserted records laid over them (each series sorted by
+/// time, the batch index of every record moved into the merged series' list).
+fn merged_logger(
+    base: &[LoggerSeries],
+    replace: &[LoggerSeries],
+    insert: &[LoggerSeries],
+) -> Vec<LoggerSeries> {
+    let mut out: BTreeMap<(String, String), LoggerSeries> = base
+        .iter()
+        .map(|s| ((s.site_uid.clone(), s.sensor_id.clone()), s.clone()))
+        .collect();
+    for (incoming, replacing) in replace
+        .iter()
+        .map(|s| (s, true))
+        .chain(insert.iter().map(|s| (s, false)))
+    {
+        let series = out
+            .entry((incoming.site_uid.clone(), incoming.sensor_id.clone()))
+            .or_insert_with(|| LoggerSeries {
+                site_uid: incoming.site_uid.clone(),
+                sensor_id: incoming.sensor_id.clone(),
+                batch_uids: Vec::new(),
+                points: Vec::new(),
+            });
+        let mut index_of = |batch: u32| -> u32 {
+            let uid = incoming.batch_uids.get(batch as usize).cloned().flatten();
+            if let Some(i) = series.batch_uids.iter().position(|b| *b == uid) {
+                u32::try_from(i).unwrap_or(u32::MAX)
+            } else {
+                series.batch_uids.push(uid);
+                u32::try_from(series.batch_uids.len() - 1).unwrap_or(u32::MAX)
+            }
+        };
+        let points: Vec<LoggerPoint> = incoming
+            .points
+            .iter()
+            .map(|p| LoggerPoint {
+                batch: index_of(p.batch),
+                ..p.clone()
+            })
+            .collect();
+        if replacing {
+            let by_time: HashMap<&str, &LoggerPoint> =
+                points.iter().map(|p| (p.time.as_str(), p)).collect();
+            for p in &mut series.points {
+                if let Some(n) = by_time.get(p.time.as_str()) {
+                    *p = (*n).clone();
+                }
+            }
+        } else {
+            series.points.extend(points);
+            series.points.sort_by(|a, b| a.time.cmp(&b.time));
+        }
+    }
+    out.into_values().collect()
+}
