@@ -16,8 +16,12 @@ port=5432
 log() { echo "postgres.sh: $*" >&2; }
 
 pg_bin() {
-    # The newest installed server's bin folder, or nothing.
-    ls -d /usr/lib/postgresql/*/bin 2>/dev/null | sort -V | tail -n 1
+    # The newest installed server's bin folder, or nothing (the client package alone also
+    # makes a bin folder, so look for the server binary itself).
+    local server
+    server=$(ls -d /usr/lib/postgresql/*/bin/postgres 2>/dev/null | sort -V | tail -n 1 || true)
+    [ -n "$server" ] && dirname "$server"
+    return 0
 }
 
 if [ -z "$(pg_bin)" ] || ! command -v pg_ctlcluster >/dev/null 2>&1; then

@@ -47,7 +47,10 @@ fn measure(args: &[&str]) -> (Cost, String) {
     let wall = start.elapsed();
     let err = String::from_utf8_lossy(&output.stderr);
     let out = String::from_utf8_lossy(&output.stdout).into_owned();
-    assert!(output.status.success(), "porewise {args:?} failed:\n{out}\n{err}");
+    assert!(
+        output.status.success(),
+        "porewise {args:?} failed:\n{out}\n{err}"
+    );
     let field = |name: &str| -> f64 {
         err.lines()
             .find_map(|l| l.trim().strip_prefix(name))
@@ -109,15 +112,13 @@ fn round(url: &str, schema: &str, db: &Path, name: &str, edit: &str) {
         .expect("open")
         .execute_batch(edit)
         .expect("edit");
-    let (cost, out) = measure(&[
-        "push",
-        db.to_str().expect("path"),
-        url,
-        "--prefer",
-        "local",
-    ]);
+    let (cost, out) = measure(&["push", db.to_str().expect("path"), url, "--prefer", "local"]);
     row("push after an edit (read, plan, apply)", &cost);
-    let written = out.lines().filter(|l| l.starts_with("sites") || l.starts_with("logger")).collect::<Vec<_>>().join(" | ");
+    let written = out
+        .lines()
+        .filter(|l| l.starts_with("sites") || l.starts_with("logger"))
+        .collect::<Vec<_>>()
+        .join(" | ");
     println!("    {written}");
     let pulled = dir.join(format!("{name}-pulled.sqlite"));
     let _ = std::fs::remove_file(&pulled);
@@ -140,7 +141,9 @@ fn round(url: &str, schema: &str, db: &Path, name: &str, edit: &str) {
 }
 
 fn uid(rng: &mut ChaCha8Rng) -> String {
-    uuid::Builder::from_random_bytes(rng.random()).into_uuid().to_string()
+    uuid::Builder::from_random_bytes(rng.random())
+        .into_uuid()
+        .to_string()
 }
 
 /// A seeded campaign of the generated size, made in memory.
@@ -252,7 +255,12 @@ fn generated() -> CampaignRows {
                     LoggerPoint {
                         time: format!("{date}T{:02}:{:02}:00Z", rest / 60, rest % 60),
                         depth_cm: 20.0 * (k / 2 + 1) as f64,
-                        sensor: if water { "water_content" } else { "tensiometer" }.to_string(),
+                        sensor: if water {
+                            "water_content"
+                        } else {
+                            "tensiometer"
+                        }
+                        .to_string(),
                         value: if water {
                             rng.random_range(0.1..0.4)
                         } else {
@@ -317,7 +325,10 @@ fn generated_file(dir: &Path) -> PathBuf {
 }
 
 fn main() {
-    let Some(server) = std::env::var("POREWISE_TEST_PG").ok().filter(|u| !u.is_empty()) else {
+    let Some(server) = std::env::var("POREWISE_TEST_PG")
+        .ok()
+        .filter(|u| !u.is_empty())
+    else {
         println!("archive bench skipped: POREWISE_TEST_PG not set (see .ci/postgres.sh)");
         return;
     };

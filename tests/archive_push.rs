@@ -320,3 +320,66 @@ fn concurrent_pushes_of_edited_copies_lose_nothing() {
     pull(&mut client, &uid, &out).expect("pull");
     assert_eq!(fingerprint_of(&out), now);
 }
+
+#[test]
+fn a_refit_pushed_becomes_the_archives_current_fit_with_its_derived_values() {
+    let Some((url, _)) = pg::fresh_schema("refit_current") else {
+        return;
+    };
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    porewise().arg("push").arg(&db).arg(&url).assert().success();
+    let uid = campaign_uid(&db);
+    let copy = dir.path().join("refit.sqlite");
+    std::fs::copy(&db, &copy).expect("copy");
+    porewise()
+        .arg("fit")
+        .arg(&copy)
+        .args(["--sample", "TER1-A-a", "--model", "brooks-corey"])
+        .assert()
+        .success();
+    let out = stdout(
+        &porewise()
+            .arg("push")
+            .arg(&copy)
+            .arg(&url)
+            .args(["--prefer", "local"])
+            .assert()
+            .success(),
+    );
+    assert!(out.contains("pushed"), "{out}");
+    let local_current: String = Connection::open(&copy)
+        .expect("open")
+        .query_row(
+            "SELECT f.uid FROM fit f JOIN sample s ON s.id = f.sample_id
+             WHERE s.code = 'TER1-A-a' AND f.is_current = 1",
+            [],
+            |r| r.get(0),
+        )
+        .expect("current");
+    let mut client = pg::client(&url);
+    let rows = client
+        .query(
+            "SELECT f.uid, f.model, f.available_water FROM fit f
+             JOIN sample s ON s.campaign_uid = f.campaign_uid AND s.uid = f.sample_uid
+             WHERE s.code = 'TER1-A-a' AND f.is_current",
+            &[],
+        )
+        .expect("server current");
+    assert_eq!(rows.len(), 1, "one current fit per sample");
+    assert_eq!(rows[0].get::<_, String>(0), local_current);
+    assert_eq!(rows[0].get::<_, String>(1), "brooks-corey");
+    assert!(rows[0].get::<_, Option<f64>>(2).is_some());
+    let doubled: i64 = client
+        .query_one(
+            "SELECT count(*) FROM (SELECT sample_uid FROM fit WHERE is_current
+             GROUP BY campaign_uid, sample_uid HAVING count(*) > 1) d",
+            &[],
+        )
+        .expect("doubled")
+        .get(0);
+    assert_eq!(doubled, 0);
+    let (now, stored) = server_fingerprints(&url, &uid);
+    assert_eq!(now, stored);
+    assert_eq!(now, fingerprint_of(&copy));
+}

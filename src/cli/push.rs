@@ -6,7 +6,7 @@ use anyhow::{Context, bail};
 use clap::Args;
 
 use crate::archive::connect;
-use crate::archive::migrate::migrate;
+use crate::archive::migrate::ensure;
 use crate::archive::pull::pull;
 use crate::archive::push::{PushOutcome, push};
 use crate::cli::archive::ServerArgs;
@@ -79,7 +79,7 @@ pub fn run_push(args: &PushArgs) -> anyhow::Result<Outcome> {
     drop(campaign);
     let target = args.server.target()?;
     let mut client = connect(&target)?;
-    migrate(&mut client, &target)
+    ensure(&mut client, &target)
         .with_context(|| format!("cannot set up the archive on {}", target.shown()))?;
     match push(&mut client, &local, &prefs)? {
         PushOutcome::Done(done) => {
