@@ -111,8 +111,13 @@ pub fn run(args: &MergeArgs) -> anyhow::Result<Outcome> {
     }
     if plans.iter().all(|(_, p)| p.writes_nothing()) {
         println!(
-            "nothing to merge: {} already holds every row",
-            shown(&args.into.display().to_string())
+            "nothing to write: {} holds every row of the other {} or keeps its own version",
+            shown(&args.into.display().to_string()),
+            if args.from.len() == 1 {
+                "file"
+            } else {
+                "files"
+            }
         );
         return Ok(Outcome::Success);
     }

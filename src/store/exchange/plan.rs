@@ -480,7 +480,7 @@ fn resolve(
     }
 }
 
-fn merge_kind<T: Serialize + Clone>(
+fn merge_kind<T: Serialize + Clone + PartialEq>(
     rules: &KindRules<'_, T>,
     into: &[T],
     from: &[T],
@@ -497,6 +497,11 @@ fn merge_kind<T: Serialize + Clone>(
             insert.push(row.clone());
             continue;
         };
+        // Equal rows are the common case: compare fields only when the rows differ.
+        if *mine == row {
+            counts.identical += 1;
+            continue;
+        }
         let fields = differences(*mine, row, rules.ignore);
         if fields.is_empty() {
             counts.identical += 1;
@@ -1147,4 +1152,147 @@ fn merged_logger(
         }
     }
     out.into_values().collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::store::exchange::CampaignRow;
+
+    fn empty(uid: &str) -> CampaignRows {
+        CampaignRows {
+            campaign: CampaignRow {
+                uid: uid.into(),
+                name: "Test".into(),
+                description: None,
+                fc_kpa: 33.0,
+                pwp_kpa: 1500.0,
+                created_at: "2026-01-01T00:00:00Z".into(),
+                texture_prior_max_readings: None,
+            },
+            batches: Vec::new(),
+            sites: Vec::new(),
+            layers: Vec::new(),
+            samples: Vec::new(),
+            readings: Vec::new(),
+            conductivity: Vec::new(),
+            logger: Vec::new(),
+            flags: Vec::new(),
+            flag_events: Vec::new(),
+            fits: Vec::new(),
+        }
+    }
+
+    fn series(points: &[(&str, f64)]) -> LoggerSeries {
+        LoggerSeries {
+            site_uid: "s".repeat(36),
+            sensor_id: "T1".into(),
+            batch_uids: vec![None],
+            points: points
+                .iter()
+                .map(|(t, v)| LoggerPoint {
+                    time: (*t).into(),
+                    depth_cm: 30.0,
+                    sensor: "tensiometer".into(),
+                    value: *v,
+                    batch: 0,
+                    source_line: None,
+                })
+                .collect(),
+        }
+    }
+
+    #[test]
+    fn preferences_parse_a_way_for_all_and_per_kind() {
+        let mut p = Preferences::default();
+        p.add("from").expect("all");
+        p.add("flags=newer").expect("flags");
+        assert_eq!(p.way(RowKind::Readings), Some(Way::From));
+        assert_eq!(p.way(RowKind::Flags), Some(Way::Newer));
+        assert!(
+            p.add("flag=newer")
+                .unwrap_err()
+                .contains("unknown kind \"flag\"")
+        );
+        assert!(
+            p.add("readings=latest")
+                .unwrap_err()
+                .contains("expected newer, into or from")
+        );
+        assert!(p.add("both").is_err());
+    }
+
+    #[test]
+    fn logger_records_merge_join_by_time() {
+        let mut into = empty("c");
+        into.logger = vec![series(&[("t1", 1.0), ("t3", 3.0), ("t5", 5.0)])];
+        let mut from = empty("c");
+        from.logger = vec![series(&[
+            ("t2", 2.0),
+            ("t3", 3.5),
+            ("t5", 5.0),
+            ("t6", 6.0),
+        ])];
+        let plan = plan(&into, &from, &Preferences::default());
+        let c = plan.counts[&RowKind::Logger];
+        assert_eq!((c.new, c.identical, c.conflicting), (2, 1, 1));
+        assert!(!plan.is_clean());
+        assert_eq!(
+            plan.conflicts[0].fields,
+            vec![("value".into(), "3".into(), "3.5".into())]
+        );
+        let mut prefs = Preferences::default();
+        prefs.add("logger=from").expect("prefer");
+        let plan = super::plan(&into, &from, &prefs);
+        assert!(plan.is_clean());
+        let merged = plan.merged(&into);
+        let values: Vec<(&str, f64)> = merged.logger[0]
+            .points
+            .iter()
+            .map(|p| (p.time.as_str(), p.value))
+            .collect();
+        assert_eq!(
+            values,
+            vec![
+                ("t1", 1.0),
+                ("t2", 2.0),
+                ("t3", 3.5),
+                ("t5", 5.0),
+                ("t6", 6.0)
+            ]
+        );
+        // Planning the merged rows against FROM again finds nothing to write.
+        assert!(super::plan(&merged, &from, &prefs).writes_nothing());
+    }
+
+    #[test]
+    fn newer_cannot_decide_rows_without_a_time_and_another_campaign_is_refused() {
+        let mut into = empty("a");
+        let mut from = empty("b");
+        into.sites.push(SiteRow {
+            uid: "1".repeat(36),
+            code: "S1".into(),
+            name: Some("one".into()),
+            latitude: None,
+            longitude: None,
+            elevation_m: None,
+            notes: None,
+            batch_uid: None,
+        });
+        from.sites.push(SiteRow {
+            name: Some("uno".into()),
+            ..into.sites[0].clone()
+        });
+        let mut prefs = Preferences::default();
+        prefs.add("newer").expect("prefer");
+        let p = plan(&into, &from, &prefs);
+        assert!(p.refusal.is_some());
+        assert_eq!(p.unresolved(), 1);
+        assert_eq!(p.conflicts[0].unresolved_because.as_deref(), Some(NO_TIME));
+        prefs.allow_other_campaign = true;
+        prefs.add("sites=into").expect("prefer");
+        let p = plan(&into, &from, &prefs);
+        assert!(p.is_clean(), "{}", p.render());
+        assert!(p.writes_nothing());
+    }
 }
