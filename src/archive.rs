@@ -74,6 +74,17 @@ pub enum ArchiveError {
         /// The newest this program knows.
         known: i64,
     },
+    /// Another push of the same campaign held it longer than this one would wait.
+    #[error(
+        "campaign {campaign} is busy: another push of it held it for {} s; nothing was written, try again",
+        waited.as_secs_f64()
+    )]
+    Busy {
+        /// The campaign's uid.
+        campaign: String,
+        /// How long this push waited.
+        waited: std::time::Duration,
+    },
     /// A bad argument (filter, campaign name) for an archive command.
     #[error("{0}")]
     Invalid(String),

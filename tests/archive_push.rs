@@ -383,3 +383,46 @@ fn a_refit_pushed_becomes_the_archives_current_fit_with_its_derived_values() {
     assert_eq!(now, stored);
     assert_eq!(now, fingerprint_of(&copy));
 }
+
+#[test]
+fn a_push_waiting_too_long_for_another_push_of_its_campaign_gives_up_writing_nothing() {
+    let Some((url, _)) = pg::fresh_schema("busy_campaign") else {
+        return;
+    };
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    porewise().arg("push").arg(&db).arg(&url).assert().success();
+    let uid = campaign_uid(&db);
+    let copy = dir.path().join("copy.sqlite");
+    std::fs::copy(&db, &copy).expect("copy");
+    Connection::open(&copy)
+        .expect("open")
+        .execute_batch("UPDATE site SET name = 'held back' WHERE code = 'LEV1'")
+        .expect("edit");
+    let rows = exchange::read(&Connection::open(&copy).expect("open")).expect("read");
+    // Another push holds the campaign's row.
+    let mut holder = pg::client(&url);
+    let mut held = holder.transaction().expect("tx");
+    held.execute("SELECT 1 FROM campaign WHERE uid = $1 FOR UPDATE", &[&uid])
+        .expect("lock");
+    let mut client = pg::client(&url);
+    let mut prefs = Preferences::default();
+    prefs.add("from").expect("prefer");
+    let err = porewise::archive::push::push_waiting(
+        &mut client,
+        &rows,
+        &prefs,
+        std::time::Duration::from_millis(200),
+    )
+    .expect_err("busy");
+    assert!(err.to_string().contains("is busy"), "{err}");
+    held.rollback().expect("release");
+    let name: String = client
+        .query_one("SELECT name FROM site WHERE code = 'LEV1'", &[])
+        .expect("name")
+        .get(0);
+    assert_eq!(name, "Levee crest", "nothing written");
+    // Once the other push is done, this one goes through.
+    let done = push(&mut client, &rows, &prefs).expect("push");
+    assert!(matches!(done, PushOutcome::Done(_)));
+}

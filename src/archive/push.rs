@@ -48,11 +48,29 @@ pub enum PushOutcome {
     Refused(Box<MergePlan>),
 }
 
-/// Push `local` (a campaign file's rows) into the archive.
+/// How long a push waits for another push of the same campaign before it gives up.
+pub const LOCK_WAIT: Duration = Duration::from_secs(120);
+
+/// Push `local` (a campaign file's rows) into the archive, waiting at most [`LOCK_WAIT`]
+/// for other pushes of the same campaign.
 ///
 /// # Errors
-/// A server error (after [`ATTEMPTS`] tries for serialisation failures and deadlocks).
+/// A server error (after [`ATTEMPTS`] tries for serialisation failures and deadlocks), or
+/// [`ArchiveError::Busy`] when another push held the campaign too long.
 pub fn push(client: &mut Client, local: &CampaignRows, prefs: &Preferences) -> Result<PushOutcome> {
+    push_waiting(client, local, prefs, LOCK_WAIT)
+}
+
+/// [`push`], waiting at most `wait` for the campaign's lock.
+///
+/// # Errors
+/// As [`push`].
+pub fn push_waiting(
+    client: &mut Client,
+    local: &CampaignRows,
+    prefs: &Preferences,
+    wait: Duration,
+) -> Result<PushOutcome> {
     let local_fingerprint = fingerprint(local);
     let mut attempt = 0;
     loop {
@@ -60,7 +78,7 @@ pub fn push(client: &mut Client, local: &CampaignRows, prefs: &Preferences) -> R
         let tx = client
             .transaction()
             .map_err(server("cannot start the push"))?;
-        match push_once(tx, local, &local_fingerprint, prefs) {
+        match push_once(tx, local, &local_fingerprint, prefs, wait) {
             Ok(PushOutcome::Done(mut done)) => {
                 done.attempts = attempt;
                 return Ok(PushOutcome::Done(done));
@@ -70,6 +88,14 @@ pub fn push(client: &mut Client, local: &CampaignRows, prefs: &Preferences) -> R
                 if attempt < ATTEMPTS && retryable(&source) =>
             {
                 std::thread::sleep(Duration::from_millis(50 * u64::from(attempt)));
+            }
+            Err(ArchiveError::Server { source, .. })
+                if source.code() == Some(&SqlState::LOCK_NOT_AVAILABLE) =>
+            {
+                return Err(ArchiveError::Busy {
+                    campaign: local.campaign.uid.clone(),
+                    waited: wait,
+                });
             }
             Err(e) => return Err(e),
         }
@@ -88,9 +114,13 @@ fn push_once(
     local: &CampaignRows,
     local_fingerprint: &str,
     prefs: &Preferences,
+    wait: Duration,
 ) -> Result<PushOutcome> {
-    tx.batch_execute("SET CONSTRAINTS ALL DEFERRED")
-        .map_err(server("cannot defer the keys"))?;
+    tx.batch_execute(&format!(
+        "SET CONSTRAINTS ALL DEFERRED; SET LOCAL lock_timeout = {}",
+        wait.as_millis().max(1)
+    ))
+    .map_err(server("cannot set up the push"))?;
     let uid = &local.campaign.uid;
     // A new campaign gets its row first, so there is a row to lock; a push running at the
     // same time waits here until this one commits, then finds the row.
