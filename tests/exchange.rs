@@ -135,3 +135,34 @@ fn applying_the_demo_to_an_empty_file_recreates_it_exactly() {
     let again = exchange::plan(&copy, &source, &exchange::Preferences::default());
     assert!(again.writes_nothing(), "{}", again.render());
 }
+
+#[test]
+fn apply_refuses_a_plan_with_an_unresolved_conflict_and_writes_nothing() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    let other = dir.path().join("other.sqlite");
+    std::fs::copy(&db, &other).expect("copy");
+    Connection::open(&other)
+        .expect("open")
+        .execute_batch(
+            "UPDATE reading SET theta = 0.3333 WHERE id = 7;
+             INSERT INTO site (uid, code) VALUES ('00000000-0000-4000-8000-0000000000aa', 'NEW');",
+        )
+        .expect("edit");
+    let mut campaign = porewise::store::Campaign::open(&db).expect("open");
+    let mine = exchange::read(campaign.connection()).expect("read");
+    let theirs = exchange::read(&Connection::open(&other).expect("open")).expect("read");
+    let plan = exchange::plan(&mine, &theirs, &exchange::Preferences::default());
+    assert_eq!((plan.unresolved(), plan.insert.sites.len()), (1, 1));
+    let tx = campaign.transaction().expect("tx");
+    let err = exchange::apply(&tx, &plan).expect_err("refused");
+    assert!(
+        matches!(err, porewise::store::StoreError::Refused(ref m) if m.contains("has 1 unresolved conflict and 0 code collisions;")),
+        "{err}"
+    );
+    drop(tx);
+    assert_eq!(
+        exchange::fingerprint(&exchange::read(campaign.connection()).expect("read")),
+        exchange::fingerprint(&mine)
+    );
+}

@@ -715,3 +715,36 @@ fn hostile_text_in_a_conflict_is_shown_escaped() {
         "{text}"
     );
 }
+
+#[test]
+fn a_flag_made_on_the_other_laptop_comes_with_its_one_event_and_leaves_the_reading_out() {
+    let l = laptops();
+    let reading: i64 = one(&l.b, "SELECT min(id) FROM reading WHERE sample_id = 10");
+    let code: String = one(&l.b, "SELECT code FROM sample WHERE id = 10");
+    porewise()
+        .arg("flag")
+        .arg(&l.b)
+        .arg(reading.to_string())
+        .args(["--reason", "core cracked"])
+        .assert()
+        .success();
+    let out = merge(&l.a, &l.b, &[]).success();
+    assert!(
+        stdout(&out).contains("flags: 1 new, flag events: 1 new"),
+        "{}",
+        stdout(&out)
+    );
+    let events: i64 = one(
+        &l.a,
+        "SELECT count(*) FROM flag_event e JOIN flag f ON f.id = e.flag_id
+         WHERE f.reason = 'core cracked'",
+    );
+    assert_eq!(events, 1);
+    let state = standing(&l.a)
+        .into_iter()
+        .find(|(c, _)| *c == code)
+        .expect("sample")
+        .1;
+    assert_eq!(state, "Stale([ReadingsChanged])");
+    assert_eq!(content(&l.a), content(&l.b));
+}

@@ -28,7 +28,8 @@ use crate::store::exchange::{self, MergePlan, Preferences, RowKind};
 pub struct MergeArgs {
     /// The campaign file to merge into (written).
     pub into: PathBuf,
-    /// The campaign files to merge from (only read), in order.
+    /// The campaign files to merge from, in order (read only; a file of an older porewise is
+    /// upgraded on opening, as every command does).
     #[arg(required = true)]
     pub from: Vec<PathBuf>,
     /// How to resolve conflicts: newer, into or from for every kind, or KIND=WAY for one kind

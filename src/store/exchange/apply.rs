@@ -7,6 +7,7 @@ use rusqlite::{Connection, OptionalExtension, Transaction, params};
 use super::plan::{MergePlan, RowKind};
 use super::read::STALE;
 use super::{FitRow, FlagTarget, LoggerSeries, readings_key};
+use crate::model::number::plural;
 use crate::store::{Result, StoreError};
 
 /// What [`apply()`] wrote.
@@ -68,9 +69,9 @@ fn need(map: &Ids, uid: &str, what: &str) -> Result<i64> {
 pub fn apply(tx: &Transaction<'_>, plan: &MergePlan) -> Result<Applied> {
     if !plan.is_clean() {
         return Err(StoreError::Refused(format!(
-            "the merge has {} unresolved conflicts and {} code collisions{}; nothing was written",
-            plan.unresolved(),
-            plan.collisions.len(),
+            "the merge has {} and {}{}; nothing was written",
+            plural(plan.unresolved() as u64, "unresolved conflict"),
+            plural(plan.collisions.len() as u64, "code collision"),
             if plan.refusal.is_some() {
                 " and is refused"
             } else {
