@@ -426,3 +426,59 @@ fn a_push_waiting_too_long_for_another_push_of_its_campaign_gives_up_writing_not
     let done = push(&mut client, &rows, &prefs).expect("push");
     assert!(matches!(done, PushOutcome::Done(_)));
 }
+
+#[test]
+fn two_campaigns_of_one_name_are_listed_and_pulled_by_uid() {
+    let Some((url, _)) = pg::fresh_schema("same_name") else {
+        return;
+    };
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    let other = dir.path().join("other.sqlite");
+    porewise()
+        .arg("init")
+        .arg(&other)
+        .args(["--name", "Floodplain demo (invented)"])
+        .assert()
+        .success();
+    porewise().arg("push").arg(&db).arg(&url).assert().success();
+    porewise()
+        .arg("push")
+        .arg(&other)
+        .arg(&url)
+        .assert()
+        .success();
+    let json = stdout(
+        &porewise()
+            .args(["archive", "list", &url, "--format", "json"])
+            .assert()
+            .success(),
+    );
+    let list: serde_json::Value = serde_json::from_str(&json).expect("json");
+    let list = list.as_array().expect("array");
+    assert_eq!(list.len(), 2);
+    let demo_uid = campaign_uid(&db);
+    let entry = list
+        .iter()
+        .find(|c| c["uid"] == demo_uid.as_str())
+        .expect("the demo is listed");
+    assert_eq!(entry["logger_records"], 8832);
+    assert_eq!(entry["fingerprint"], fingerprint_of(&db).as_str());
+    let out = dir.path().join("which.sqlite");
+    let err = stderr(
+        &porewise()
+            .args(["pull", &url, "--campaign", "Floodplain demo (invented)"])
+            .arg(&out)
+            .assert()
+            .code(1),
+    );
+    assert!(err.contains("2 campaigns are named"), "{err}");
+    assert!(err.contains(&demo_uid), "{err}");
+    assert!(!out.exists());
+    porewise()
+        .args(["pull", &url, "--campaign", &campaign_uid(&other)])
+        .arg(&out)
+        .assert()
+        .success();
+    assert_eq!(fingerprint_of(&out), fingerprint_of(&other));
+}
