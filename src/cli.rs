@@ -8,6 +8,7 @@ use clap::{Parser, Subcommand};
 use crate::error::Outcome;
 
 pub mod advise;
+pub mod archive;
 pub mod backup;
 pub mod current;
 pub mod curve;
@@ -23,6 +24,7 @@ pub mod logger;
 pub mod merge;
 pub mod open;
 pub mod pair;
+pub mod push;
 pub mod review;
 pub mod set;
 pub mod shared;
@@ -75,6 +77,13 @@ pub enum Command {
     Advise(advise::AdviseArgs),
     /// Write a verified copy of a campaign, safe while it is open elsewhere.
     Backup(backup::BackupArgs),
+    /// Push a campaign file into the shared archive on a PostgreSQL server (merge rules: new rows added, conflicts refused unless resolved)
+    Push(push::PushArgs),
+    /// Pull a campaign from the shared archive into a new campaign file
+    Pull(push::PullArgs),
+    /// The shared archive on a PostgreSQL server: create it, list it, summarise its fits
+    #[command(subcommand)]
+    Archive(archive::ArchiveCommand),
     /// Bring other copies of a campaign (other laptops' files) into one, by stable ids.
     Merge(merge::MergeArgs),
     /// Print a shell completion script (bash, zsh, fish, powershell).
@@ -112,6 +121,9 @@ impl Command {
             Command::Unflag(_) => "unflag",
             Command::Advise(_) => "advise",
             Command::Backup(_) => "backup",
+            Command::Archive(_) => "archive",
+            Command::Push(_) => "push",
+            Command::Pull(_) => "pull",
             Command::Merge(_) => "merge",
             Command::Completions(_) => "completions",
             Command::Manual(_) => "manual",
@@ -143,6 +155,9 @@ pub fn run(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Unflag(args) => unflag::run(&args),
         Command::Advise(args) => advise::run(&args),
         Command::Backup(args) => backup::run(&args),
+        Command::Archive(cmd) => archive::run(&cmd),
+        Command::Push(args) => push::run_push(&args),
+        Command::Pull(args) => push::run_pull(&args),
         Command::Merge(args) => merge::run(&args),
         Command::Completions(args) => shell::completions(&args),
         Command::Manual(args) => shell::manual(&args),

@@ -19,11 +19,14 @@
 //! - [`analysis`]: campaign-wide work over store and fit engine: fitting samples and recording
 //!   the attempts; derived values, layer and profile available water (computed on read).
 //! - [`report`]: tables and exports built from model, store and analysis values.
+//! - [`archive`]: the shared archive on a PostgreSQL server: push, pull, stats. The only
+//!   layer that talks to PostgreSQL.
 //! - [`demo`]: the seeded generator of the invented demo campaign.
 //! - [`tui`]: the terminal UI, thin over the library (only `cli` calls it).
 //! - [`cli`]: the command line, thin over the library.
 
 pub mod analysis;
+pub mod archive;
 pub mod cli;
 pub mod demo;
 pub mod error;
