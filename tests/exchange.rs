@@ -99,6 +99,20 @@ fn reading_the_demo_takes_every_row_and_reads_the_same_twice() {
 fn applying_the_demo_to_an_empty_file_recreates_it_exactly() {
     let dir = tempfile::tempdir().expect("temp dir");
     let db = demo(dir.path());
+    // A flagged conductivity reading makes its sample's joint fit stale; the copy must keep
+    // both the flag and that standing.
+    {
+        let mut c = porewise::store::Campaign::open(&db).expect("open");
+        let tx = c.transaction().expect("tx");
+        porewise::store::flags::flag_manual(
+            &tx,
+            porewise::model::domain::FlagTarget::ConductivityReading(1),
+            "ring leaked",
+            None,
+        )
+        .expect("flag");
+        tx.commit().expect("commit");
+    }
     let source = exchange::read(&Connection::open(&db).expect("open")).expect("read");
     let target = dir.path().join("copy.sqlite");
     let mut campaign =
@@ -127,10 +141,12 @@ fn applying_the_demo_to_an_empty_file_recreates_it_exactly() {
         out.sort();
         out
     };
-    assert_eq!(
-        standing(campaign.connection()),
-        standing(&Connection::open(&db).expect("open"))
+    let stood = standing(&Connection::open(&db).expect("open"));
+    assert!(
+        stood.iter().any(|(_, s)| s.contains("ConductivityChanged")),
+        "{stood:?}"
     );
+    assert_eq!(standing(campaign.connection()), stood);
     // Applying the same campaign again plans nothing new.
     let again = exchange::plan(&copy, &source, &exchange::Preferences::default());
     assert!(again.writes_nothing(), "{}", again.render());

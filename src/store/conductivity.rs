@@ -247,20 +247,30 @@ pub struct JointRecord {
 /// changes, or it is flagged or unflagged. (The exclusion enters only when set, so files
 /// without conductivity flags keep the fingerprints their joint fits recorded.)
 pub fn fingerprint(readings: &[StoredConductivity]) -> String {
+    fingerprint_of(
+        readings
+            .iter()
+            .map(|r| (r.id, r.reading.at, r.reading.k_cm_per_day, r.excluded)),
+    )
+}
+
+/// [`fingerprint`] of (id, where measured, K, excluded) tuples, for readers that hold the
+/// readings in another form (the campaign exchange).
+pub fn fingerprint_of(readings: impl IntoIterator<Item = (i64, Where, f64, bool)>) -> String {
     use sha2::{Digest, Sha256};
-    let mut sorted: Vec<&StoredConductivity> = readings.iter().collect();
-    sorted.sort_by_key(|r| r.id);
+    let mut sorted: Vec<(i64, Where, f64, bool)> = readings.into_iter().collect();
+    sorted.sort_by_key(|r| r.0);
     let mut hasher = Sha256::new();
-    for r in sorted {
-        hasher.update(r.id.to_le_bytes());
-        let (tag, at) = match r.reading.at {
+    for (id, at, k, excluded) in sorted {
+        hasher.update(id.to_le_bytes());
+        let (tag, at) = match at {
             Where::Suction(h) => (0u8, h),
             Where::Water(t) => (1u8, t),
         };
         hasher.update([tag]);
         hasher.update(at.to_bits().to_le_bytes());
-        hasher.update(r.reading.k_cm_per_day.to_bits().to_le_bytes());
-        if r.excluded {
+        hasher.update(k.to_bits().to_le_bytes());
+        if excluded {
             hasher.update(b"excluded");
         }
     }

@@ -388,12 +388,14 @@ pub fn readings_key(readings: &[(&str, f64, f64, Option<f64>)]) -> String {
     crate::model::number::hex(&hasher.finalize())
 }
 
-/// SHA-256 (hex) of conductivity readings by uid: uid, where measured and K, in uid order.
-pub fn conductivity_key(readings: &[&ConductivityRow]) -> String {
-    let mut sorted: Vec<&&ConductivityRow> = readings.iter().collect();
-    sorted.sort_by(|a, b| a.uid.cmp(&b.uid));
+/// SHA-256 (hex) of conductivity readings by uid: uid, where measured, K and whether a flag
+/// leaves it out of joint fits (`true`; hashed only when set, as the file's own fingerprint
+/// does), in uid order.
+pub fn conductivity_key(readings: &[(&ConductivityRow, bool)]) -> String {
+    let mut sorted: Vec<&(&ConductivityRow, bool)> = readings.iter().collect();
+    sorted.sort_by(|a, b| a.0.uid.cmp(&b.0.uid));
     let mut hasher = Sha256::new();
-    for r in sorted {
+    for &&(r, excluded) in &sorted {
         hasher.update(r.uid.as_bytes());
         let (tag, at) = match (r.h_cm, r.theta) {
             (Some(h), _) => (0u8, h),
@@ -403,6 +405,9 @@ pub fn conductivity_key(readings: &[&ConductivityRow]) -> String {
         hasher.update([tag]);
         hasher.update(at.to_bits().to_le_bytes());
         hasher.update(r.k_cm_per_day.to_bits().to_le_bytes());
+        if excluded {
+            hasher.update(b"excluded");
+        }
     }
     crate::model::number::hex(&hasher.finalize())
 }

@@ -480,11 +480,14 @@ fn now(conn: &Connection, sample: i64) -> Result<(String, String, String, i64)> 
         .map(|(u, h, t, w)| (u.as_str(), *h, *t, *w))
         .collect();
     let mut stmt = conn.prepare_cached(
-        "SELECT uid, h_cm, theta, k_cm_per_day FROM conductivity_reading WHERE sample_id = ?1",
+        "SELECT c.uid, c.h_cm, c.theta, c.k_cm_per_day,
+                EXISTS (SELECT 1 FROM flag f WHERE f.conductivity_reading_id = c.id
+                    AND (f.status = 'accepted' OR (f.status = 'suggested' AND f.origin = 'manual')))
+         FROM conductivity_reading c WHERE c.sample_id = ?1",
     )?;
-    let cond: Vec<super::ConductivityRow> = stmt
+    let cond: Vec<(super::ConductivityRow, bool)> = stmt
         .query_map([sample], |r| {
-            Ok(super::ConductivityRow {
+            let row = super::ConductivityRow {
                 uid: r.get(0)?,
                 sample_uid: String::new(),
                 h_cm: r.get(1)?,
@@ -495,10 +498,11 @@ fn now(conn: &Connection, sample: i64) -> Result<(String, String, String, i64)> 
                 notes: None,
                 batch_uid: None,
                 source_line: None,
-            })
+            };
+            Ok((row, r.get::<_, bool>(4)?))
         })?
         .collect::<rusqlite::Result<_>>()?;
-    let refs: Vec<&super::ConductivityRow> = cond.iter().collect();
+    let refs: Vec<(&super::ConductivityRow, bool)> = cond.iter().map(|(r, x)| (r, *x)).collect();
     let rev: i64 = conn.query_row(
         "SELECT readings_rev FROM sample WHERE id = ?1",
         [sample],

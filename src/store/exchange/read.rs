@@ -3,13 +3,13 @@
 use std::collections::{HashMap, HashSet};
 
 use rusqlite::{Connection, Row};
-use sha2::{Digest, Sha256};
 
 use super::{
     BatchRow, CampaignRow, CampaignRows, ConductivityRow, FitRow, FlagEventRow, FlagRow,
     FlagTarget, LayerRow, LoggerKey, LoggerPoint, LoggerSeries, ReadingRow, SampleRow, SiteRow,
     conductivity_key, readings_key,
 };
+use crate::store::conductivity::Where;
 use crate::store::{Result, StoreError};
 
 /// What a fingerprint is replaced by when the readings it was taken of changed since: no
@@ -273,6 +273,15 @@ fn read_inside(conn: &Connection) -> Result<CampaignRows> {
             .push((id, conductivity.len()));
         conductivity.push(row);
     }
+    // Conductivity readings a flag leaves out of joint fits (as `store::conductivity` marks
+    // them): part of a joint fit's fingerprint.
+    let cond_excluded: HashSet<i64> = conn
+        .prepare(
+            "SELECT conductivity_reading_id FROM flag WHERE conductivity_reading_id IS NOT NULL
+               AND (status = 'accepted' OR (status = 'suggested' AND origin = 'manual'))",
+        )?
+        .query_map([], |r| r.get(0))?
+        .collect::<rusqlite::Result<_>>()?;
 
     let logger = read_logger(conn, &site_uids, &batch_uids)?;
 
@@ -357,6 +366,7 @@ fn read_inside(conn: &Connection) -> Result<CampaignRows> {
             used: &used,
             readings: &readings,
             cond_of: &cond_of,
+            cond_excluded: &cond_excluded,
             conductivity: &conductivity,
         },
     )?;
@@ -453,6 +463,7 @@ struct FitContext<'a> {
     used: &'a HashMap<i64, Vec<(i64, usize)>>,
     readings: &'a [ReadingRow],
     cond_of: &'a HashMap<i64, Vec<(i64, usize)>>,
+    cond_excluded: &'a HashSet<i64>,
     conductivity: &'a [ConductivityRow],
 }
 
@@ -483,23 +494,21 @@ impl FitContext<'_> {
     /// `store::conductivity::fingerprint`) and their file-independent key.
     fn conductivity_now(&self, sample: i64) -> (String, String) {
         let empty = Vec::new();
-        let mut of = self.cond_of.get(&sample).unwrap_or(&empty).clone();
-        of.sort_by_key(|(id, _)| *id);
-        let mut hasher = Sha256::new();
-        for (id, i) in &of {
+        let of = self.cond_of.get(&sample).unwrap_or(&empty);
+        // The file's own fingerprint, as `store::conductivity` computes it (the schema holds
+        // exactly one of h_cm and theta).
+        let local = crate::store::conductivity::fingerprint_of(of.iter().map(|(id, i)| {
             let r = &self.conductivity[*i];
-            hasher.update(id.to_le_bytes());
-            let (tag, at) = match (r.h_cm, r.theta) {
-                (Some(h), _) => (0u8, h),
-                (None, Some(t)) => (1u8, t),
-                (None, None) => (2u8, 0.0),
+            let at = match (r.h_cm, r.theta) {
+                (Some(h), _) => Where::Suction(h),
+                (None, t) => Where::Water(t.unwrap_or_default()),
             };
-            hasher.update([tag]);
-            hasher.update(at.to_bits().to_le_bytes());
-            hasher.update(r.k_cm_per_day.to_bits().to_le_bytes());
-        }
-        let local = crate::model::number::hex(&hasher.finalize());
-        let rows: Vec<&ConductivityRow> = of.iter().map(|(_, i)| &self.conductivity[*i]).collect();
+            (*id, at, r.k_cm_per_day, self.cond_excluded.contains(id))
+        }));
+        let rows: Vec<(&ConductivityRow, bool)> = of
+            .iter()
+            .map(|(id, i)| (&self.conductivity[*i], self.cond_excluded.contains(id)))
+            .collect();
         (local, conductivity_key(&rows))
     }
 }
