@@ -475,6 +475,23 @@ fn settle_flags(into: &FlagRow, from: &FlagRow) -> Option<Side> {
     }
 }
 
+impl<'r, T> KindRules<'r, T> {
+    /// The rules of a kind compared field by field, with no time of change, nothing left out
+    /// and nothing settled on its own.
+    fn plain(kind: RowKind, uid: fn(&T) -> &str, label: &'r dyn Fn(&T) -> String) -> Self {
+        KindRules {
+            kind,
+            uid,
+            ignore: &[],
+            newer: None,
+            no_time: NO_TIME,
+            label,
+            fixed: false,
+            settle: None,
+        }
+    }
+}
+
 /// Resolve one conflict with the preferences.
 fn resolve(
     kind: RowKind,
@@ -622,16 +639,9 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
     plan.counts.insert(RowKind::Campaign, counts);
 
     let (i, r) = merge_kind(
-        &KindRules {
-            kind: RowKind::Batches,
-            uid: |r: &BatchRow| &r.uid,
-            ignore: &[],
-            newer: None,
-            no_time: NO_TIME,
-            label: &|r: &BatchRow| format!("import batch {} ({})", r.file_name, r.uid),
-            fixed: false,
-            settle: None,
-        },
+        &KindRules::plain(RowKind::Batches, |r: &BatchRow| &r.uid, &|r: &BatchRow| {
+            format!("import batch {} ({})", r.file_name, r.uid)
+        }),
         &into.batches,
         &from.batches,
         prefs,
@@ -640,16 +650,9 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
     (plan.insert.batches, plan.replace.batches) = (i, r);
 
     let (i, r) = merge_kind(
-        &KindRules {
-            kind: RowKind::Sites,
-            uid: |r: &SiteRow| &r.uid,
-            ignore: &[],
-            newer: None,
-            no_time: NO_TIME,
-            label: &|r: &SiteRow| format!("site {} ({})", r.code, r.uid),
-            fixed: false,
-            settle: None,
-        },
+        &KindRules::plain(RowKind::Sites, |r: &SiteRow| &r.uid, &|r: &SiteRow| {
+            format!("site {} ({})", r.code, r.uid)
+        }),
         &into.sites,
         &from.sites,
         prefs,
@@ -658,16 +661,9 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
     (plan.insert.sites, plan.replace.sites) = (i, r);
 
     let (i, r) = merge_kind(
-        &KindRules {
-            kind: RowKind::Layers,
-            uid: |r: &LayerRow| &r.uid,
-            ignore: &[],
-            newer: None,
-            no_time: NO_TIME,
-            label: &|r: &LayerRow| format!("layer {} ({})", labels.layer(&r.uid), r.uid),
-            fixed: false,
-            settle: None,
-        },
+        &KindRules::plain(RowKind::Layers, |r: &LayerRow| &r.uid, &|r: &LayerRow| {
+            format!("layer {} ({})", labels.layer(&r.uid), r.uid)
+        }),
         &into.layers,
         &from.layers,
         prefs,
@@ -676,16 +672,11 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
     (plan.insert.layers, plan.replace.layers) = (i, r);
 
     let (i, r) = merge_kind(
-        &KindRules {
-            kind: RowKind::Samples,
-            uid: |r: &SampleRow| &r.uid,
-            ignore: &[],
-            newer: None,
-            no_time: NO_TIME,
-            label: &|r: &SampleRow| format!("sample {} ({})", r.code, r.uid),
-            fixed: false,
-            settle: None,
-        },
+        &KindRules::plain(
+            RowKind::Samples,
+            |r: &SampleRow| &r.uid,
+            &|r: &SampleRow| format!("sample {} ({})", r.code, r.uid),
+        ),
         &into.samples,
         &from.samples,
         prefs,
@@ -694,13 +685,10 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
     (plan.insert.samples, plan.replace.samples) = (i, r);
 
     let (i, r) = merge_kind(
-        &KindRules {
-            kind: RowKind::Readings,
-            uid: |r: &ReadingRow| &r.uid,
-            ignore: &[],
-            newer: None,
-            no_time: NO_TIME,
-            label: &|r: &ReadingRow| {
+        &KindRules::plain(
+            RowKind::Readings,
+            |r: &ReadingRow| &r.uid,
+            &|r: &ReadingRow| {
                 format!(
                     "reading of sample {} at {} cm ({})",
                     labels.sample(&r.sample_uid),
@@ -708,9 +696,7 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
                     r.uid
                 )
             },
-            fixed: false,
-            settle: None,
-        },
+        ),
         &into.readings,
         &from.readings,
         prefs,
@@ -719,22 +705,17 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
     (plan.insert.readings, plan.replace.readings) = (i, r);
 
     let (i, r) = merge_kind(
-        &KindRules {
-            kind: RowKind::Conductivity,
-            uid: |r: &ConductivityRow| &r.uid,
-            ignore: &[],
-            newer: None,
-            no_time: NO_TIME,
-            label: &|r: &ConductivityRow| {
+        &KindRules::plain(
+            RowKind::Conductivity,
+            |r: &ConductivityRow| &r.uid,
+            &|r: &ConductivityRow| {
                 format!(
                     "conductivity reading of sample {} ({})",
                     labels.sample(&r.sample_uid),
                     r.uid
                 )
             },
-            fixed: false,
-            settle: None,
-        },
+        ),
         &into.conductivity,
         &from.conductivity,
         prefs,
@@ -746,24 +727,19 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
 
     let (i, r) = merge_kind(
         &KindRules {
-            kind: RowKind::Flags,
-            uid: |r: &FlagRow| &r.uid,
-            ignore: &[],
             newer: Some(|a: &FlagRow, b: &FlagRow| {
                 let at = |f: &FlagRow| f.decided_at.clone().unwrap_or_else(|| f.created_at.clone());
                 at(a).cmp(&at(b))
             }),
-            no_time: NO_TIME,
-            label: &|r: &FlagRow| {
+            settle: Some(settle_flags),
+            ..KindRules::plain(RowKind::Flags, |r: &FlagRow| &r.uid, &|r: &FlagRow| {
                 format!(
                     "flag {:?} on {} ({})",
                     r.reason,
                     labels.target(&r.target),
                     r.uid
                 )
-            },
-            fixed: false,
-            settle: Some(settle_flags),
+            })
         },
         &into.flags,
         &from.flags,
@@ -774,14 +750,12 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
 
     let (i, _) = merge_kind(
         &KindRules {
-            kind: RowKind::FlagEvents,
-            uid: |r: &FlagEventRow| &r.uid,
-            ignore: &[],
-            newer: None,
-            no_time: NO_TIME,
-            label: &|r: &FlagEventRow| format!("flag event {} of flag {}", r.uid, r.flag_uid),
             fixed: true,
-            settle: None,
+            ..KindRules::plain(
+                RowKind::FlagEvents,
+                |r: &FlagEventRow| &r.uid,
+                &|r: &FlagEventRow| format!("flag event {} of flag {}", r.uid, r.flag_uid),
+            )
         },
         &into.flag_events,
         &from.flag_events,
@@ -794,21 +768,16 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
     // whether one still matches its readings is the target file's to tell.
     let (i, r) = merge_kind(
         &KindRules {
-            kind: RowKind::Fits,
-            uid: |r: &FitRow| &r.uid,
             ignore: &["is_current", "readings_key", "joint"],
             newer: Some(|a: &FitRow, b: &FitRow| a.created_at.cmp(&b.created_at)),
-            no_time: NO_TIME,
-            label: &|r: &FitRow| {
+            ..KindRules::plain(RowKind::Fits, |r: &FitRow| &r.uid, &|r: &FitRow| {
                 format!(
                     "fit {} of sample {} ({})",
                     r.model,
                     labels.sample(&r.sample_uid),
                     r.uid
                 )
-            },
-            fixed: false,
-            settle: None,
+            })
         },
         &into.fits,
         &from.fits,
