@@ -156,6 +156,54 @@ fn push_pull_push_round_trip_changes_nothing() {
         .assert()
         .success();
     assert_eq!(fingerprint_of(&again), now);
+    // A flag made on the pulled copy goes up; the original, which the archive now holds
+    // all of, has nothing new and says so.
+    porewise()
+        .arg("flag")
+        .arg(&again)
+        .args(["5", "--reason", "core cracked"])
+        .assert()
+        .success();
+    let out = stdout(
+        &porewise()
+            .arg("push")
+            .arg(&again)
+            .arg(&url)
+            .assert()
+            .success(),
+    );
+    assert!(out.contains("pushed campaign"), "{out}");
+    let out = stdout(&porewise().arg("push").arg(&db).arg(&url).assert().success());
+    assert!(out.contains("nothing new: campaign"), "{out}");
+    let third = dir.path().join("third.sqlite");
+    porewise()
+        .args(["pull", &url, "--campaign", &uid])
+        .arg(&third)
+        .assert()
+        .success();
+    assert_eq!(fingerprint_of(&third), fingerprint_of(&again));
+    assert_eq!(server_fingerprints(&url, &uid).0, fingerprint_of(&again));
+    // Unflagged on the third copy, the reading's sample has its fit back as it was: pushed
+    // and pulled again, the fit matches its readings everywhere.
+    porewise()
+        .arg("unflag")
+        .arg(&third)
+        .arg("5")
+        .assert()
+        .success();
+    porewise()
+        .arg("push")
+        .arg(&third)
+        .arg(&url)
+        .assert()
+        .success();
+    let fourth = dir.path().join("fourth.sqlite");
+    porewise()
+        .args(["pull", &url, "--campaign", &uid])
+        .arg(&fourth)
+        .assert()
+        .success();
+    assert_eq!(fingerprint_of(&fourth), fingerprint_of(&third));
     let err = stderr(
         &porewise()
             .args(["pull", &url, "--campaign", "no such campaign"])

@@ -14,7 +14,7 @@ use postgres::{Client, Transaction};
 use super::rows::{NewRows, insert, read_campaign, upsert_campaign};
 use super::{ArchiveError, Result, server};
 use crate::store::exchange::{
-    CampaignRows, FitRow, MergePlan, Preferences, RowSet, fingerprint, plan,
+    CampaignRows, FitRow, MergePlan, Preferences, RowSet, fingerprint, plan, settle_freshness,
 };
 
 /// How many times a push is tried when the server reports a serialisation failure or a
@@ -194,8 +194,11 @@ fn push_once(
         tx.rollback().map_err(server("cannot end the push"))?;
         return Ok(PushOutcome::Refused(Box::new(plan)));
     }
-    let after = plan.merged(&on_server);
-    let written = apply(&mut tx, &on_server, &plan, &after)?;
+    let mut after = plan.merged(&on_server);
+    // Which fits still match their readings in the merged campaign, as a pulled file will
+    // tell (a flag pushed later makes a fit stale; an unflag fresh again).
+    let settled = settle_freshness(&mut after, &[&on_server, local]);
+    let written = apply(&mut tx, &on_server, &plan, &after, &settled)?;
     let print = fingerprint(&after);
     record(&mut tx, uid, &print)?;
     tx.commit().map_err(server("cannot commit the push"))?;
@@ -228,6 +231,7 @@ fn apply(
     on_server: &CampaignRows,
     plan: &MergePlan,
     after: &CampaignRows,
+    settled: &[String],
 ) -> Result<usize> {
     let campaign = plan.campaign.as_ref().unwrap_or(&on_server.campaign);
     if let Some(c) = &plan.campaign {
@@ -237,22 +241,39 @@ fn apply(
     let mut rows = rowset_rows(&plan.insert);
     rows.extend(rowset_rows(&plan.replace));
     // Written fits stand as the merged campaign has them (the engine decides which fit of a
-    // sample is current, not the row as it came).
-    let standing: HashMap<&str, bool> = after
-        .fits
-        .iter()
-        .map(|f| (f.uid.as_str(), f.is_current))
-        .collect();
+    // sample is current, `settle_freshness` whether it matches its readings), not as the row
+    // came.
+    let standing: HashMap<&str, &FitRow> = after.fits.iter().map(|f| (f.uid.as_str(), f)).collect();
     let fits: Vec<FitRow> = rows
         .fits
         .iter()
-        .map(|f| FitRow {
-            is_current: standing.get(f.uid.as_str()).copied().unwrap_or(false),
-            ..(*f).clone()
+        .map(|f| match standing.get(f.uid.as_str()) {
+            Some(s) => FitRow {
+                is_current: s.is_current,
+                readings_key: s.readings_key.clone(),
+                joint: s.joint.clone(),
+                ..(*f).clone()
+            },
+            None => FitRow {
+                is_current: false,
+                ..(*f).clone()
+            },
         })
         .collect();
     rows.fits = fits.iter().collect();
     insert(tx, campaign, &rows)?;
+    // Fits already in the archive whose standing moved.
+    let written_now: std::collections::HashSet<&str> =
+        fits.iter().map(|f| f.uid.as_str()).collect();
+    for uid in settled.iter().filter(|u| !written_now.contains(u.as_str())) {
+        if let Some(f) = standing.get(uid.as_str()) {
+            tx.execute(
+                "UPDATE fit SET readings_key = $3, joint = $4 WHERE campaign_uid = $1 AND uid = $2",
+                &[&campaign.uid, uid, &f.readings_key, &f.joint],
+            )
+            .map_err(server("cannot record which fits match their readings"))?;
+        }
+    }
     let written = rows.len() + usize::from(plan.campaign.is_some());
     for (sample, fit) in &plan.current {
         tx.execute(

@@ -84,16 +84,18 @@ pub fn run_push(args: &PushArgs) -> anyhow::Result<Outcome> {
     match push(&mut client, &local, &prefs)? {
         PushOutcome::Done(done) => {
             print!("{}", done.report);
+            let (verb, place) = if done.unchanged {
+                ("unchanged:", "already in")
+            } else if done.written == 0 {
+                // The archive holds every row of the file (or keeps its own version of it).
+                ("nothing new:", "holds all of it in")
+            } else {
+                ("pushed", "to")
+            };
             println!(
-                "{} campaign {:?} ({}) {} {} (fingerprint {})",
-                if done.unchanged {
-                    "unchanged:"
-                } else {
-                    "pushed"
-                },
+                "{verb} campaign {:?} ({}) {place} {} (fingerprint {})",
                 shown(&local.campaign.name),
                 local.campaign.uid,
-                if done.unchanged { "already in" } else { "to" },
                 target.shown(),
                 done.fingerprint
             );

@@ -11,6 +11,8 @@
 //! Logger records have no uid: they are matched by their natural key (site uid, sensor id,
 //! time) and kept grouped by sensor, sorted by time, so the plan merge-joins them in one pass.
 
+use std::collections::{HashMap, HashSet};
+
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
@@ -410,6 +412,116 @@ pub fn conductivity_key(readings: &[(&ConductivityRow, bool)]) -> String {
         }
     }
     crate::model::number::hex(&hasher.finalize())
+}
+
+/// A reading as [`readings_key`] hashes it: uid, suction, water content, weight.
+type ReadingPoint<'a> = (&'a str, f64, f64, Option<f64>);
+
+/// Whether each fit of `merged` still matches its sample's readings there, the way a file's
+/// own read decides it: a fit keeps a `readings_key` (and a joint fit its conductivity key)
+/// only when one of `sides` (the versions merged) recorded exactly the key of the merged
+/// sample's readings; otherwise it is stale (`None`, `"stale"`). A store that keeps rows
+/// rather than a file (the archive) calls this after a merge, so its rows read back as a file
+/// pulled from it reads. Returns the uids of the fits whose keys it changed.
+pub fn settle_freshness(merged: &mut CampaignRows, sides: &[&CampaignRows]) -> Vec<String> {
+    let excluding =
+        |f: &FlagRow| f.status == "accepted" || (f.status == "suggested" && f.origin == "manual");
+    let mut out_readings: HashSet<&str> = HashSet::new();
+    let mut out_k: HashSet<&str> = HashSet::new();
+    for f in merged.flags.iter().filter(|f| excluding(f)) {
+        match &f.target {
+            FlagTarget::Reading(uid) => {
+                out_readings.insert(uid);
+            }
+            FlagTarget::Conductivity(uid) => {
+                out_k.insert(uid);
+            }
+            FlagTarget::Logger(_) => {}
+        }
+    }
+    let mut used: HashMap<&str, Vec<ReadingPoint<'_>>> = HashMap::new();
+    for r in merged
+        .readings
+        .iter()
+        .filter(|r| !out_readings.contains(r.uid.as_str()))
+    {
+        used.entry(&r.sample_uid)
+            .or_default()
+            .push((&r.uid, r.h_cm, r.theta, r.weight));
+    }
+    let mut k: HashMap<&str, Vec<(&ConductivityRow, bool)>> = HashMap::new();
+    for r in &merged.conductivity {
+        k.entry(&r.sample_uid)
+            .or_default()
+            .push((r, out_k.contains(r.uid.as_str())));
+    }
+    let keys: HashMap<String, (String, String)> = merged
+        .samples
+        .iter()
+        .map(|s| {
+            let uid = s.uid.as_str();
+            (
+                s.uid.clone(),
+                (
+                    readings_key(used.get(uid).map_or(&[][..], Vec::as_slice)),
+                    conductivity_key(k.get(uid).map_or(&[][..], Vec::as_slice)),
+                ),
+            )
+        })
+        .collect();
+    let versions: HashMap<&str, Vec<&FitRow>> =
+        sides
+            .iter()
+            .flat_map(|s| &s.fits)
+            .fold(HashMap::new(), |mut m, f| {
+                m.entry(f.uid.as_str()).or_default().push(f);
+                m
+            });
+    let joint_key = |joint: &Option<String>| -> Option<String> {
+        let value: serde_json::Value = serde_json::from_str(joint.as_deref()?).ok()?;
+        Some(value.get("conductivity_fingerprint")?.as_str()?.to_string())
+    };
+    let mut changed = Vec::new();
+    for fit in &mut merged.fits {
+        let Some((now, k_now)) = keys.get(&fit.sample_uid) else {
+            continue;
+        };
+        let seen = versions
+            .get(fit.uid.as_str())
+            .map_or(&[][..], Vec::as_slice);
+        let fresh = seen
+            .iter()
+            .any(|v| v.readings_key.as_deref() == Some(now.as_str()));
+        let key = fresh.then(|| now.clone());
+        let mut moved = key != fit.readings_key;
+        fit.readings_key = key;
+        if let Some(recorded) = joint_key(&fit.joint) {
+            let k_fresh = seen
+                .iter()
+                .any(|v| joint_key(&v.joint).as_deref() == Some(k_now.as_str()));
+            let settled = if k_fresh {
+                k_now.clone()
+            } else {
+                read::STALE.to_string()
+            };
+            if settled != recorded
+                && let Some(text) = &fit.joint
+                && let Ok(mut value) = serde_json::from_str::<serde_json::Value>(text)
+                && let Some(object) = value.as_object_mut()
+            {
+                object.insert(
+                    "conductivity_fingerprint".into(),
+                    serde_json::Value::String(settled),
+                );
+                fit.joint = serde_json::to_string(&value).ok();
+                moved = true;
+            }
+        }
+        if moved {
+            changed.push(fit.uid.clone());
+        }
+    }
+    changed
 }
 
 /// SHA-256 (hex) of a canonical form of the campaign: every row as JSON, each kind sorted by

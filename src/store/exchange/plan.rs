@@ -2,7 +2,7 @@
 //! natural key), with the user's preferences deciding conflicts.
 
 use std::cmp::Ordering;
-use std::collections::{BTreeMap, HashMap};
+use std::collections::{BTreeMap, HashMap, HashSet};
 use std::fmt::Write as _;
 
 use serde::Serialize;
@@ -435,6 +435,9 @@ fn differences<T: Serialize>(a: &T, b: &T, ignore: &[&str]) -> Vec<(String, Stri
         .collect()
 }
 
+/// Two versions of a row that differ without being a conflict: the side to keep.
+type Settle<'r, T> = dyn Fn(&T, &T) -> Option<Side> + 'r;
+
 /// How one kind of uid-keyed row is compared and labelled.
 struct KindRules<'r, T> {
     kind: RowKind,
@@ -451,7 +454,7 @@ struct KindRules<'r, T> {
     /// Two versions that differ without being a conflict, and the side to keep (flags: a
     /// suggestion the checks refreshed on one laptop, or decided on one and still open on the
     /// other).
-    settle: Option<fn(&T, &T) -> Option<Side>>,
+    settle: Option<&'r Settle<'r, T>>,
 }
 
 /// Two versions of one flag that are not a conflict: the checks refresh an open suggestion's
@@ -725,13 +728,40 @@ pub fn plan(into: &CampaignRows, from: &CampaignRows, prefs: &Preferences) -> Me
 
     merge_logger(into, from, prefs, &labels, &mut plan);
 
+    // A flag whose audit trail on one side holds every event of the other's was decided
+    // again on the copy that had seen the earlier decision (a pulled copy, say): that side is
+    // the later state, not a conflict. Otherwise `settle_flags` decides.
+    let events_of = |rows: &'_ CampaignRows| {
+        let mut map: HashMap<String, HashSet<String>> = HashMap::new();
+        for e in &rows.flag_events {
+            map.entry(e.flag_uid.clone())
+                .or_default()
+                .insert(e.uid.clone());
+        }
+        map
+    };
+    let (into_events, from_events) = (events_of(into), events_of(from));
+    let none = HashSet::new();
+    let settle = |a: &FlagRow, b: &FlagRow| -> Option<Side> {
+        let ea = into_events.get(&a.uid).unwrap_or(&none);
+        let eb = from_events.get(&b.uid).unwrap_or(&none);
+        if ea != eb {
+            if eb.is_superset(ea) {
+                return Some(Side::From);
+            }
+            if ea.is_superset(eb) {
+                return Some(Side::Into);
+            }
+        }
+        settle_flags(a, b)
+    };
     let (i, r) = merge_kind(
         &KindRules {
             newer: Some(|a: &FlagRow, b: &FlagRow| {
                 let at = |f: &FlagRow| f.decided_at.clone().unwrap_or_else(|| f.created_at.clone());
                 at(a).cmp(&at(b))
             }),
-            settle: Some(settle_flags),
+            settle: Some(&settle),
             ..KindRules::plain(RowKind::Flags, |r: &FlagRow| &r.uid, &|r: &FlagRow| {
                 format!(
                     "flag {:?} on {} ({})",
@@ -1079,8 +1109,7 @@ impl MergePlan {
             .iter()
             .map(|(s, f)| (s.as_str(), f.as_str()))
             .collect();
-        let new_fits: std::collections::HashSet<&str> =
-            ins.fits.iter().map(|f| f.uid.as_str()).collect();
+        let new_fits: HashSet<&str> = ins.fits.iter().map(|f| f.uid.as_str()).collect();
         for fit in &mut fits {
             if let Some(chosen) = current.get(fit.sample_uid.as_str()) {
                 fit.is_current = fit.uid == *chosen;
@@ -1378,5 +1407,41 @@ mod tests {
         let p = flag_plan(from, other.clone(), &newer);
         assert_eq!(p.unresolved(), 0);
         assert_eq!(p.replace.flags, vec![other]);
+    }
+
+    #[test]
+    fn a_flag_decided_again_on_a_copy_that_saw_the_first_decision_is_the_later_state() {
+        let event = |uid: &str, to: &str| FlagEventRow {
+            uid: uid.into(),
+            flag_uid: "00000000-0000-4000-8000-00000000f1a9".into(),
+            from_status: None,
+            to_status: to.into(),
+            actor: "user".into(),
+            note: None,
+            at: "2026-06-02T08:00:00Z".into(),
+        };
+        let accepted = decided(
+            suggestion("4.1 sd", 4.1),
+            "accepted",
+            "2026-06-02T08:00:00Z",
+        );
+        let cleared = decided(accepted.clone(), "cleared", "2026-06-05T08:00:00Z");
+        let mut a = empty("00000000-0000-4000-8000-0000000000aa");
+        let mut b = a.clone();
+        a.flags.push(accepted);
+        a.flag_events = vec![event("e1", "suggested"), event("e2", "accepted")];
+        b.flags.push(cleared.clone());
+        b.flag_events = vec![
+            event("e1", "suggested"),
+            event("e2", "accepted"),
+            event("e3", "cleared"),
+        ];
+        let p = plan(&a, &b, &Preferences::default());
+        assert_eq!(p.unresolved(), 0, "{}", p.render());
+        assert_eq!(p.replace.flags, vec![cleared]);
+        // The other way round INTO is the later state and keeps it.
+        let p = plan(&b, &a, &Preferences::default());
+        assert_eq!(p.unresolved(), 0, "{}", p.render());
+        assert!(p.replace.flags.is_empty());
     }
 }
