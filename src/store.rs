@@ -7,6 +7,15 @@
 
 use std::path::PathBuf;
 
+/// SQL condition on a flag aliased `f` that is true when it leaves its target out of fits: an
+/// accepted flag, or a manual flag not yet dismissed or cleared (as `Flag::excludes`). A
+/// macro so that constant queries can `concat!` it; every exclusion query uses this one rule.
+macro_rules! flag_excludes {
+    () => {
+        "(f.status = 'accepted' OR (f.status = 'suggested' AND f.origin = 'manual'))"
+    };
+}
+
 pub mod backup;
 pub mod batches;
 pub mod campaign;

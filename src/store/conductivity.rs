@@ -75,10 +75,21 @@ pub struct StoredConductivity {
     pub excluded: bool,
 }
 
-const COLUMNS: &str = "c.id, c.sample_id, m.code, c.h_cm, c.theta, c.k_cm_per_day, c.method, \
-     c.measured_at, c.notes, c.batch_id, c.source_line, c.uid, b.file_name, s.code, l.top_cm, \
-     l.bottom_cm, EXISTS (SELECT 1 FROM flag f WHERE f.conductivity_reading_id = c.id \
-     AND (f.status = 'accepted' OR (f.status = 'suggested' AND f.origin = 'manual')))";
+/// SQL condition, on a conductivity reading aliased `c`, that is true when joint fits must
+/// leave it out (the rule of [`super::fits::EXCLUDED`]).
+pub const K_EXCLUDED: &str = concat!(
+    "EXISTS (SELECT 1 FROM flag f WHERE f.conductivity_reading_id = c.id AND ",
+    flag_excludes!(),
+    ")"
+);
+
+const COLUMNS: &str = concat!(
+    "c.id, c.sample_id, m.code, c.h_cm, c.theta, c.k_cm_per_day, c.method, c.measured_at, \
+     c.notes, c.batch_id, c.source_line, c.uid, b.file_name, s.code, l.top_cm, l.bottom_cm, \
+     EXISTS (SELECT 1 FROM flag f WHERE f.conductivity_reading_id = c.id AND ",
+    flag_excludes!(),
+    ")"
+);
 
 const FROM: &str = "conductivity_reading c JOIN sample m ON c.sample_id = m.id \
      JOIN layer l ON m.layer_id = l.id JOIN site s ON l.site_id = s.id \

@@ -22,8 +22,11 @@ use crate::model::number::hex;
 
 /// SQL condition, on a reading aliased `r`, that is true when fits must leave it out: an
 /// accepted flag, or a manual flag not yet dismissed or cleared (as `Flag::excludes`).
-pub const EXCLUDED: &str = "EXISTS (SELECT 1 FROM flag f WHERE f.reading_id = r.id \
-     AND (f.status = 'accepted' OR (f.status = 'suggested' AND f.origin = 'manual')))";
+pub const EXCLUDED: &str = concat!(
+    "EXISTS (SELECT 1 FROM flag f WHERE f.reading_id = r.id AND ",
+    flag_excludes!(),
+    ")"
+);
 
 /// Which samples a command works on: all of them, a site, a layer, or named samples.
 #[derive(Debug, Clone, Default, PartialEq)]

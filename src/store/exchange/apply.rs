@@ -479,12 +479,11 @@ fn now(conn: &Connection, sample: i64) -> Result<(String, String, String, i64)> 
         .iter()
         .map(|(u, h, t, w)| (u.as_str(), *h, *t, *w))
         .collect();
-    let mut stmt = conn.prepare_cached(
-        "SELECT c.uid, c.h_cm, c.theta, c.k_cm_per_day,
-                EXISTS (SELECT 1 FROM flag f WHERE f.conductivity_reading_id = c.id
-                    AND (f.status = 'accepted' OR (f.status = 'suggested' AND f.origin = 'manual')))
+    let mut stmt = conn.prepare_cached(&format!(
+        "SELECT c.uid, c.h_cm, c.theta, c.k_cm_per_day, {}
          FROM conductivity_reading c WHERE c.sample_id = ?1",
-    )?;
+        crate::store::conductivity::K_EXCLUDED
+    ))?;
     let cond: Vec<(super::ConductivityRow, bool)> = stmt
         .query_map([sample], |r| {
             let row = super::ConductivityRow {

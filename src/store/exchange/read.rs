@@ -195,8 +195,10 @@ fn read_inside(conn: &Connection) -> Result<CampaignRows> {
     // Readings a fit would use now: not excluded by a flag (see `fits::EXCLUDED`).
     let excluded: HashSet<i64> = collect(
         conn,
-        "SELECT DISTINCT reading_id FROM flag WHERE reading_id IS NOT NULL
-           AND (status = 'accepted' OR (status = 'suggested' AND origin = 'manual'))",
+        concat!(
+            "SELECT DISTINCT f.reading_id FROM flag f WHERE f.reading_id IS NOT NULL AND ",
+            flag_excludes!()
+        ),
         |r| r.get(0),
     )?
     .into_iter()
@@ -276,10 +278,11 @@ fn read_inside(conn: &Connection) -> Result<CampaignRows> {
     // Conductivity readings a flag leaves out of joint fits (as `store::conductivity` marks
     // them): part of a joint fit's fingerprint.
     let cond_excluded: HashSet<i64> = conn
-        .prepare(
-            "SELECT conductivity_reading_id FROM flag WHERE conductivity_reading_id IS NOT NULL
-               AND (status = 'accepted' OR (status = 'suggested' AND origin = 'manual'))",
-        )?
+        .prepare(concat!(
+            "SELECT f.conductivity_reading_id FROM flag f
+             WHERE f.conductivity_reading_id IS NOT NULL AND ",
+            flag_excludes!()
+        ))?
         .query_map([], |r| r.get(0))?
         .collect::<rusqlite::Result<_>>()?;
 
