@@ -10,6 +10,10 @@
 //! options; `POREWISE_TRACE=INDEX` fits one sample and prints it; `--breakdown` groups the fits
 //! by solver runs; `--one-core` stops after the one-core timing (for instruction counts under
 //! callgrind); `POREWISE_BENCH_DUMP=FILE` writes each sample's SSE and best restart SSE.
+//! The same samples are also fitted with the generic solver (`with_reference_solver`), the
+//! reference of the two-parameter one: time ratio and agreement of the optima are printed
+//! (`POREWISE_BENCH_NO_REFERENCE=1` skips it, e.g. under callgrind;
+//! `POREWISE_BENCH_GENERIC=1` times the generic solver as the main one).
 //!
 //! Parameters are drawn around the Carsel & Parrish (1988) class means (Water Resour. Res.
 //! 24(5), values from memory, high confidence); noise sd 0.005-0.01 m3/m3. Seeded (ChaCha8).
@@ -190,6 +194,9 @@ fn main() {
     if let Some(p) = env_f64("POREWISE_BENCH_PATIENCE") {
         opts = opts.with_patience(p as usize);
     }
+    if std::env::var("POREWISE_BENCH_GENERIC").is_ok() {
+        opts = opts.with_reference_solver(true);
+    }
     let fit = |s: &Sample| {
         fit_model(
             ModelKind::VanGenuchten,
@@ -205,6 +212,54 @@ fn main() {
     let t0 = Instant::now();
     let ours: Vec<_> = samples.iter().map(fit).collect();
     let one_core = t0.elapsed().as_secs_f64();
+    // The generic solver on the same samples, same run: the reference of the two-parameter
+    // solver (speed ratio and the same optimum).
+    if std::env::var("POREWISE_BENCH_NO_REFERENCE").is_err() {
+        let generic = opts.clone().with_reference_solver(true);
+        let t0 = Instant::now();
+        let slow: Vec<_> = samples
+            .iter()
+            .map(|s| {
+                fit_model(
+                    ModelKind::VanGenuchten,
+                    &Readings::new(&s.h, &s.theta),
+                    &generic,
+                )
+            })
+            .collect();
+        let generic_time = t0.elapsed().as_secs_f64();
+        let (mut same, mut lower, mut higher, mut worst) = (0usize, 0usize, 0usize, 0.0_f64);
+        let mut worst_at = 0;
+        for (i, (a, b)) in ours.iter().zip(&slow).enumerate() {
+            let (a, b) = (
+                a.as_ref().map_or(f64::INFINITY, |r| r.sse),
+                b.as_ref().map_or(f64::INFINITY, |r| r.sse),
+            );
+            let rel = (a - b).abs() / a.max(b);
+            if rel <= 1e-10 || a.to_bits() == b.to_bits() {
+                same += 1;
+            } else if a < b {
+                lower += 1;
+            } else {
+                higher += 1;
+            }
+            if rel.is_finite() && rel > worst {
+                worst = rel;
+                worst_at = i;
+            }
+        }
+        println!(
+            "generic solver, one core: {:.2} us/fit; two-parameter solver {:.2} us/fit = {:.2}x faster",
+            generic_time / count as f64 * 1e6,
+            one_core / count as f64 * 1e6,
+            generic_time / one_core
+        );
+        println!(
+            "same optimum (SSE within 1e-10 relative): {same}/{count}; two-parameter solver lower in {lower}, higher in {higher}; largest difference {worst:.1e} (sample {worst_at}: {:?} vs {:?})",
+            ours[worst_at].as_ref().map(|r| (r.sse, r.values())),
+            slow[worst_at].as_ref().map(|r| (r.sse, r.values()))
+        );
+    }
     if std::env::args().any(|a| a == "--one-core") {
         summary(&ours, count, one_core);
         return;

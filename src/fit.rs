@@ -11,6 +11,7 @@ pub mod design;
 mod driver;
 mod error;
 pub mod joint;
+mod lm2;
 mod models;
 pub mod outliers;
 pub mod pooling;

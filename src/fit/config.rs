@@ -26,6 +26,7 @@ pub struct FitOptions {
     pub(crate) patience: usize,
     pub(crate) max_extra_starts: usize,
     pub(crate) step_bound: f64,
+    pub(crate) reference_solver: bool,
 }
 
 impl Default for FitOptions {
@@ -40,6 +41,7 @@ impl Default for FitOptions {
             patience: 100,
             max_extra_starts: 6,
             step_bound: 100.0,
+            reference_solver: false,
         }
     }
 }
@@ -48,6 +50,14 @@ impl FitOptions {
     /// Defaults: nothing fixed, the model's bounds, suction domain, tolerances 1e-10.
     pub fn new() -> Self {
         Self::default()
+    }
+
+    /// Run the generic solver (the `levenberg-marquardt` crate) for every problem, also where
+    /// the two-parameter solver would run: the reference that solver is tested against.
+    #[must_use]
+    pub fn with_reference_solver(mut self, yes: bool) -> Self {
+        self.reference_solver = yes;
+        self
     }
 
     /// Fix a parameter to a value (it leaves the vector the solver moves).

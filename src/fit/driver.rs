@@ -11,6 +11,7 @@ use nalgebra::{DMatrix, DVector};
 
 use super::config::{Domain, FitOptions};
 use super::error::FitError;
+use super::lm2;
 use super::problem::{Data, Problem};
 use super::projection::{self, Kernel, Linear};
 use super::report::{FitReport, ParamEstimate, ParamMatrix, ReadingFit, Termination};
@@ -252,6 +253,8 @@ struct Context<'a> {
     loose: bool,
     /// Polishing a rough solution: starts are taken as they are, even next to a bound.
     resume: bool,
+    /// The two-parameter solver's settings for the current run (`None`: generic solver).
+    fast: Option<lm2::Settings>,
 }
 
 /// A finished solution: full physical parameters and how it was reached.
@@ -366,16 +369,24 @@ impl Context<'_> {
         } else {
             (self.options.tolerance, self.options.patience)
         };
+        let stepbound = if self.loose || self.resume {
+            SCREENED_STEP_BOUND.min(self.options.step_bound)
+        } else {
+            self.options.step_bound
+        };
         let lm = LevenbergMarquardt::new()
             .with_ftol(tol)
             .with_xtol(tol)
             .with_gtol(tol)
             .with_patience(patience)
-            .with_stepbound(if self.loose || self.resume {
-                SCREENED_STEP_BOUND.min(self.options.step_bound)
-            } else {
-                self.options.step_bound
-            });
+            .with_stepbound(stepbound);
+        self.fast = (!self.options.reference_solver).then_some(lm2::Settings {
+            ftol: tol,
+            xtol: tol,
+            gtol: tol,
+            stepbound,
+            patience,
+        });
         if let Some(run) = self.run_projected(&lm, &full, &free, &transforms, hold, lo, hi, watch) {
             return run;
         }
@@ -466,6 +477,7 @@ impl Context<'_> {
                 full: full.to_vec(),
                 q0: &q0,
                 watch,
+                fast: self.fast,
             },
             lm,
         );
@@ -905,6 +917,7 @@ pub(crate) fn fit_curve_with(
         found_count: 0,
         loose: false,
         resume: false,
+        fast: None,
     };
     let sst = total_sum_of_squares(&data);
     let np = setup.lower.len();

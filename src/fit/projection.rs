@@ -580,6 +580,9 @@ pub(crate) struct Spec<'a> {
     /// Unbounded start of each shape parameter.
     pub q0: &'a [f64],
     pub watch: bool,
+    /// Settings of the two-parameter solver ([`super::lm2`]), used for the van Genuchten
+    /// kernel with two shape parameters; `None` runs the generic solver always.
+    pub fast: Option<super::lm2::Settings>,
 }
 
 /// A projected run's outcome.
@@ -607,6 +610,13 @@ pub(crate) fn minimize(spec: Spec<'_>, lm: &LevenbergMarquardt<f64>) -> Outcome 
             (1, 0..=8) => return run(spec, lm, r8, Const::<1>),
             (1, 9..=12) => return run(spec, lm, r12, Const::<1>),
             (1, _) => return run(spec, lm, r16, Const::<1>),
+            (2, _) if spec.fast.is_some() && spec.kernel == Some(Kernel::VanGenuchten) => {
+                return match m {
+                    0..=8 => run_two(spec, r8),
+                    9..=12 => run_two(spec, r12),
+                    _ => run_two(spec, r16),
+                };
+            }
             (2, 0..=8) => return run(spec, lm, r8, Const::<2>),
             (2, 9..=12) => return run(spec, lm, r12, Const::<2>),
             (2, _) => return run(spec, lm, r16, Const::<2>),
@@ -618,6 +628,40 @@ pub(crate) fn minimize(spec: Spec<'_>, lm: &LevenbergMarquardt<f64>) -> Outcome 
     }
     let (m, k) = (spec.data.x.len(), spec.shape.len());
     run(spec, lm, Dyn(m), Dyn(k))
+}
+
+/// A two-parameter projected problem through [`super::lm2`].
+fn run_two<M>(spec: Spec<'_>, rows: M) -> Outcome
+where
+    M: Dim,
+    DefaultAllocator: Allocator<M> + Allocator<Const<2>> + Allocator<M, Const<2>>,
+{
+    let settings = spec.fast.unwrap_or(super::lm2::Settings {
+        ftol: 1e-10,
+        xtol: 1e-10,
+        gtol: 1e-10,
+        stepbound: 100.0,
+        patience: 100,
+    });
+    let q0 = OVector::<f64, Const<2>>::from_iterator(spec.q0.iter().copied());
+    let problem = Projected::<M, Const<2>>::new(
+        spec.model,
+        spec.data,
+        rows,
+        spec.shape,
+        spec.transforms,
+        spec.linear,
+        spec.kernel,
+        spec.full,
+        q0,
+        spec.watch,
+    );
+    let (problem, report) = super::lm2::minimize(&settings, problem);
+    Outcome {
+        solution: problem.solution(),
+        saturated: problem.saturated(),
+        report,
+    }
 }
 
 fn run<M, N>(spec: Spec<'_>, lm: &LevenbergMarquardt<f64>, rows: M, cols: N) -> Outcome
