@@ -442,7 +442,7 @@ fn damped_solve(f: &Factor, e: [f64; 2]) -> (f64, f64, f64, [f64; 2]) {
     if e[1] != 0.0 {
         let (sin, cos) = givens(s11, e[1]);
         s11 = cos * s11 + sin * e[1];
-        rhs[1] = cos * rhs[1];
+        rhs[1] *= cos;
     }
     // Back substitution over the leading nonzero pivots.
     let p = if s00 == 0.0 {
