@@ -18,6 +18,10 @@
 //! Parameters are drawn around the Carsel & Parrish (1988) class means (Water Resour. Res.
 //! 24(5), values from memory, high confidence); noise sd 0.005-0.01 m3/m3. Seeded (ChaCha8).
 
+/// The program's allocator (src/main.rs), so the bench times fits as the program runs them.
+#[global_allocator]
+static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 use std::io::Write;
 use std::time::Instant;
 
