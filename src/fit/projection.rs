@@ -246,8 +246,18 @@ where
 
     /// Residuals, Jacobian and linear parameters at q; `None` where the model is not finite or
     /// the linear parameters are not separable.
-    #[allow(clippy::many_single_char_names)]
     fn evaluate(&self) -> Option<Evaluation<M, N>> {
+        // Unweighted readings (the common case) skip the products by 1: the same numbers.
+        if self.data.sqrt_w.is_some() {
+            self.evaluate_with::<true>()
+        } else {
+            self.evaluate_with::<false>()
+        }
+    }
+
+    /// [`Self::evaluate`] for weighted (`WEIGHTED`) or unweighted readings.
+    #[allow(clippy::many_single_char_names)]
+    fn evaluate_with<const WEIGHTED: bool>(&self) -> Option<Evaluation<M, N>> {
         let m = self.data.x.len();
         let k = self.shape.len();
         let mut guard = self.scratch.borrow_mut();
@@ -311,6 +321,7 @@ where
             solve_linear_mode(&self.linear, r_held, s_held, &self.weights, y, &g[..m])?;
         let d = s - r;
         let w = &self.weights.w[..m];
+        let w_at = |i: usize| if WEIGHTED { w[i] } else { 1.0 };
         let sum_w = self.weights.sum_w;
         // The free linear columns and their squared norm.
         let mean_g = if mode == Mode::Both {
@@ -319,7 +330,8 @@ where
             0.0
         };
         let mut basis_norm = 0.0;
-        for ((b, &gi), &wi) in basis.iter_mut().zip(&g[..m]).zip(w) {
+        for (i, (b, &gi)) in basis.iter_mut().zip(&g[..m]).enumerate() {
+            let wi = w_at(i);
             *b = match mode {
                 Mode::Both => gi - mean_g,
                 Mode::Upper => gi,
@@ -331,7 +343,10 @@ where
         if mode != Mode::Neither && (basis_norm.is_nan() || basis_norm <= DEGENERATE * sum_w) {
             return None;
         }
-        let sqrt_w = |i: usize| self.data.sqrt_w.map_or(1.0, |s| s[i]);
+        let sqrt_w = |i: usize| match self.data.sqrt_w {
+            Some(s) if WEIGHTED => s[i],
+            _ => 1.0,
+        };
         let rows = self.rows;
         let mut residuals = OVector::<f64, M>::zeros_generic(rows, U1);
         for i in 0..m {
@@ -354,9 +369,9 @@ where
             let (mut t, mut az, mut wz) = (0.0, 0.0, 0.0);
             for i in 0..m {
                 let z = d * col[i];
-                t += w[i] * col[i] * misfit[i];
-                az += w[i] * z * basis[i];
-                wz += w[i] * z;
+                t += w_at(i) * col[i] * misfit[i];
+                az += w_at(i) * z * basis[i];
+                wz += w_at(i) * z;
             }
             // v_i = z_i - shift - slope * basis_i.
             let (shift, slope) = match mode {
