@@ -120,7 +120,7 @@ fn a_good_file_is_stored_in_canonical_units_and_utc_with_flags() {
     let conn = s.connect();
     let record = |sensor: &str, line: i64| -> (String, f64) {
         conn.query_row(
-            "SELECT time, value FROM logger_record WHERE sensor_id = ?1 AND source_line = ?2",
+            "SELECT time, value FROM logger_view WHERE sensor_id = ?1 AND source_line = ?2",
             rusqlite::params![sensor, line],
             |r| Ok((r.get(0)?, r.get(1)?)),
         )
@@ -244,7 +244,7 @@ fn times_without_an_offset_need_one_for_the_file() {
         .success();
     let conn = s.connect();
     let times: Vec<String> = conn
-        .prepare("SELECT time FROM logger_record ORDER BY source_line")
+        .prepare("SELECT time FROM logger_view ORDER BY source_line")
         .expect("prepare")
         .query_map([], |r| r.get(0))
         .expect("query")
