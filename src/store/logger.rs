@@ -390,9 +390,9 @@ pub struct StoredSensor {
     pub depth_cm: f64,
     /// Its kind.
     pub sensor: SensorKind,
-    /// File of its latest record, for messages.
+    /// File of its latest record at that depth and of that kind, for messages.
     pub file_name: Option<String>,
-    /// Line of its latest record.
+    /// Line of that record.
     pub line: Option<u64>,
 }
 
@@ -406,12 +406,14 @@ pub fn stored_sensor(
     sensor_id: &str,
 ) -> Result<Option<StoredSensor>> {
     let mut stmt = conn.prepare_cached(
-        "SELECT s.id, s.depth_cm, s.sensor,
-                (SELECT b.file_name FROM logger_record r
-                 LEFT JOIN import_batch b ON b.id = r.batch_id WHERE r.logger_sensor_id = s.id ORDER BY r.time_s DESC LIMIT 1),
-                (SELECT r.source_line FROM logger_record r
-                 WHERE r.logger_sensor_id = s.id ORDER BY r.time_s DESC LIMIT 1)
-         FROM logger_sensor s WHERE s.site_id = ?1 AND s.sensor_id = ?2",
+        "SELECT s.id, s.depth_cm, s.sensor, b.file_name, r.source_line
+         FROM logger_sensor s
+         LEFT JOIN logger_record r ON r.id = (
+             SELECT x.id FROM logger_record x
+             WHERE x.logger_sensor_id = s.id AND x.depth_cm IS NULL AND x.sensor IS NULL
+             ORDER BY x.time_s DESC LIMIT 1)
+         LEFT JOIN import_batch b ON b.id = r.batch_id
+         WHERE s.site_id = ?1 AND s.sensor_id = ?2",
     )?;
     Ok(stmt
         .query_row(params![site_id, sensor_id], |row| {
