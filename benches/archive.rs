@@ -366,9 +366,8 @@ fn main() {
         &db,
         "generated",
         "UPDATE site SET name = name || ' (edited)' WHERE code = 'G001';
-         INSERT INTO logger_record (site_id, depth_cm, sensor, sensor_id, time, value)
-         SELECT site_id, depth_cm, sensor, sensor_id,
-                strftime('%Y-%m-%dT%H:%M:%SZ', julianday(time) + 400), value
+         INSERT INTO logger_record (logger_sensor_id, time_s, value)
+         SELECT logger_sensor_id, time_s + 400 * 86400, value
          FROM logger_record WHERE id <= 1000;",
     );
 }

@@ -1,12 +1,18 @@
 //! Logger import speed and memory: a generated file of 2,000,000 logger records through the
 //! real binary (`porewise import logger`: hashing, streaming, validation, quality marks,
-//! writes in one transaction), beside the `sqlite3` program's own `.import` of the same CSV
-//! into a table with the same key (site, sensor_id, time), in the same run.
+//! writes in one transaction), beside the `sqlite3` program's own `.import` of the same CSV,
+//! in the same run, into two tables with the campaign file's pragmas (WAL, synchronous FULL,
+//! 32 MiB page cache):
 //!
-//! Run with `cargo bench --bench logger`. Prints rows per second of both, their ratio
-//! (target: porewise at least the sqlite3 rate) and the peak memory of each process (VmHWM,
-//! from `/usr/bin/time -v`; target: under 100 MB whatever the file size, shown by a second
-//! file twice as large). Figures, not assertions: a shared 2-core machine is noisy.
+//! - keyed: the CSV's columns in a table keyed `PRIMARY KEY (sensor_id, time) WITHOUT ROWID`
+//!   (the baseline the target is set against: porewise at least 1.5 times its rows/s);
+//! - unique: the CSV's columns in a rowid table with `UNIQUE (site, sensor_id, time)` (the key
+//!   porewise's table had before schema version 11).
+//!
+//! Run with `cargo bench --bench logger`. Prints rows per second of each, porewise's ratio to
+//! each (by wall and by CPU time) and the peak memory of each process (VmHWM, from
+//! `/usr/bin/time -v`; target: under 100 MB whatever the file size, shown by a second file
+//! twice as large). Figures, not assertions: a shared 2-core machine is noisy.
 
 use std::fmt::Write as _;
 use std::io::{BufWriter, Write};
@@ -142,22 +148,61 @@ fn porewise_import(dir: &Path, file: &Path, name: &str, extra: &[&str]) -> Cost 
     measure(&cmd, None)
 }
 
-/// The same CSV into a table with the same key, by the sqlite3 program's `.import`, with the
-/// campaign file's pragmas (WAL, synchronous FULL, 32 MiB page cache).
-fn sqlite3_import(dir: &Path, file: &Path, name: &str) -> Cost {
+/// The table the sqlite3 program imports into.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Baseline {
+    /// `PRIMARY KEY (sensor_id, time) WITHOUT ROWID`.
+    Keyed,
+    /// A rowid table with `UNIQUE (site, sensor_id, time)`.
+    Unique,
+}
+
+impl Baseline {
+    fn table(self) -> &'static str {
+        match self {
+            Baseline::Keyed => {
+                "CREATE TABLE logger (site TEXT NOT NULL, depth_cm REAL NOT NULL, \
+                 sensor TEXT NOT NULL, sensor_id TEXT NOT NULL, time TEXT NOT NULL, \
+                 value REAL NOT NULL, unit TEXT NOT NULL, \
+                 PRIMARY KEY (sensor_id, time)) WITHOUT ROWID;"
+            }
+            Baseline::Unique => {
+                "CREATE TABLE logger (site TEXT NOT NULL, depth_cm REAL NOT NULL, \
+                 sensor TEXT NOT NULL, sensor_id TEXT NOT NULL, time TEXT NOT NULL, \
+                 value REAL NOT NULL, unit TEXT NOT NULL, \
+                 UNIQUE (site, sensor_id, time)) STRICT;"
+            }
+        }
+    }
+
+    fn label(self) -> &'static str {
+        match self {
+            Baseline::Keyed => "sqlite3 .import, keyed:",
+            Baseline::Unique => "sqlite3 .import, unique:",
+        }
+    }
+}
+
+/// The same CSV by the sqlite3 program's `.import`, with the campaign file's pragmas (WAL,
+/// synchronous FULL, 32 MiB page cache).
+fn sqlite3_import(dir: &Path, file: &Path, name: &str, baseline: Baseline) -> Cost {
     let db = dir.join(format!("{name}.sqlite"));
     let script = format!(
         "PRAGMA journal_mode = WAL;\nPRAGMA synchronous = FULL;\nPRAGMA cache_size = -32768;\n\
-         CREATE TABLE logger (site TEXT NOT NULL, depth_cm REAL NOT NULL, sensor TEXT NOT NULL,\n\
-             sensor_id TEXT NOT NULL, time TEXT NOT NULL, value REAL NOT NULL, unit TEXT NOT NULL,\n\
-             UNIQUE (site, sensor_id, time)) STRICT;\n\
-         .import --csv --skip 1 {} logger\n\
-         SELECT count(*) FROM logger;\n",
+         {}\n.import --csv --skip 1 {} logger\nSELECT count(*) FROM logger;\n",
+        baseline.table(),
         file.display()
     );
     let mut cmd = Command::new("/usr/bin/sqlite3");
     cmd.arg(&db);
     measure(&cmd, Some(&script))
+}
+
+/// Remove a database and its WAL files.
+fn remove_db(dir: &Path, name: &str) {
+    for suffix in ["", "-wal", "-shm"] {
+        let _ = std::fs::remove_file(dir.join(format!("{name}.sqlite{suffix}")));
+    }
 }
 
 fn median(mut v: Vec<Duration>) -> Duration {
@@ -181,22 +226,31 @@ fn main() {
         sensors(),
         bytes as f64 / 1e6
     );
-    let (mut ours, mut theirs) = (Vec::new(), Vec::new());
+    let (mut ours, mut keyed, mut unique) = (Vec::new(), Vec::new(), Vec::new());
     for round in 0..ROUNDS {
-        theirs.push(sqlite3_import(
-            dir.path(),
-            &file,
-            &format!("sqlite3-{round}"),
-        ));
-        ours.push(porewise_import(
-            dir.path(),
-            &file,
-            &format!("porewise-{round}"),
-            &[],
-        ));
-        for name in [format!("sqlite3-{round}"), format!("porewise-{round}")] {
-            for suffix in ["", "-wal", "-shm"] {
-                let _ = std::fs::remove_file(dir.path().join(format!("{name}.sqlite{suffix}")));
+        // Each round in another order, so no command always runs on a warmer machine.
+        let order: [usize; 3] = match round % 3 {
+            0 => [0, 1, 2],
+            1 => [1, 2, 0],
+            _ => [2, 0, 1],
+        };
+        for which in order {
+            match which {
+                0 => {
+                    let name = format!("porewise-{round}");
+                    ours.push(porewise_import(dir.path(), &file, &name, &[]));
+                    remove_db(dir.path(), &name);
+                }
+                1 => {
+                    let name = format!("keyed-{round}");
+                    keyed.push(sqlite3_import(dir.path(), &file, &name, Baseline::Keyed));
+                    remove_db(dir.path(), &name);
+                }
+                _ => {
+                    let name = format!("unique-{round}");
+                    unique.push(sqlite3_import(dir.path(), &file, &name, Baseline::Unique));
+                    remove_db(dir.path(), &name);
+                }
             }
         }
     }
@@ -206,7 +260,7 @@ fn main() {
         let cpu = median(runs.iter().map(|c| c.cpu).collect());
         let peak = runs.iter().map(|c| c.peak_kb).max().unwrap_or(0);
         println!(
-            "{name:<24} median wall {:.2} s = {:.0} rows/s (best {:.0}); median CPU {:.2} s = \
+            "{name:<26} median wall {:.2} s = {:.0} rows/s (best {:.0}); median CPU {:.2} s = \
              {:.0} rows per CPU-second; peak memory {:.1} MB",
             wall.as_secs_f64(),
             rate(wall),
@@ -218,15 +272,26 @@ fn main() {
         (wall, cpu)
     };
     let (ow, oc) = report("porewise import logger:", &ours);
-    let (tw, tc) = report("sqlite3 .import:", &theirs);
-    println!(
-        "ratio porewise / sqlite3: {:.2} by wall time, {:.2} by CPU time (target >= 1.00)",
-        tw.as_secs_f64() / ow.as_secs_f64(),
-        tc.as_secs_f64() / oc.as_secs_f64()
-    );
+    for (baseline, runs, target) in [
+        (Baseline::Keyed, &keyed, 1.5),
+        (Baseline::Unique, &unique, 1.0),
+    ] {
+        let (tw, tc) = report(baseline.label(), runs);
+        println!(
+            "  ratio porewise / sqlite3 {}: {:.2} by wall time, {:.2} by CPU time \
+             (target >= {target:.2} by wall time)",
+            match baseline {
+                Baseline::Keyed => "keyed (sensor_id, time) WITHOUT ROWID",
+                Baseline::Unique => "rowid + UNIQUE (site, sensor_id, time)",
+            },
+            tw.as_secs_f64() / ow.as_secs_f64(),
+            tc.as_secs_f64() / oc.as_secs_f64()
+        );
+    }
     let dry = porewise_import(dir.path(), &file, "dry-run", &["--dry-run"]);
+    remove_db(dir.path(), "dry-run");
     println!(
-        "porewise --dry-run:      wall {:.2} s = {:.0} rows/s; peak memory {:.1} MB",
+        "porewise --dry-run:        wall {:.2} s = {:.0} rows/s; peak memory {:.1} MB",
         dry.wall.as_secs_f64(),
         rate(dry.wall),
         dry.peak_kb as f64 / 1024.0
@@ -237,11 +302,13 @@ fn main() {
     let _ = std::fs::remove_file(&file);
     let mb = std::fs::metadata(&big).map_or(0, |x| x.len()) as f64 / 1e6;
     let o = porewise_import(dir.path(), &big, "porewise-4m", &[]);
-    let t = sqlite3_import(dir.path(), &big, "sqlite3-4m");
+    remove_db(dir.path(), "porewise-4m");
+    let t = sqlite3_import(dir.path(), &big, "keyed-4m", Baseline::Keyed);
+    remove_db(dir.path(), "keyed-4m");
     let big_rate = |d: Duration| big_rows as f64 / d.as_secs_f64();
     println!(
         "{big_rows} records ({mb:.1} MB): porewise {:.0} rows/s (CPU {:.0}), peak memory {:.1} MB; \
-         sqlite3 {:.0} rows/s (CPU {:.0}), peak memory {:.1} MB",
+         sqlite3 keyed {:.0} rows/s (CPU {:.0}), peak memory {:.1} MB",
         big_rate(o.wall),
         big_rate(o.cpu),
         o.peak_kb as f64 / 1024.0,

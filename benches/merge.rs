@@ -106,8 +106,9 @@ fn generate(path: &Path, records: usize) {
         }
         let mut record = tx
             .prepare(
-                "INSERT INTO logger_record (site_id, depth_cm, sensor, sensor_id, time, value) \
-                 VALUES (?1, ?2, ?3, ?4, ?5, ?6)",
+                "INSERT INTO logger_record (logger_sensor_id, time_s, value) \
+                 VALUES ((SELECT id FROM logger_sensor WHERE site_id = ?1 AND sensor_id = ?4), \
+                         unixepoch(?5), ?6)",
             )
             .expect("prepare");
         let per_sensor = records.div_ceil(SITES * SENSORS);
@@ -118,6 +119,21 @@ fn generate(path: &Path, records: usize) {
                 let tensiometer = k % 2 == 0;
                 let depth = [15.0, 30.0, 60.0, 90.0][k / 2];
                 let sensor_id = format!("{}{}", if tensiometer { "T" } else { "W" }, depth);
+                tx.execute(
+                    "INSERT INTO logger_sensor (site_id, sensor_id, depth_cm, sensor) \
+                     VALUES (?1, ?2, ?3, ?4)",
+                    params![
+                        1 + s as i64,
+                        sensor_id,
+                        depth,
+                        if tensiometer {
+                            "tensiometer"
+                        } else {
+                            "water_content"
+                        }
+                    ],
+                )
+                .expect("sensor");
                 for step in 0..per_sensor {
                     if written == records {
                         break 'all;
@@ -257,9 +273,8 @@ fn main() {
         let conn = Connection::open(&big_b).expect("open");
         conn.execute_batch(&format!(
             "BEGIN;
-             INSERT INTO logger_record (site_id, depth_cm, sensor, sensor_id, time, value)
-               SELECT site_id, depth_cm, sensor, sensor_id,
-                      strftime('%Y-%m-%dT%H:%M:%SZ', time, '+{} days'), value
+             INSERT INTO logger_record (logger_sensor_id, time_s, value)
+               SELECT logger_sensor_id, time_s + {} * 86400, value
                FROM logger_record WHERE id % 10 = 0;
              UPDATE reading SET theta = theta * 0.99 WHERE id % 80 = 1;
              COMMIT;",

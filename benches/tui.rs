@@ -137,10 +137,16 @@ fn build(path: &Path) -> Duration {
             }
         }
         drop((site_stmt, layer_stmt, sample_stmt, reading_stmt));
+        tx.execute_batch(
+            "INSERT INTO logger_sensor (site_id, sensor_id, depth_cm, sensor)
+             VALUES (1, 'T10', 10, 'tensiometer'), (1, 'W10', 10, 'water_content');",
+        )
+        .expect("sensors");
         let mut record_stmt = tx
             .prepare(
-                "INSERT INTO logger_record (site_id, depth_cm, sensor, sensor_id, time, value)
-                 VALUES (1, 10, ?1, ?2, ?3, ?4)",
+                "INSERT INTO logger_record (logger_sensor_id, time_s, value)
+                 VALUES ((SELECT id FROM logger_sensor WHERE site_id = 1 AND sensor = ?1
+                          AND sensor_id = ?2), unixepoch(?3), ?4)",
             )
             .expect("prepare");
         let start = 1_767_225_600; // 2026-01-01T00:00:00Z

@@ -298,12 +298,12 @@ fn concurrent_pushes_of_edited_copies_lose_nothing() {
     // existing sensor; all of them start pushing at once, the first push of the campaign
     // among them (so two may try to create it).
     let copies = 6;
-    let (site_id, sensor, depth, kind): (i64, String, f64, String) = Connection::open(&db)
+    let sensor: i64 = Connection::open(&db)
         .expect("open")
         .query_row(
-            "SELECT site_id, sensor_id, depth_cm, sensor FROM logger_record LIMIT 1",
+            "SELECT logger_sensor_id FROM logger_record LIMIT 1",
             [],
-            |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)),
+            |r| r.get(0),
         )
         .expect("a sensor");
     let mut files = Vec::new();
@@ -321,12 +321,9 @@ fn concurrent_pushes_of_edited_copies_lose_nothing() {
         .expect("site");
         for k in 0..50 {
             conn.execute(
-                "INSERT INTO logger_record (site_id, depth_cm, sensor, sensor_id, time, value)
-                 VALUES (?1, ?2, ?3, ?4, ?5, 0.25)",
+                "INSERT INTO logger_record (logger_sensor_id, time_s, value)
+                 VALUES (?1, unixepoch(?2), 0.25)",
                 rusqlite::params![
-                    site_id,
-                    depth,
-                    kind,
                     sensor,
                     format!("2031-{:02}-{:02}T{:02}:00:00Z", i + 1, k % 28 + 1, k / 28)
                 ],

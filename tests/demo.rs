@@ -111,7 +111,7 @@ fn demo_builds_from_scratch_and_a_second_run_reuses_it() {
     // dry spell past the shallow tensiometer's working range.
     let marks = |prefix: &str, sensor: &str| {
         one(&format!(
-            "SELECT count(*) FROM flag f JOIN logger_record g ON g.id = f.logger_record_id
+            "SELECT count(*) FROM flag f JOIN logger_view g ON g.id = f.logger_record_id
              WHERE f.status = 'suggested' AND f.reason LIKE '{prefix}%' AND g.sensor_id = '{sensor}'"
         ))
     };

@@ -182,3 +182,100 @@ fn apply_refuses_a_plan_with_an_unresolved_conflict_and_writes_nothing() {
         exchange::fingerprint(&mine)
     );
 }
+
+#[test]
+fn a_merge_that_gives_a_sensor_a_second_depth_keeps_each_records_own() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    let other = dir.path().join("other.sqlite");
+    std::fs::copy(&db, &other).expect("copy");
+    // The other copy logged one of its sensors a day longer, reinstalled 5 cm deeper.
+    let (sensor, depth): (String, f64) = Connection::open(&other)
+        .expect("open")
+        .query_row(
+            "SELECT sensor_id, depth_cm FROM logger_sensor ORDER BY id LIMIT 1",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .expect("a sensor");
+    Connection::open(&other)
+        .expect("open")
+        .execute_batch(&format!(
+            "INSERT INTO logger_record (logger_sensor_id, time_s, value, depth_cm)
+             SELECT k.id, (SELECT max(time_s) FROM logger_record WHERE logger_sensor_id = k.id)
+                          + 3600 * n.n, 0.25, k.depth_cm + 5
+             FROM logger_sensor k, (SELECT 1 AS n UNION ALL SELECT 2 UNION ALL SELECT 3) n
+             WHERE k.sensor_id = '{sensor}';"
+        ))
+        .expect("edit");
+    let mut campaign = porewise::store::Campaign::open(&db).expect("open");
+    let mine = exchange::read(campaign.connection()).expect("read");
+    let theirs = exchange::read(&Connection::open(&other).expect("open")).expect("read");
+    let series = theirs
+        .logger
+        .iter()
+        .find(|s| s.sensor_id == sensor)
+        .expect("the series");
+    let deeper = series
+        .points
+        .iter()
+        .filter(|p| (p.depth_cm - depth - 5.0).abs() < 1e-9)
+        .count();
+    assert_eq!(deeper, 3, "the copy reads its records' own depth");
+    let plan = exchange::plan(&mine, &theirs, &exchange::Preferences::default());
+    assert!(plan.is_clean(), "{}", plan.render());
+    let tx = campaign.transaction().expect("tx");
+    exchange::apply(&tx, &plan).expect("apply");
+    tx.commit().expect("commit");
+    let merged = exchange::read(campaign.connection()).expect("read merged");
+    assert_eq!(
+        exchange::fingerprint(&merged),
+        exchange::fingerprint(&plan.merged(&mine))
+    );
+    assert_eq!(
+        exchange::fingerprint(&merged),
+        exchange::fingerprint(&theirs)
+    );
+    // Into an empty file, the sensor is made with its latest depth; the earlier records keep
+    // theirs.
+    let target = dir.path().join("copy.sqlite");
+    let mut copy =
+        porewise::store::Campaign::create(&target, "placeholder", 33.0, 1500.0).expect("create");
+    let tx = copy.transaction().expect("tx");
+    exchange::apply(&tx, &exchange::recreate(&theirs)).expect("apply");
+    tx.commit().expect("commit");
+    let conn = copy.connection();
+    let (made, own): (f64, i64) = conn
+        .query_row(
+            "SELECT k.depth_cm, (SELECT count(*) FROM logger_record r
+                                 WHERE r.logger_sensor_id = k.id AND r.depth_cm IS NOT NULL)
+             FROM logger_sensor k WHERE k.sensor_id = ?1",
+            [&sensor],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .expect("sensor");
+    assert!((made - depth - 5.0).abs() < 1e-9, "{made}");
+    assert_eq!(own as usize, series.points.len() - 3);
+    assert_eq!(
+        exchange::fingerprint(&exchange::read(conn).expect("read")),
+        exchange::fingerprint(&theirs)
+    );
+}
+
+#[test]
+fn apply_refuses_a_logger_time_not_in_the_stored_form() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    let mut theirs = exchange::read(&Connection::open(&db).expect("open")).expect("read");
+    theirs.logger[0].points[0].time = "2026-05-01 10:00:00".into();
+    let target = dir.path().join("copy.sqlite");
+    let mut copy =
+        porewise::store::Campaign::create(&target, "placeholder", 33.0, 1500.0).expect("create");
+    let tx = copy.transaction().expect("tx");
+    let err = exchange::apply(&tx, &exchange::recreate(&theirs)).expect_err("refused");
+    assert!(
+        err.to_string()
+            .contains("at \"2026-05-01 10:00:00\": expected a time as YYYY-MM-DDTHH:MM:SSZ"),
+        "{err}"
+    );
+}

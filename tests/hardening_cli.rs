@@ -578,10 +578,14 @@ fn downgrade(db: &std::path::Path, version: usize) {
             .collect::<Result<_, _>>()
             .expect("columns");
         let list = columns.join(", ");
+        // Logger records before version 11 had the columns the view of version 11 shows.
+        let from = if table == "logger_record" && version < 11 {
+            "cur.logger_view ORDER BY id".to_string()
+        } else {
+            format!("cur.{table} ORDER BY rowid")
+        };
         conn.execute(
-            &format!(
-                "INSERT INTO main.{table} ({list}) SELECT {list} FROM cur.{table} ORDER BY rowid"
-            ),
+            &format!("INSERT INTO main.{table} ({list}) SELECT {list} FROM {from}"),
             [],
         )
         .expect("copy");

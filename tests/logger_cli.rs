@@ -120,7 +120,7 @@ fn a_good_file_is_stored_in_canonical_units_and_utc_with_flags() {
     let conn = s.connect();
     let record = |sensor: &str, line: i64| -> (String, f64) {
         conn.query_row(
-            "SELECT time, value FROM logger_record WHERE sensor_id = ?1 AND source_line = ?2",
+            "SELECT time, value FROM logger_view WHERE sensor_id = ?1 AND source_line = ?2",
             rusqlite::params![sensor, line],
             |r| Ok((r.get(0)?, r.get(1)?)),
         )
@@ -244,7 +244,7 @@ fn times_without_an_offset_need_one_for_the_file() {
         .success();
     let conn = s.connect();
     let times: Vec<String> = conn
-        .prepare("SELECT time FROM logger_record ORDER BY source_line")
+        .prepare("SELECT time FROM logger_view ORDER BY source_line")
         .expect("prepare")
         .query_map([], |r| r.get(0))
         .expect("query")
@@ -413,4 +413,137 @@ fn at_most_fifty_problems_are_listed() {
     assert!(err.contains("... and 20 more problems not listed"), "{err}");
     assert!(err.contains("70 problems found; nothing was written"));
     assert_eq!(s.count("logger_record"), 0);
+}
+
+/// A long-form file of `sensors` water-content sensors at site LV, one record each every
+/// hour from hour `from` to `to` (exclusive), rows interleaved by time as a logger network
+/// exports them; values step with the hour and sensor (plus `bump` from hour `bump_from`).
+fn season(sensors: usize, from: usize, to: usize, bump: f64, bump_from: usize) -> String {
+    let mut text = String::from("site,depth_cm,sensor,sensor_id,time,value,unit\n");
+    let start = chrono::DateTime::from_timestamp(1_777_593_600, 0).expect("2026-05-01");
+    for hour in from..to {
+        let t = (start + chrono::Duration::hours(hour as i64)).format("%Y-%m-%dT%H:%M:%SZ");
+        for k in 0..sensors {
+            let mut v = 20.0 + ((hour * 7 + k * 3) % 40) as f64 * 0.25;
+            if hour >= bump_from {
+                v += bump;
+            }
+            writeln!(text, "LV,{},water_content,W{k:02},{t},{v},%", 10 * (k + 1)).expect("write");
+        }
+    }
+    text
+}
+
+#[test]
+fn repeats_in_a_large_file_are_found_and_skipped_as_in_a_small_one() {
+    // Many insert statements' worth of rows: the import writes them in chunks and goes one
+    // by one around repeats; ids, counts and messages must not show it.
+    let s = Scratch::new();
+    let a = s.write("a.csv", &season(20, 0, 100, 0.0, 0));
+    s.import_ok("logger", &[&a]);
+    let conn = s.connect();
+    let off: i64 = conn
+        .query_row(
+            "SELECT count(*) FROM logger_record WHERE id <> source_line - 1",
+            [],
+            |r| r.get(0),
+        )
+        .expect("ids");
+    assert_eq!(off, 0, "records take their ids in the file's order");
+    // Hours 50-149: the first 50 hours repeat stored records, 100 of them (hour 95 on) with
+    // another value.
+    let b = s.write("b.csv", &season(20, 50, 150, 0.5, 95));
+    let refused = s.import("logger", &[&b], &[]).code(1);
+    let err = stderr(&refused);
+    assert!(
+        err.contains("1000 problems found; nothing was written"),
+        "{err}"
+    );
+    let first = format!(
+        "{b}:2:time: found a second record of sensor \"W00\" at site \"LV\" for \
+         2026-05-03T02:00:00Z, which the campaign already holds (from {a}:1002); expected \
+         one record per sensor and time"
+    );
+    assert!(err.starts_with(&format!("error: {first}")), "{err}");
+    assert_eq!(
+        err.lines()
+            .filter(|l| l.contains(":time: found a second"))
+            .count(),
+        50
+    );
+    assert_eq!(s.count("logger_record"), 2000);
+    let out = stdout(&s.import("logger", &[&b], &["--skip-duplicates"]).success());
+    assert!(
+        out.contains("added 1000 logger records (0 tensiometer, 1000 water content)"),
+        "{out}"
+    );
+    assert!(
+        out.contains("skipped 1000 duplicates (100 with a different value)"),
+        "{out}"
+    );
+    // The new records follow on without a gap, in the file's order.
+    let (lowest, highest, out_of_order): (i64, i64, i64) = conn
+        .query_row(
+            "SELECT min(id), max(id), sum(id - 2000 <> source_line - 1001) FROM logger_record
+             WHERE batch_id = (SELECT max(id) FROM import_batch)",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
+        )
+        .expect("new ids");
+    assert_eq!((lowest, highest, out_of_order), (2001, 3000, 0));
+}
+
+#[cfg(unix)]
+#[test]
+fn kill_nine_during_an_import_leaves_the_campaign_as_it_was_or_whole() {
+    let s = Scratch::new();
+    let first = s.write("first.csv", &season(10, 0, 10, 0.0, 0));
+    s.import_ok("logger", &[&first]);
+    let big = s.write("big.csv", &season(40, 10, 3010, 0.0, 0));
+    let template = s.dir.path().join("template.sqlite");
+    std::fs::copy(&s.db, &template).expect("copy");
+    let before = s.counts();
+    let started = std::time::Instant::now();
+    s.import_ok("logger", &[&big]);
+    let whole = started.elapsed();
+    let after = s.counts();
+    assert_ne!(before, after);
+    let note = porewise::store::holder::note_path(&s.db);
+    let (mut killed, mut in_write) = (0, 0);
+    for fraction in [0.1, 0.3, 0.5, 0.7, 0.85, 0.95] {
+        for ext in ["", "-wal", "-shm", "-writer"] {
+            let _ = std::fs::remove_file(format!("{}{ext}", s.db.display()));
+        }
+        std::fs::copy(&template, &s.db).expect("fresh copy");
+        let mut child = common::porewise_std()
+            .args(["import", "logger"])
+            .arg(&s.db)
+            .arg(&big)
+            .stdout(std::process::Stdio::null())
+            .stderr(std::process::Stdio::null())
+            .spawn()
+            .expect("spawn");
+        std::thread::sleep(whole.mul_f64(fraction));
+        if child.try_wait().expect("wait").is_none() {
+            child.kill().expect("kill -9");
+            killed += 1;
+        }
+        child.wait().expect("reaped");
+        let writing = note.exists();
+        let integrity: String = s
+            .connect()
+            .query_row("PRAGMA integrity_check", [], |r| r.get(0))
+            .expect("integrity");
+        assert_eq!(integrity, "ok");
+        let now = s.counts();
+        assert!(
+            now == before || now == after,
+            "a killed import left the campaign half-written: {now:?}"
+        );
+        in_write += usize::from(writing && now == before);
+    }
+    assert!(
+        in_write > 0,
+        "no run was stopped inside the write ({killed} killed, {whole:?})"
+    );
 }

@@ -57,7 +57,7 @@ fn long_text(rows: &[(String, f64, f64, Option<f64>)]) -> String {
 fn stored(s: &Scratch) -> (Vec<(String, String, f64)>, Vec<String>) {
     let conn = s.connect();
     let mut stmt = conn
-        .prepare("SELECT sensor_id, time, value FROM logger_record ORDER BY sensor_id, time")
+        .prepare("SELECT sensor_id, time, value FROM logger_view ORDER BY sensor_id, time")
         .expect("prepare");
     let records = stmt
         .query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))
@@ -67,7 +67,7 @@ fn stored(s: &Scratch) -> (Vec<(String, String, f64)>, Vec<String>) {
     let mut stmt = conn
         .prepare(
             "SELECT l.sensor_id || ' ' || l.time || ' ' || f.reason FROM flag f \
-             JOIN logger_record l ON l.id = f.logger_record_id ORDER BY 1",
+             JOIN logger_view l ON l.id = f.logger_record_id ORDER BY 1",
         )
         .expect("prepare");
     let flags = stmt

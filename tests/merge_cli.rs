@@ -304,7 +304,7 @@ fn every_kind_of_conflict_is_listed_exactly_and_nothing_is_written() {
     let flag_reason = uid("SELECT reason FROM flag WHERE id = 1");
     let flag_target = uid(
         "SELECT s.code || '/' || l.sensor_id || ' at ' || l.time FROM flag f
-         JOIN logger_record l ON l.id = f.logger_record_id JOIN site s ON s.id = l.site_id
+         JOIN logger_view l ON l.id = f.logger_record_id JOIN site s ON s.id = l.site_id
          WHERE f.id = 1",
     );
     let fit_a = uid(
@@ -579,10 +579,17 @@ fn kill_nine_during_a_merge_leaves_into_as_it_was_or_whole() {
     let conn = Connection::open(&l.b).expect("open");
     conn.execute_batch("BEGIN").expect("begin");
     {
+        conn.execute(
+            "INSERT INTO logger_sensor (site_id, sensor_id, depth_cm, sensor)
+             VALUES (?1, 'KILL-WC', 35, 'water_content')",
+            [site],
+        )
+        .expect("sensor");
+        let sensor = conn.last_insert_rowid();
         let mut stmt = conn
             .prepare(
-                "INSERT INTO logger_record (site_id, depth_cm, sensor, sensor_id, time, value)
-                 VALUES (?1, 35, 'water_content', 'KILL-WC', ?2, ?3)",
+                "INSERT INTO logger_record (logger_sensor_id, time_s, value)
+                 VALUES (?1, unixepoch(?2), ?3)",
             )
             .expect("prepare");
         let start = chrono::DateTime::parse_from_rfc3339("2027-01-01T00:00:00Z").expect("time");
@@ -590,7 +597,7 @@ fn kill_nine_during_a_merge_leaves_into_as_it_was_or_whole() {
             let t = start + chrono::Duration::minutes(i);
             let value = 0.25 + 0.05 * ((i as f64) / 500.0).sin();
             stmt.execute(rusqlite::params![
-                site,
+                sensor,
                 t.format("%Y-%m-%dT%H:%M:%SZ").to_string(),
                 value
             ])

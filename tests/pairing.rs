@@ -265,7 +265,7 @@ fn pairing_again_replaces_the_readings_and_leaves_flagged_records_out() {
              INSERT INTO flag (logger_record_id, reason, origin, status, created_at, decided_at)
                  SELECT id, 'checked by hand', 'manual', 'accepted', '2026-12-01T00:00:00Z',
                         '2026-12-01T00:00:00Z'
-                 FROM logger_record WHERE sensor_id = 'LV-W30' ORDER BY time LIMIT 500;",
+                 FROM logger_view WHERE sensor_id = 'LV-W30' ORDER BY time_s LIMIT 500;",
         )
         .expect("flags");
     let second = pair_campaign(&mut c, &options).expect("pairs again");

@@ -256,7 +256,12 @@ fn a_version_1_file_upgrades_with_its_data_intact() {
                  VALUES (1, '00000000-0000-4000-8000-000000000004', 1, 100.0, 0.3125);
              INSERT INTO flag (reading_id, reason, origin, status, created_at, decided_at)
                  VALUES (1, 'odd', 'manual', 'accepted', '2026-01-05T10:00:00Z',
-                         '2026-01-06T09:00:00Z');",
+                         '2026-01-06T09:00:00Z');
+             INSERT INTO logger_record (id, site_id, depth_cm, sensor, sensor_id, time, value,
+                                        source_line)
+                 VALUES (7, 1, 30, 'tensiometer', 'T30', '2026-01-05T10:15:00Z', 120.5, 4);
+             INSERT INTO flag (logger_record_id, reason, origin, status, created_at)
+                 VALUES (7, 'spike', 'auto', 'suggested', '2026-01-05T11:00:00Z');",
         )
         .expect("v1 data");
     }
@@ -323,4 +328,165 @@ fn a_version_1_file_upgrades_with_its_data_intact() {
     assert_eq!(trail[0].at.to_rfc3339(), "2026-01-06T09:00:00+00:00");
     store::flags::clear(conn, 1, Some("fine after all")).expect("clear");
     assert_eq!(store::flags::events(conn, 1).expect("events").len(), 2);
+    // Version 11: the logger record keeps its id, sensor, time and value; its flag still
+    // points at it.
+    let record: (i64, String, f64, String, String, f64, i64) = conn
+        .query_row(
+            "SELECT v.id, v.sensor_id, v.depth_cm, v.sensor, v.time, v.value, v.time_s
+             FROM flag f JOIN logger_view v ON v.id = f.logger_record_id",
+            [],
+            |r| {
+                Ok((
+                    r.get(0)?,
+                    r.get(1)?,
+                    r.get(2)?,
+                    r.get(3)?,
+                    r.get(4)?,
+                    r.get(5)?,
+                    r.get(6)?,
+                ))
+            },
+        )
+        .expect("logger record survives");
+    assert_eq!(
+        record,
+        (
+            7,
+            "T30".into(),
+            30.0,
+            "tensiometer".into(),
+            "2026-01-05T10:15:00Z".into(),
+            120.5,
+            1_767_608_100 // date -u -d 2026-01-05T10:15:00Z +%s
+        )
+    );
+}
+
+/// A logger record as schema version 10 held it: id, site, depth, kind, sensor id, time text,
+/// value, batch, source line.
+type OldRecord = (
+    i64,
+    i64,
+    f64,
+    String,
+    String,
+    String,
+    f64,
+    Option<i64>,
+    Option<i64>,
+);
+
+fn old_records(conn: &Connection, table: &str) -> Vec<OldRecord> {
+    conn.prepare(&format!(
+        "SELECT id, site_id, depth_cm, sensor, sensor_id, time, value, batch_id, source_line
+         FROM {table} ORDER BY id"
+    ))
+    .expect("prepare")
+    .query_map([], |r| {
+        Ok((
+            r.get(0)?,
+            r.get(1)?,
+            r.get(2)?,
+            r.get(3)?,
+            r.get(4)?,
+            r.get(5)?,
+            r.get(6)?,
+            r.get(7)?,
+            r.get(8)?,
+        ))
+    })
+    .expect("query")
+    .collect::<rusqlite::Result<_>>()
+    .expect("rows")
+}
+
+#[test]
+fn a_version_10_file_made_by_porewise_keeps_its_logger_records_and_flags() {
+    // tests/data/v10/campaign.sqlite: made by porewise at schema version 10 (its README says
+    // how), with flags on logger records and a sensor a merge left at two depths.
+    let tmp = tempfile::tempdir().expect("temp dir");
+    let path = tmp.path().join("v10.sqlite");
+    std::fs::copy(common::data_dir().join("v10/campaign.sqlite"), &path).expect("copy");
+    let (records, flags, tables) = {
+        let conn = Connection::open(&path).expect("open");
+        assert_eq!(migrate::schema_version(&conn).expect("version"), 10);
+        let flags: Vec<(i64, Option<i64>, String)> = conn
+            .prepare("SELECT id, logger_record_id, status FROM flag ORDER BY id")
+            .expect("prepare")
+            .query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))
+            .expect("query")
+            .collect::<rusqlite::Result<_>>()
+            .expect("flags");
+        let tables: Vec<(String, i64)> = common::TABLES
+            .iter()
+            .filter(|t| **t != "logger_sensor")
+            .map(|t| {
+                let n = conn
+                    .query_row(&format!("SELECT count(*) FROM {t}"), [], |r| r.get(0))
+                    .expect("count");
+                ((*t).to_string(), n)
+            })
+            .collect();
+        (old_records(&conn, "logger_record"), flags, tables)
+    };
+    assert_eq!(records.len(), 37);
+    assert!(flags.iter().filter(|f| f.1.is_some()).count() >= 10);
+    let campaign = Campaign::open(&path).expect("opens and migrates");
+    let conn = campaign.connection();
+    assert_eq!(
+        migrate::schema_version(conn).expect("version"),
+        migrate::latest_version()
+    );
+    // Every record reads back through the view as it was, under the same id.
+    assert_eq!(old_records(conn, "logger_view"), records);
+    let flags_now: Vec<(i64, Option<i64>, String)> = conn
+        .prepare("SELECT id, logger_record_id, status FROM flag ORDER BY id")
+        .expect("prepare")
+        .query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))
+        .expect("query")
+        .collect::<rusqlite::Result<_>>()
+        .expect("flags");
+    assert_eq!(flags_now, flags);
+    for (table, n) in &tables {
+        let now: i64 = conn
+            .query_row(&format!("SELECT count(*) FROM {table}"), [], |r| r.get(0))
+            .expect("count");
+        assert_eq!(now, *n, "{table}");
+    }
+    // One row per sensor; LV-T30 takes the depth of its latest records (35 cm), and its 12
+    // earlier records keep their 30 cm.
+    let sensors: Vec<(String, f64, String)> = conn
+        .prepare("SELECT sensor_id, depth_cm, sensor FROM logger_sensor ORDER BY sensor_id")
+        .expect("prepare")
+        .query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))
+        .expect("query")
+        .collect::<rusqlite::Result<_>>()
+        .expect("sensors");
+    assert_eq!(sensors.len(), 5);
+    assert_eq!(
+        sensors[0],
+        ("LV-T30".to_string(), 35.0, "tensiometer".to_string())
+    );
+    let own: i64 = conn
+        .query_row(
+            "SELECT count(*) FROM logger_record WHERE depth_cm IS NOT NULL OR sensor IS NOT NULL",
+            [],
+            |r| r.get(0),
+        )
+        .expect("own depths");
+    assert_eq!(own, 12);
+    let broken: i64 = conn
+        .query_row("SELECT count(*) FROM pragma_foreign_key_check", [], |r| {
+            r.get(0)
+        })
+        .expect("foreign keys");
+    assert_eq!(broken, 0);
+    // The exchange rows are those porewise read from the file at version 10: its push printed
+    // this fingerprint (tests/data/README.md).
+    let rows = porewise::store::exchange::read(conn).expect("exchange read");
+    assert_eq!(rows.logger_records(), 37);
+    assert_eq!(
+        porewise::store::exchange::fingerprint(&rows),
+        "2730b3c59d722d1a773cf0353f7accc938fe6922cc7af94542549419eeecb834"
+    );
 }

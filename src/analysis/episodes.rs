@@ -178,7 +178,7 @@ fn record_id(row: &FlagRow) -> i64 {
 }
 
 /// Whether the sensor of logger records `a` and `b` has a record strictly between their times
-/// (one index range on `logger_record (site_id, sensor_id, time)`).
+/// (one index range on `logger_record (logger_sensor_id, time_s)`).
 ///
 /// # Errors
 /// An SQLite error.
@@ -186,8 +186,8 @@ pub fn record_between(conn: &Connection, a: i64, b: i64) -> Result<bool> {
     let found: Option<i64> = conn
         .prepare_cached(
             "SELECT r.id FROM logger_record a JOIN logger_record b ON b.id = ?2
-             JOIN logger_record r ON r.site_id = a.site_id AND r.sensor_id = a.sensor_id
-               AND r.time > min(a.time, b.time) AND r.time < max(a.time, b.time)
+             JOIN logger_record r ON r.logger_sensor_id = a.logger_sensor_id
+               AND r.time_s > min(a.time_s, b.time_s) AND r.time_s < max(a.time_s, b.time_s)
              WHERE a.id = ?1 LIMIT 1",
         )?
         .query_row([a, b], |r| r.get(0))

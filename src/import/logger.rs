@@ -6,36 +6,36 @@
 //! with an offset, or local times with one offset given for the whole command; they are
 //! stored in UTC.
 //!
-//! The import streams: a file is hashed in one pass and read in a second, each row is checked
-//! and inserted as it is read inside the command's one transaction, duplicates are found by
-//! the table's key, and only per-site and per-sensor state is kept, so memory does not grow
-//! with the file. Any problem and the transaction is rolled back: nothing is written. A dry
-//! run checks everything the same way against a temporary table.
+//! The import streams: a file is hashed in one pass and read in a second, on a thread of its
+//! own (`reader`) that checks every cell and sends the rows in bounded batches; this thread
+//! stores them inside the command's one transaction, many records per statement, finds
+//! duplicates by the table's key and runs the quality checks. Only per-site and per-sensor
+//! state and a few batches are kept, so memory does not grow with the file. Any problem and
+//! the transaction is rolled back: nothing is written. A dry run checks everything the same
+//! way against a temporary table.
 //!
 //! Sites a file names that the campaign does not hold are created (as a lab file does); the
 //! summary names them, so a mistyped code is seen at once.
 
-use std::cell::Cell;
-use std::collections::HashMap;
+mod reader;
+
+use std::collections::{HashMap, VecDeque};
 use std::fmt;
-use std::fs::File;
-use std::io::{BufRead, BufReader, Read};
+use std::io::Read;
 use std::path::{Path, PathBuf};
-use std::rc::Rc;
+use std::sync::mpsc::{self, Receiver};
 
 use rusqlite::Connection;
 use sha2::{Digest, Sha256};
 
+use self::reader::{Batch, Entry, Msg, Names, Parsed, ReadJob, Tail};
 use super::batch::Origin;
 use super::diagnostic::Diagnostics;
-use super::fields::{Cells, HeaderCheck};
-use super::table::{Table, trim_cell};
-use super::wide::{ChannelMap, WideRows};
+use super::wide::ChannelMap;
 use super::{EarlierImport, FileSummary, ImportError};
 use crate::field::quality::{
     Mark, MarkKind, QualitySettings, SPIKE_PREFIX, STUCK_PREFIX, SensorChecker,
 };
-use crate::field::time::{TimeError, parse_instant, utc_text};
 use crate::model::domain::{SensorKind, Site};
 use crate::model::number::{plural, significant};
 use crate::model::text::shown;
@@ -200,179 +200,11 @@ pub(crate) fn row_unit(text: &str) -> Option<RowUnit> {
         .map(|(_, unit)| *unit)
 }
 
-/// The column indexes of a logger file.
-#[derive(Debug, Clone, Copy)]
-struct Columns {
-    site: usize,
-    depth: usize,
-    sensor: usize,
-    sensor_id: usize,
-    time: usize,
-    value: usize,
-    unit: usize,
-}
-
-/// One row, checked, in canonical units (text borrowed from the record).
-#[derive(Debug, Clone, Copy)]
-struct Row<'r> {
-    line: u64,
-    site: &'r str,
-    depth_cm: f64,
-    kind: SensorKind,
-    sensor_id: &'r str,
-    /// The time as written.
-    time_text: &'r str,
-    time: i64,
-    value: f64,
-    written_negative: bool,
-}
-
-/// The last time text parsed, and what it gave (rows of one instant usually come together).
-#[derive(Debug, Default)]
-struct TimeCache {
-    text: String,
-    parsed: Option<Result<(i64, [u8; 20]), TimeError>>,
-}
-
-impl TimeCache {
-    fn parse(&mut self, text: &str, offset: Option<i32>) -> Result<(i64, [u8; 20]), TimeError> {
-        if let Some(p) = &self.parsed
-            && self.text == text
-        {
-            return p.clone();
-        }
-        let parsed = parse_instant(text, offset).and_then(|secs| {
-            utc_text(secs)
-                .map(|t| (secs, t))
-                .ok_or(TimeError::NotCalendar)
-        });
-        self.text.clear();
-        self.text.push_str(text);
-        self.parsed = Some(parsed.clone());
-        parsed
-    }
-}
-
-/// Check the cells of one data row; `None` when any cell was bad (each reported).
-fn read_row(
-    cells: &mut Cells<'_>,
-    c: &Columns,
-    times: &mut TimeCache,
-    offset: Option<i32>,
-) -> Option<(Row<'static>, [u8; 20])> {
-    // Codes are checked here and borrowed from the record by the caller.
-    let _ = cells.code_text(c.site, "a site code");
-    let depth = cells.depth(c.depth);
-    let kind = match cells.cell(c.sensor).parse::<SensorKind>() {
-        Ok(k) => Some(k),
-        Err(message) => {
-            cells.fail(c.sensor, message);
-            None
-        }
-    };
-    let _ = cells.code_text(c.sensor_id, "a sensor id");
-    let time_text = cells.cell(c.time);
-    let time = match times.parse(time_text, offset) {
-        Ok(t) => Some(t),
-        Err(e) => {
-            cells.fail(c.time, e.message(time_text));
-            None
-        }
-    };
-    let raw = cells.number(c.value);
-    let unit_text = cells.cell(c.unit);
-    let unit = row_unit(unit_text);
-    if unit.is_none() {
-        cells.fail(
-            c.unit,
-            format!(
-                "found {unit_text:?}, expected a suction unit ({SUCTION_UNITS}) or a \
-                 water-content unit ({WATER_UNITS})"
-            ),
-        );
-    }
-    let (Some(depth_cm), Some(kind), Some((time, utc)), Some(raw), Some(unit)) =
-        (depth, kind, time, raw, unit)
-    else {
-        return None;
-    };
-    let value = match (kind, unit) {
-        (SensorKind::Tensiometer, RowUnit::Suction(u)) => {
-            let h = u.to_cm(raw.abs());
-            if h > MAX_SUCTION_CM {
-                let found = format!("{} {unit_text}", cells.cell(c.value));
-                cells.fail(
-                    c.value,
-                    format!(
-                        "found {found:?}, expected a suction of at most 1e7 cm (pF 7, oven dry)"
-                    ),
-                );
-                return None;
-            }
-            h
-        }
-        (SensorKind::WaterContent, RowUnit::Fraction) => {
-            let ok = cells.in_range(
-                c.value,
-                raw,
-                0.0,
-                1.0,
-                "a volumetric water content from 0 to 1 m3/m3",
-            );
-            ok.then_some(raw)?
-        }
-        (SensorKind::WaterContent, RowUnit::Percent) => {
-            let ok = cells.in_range(
-                c.value,
-                raw,
-                0.0,
-                100.0,
-                "a volumetric water content from 0 to 100 %",
-            );
-            ok.then_some(raw / 100.0)?
-        }
-        (SensorKind::Tensiometer, _) => {
-            cells.fail(
-                c.unit,
-                format!("found {unit_text:?} for a tensiometer, expected a suction unit ({SUCTION_UNITS})"),
-            );
-            return None;
-        }
-        (SensorKind::WaterContent, RowUnit::Suction(_)) => {
-            cells.fail(
-                c.unit,
-                format!(
-                    "found {unit_text:?} for a water-content sensor, expected a water-content \
-                     unit ({WATER_UNITS})"
-                ),
-            );
-            return None;
-        }
-    };
-    if !cells.is_ok() {
-        return None;
-    }
-    Some((
-        Row {
-            line: cells.line(),
-            site: "",
-            depth_cm,
-            kind,
-            sensor_id: "",
-            time_text: "",
-            time,
-            value,
-            written_negative: raw < 0.0,
-        },
-        utc,
-    ))
-}
-
-/// One sensor seen by the command.
+/// One sensor of the command (a site and a sensor id), once a row of it has been accepted.
 #[derive(Debug)]
 struct SensorState {
-    site_id: i64,
-    sensor_id: String,
+    /// Its `logger_sensor` id (negative for one a dry run would create).
+    id: i64,
     depth_cm: f64,
     kind: SensorKind,
     /// Where the command first saw it.
@@ -387,14 +219,23 @@ struct SensorState {
     inline_marks: [u64; 4],
 }
 
-/// A site seen by the command, and its sensors (indexes into `Run::sensors`).
+/// A sensor the files name (the reader's numbering), and its state once accepted.
 #[derive(Debug)]
-struct SiteEntry {
-    id: i64,
-    sensors: HashMap<String, usize>,
+struct Named {
+    site: String,
+    sensor_id: String,
+    state: Option<usize>,
 }
 
-/// The state of one import command.
+/// A record handed to the sink, with what its outcome needs.
+#[derive(Debug, Clone, Copy)]
+struct Queued {
+    file: usize,
+    state: usize,
+    row: Parsed,
+}
+
+/// The state of one import command (on the thread that writes).
 struct Run<'c> {
     conn: &'c Connection,
     options: LoggerOptions,
@@ -402,39 +243,24 @@ struct Run<'c> {
     flags: Option<FlagWriter<'c>>,
     files: Vec<String>,
     batch_ids: Vec<i64>,
-    sites: HashMap<String, SiteEntry>,
+    sites: HashMap<String, i64>,
+    named: Vec<Named>,
     sensors: Vec<SensorState>,
     next_pseudo_site: i64,
+    next_pseudo_sensor: i64,
     marks: Vec<(i64, Mark)>,
+    /// Records handed to the sink whose outcome has not come back yet, in order.
+    queue: VecDeque<Queued>,
+    /// Outcomes back from the sink, in the order of `queue`.
+    done: Vec<Added>,
+    /// File and line of the last record this side reported a problem with.
+    problem_at: Option<(usize, u64)>,
     summary: LoggerSummary,
-}
-
-/// Reads through to `inner`, remembering the last byte seen (was the file cut off mid-line?).
-struct TailTracker<R> {
-    inner: R,
-    last: Rc<Cell<Option<u8>>>,
-}
-
-impl<R: Read> Read for TailTracker<R> {
-    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
-        let n = self.inner.read(buf)?;
-        if n > 0 {
-            self.last.set(Some(buf[n - 1]));
-        }
-        Ok(n)
-    }
-}
-
-fn open(path: &Path) -> Result<File, ImportError> {
-    File::open(path).map_err(|source| ImportError::Read {
-        path: path.to_path_buf(),
-        source,
-    })
 }
 
 /// SHA-256 (lower-case hex) and length of a file, read in one streaming pass.
 fn hash_file(path: &Path) -> Result<(String, u64), ImportError> {
-    let mut file = open(path)?;
+    let mut file = reader::open(path)?;
     let mut hasher = Sha256::new();
     let mut buf = vec![0u8; 1 << 18];
     let mut len = 0u64;
@@ -478,6 +304,10 @@ pub fn import_logger_files(
 /// [`import_logger_files`] for wide files when `map` is given: a time column, then one
 /// column per channel as the map says ([`super::wide`]).
 ///
+/// Two threads share the work: one reads and checks the files (`reader`), sending rows in
+/// bounded batches, while this one resolves sensors, stores the records and runs the
+/// quality checks, so reading overlaps with SQLite and memory stays flat.
+///
 /// # Errors
 /// As [`import_logger_files`].
 pub fn import_logger_files_mapped(
@@ -515,6 +345,7 @@ pub fn import_logger_files_mapped(
     } else {
         RecordSink::writing(&tx)?
     };
+    let names: Vec<String> = files.iter().map(|p| p.display().to_string()).collect();
     let mut run = Run {
         conn: &tx,
         options,
@@ -524,12 +355,17 @@ pub fn import_logger_files_mapped(
         } else {
             Some(FlagWriter::new(&tx)?)
         },
-        files: Vec::with_capacity(files.len()),
+        files: names.clone(),
         batch_ids: Vec::with_capacity(files.len()),
         sites: HashMap::new(),
+        named: Vec::new(),
         sensors: Vec::new(),
         next_pseudo_site: -1,
+        next_pseudo_sensor: -1,
         marks: Vec::new(),
+        queue: VecDeque::with_capacity(2 * records::CHUNK),
+        done: Vec::with_capacity(2 * records::CHUNK),
+        problem_at: None,
         summary: LoggerSummary {
             dry_run: options.dry_run,
             ..LoggerSummary::default()
@@ -540,36 +376,26 @@ pub fn import_logger_files_mapped(
     } else {
         Diagnostics::new()
     };
-    for (index, (path, (sha, len))) in files.iter().zip(&hashed).enumerate() {
-        let name = path.display().to_string();
-        progress.file(&name, *len);
-        let batch_id = if options.dry_run {
-            -1 - index as i64
-        } else {
-            batches::insert(
-                &tx,
-                &batches::NewBatch {
-                    file_name: &name,
-                    sha256: sha,
-                    kind: KIND,
-                    rows: 0,
-                    forced: options.force,
-                },
-            )?
-        };
-        run.files.push(name.clone());
-        run.batch_ids.push(batch_id);
-        let rows = run.read_file(index, path, map, &mut diags, progress)?;
-        if !options.dry_run {
-            records::set_batch_rows(&tx, batch_id, rows)?;
+    let job = ReadJob {
+        paths: files,
+        names: &names,
+        map,
+        utc_offset_s: options.utc_offset_s,
+        skip_lines: options.skip_lines,
+        strict: options.strict,
+    };
+    std::thread::scope(|scope| {
+        let (sender, receiver) = mpsc::sync_channel(reader::BATCHES_AHEAD);
+        let job = &job;
+        let reading = scope.spawn(move || reader::read_all(job, &sender));
+        let received = run.receive(&receiver, &hashed, &mut diags, progress);
+        // Whatever happened here, the reader stops at its next batch.
+        drop(receiver);
+        match reading.join() {
+            Ok(()) => received,
+            Err(panic) => std::panic::resume_unwind(panic),
         }
-        run.summary.files.push(FileSummary {
-            name,
-            sha256: sha.clone(),
-            rows,
-            batch_id: (!options.dry_run).then_some(batch_id),
-        });
-    }
+    })?;
     progress.done();
     if !diags.is_empty() {
         return Err(ImportError::Invalid(diags));
@@ -586,165 +412,117 @@ pub fn import_logger_files_mapped(
 }
 
 impl Run<'_> {
-    /// Read file `index`, checking and adding its rows; returns the number of data rows
-    /// (records, for a wide file).
-    fn read_file(
+    /// Take what the reader sends until it has read every file.
+    fn receive(
         &mut self,
-        index: usize,
-        path: &Path,
-        map: Option<&ChannelMap>,
+        from: &Receiver<Msg>,
+        hashed: &[(String, u64)],
         diags: &mut Diagnostics,
         progress: &mut dyn Progress,
-    ) -> Result<u64, ImportError> {
-        let name = self.files[index].clone();
-        let last_byte = Rc::new(Cell::new(None));
-        let reader = TailTracker {
-            inner: open(path)?,
-            last: Rc::clone(&last_byte),
-        };
-        let skip = self.options.skip_lines;
-        let mut reader = BufReader::new(reader);
-        let mut skipped = 0u64;
-        let mut preamble = Vec::new();
-        while skipped < skip {
-            preamble.clear();
-            match reader.read_until(b'\n', &mut preamble) {
-                Ok(0) => break,
-                Ok(_) => skipped += 1,
-                Err(source) => {
-                    return Err(ImportError::Read {
-                        path: path.to_path_buf(),
-                        source,
+    ) -> Result<(), ImportError> {
+        let mut names: Vec<Names> = Vec::new();
+        let mut file = 0;
+        let mut ended = 0;
+        // The reader hangs up after the last file (or a panic, which the caller re-raises).
+        while let Ok(msg) = from.recv() {
+            match msg {
+                Msg::Start {
+                    file: f,
+                    problems,
+                    names: n,
+                } => {
+                    (file, names) = (f, n);
+                    progress.file(&self.files[f], hashed[f].1);
+                    let batch_id = if self.options.dry_run {
+                        -1 - f as i64
+                    } else {
+                        batches::insert(
+                            self.conn,
+                            &batches::NewBatch {
+                                file_name: &self.files[f],
+                                sha256: &hashed[f].0,
+                                kind: KIND,
+                                rows: 0,
+                                forced: self.options.force,
+                            },
+                        )?
+                    };
+                    self.batch_ids.push(batch_id);
+                    diags.extend(problems);
+                }
+                Msg::Batch(batch) => {
+                    let Batch {
+                        entries,
+                        times,
+                        bytes_read,
+                    } = batch;
+                    for entry in entries {
+                        match entry {
+                            Entry::Row(row) => self.row(file, row, &times, &names, diags)?,
+                            Entry::Problems(problems) => {
+                                self.settle_all(&times, &names, diags)?;
+                                diags.extend(*problems);
+                            }
+                            Entry::Sensor { site, sensor_id } => self.named.push(Named {
+                                site,
+                                sensor_id,
+                                state: None,
+                            }),
+                        }
+                    }
+                    // A batch's times are needed until its records are settled.
+                    self.settle_all(&times, &names, diags)?;
+                    progress.read(bytes_read);
+                }
+                Msg::End { file, rows, tail } => {
+                    ended += 1;
+                    if let Some(tail) = tail {
+                        self.tail(file, tail, diags);
+                    }
+                    if !self.options.dry_run {
+                        records::set_batch_rows(self.conn, self.batch_ids[file], rows)?;
+                    }
+                    self.summary.files.push(FileSummary {
+                        name: self.files[file].clone(),
+                        sha256: hashed[file].0.clone(),
+                        rows,
+                        batch_id: (!self.options.dry_run).then_some(self.batch_ids[file]),
                     });
                 }
+                Msg::Failed(e) => return Err(e),
             }
         }
-        if skipped < skip {
-            diags.push(
-                &name,
-                skipped,
-                "-",
-                format!(
-                    "found {} in the file, expected a header row after the {} that \
-                     --skip-lines {skip} skips",
-                    plural(skipped, "line"),
-                    plural(skip, "line")
-                ),
+        if ended < self.files.len() {
+            return Err(
+                StoreError::Refused("the logger files were not read to the end".into()).into(),
             );
-            return Ok(0);
         }
-        // Header problems are reported at line 1 of what follows the preamble.
-        let mut head = if diags.is_strict() {
-            Diagnostics::strict()
-        } else {
-            Diagnostics::new()
-        };
-        let shift = |head: &mut Diagnostics| {
-            head.relocate(|d| {
-                if d.line > 0 {
-                    d.line += skip;
-                }
-            });
-        };
-        let table = match Table::open(&name, reader) {
-            Ok(t) => t,
-            Err(mut problems) => {
-                shift(&mut problems);
-                diags.extend(problems);
-                return Ok(0);
-            }
-        };
-        let source = match map {
-            Some(map) => WideRows::new(table, map, &mut head).map(Source::Wide),
-            None => long_columns(&name, table, &mut head),
-        };
-        shift(&mut head);
-        diags.extend(head);
-        let Some(mut source) = source else {
-            return Ok(0);
-        };
-        let columns = source.columns();
-        let decimal_comma = source.decimal_comma();
-        let offset = self.options.utc_offset_s;
-        let mut times = TimeCache::default();
-        let mut rows = 0u64;
-        // The last row's line and whether it had a problem (a cut-off file shows there).
-        let mut last: Option<(u64, bool)> = None;
-        loop {
-            if rows.is_multiple_of(8192) {
-                progress.read(source.bytes_read());
-            }
-            let (next, wide) = match &mut source {
-                Source::Long(table, header, _) => (
-                    table
-                        .next_record()
-                        .map(|r| r.map(|(line, record)| (line, record, &*header))),
-                    None,
-                ),
-                Source::Wide(w) => {
-                    let time = w.time_name().to_string();
-                    (w.next_record(), Some(time))
-                }
-            };
-            let Some(next) = next else {
-                break;
-            };
-            rows += 1;
-            let (line, record, header) = match next {
-                Ok(r) => r,
-                Err((line, message)) => {
-                    diags.push(&name, line + skip, "-", message);
-                    last = Some((line + skip, true));
-                    continue;
-                }
-            };
-            let line = line + skip;
-            let before = diags.total();
-            let parsed = Cells::new(&name, line, header, record, decimal_comma, diags)
-                .and_then(|mut cells| read_row(&mut cells, &columns, &mut times, offset));
-            if let Some((row, utc)) = parsed {
-                let text = |col: usize| record.get(col).map_or("", trim_cell);
-                let row = Row {
-                    site: text(columns.site),
-                    sensor_id: text(columns.sensor_id),
-                    time_text: text(columns.time),
-                    ..row
-                };
-                self.add(index, &row, &utc, &columns, header, diags)?;
-            } else if let Some(time) = wide
-                && diags
-                    .items()
-                    .last()
-                    .is_some_and(|d| d.line == line && d.column == time)
-            {
-                // A bad time is one problem, not one per channel.
-                if let Source::Wide(w) = &mut source {
-                    w.skip_row();
-                }
-            }
-            last = Some((line, diags.total() > before));
-        }
-        progress.read(source.bytes_read());
-        if rows == 0 {
+        Ok(())
+    }
+
+    /// The problems of a file's end: no data rows, or a last line cut off.
+    fn tail(&self, file: usize, tail: Tail, diags: &mut Diagnostics) {
+        let name = &self.files[file];
+        if let Some(line) = tail.no_rows_at {
             diags.push(
-                &name,
-                1 + skip,
+                name,
+                line,
                 "-",
                 "found a header row and no data rows, expected at least one data row",
             );
         }
-        if let Some((line, true)) = last
-            && last_byte.get().is_some_and(|b| b != b'\n' && b != b'\r')
+        if let Some((line, problem)) = tail.last
+            && (problem || self.problem_at == Some((file, line)))
+            && tail.ends_mid_line
         {
             diags.push(
-                &name,
+                name,
                 line,
                 "-",
                 "the file ends in the middle of this line (no line break after it): it looks \
                  cut off, as by an interrupted copy or transfer; expected complete rows",
             );
         }
-        Ok(rows)
     }
 
     /// `FILE:LINE` of a place in this command's files.
@@ -758,8 +536,8 @@ impl Run<'_> {
 
     /// The id of a site, creating it (or, in a dry run, a stand-in id) on first sight.
     fn site_id(&mut self, code: &str, batch_id: i64) -> Result<i64, StoreError> {
-        if let Some(entry) = self.sites.get(code) {
-            return Ok(entry.id);
+        if let Some(id) = self.sites.get(code) {
+            return Ok(*id);
         }
         let id = if let Some(stored) = sites::find(self.conn, code)? {
             stored.id
@@ -772,78 +550,125 @@ impl Run<'_> {
                 sites::insert(self.conn, &Site::with_code(code), Some(batch_id))?
             }
         };
-        self.sites.insert(
-            code.to_string(),
-            SiteEntry {
-                id,
-                sensors: HashMap::new(),
-            },
-        );
+        self.sites.insert(code.to_string(), id);
         Ok(id)
     }
 
-    /// The sensor of a row: its index in `self.sensors`, noted on first sight; `None` (a
-    /// problem reported) when the row gives the sensor another depth or kind than the
-    /// command or the campaign knows.
-    fn sensor(
+    /// Report a problem with a record of this side (a sensor conflict, a duplicate), after
+    /// everything before it, so problems come in the order of the files.
+    fn report(
         &mut self,
         file: usize,
-        row: &Row<'_>,
-        columns: &Columns,
-        header: &super::table::Header,
+        line: u64,
+        column: &str,
+        message: String,
         diags: &mut Diagnostics,
-    ) -> Result<Option<usize>, StoreError> {
-        // The depth and kind the sensor already has, and where that comes from.
-        let known = self
-            .sites
-            .get(row.site)
-            .and_then(|s| s.sensors.get(row.sensor_id))
-            .copied();
-        let mut stored_history = false;
-        let mut site_id = 0;
-        let earlier = if let Some(i) = known {
+    ) {
+        diags.push(&self.files[file], line, column, message);
+        self.problem_at = Some((file, line));
+    }
+
+    /// A checked row: its sensor resolved (and checked against what the command and the
+    /// campaign know of it), then handed to the sink.
+    fn row(
+        &mut self,
+        file: usize,
+        row: Parsed,
+        times: &[String],
+        names: &[Names],
+        diags: &mut Diagnostics,
+    ) -> Result<(), ImportError> {
+        let named = row.sensor as usize;
+        let state = if let Some(i) = self.named[named].state {
             let state = &self.sensors[i];
-            Some((state.depth_cm, state.kind, Known::Row(state.first)))
+            if let Some(col) = conflict(&row, state.depth_cm, state.kind) {
+                let message = conflict_message(
+                    &self.named[named],
+                    &row,
+                    col,
+                    state.depth_cm,
+                    state.kind,
+                    &self.place(state.first),
+                );
+                self.settle_all(times, names, diags)?;
+                let column = pick(&names[row.names as usize], col).to_string();
+                self.report(file, row.line, &column, message, diags);
+                return Ok(());
+            }
+            i
         } else {
-            site_id = self.site_id(row.site, self.batch_ids[file])?;
-            let stored = if site_id > 0 {
-                records::stored_sensor(self.conn, site_id, row.sensor_id)?
-            } else {
-                None
-            };
-            stored.map(|s| {
-                stored_history = true;
-                let from = match (&s.file_name, s.line) {
-                    (Some(f), Some(l)) => format!("the campaign (from {f}:{l})"),
-                    _ => "the campaign".to_string(),
-                };
-                (s.depth_cm, s.sensor, Known::Campaign(from))
-            })
+            match self.first_row(file, &row, times, names, diags)? {
+                Some(i) => i,
+                None => return Ok(()),
+            }
         };
-        if let Some((depth_cm, kind, where_)) = &earlier
-            && let Some(col) = conflict(row, *depth_cm, *kind)
+        self.queue.push_back(Queued { file, state, row });
+        self.sink.push(
+            NewRecord {
+                sensor: self.sensors[state].id,
+                time_s: row.time,
+                value: row.value,
+                batch_id: self.batch_ids[file],
+                line: row.line,
+            },
+            &mut self.done,
+        )?;
+        if !self.done.is_empty() {
+            self.settle(times, names, diags)?;
+        }
+        Ok(())
+    }
+
+    /// The first row of a sensor the command has not accepted yet: checked against the
+    /// campaign's sensor, which is created (or, in a dry run, given a stand-in id) when the
+    /// campaign has none. `None` (a problem reported) on a conflict.
+    fn first_row(
+        &mut self,
+        file: usize,
+        row: &Parsed,
+        times: &[String],
+        names: &[Names],
+        diags: &mut Diagnostics,
+    ) -> Result<Option<usize>, ImportError> {
+        let named = row.sensor as usize;
+        let site = self.named[named].site.clone();
+        let site_id = self.site_id(&site, self.batch_ids[file])?;
+        let stored = if site_id > 0 {
+            records::stored_sensor(self.conn, site_id, &self.named[named].sensor_id)?
+        } else {
+            None
+        };
+        if let Some(s) = &stored
+            && let Some(col) = conflict(row, s.depth_cm, s.sensor)
         {
-            // Where the sensor got its depth and kind: a row of this command, or the campaign.
-            let where_ = match where_ {
-                Known::Campaign(text) => text.clone(),
-                Known::Row(origin) => self.place(*origin),
+            let from = match (&s.file_name, s.line) {
+                (Some(f), Some(l)) => format!("the campaign (from {f}:{l})"),
+                _ => "the campaign".to_string(),
             };
-            let message = conflict_message(row, col, *depth_cm, *kind, &where_);
-            diags.push(
-                &self.files[file],
-                row.line,
-                header.name(pick(columns, col)),
-                message,
-            );
+            let message =
+                conflict_message(&self.named[named], row, col, s.depth_cm, s.sensor, &from);
+            self.settle_all(times, names, diags)?;
+            let column = pick(&names[row.names as usize], col).to_string();
+            self.report(file, row.line, &column, message, diags);
             return Ok(None);
         }
-        if known.is_some() {
-            return Ok(known);
-        }
+        let id = match &stored {
+            Some(s) => s.id,
+            None if self.options.dry_run => {
+                self.next_pseudo_sensor -= 1;
+                self.next_pseudo_sensor + 1
+            }
+            None => records::insert_sensor(
+                self.conn,
+                site_id,
+                &self.named[named].sensor_id,
+                row.depth_cm,
+                row.kind,
+            )?,
+        };
         let index = self.sensors.len();
         self.sensors.push(SensorState {
-            site_id,
-            sensor_id: row.sensor_id.to_string(),
+            id,
             depth_cm: row.depth_cm,
             kind: row.kind,
             first: Origin {
@@ -852,71 +677,73 @@ impl Run<'_> {
             },
             last_time: i64::MIN,
             // A sensor with stored records is checked over its whole series at the end.
-            inline: !stored_history,
+            inline: stored.is_none(),
             checker: SensorChecker::new(row.kind, self.options.quality),
             inline_marks: [0; 4],
         });
-        if let Some(entry) = self.sites.get_mut(row.site) {
-            entry.sensors.insert(row.sensor_id.to_string(), index);
-        }
+        self.named[named].state = Some(index);
         Ok(Some(index))
     }
 
-    /// Check a row's sensor against what the command and the campaign know of it, then store
-    /// the row and run the quality checks.
-    fn add(
+    /// Have the sink write what it holds, then settle every outcome.
+    fn settle_all(
         &mut self,
-        file: usize,
-        row: &Row<'_>,
-        utc: &[u8; 20],
-        columns: &Columns,
-        header: &super::table::Header,
+        times: &[String],
+        names: &[Names],
         diags: &mut Diagnostics,
-    ) -> Result<(), StoreError> {
-        let Some(sensor) = self.sensor(file, row, columns, header, diags)? else {
-            return Ok(());
-        };
-        let time = std::str::from_utf8(utc).unwrap_or_default();
-        let added = self.sink.add(&NewRecord {
-            site_id: self.sensors[sensor].site_id,
-            depth_cm: row.depth_cm,
-            sensor: row.kind,
-            sensor_id: row.sensor_id,
-            time,
-            value: row.value,
-            batch_id: self.batch_ids[file],
-            line: row.line,
-        })?;
-        let handle = match added {
-            Added::Stored(handle) => handle,
-            Added::Duplicate(existing) => {
-                if self.options.skip_duplicates {
-                    self.summary.duplicates_skipped += 1;
-                    if (existing.value - row.value).abs() > 1e-9 * row.value.abs().max(1e-9) {
-                        self.summary.duplicates_differing += 1;
-                    }
-                } else {
-                    let message = self.duplicate_message(row, time, &existing);
-                    diags.push(
-                        &self.files[file],
-                        row.line,
-                        header.name(columns.time),
-                        message,
-                    );
-                }
-                return Ok(());
-            }
-        };
-        self.summary.records[usize::from(row.kind == SensorKind::WaterContent)] += 1;
-        if !diags.is_empty() {
-            // The command will write nothing; checking quality is wasted work now.
-            return Ok(());
-        }
-        self.check(sensor, row, handle)
+    ) -> Result<(), ImportError> {
+        self.sink.flush(&mut self.done)?;
+        self.settle(times, names, diags)
     }
 
-    /// The message for a second record of a sensor at one time.
-    fn duplicate_message(&self, row: &Row<'_>, time: &str, existing: &records::Existing) -> String {
+    /// Take the sink's outcomes in order: count stored records and run the quality checks on
+    /// them; skip or report duplicates.
+    fn settle(
+        &mut self,
+        times: &[String],
+        names: &[Names],
+        diags: &mut Diagnostics,
+    ) -> Result<(), ImportError> {
+        let mut done = std::mem::take(&mut self.done);
+        for added in done.drain(..) {
+            let Some(q) = self.queue.pop_front() else {
+                return Err(StoreError::Refused(
+                    "a logger record outcome without its record".into(),
+                )
+                .into());
+            };
+            let row = &q.row;
+            match added {
+                Added::Stored(handle) => {
+                    self.summary.records[usize::from(row.kind == SensorKind::WaterContent)] += 1;
+                    // Once the command will write nothing, checking quality is wasted work.
+                    if diags.is_empty() {
+                        self.check(q.state, row, handle)?;
+                    }
+                }
+                Added::Duplicate(existing) => {
+                    if self.options.skip_duplicates {
+                        self.summary.duplicates_skipped += 1;
+                        if (existing.value - row.value).abs() > 1e-9 * row.value.abs().max(1e-9) {
+                            self.summary.duplicates_differing += 1;
+                        }
+                    } else {
+                        let written = times.get(row.time_text as usize).map_or("", String::as_str);
+                        let message = self.duplicate_message(&q, written, &existing);
+                        let column = names[row.names as usize].time.clone();
+                        self.report(q.file, row.line, &column, message, diags);
+                    }
+                }
+            }
+        }
+        self.done = done;
+        Ok(())
+    }
+
+    /// The message for a second record of a sensor at one time (`written`: the time as the
+    /// file has it).
+    fn duplicate_message(&self, q: &Queued, written: &str, existing: &records::Existing) -> String {
+        let time = records::time_text(q.row.time);
         let ours = existing
             .batch_id
             .and_then(|b| self.batch_ids.iter().position(|&x| x == b));
@@ -930,20 +757,21 @@ impl Run<'_> {
         } else {
             format!("which the campaign already holds (from {at})")
         };
-        let written = if row.time_text == time {
+        let written = if written == time {
             String::new()
         } else {
-            format!(" ({} as written)", row.time_text)
+            format!(" ({written} as written)")
         };
+        let named = &self.named[q.row.sensor as usize];
         format!(
             "found a second record of sensor {:?} at site {:?} for {time}{written}, {first}; \
              expected one record per sensor and time (--skip-duplicates skips repeats)",
-            row.sensor_id, row.site
+            named.sensor_id, named.site
         )
     }
 
     /// Run the quality checks on a stored record and suggest the flags they raise.
-    fn check(&mut self, sensor: usize, row: &Row<'_>, handle: i64) -> Result<(), StoreError> {
+    fn check(&mut self, sensor: usize, row: &Parsed, handle: i64) -> Result<(), StoreError> {
         let first_batch = self.batch_ids[0];
         let mut marks = std::mem::take(&mut self.marks);
         marks.clear();
@@ -969,8 +797,7 @@ impl Run<'_> {
                 if !self.options.dry_run {
                     records::withdraw_new_flags(
                         self.conn,
-                        state.site_id,
-                        &state.sensor_id,
+                        state.id,
                         first_batch,
                         &[STUCK_PREFIX, SPIKE_PREFIX],
                     )?;
@@ -999,11 +826,8 @@ impl Run<'_> {
             let mut checker = SensorChecker::new(state.kind, quality);
             let mut marks: Vec<((i64, bool), Mark)> = Vec::new();
             let mut found: Vec<(i64, Mark)> = Vec::new();
-            self.sink.series(
-                state.site_id,
-                &state.sensor_id,
-                first_batch,
-                |handle, time, value, new| {
+            self.sink
+                .series(state.id, first_batch, |handle, time, value, new| {
                     checker.push_ordered((handle, new), time, value, &mut marks);
                     found.extend(
                         marks
@@ -1011,8 +835,7 @@ impl Run<'_> {
                             .filter(|((_, new), _)| *new)
                             .map(|((h, _), m)| (h, m)),
                     );
-                },
-            )?;
+                })?;
             for (handle, mark) in found {
                 self.summary.marks[mark.kind.index()] += 1;
                 if let Some(flags) = &mut self.flags {
@@ -1024,88 +847,6 @@ impl Run<'_> {
     }
 }
 
-/// The rows of one logger file: the long form with its header and columns, or a wide file
-/// read through its map.
-enum Source<R: Read> {
-    Long(Table<R>, super::table::Header, Columns),
-    Wide(WideRows<R>),
-}
-
-impl<R: Read> Source<R> {
-    /// The columns of the (long-form) records.
-    fn columns(&self) -> Columns {
-        match self {
-            Source::Long(_, _, c) => *c,
-            Source::Wide(_) => Columns {
-                site: 0,
-                depth: 1,
-                sensor: 2,
-                sensor_id: 3,
-                time: 4,
-                value: 5,
-                unit: 6,
-            },
-        }
-    }
-
-    fn decimal_comma(&self) -> bool {
-        match self {
-            Source::Long(t, _, _) => t.decimal_comma(),
-            Source::Wide(w) => w.decimal_comma(),
-        }
-    }
-
-    fn bytes_read(&self) -> u64 {
-        match self {
-            Source::Long(t, _, _) => t.bytes_read(),
-            Source::Wide(w) => w.bytes_read(),
-        }
-    }
-}
-
-/// Check a long-form header; `None` when it has a problem (reported).
-fn long_columns<R: Read>(
-    name: &str,
-    table: Table<R>,
-    diags: &mut Diagnostics,
-) -> Option<Source<R>> {
-    let header = table.header().clone();
-    let mut check = HeaderCheck::new(name, &header, COLUMNS, diags);
-    let columns = Columns {
-        site: check.required("site", diags),
-        depth: check.required("depth_cm", diags),
-        sensor: check.required("sensor", diags),
-        sensor_id: check.required("sensor_id", diags),
-        time: check.required("time", diags),
-        value: check.required("value", diags),
-        unit: check.required("unit", diags),
-    };
-    check.unused(
-        &[
-            "site",
-            "depth_cm",
-            "sensor",
-            "sensor_id",
-            "time",
-            "value",
-            "unit",
-        ],
-        diags,
-    );
-    check
-        .is_ok()
-        .then_some(Source::Long(table, header, columns))
-}
-
-/// Where the command learnt a sensor's depth and kind.
-#[derive(Debug)]
-enum Known {
-    /// A row of this command.
-    Row(Origin),
-    /// The campaign (with the place of its latest record).
-    Campaign(String),
-}
-
 /// Which of a row's columns a sensor conflict is about.
 #[derive(Debug, Clone, Copy)]
 enum ConflictColumn {
@@ -1113,16 +854,17 @@ enum ConflictColumn {
     Sensor,
 }
 
-fn pick(c: &Columns, col: ConflictColumn) -> usize {
+/// The header name of the column a conflict is about.
+fn pick(names: &Names, col: ConflictColumn) -> &str {
     match col {
-        ConflictColumn::Depth => c.depth,
-        ConflictColumn::Sensor => c.sensor,
+        ConflictColumn::Depth => &names.depth,
+        ConflictColumn::Sensor => &names.sensor,
     }
 }
 
 /// Which column (if any) of a row gives its sensor another kind or depth than `kind` and
 /// `depth_cm`.
-fn conflict(row: &Row<'_>, depth_cm: f64, kind: SensorKind) -> Option<ConflictColumn> {
+fn conflict(row: &Parsed, depth_cm: f64, kind: SensorKind) -> Option<ConflictColumn> {
     if kind != row.kind {
         Some(ConflictColumn::Sensor)
     } else if (depth_cm - row.depth_cm).abs() > 1e-9 {
@@ -1135,13 +877,14 @@ fn conflict(row: &Row<'_>, depth_cm: f64, kind: SensorKind) -> Option<ConflictCo
 /// The message for a sensor conflict, `where_` (`FILE:LINE`, or the campaign) having the
 /// sensor at `depth_cm` as a `kind`.
 fn conflict_message(
-    row: &Row<'_>,
+    named: &Named,
+    row: &Parsed,
     col: ConflictColumn,
     depth_cm: f64,
     kind: SensorKind,
     where_: &str,
 ) -> String {
-    let who = format!("sensor {:?} of site {:?}", row.sensor_id, row.site);
+    let who = format!("sensor {:?} of site {:?}", named.sensor_id, named.site);
     let cm = |v: f64| significant(v, 6).unwrap_or_default();
     match col {
         ConflictColumn::Sensor => format!(

@@ -182,6 +182,10 @@ struct WideChannel {
     channel: Channel,
 }
 
+/// A long-form record of a wide file: its line, the record, the header naming its columns and
+/// its channel's index.
+pub type IndexedRecord<'a> = (u64, &'a csv::StringRecord, &'a Header, usize);
+
 /// The rows of a wide file as long-form records
 /// (`site,depth_cm,sensor,sensor_id,time,value,unit`), one per mapped channel with a value.
 pub struct WideRows<R: Read> {
@@ -302,6 +306,12 @@ impl<R: Read> WideRows<R> {
         self.table.header().name(self.time)
     }
 
+    /// The header each channel's records carry, in the order [`WideRows::next_indexed`]
+    /// numbers the channels.
+    pub fn headers(&self) -> impl Iterator<Item = &Header> {
+        self.channels.iter().map(|c| &c.header)
+    }
+
     /// The next long-form record, its line and the header naming its columns; `None` at
     /// the end.
     ///
@@ -310,9 +320,20 @@ impl<R: Read> WideRows<R> {
     pub fn next_record(
         &mut self,
     ) -> Option<Result<(u64, &csv::StringRecord, &Header), RecordError>> {
+        self.next_indexed()
+            .map(|r| r.map(|(line, record, header, _)| (line, record, header)))
+    }
+
+    /// [`WideRows::next_record`] with the index of the record's channel (see
+    /// [`WideRows::headers`]).
+    ///
+    /// # Errors
+    /// As [`WideRows::next_record`].
+    pub fn next_indexed(&mut self) -> Option<Result<IndexedRecord<'_>, RecordError>> {
         loop {
             while self.next < self.channels.len() {
-                let ch = &self.channels[self.next];
+                let index = self.next;
+                let ch = &self.channels[index];
                 self.next += 1;
                 let value = self.row.get(ch.index).map_or("", trim_cell);
                 if value.is_empty() {
@@ -331,7 +352,7 @@ impl<R: Read> WideRows<R> {
                 ] {
                     self.record.push_field(field);
                 }
-                return Some(Ok((self.line, &self.record, &ch.header)));
+                return Some(Ok((self.line, &self.record, &ch.header, index)));
             }
             match self.table.next_record()? {
                 Err(e) => return Some(Err(e)),

@@ -327,7 +327,9 @@ fn flag_from_row(r: &Row<'_>) -> rusqlite::Result<StoredFlag> {
 
 /// Subject columns (from index 13) for [`ROW_FROM`].
 const SUBJECT_COLUMNS: &str = "r.sample_id, m.code, s.code, l.top_cm, l.bottom_cm, r.h_cm, \
-     r.theta, r.method, gs.code, g.depth_cm, g.sensor, g.sensor_id, g.time, g.value, \
+     r.theta, r.method, gs.code, coalesce(g.depth_cm, gk.depth_cm), \
+     coalesce(g.sensor, gk.sensor), gk.sensor_id, \
+     strftime('%Y-%m-%dT%H:%M:%SZ', g.time_s, 'unixepoch'), g.value, \
      k.sample_id, km.code, ks.code, kl.top_cm, kl.bottom_cm, k.h_cm, k.theta, k.k_cm_per_day, \
      k.method";
 
@@ -339,7 +341,8 @@ const ROW_FROM: &str = "flag f
      LEFT JOIN layer l ON l.id = m.layer_id
      LEFT JOIN site s ON s.id = l.site_id
      LEFT JOIN logger_record g ON g.id = f.logger_record_id
-     LEFT JOIN site gs ON gs.id = g.site_id
+     LEFT JOIN logger_sensor gk ON gk.id = g.logger_sensor_id
+     LEFT JOIN site gs ON gs.id = gk.site_id
      LEFT JOIN conductivity_reading k ON k.id = f.conductivity_reading_id
      LEFT JOIN sample km ON km.id = k.sample_id
      LEFT JOIN layer kl ON kl.id = km.layer_id
@@ -832,7 +835,8 @@ pub fn list(conn: &Connection, filter: &FlagFilter) -> Result<Vec<FlagRow>> {
            AND (?4 IS NULL OR coalesce(m.code, km.code) = ?4)
          ORDER BY coalesce(s.code, gs.code, ks.code), f.logger_record_id IS NOT NULL,
                   f.conductivity_reading_id IS NOT NULL, coalesce(l.top_cm, kl.top_cm),
-                  coalesce(m.code, km.code), r.h_cm, k.h_cm, k.theta DESC, g.depth_cm, g.time,
+                  coalesce(m.code, km.code), r.h_cm, k.h_cm, k.theta DESC,
+                  coalesce(g.depth_cm, gk.depth_cm), g.time_s,
                   f.id"
     ))?;
     let rows = stmt.query_map(
@@ -1039,8 +1043,10 @@ mod tests {
                      (1, '00000000-0000-4000-8000-000000000011', 1, 10, 0.40, 'sandbox'),
                      (2, '00000000-0000-4000-8000-000000000012', 1, 100, 0.30, 'pressure plate'),
                      (3, '00000000-0000-4000-8000-000000000013', 1, 1000, 0.20, 'pressure plate');
-                 INSERT INTO logger_record (id, site_id, depth_cm, sensor, sensor_id, time, value)
-                     VALUES (1, 1, 30, 'tensiometer', 'T1', '2026-06-01T10:00:00Z', 250);",
+                 INSERT INTO logger_sensor (id, site_id, sensor_id, depth_cm, sensor)
+                     VALUES (1, 1, 'T1', 30, 'tensiometer');
+                 INSERT INTO logger_record (id, logger_sensor_id, time_s, value)
+                     VALUES (1, 1, unixepoch('2026-06-01T10:00:00Z'), 250);",
             )
             .expect("fixture");
         c

@@ -20,6 +20,7 @@ pub const MIGRATIONS: &[&str] = &[
     include_str!("../../migrations/0008_texture.sql"),
     include_str!("../../migrations/0009_conductivity.sql"),
     include_str!("../../migrations/0010_uids_everywhere.sql"),
+    include_str!("../../migrations/0011_logger_sensor.sql"),
 ];
 
 /// `application_id` written by the first migration, so a porewise file can be recognised.
@@ -114,7 +115,7 @@ mod tests {
                 |r| r.get(0),
             )
             .expect("count");
-        assert_eq!(tables, 11);
+        assert_eq!(tables, 12);
         let app: i64 = conn
             .pragma_query_value(None, "application_id", |r| r.get(0))
             .expect("application id");

@@ -95,6 +95,7 @@ pub fn counts(db: &Path) -> Vec<i64> {
         "layer",
         "sample",
         "reading",
+        "logger_sensor",
         "logger_record",
         "flag",
         "fit",

@@ -7,7 +7,9 @@ use rusqlite::{Connection, OptionalExtension, Transaction, params};
 use super::plan::{MergePlan, RowKind};
 use super::read::STALE;
 use super::{FitRow, FlagTarget, LoggerSeries, readings_key};
+use crate::model::domain::SensorKind;
 use crate::model::number::plural;
+use crate::store::logger;
 use crate::store::{Result, StoreError};
 
 /// What [`apply()`] wrote.
@@ -307,7 +309,8 @@ pub fn apply(tx: &Transaction<'_>, plan: &MergePlan) -> Result<Applied> {
                           status = ?8, note = ?9, created_at = ?10, decided_at = ?11, rule = ?12,
                           decided_by = ?13 WHERE uid = ?1";
         let mut record = conn.prepare(
-            "SELECT id FROM logger_record WHERE site_id = ?1 AND sensor_id = ?2 AND time = ?3",
+            "SELECT r.id FROM logger_sensor k JOIN logger_record r ON r.logger_sensor_id = k.id
+             WHERE k.site_id = ?1 AND k.sensor_id = ?2 AND r.time_s = ?3",
         )?;
         for (rows, sql) in [(&rep.flags, sql_update), (&ins.flags, sql_insert)] {
             let mut stmt = conn.prepare(sql)?;
@@ -323,16 +326,20 @@ pub fn apply(tx: &Transaction<'_>, plan: &MergePlan) -> Result<Applied> {
                     ),
                     FlagTarget::Logger(key) => {
                         let site = need(&sites, &key.site_uid, "site")?;
-                        let id: i64 = record
-                            .query_row(params![site, key.sensor_id, key.time], |r| r.get(0))
-                            .optional()?
-                            .ok_or_else(|| {
-                                StoreError::Corrupt(format!(
-                                    "flag {} names logger record {}/{} at {}, which neither \
+                        let time = logger::stored_time(&key.time);
+                        let id: Option<i64> = match time {
+                            Some(t) => record
+                                .query_row(params![site, key.sensor_id, t], |r| r.get(0))
+                                .optional()?,
+                            None => None,
+                        };
+                        let id = id.ok_or_else(|| {
+                            StoreError::Corrupt(format!(
+                                "flag {} names logger record {}/{} at {}, which neither \
                                      file has",
-                                    f.uid, key.site_uid, key.sensor_id, key.time
-                                ))
-                            })?;
+                                f.uid, key.site_uid, key.sensor_id, key.time
+                            ))
+                        })?;
                         (None, Some(id), None)
                     }
                 };
@@ -578,7 +585,9 @@ impl FitTarget<'_> {
     }
 }
 
-/// Logger records: replaced ones updated by natural key, new ones inserted. Returns
+/// Logger records: replaced ones updated by natural key, new ones inserted. A sensor the
+/// file lacks is created with the depth and kind of its latest record; a record whose depth
+/// or kind differs from its sensor's keeps its own (see migration 11). Returns
 /// (replaced, inserted).
 fn write_logger(
     conn: &Connection,
@@ -587,32 +596,78 @@ fn write_logger(
     sites: &Ids,
     batches: &Ids,
 ) -> Result<(usize, usize)> {
+    let mut sensor = conn.prepare(
+        "SELECT id, depth_cm, sensor FROM logger_sensor WHERE site_id = ?1 AND sensor_id = ?2",
+    )?;
     let mut update = conn.prepare(
-        "UPDATE logger_record SET depth_cm = ?4, sensor = ?5, value = ?6, batch_id = ?7,
-                source_line = ?8 WHERE site_id = ?1 AND sensor_id = ?2 AND time = ?3",
+        "UPDATE logger_record SET depth_cm = ?3, sensor = ?4, value = ?5, batch_id = ?6,
+                source_line = ?7 WHERE logger_sensor_id = ?1 AND time_s = ?2",
     )?;
     let mut add = conn.prepare(
-        "INSERT INTO logger_record (site_id, sensor_id, time, depth_cm, sensor, value, batch_id,
-                source_line) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
+        "INSERT INTO logger_record (logger_sensor_id, time_s, depth_cm, sensor, value, batch_id,
+                source_line) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
     )?;
     let mut counts = (0, 0);
     for (list, adding) in [(replace, false), (insert, true)] {
         for series in list {
+            let Some(latest) = series.points.last() else {
+                continue;
+            };
             let site = need(sites, &series.site_uid, "site")?;
             let batch_ids = series
                 .batch_uids
                 .iter()
                 .map(|b| id_of(batches, b.as_deref(), "import batch"))
                 .collect::<Result<Vec<Option<i64>>>>()?;
+            let what = |time: &str| {
+                format!(
+                    "logger record {}/{} at {time:?}",
+                    series.site_uid, series.sensor_id
+                )
+            };
+            let kind_of = |text: &str, time: &str| {
+                text.parse::<SensorKind>()
+                    .map_err(|e| StoreError::Corrupt(format!("{}: {e}", what(time))))
+            };
+            let found: Option<(i64, f64, String)> = sensor
+                .query_row(params![site, series.sensor_id], |r| {
+                    Ok((r.get(0)?, r.get(1)?, r.get(2)?))
+                })
+                .optional()?;
+            let (sensor_ref, depth, kind) = if let Some(found) = found {
+                found
+            } else {
+                let kind = kind_of(&latest.sensor, &latest.time)?;
+                let id =
+                    logger::insert_sensor(conn, site, &series.sensor_id, latest.depth_cm, kind)?;
+                (id, latest.depth_cm, latest.sensor.clone())
+            };
             let stmt = if adding { &mut add } else { &mut update };
             for p in &series.points {
+                let time = logger::stored_time(&p.time).ok_or_else(|| {
+                    StoreError::Corrupt(format!(
+                        "{}: expected a time as YYYY-MM-DDTHH:MM:SSZ",
+                        what(&p.time)
+                    ))
+                })?;
+                // The schema checks water content up to 1 only on a record of its own kind.
+                if kind_of(&p.sensor, &p.time)? == SensorKind::WaterContent
+                    && !(0.0..=1.0).contains(&p.value)
+                {
+                    return Err(StoreError::Corrupt(format!(
+                        "{}: water content {} outside 0 to 1 m3/m3",
+                        what(&p.time),
+                        p.value
+                    )));
+                }
+                let own_depth = (p.depth_cm.to_bits() != depth.to_bits()).then_some(p.depth_cm);
+                let own_kind = (p.sensor != kind).then_some(p.sensor.as_str());
                 let batch = batch_ids.get(p.batch as usize).copied().flatten();
                 stmt.execute(params![
-                    site,
-                    series.sensor_id,
-                    p.time,
-                    p.depth_cm,
-                    p.sensor,
+                    sensor_ref,
+                    time,
+                    own_depth,
+                    own_kind,
                     p.value,
                     batch,
                     p.source_line

@@ -10,6 +10,7 @@ use super::{
     conductivity_key, readings_key,
 };
 use crate::store::conductivity::Where;
+use crate::store::logger::time_text;
 use crate::store::{Result, StoreError};
 
 /// What a fingerprint is replaced by when the readings it was taken of changed since: no
@@ -290,12 +291,13 @@ fn read_inside(conn: &Connection) -> Result<CampaignRows> {
 
     let mut flags = Vec::new();
     let mut stmt = conn.prepare(
-        "SELECT f.uid, f.reading_id, s.uid, l.sensor_id, l.time, f.conductivity_reading_id,
+        "SELECT f.uid, f.reading_id, s.uid, k.sensor_id, l.time_s, f.conductivity_reading_id,
                 f.reason, f.score, f.origin, f.status, f.note, f.created_at, f.decided_at,
                 f.rule, f.decided_by
          FROM flag f
          LEFT JOIN logger_record l ON l.id = f.logger_record_id
-         LEFT JOIN site s ON s.id = l.site_id
+         LEFT JOIN logger_sensor k ON k.id = l.logger_sensor_id
+         LEFT JOIN site s ON s.id = k.site_id
          ORDER BY f.uid",
     )?;
     let mut rows = stmt.query([])?;
@@ -309,7 +311,7 @@ fn read_inside(conn: &Connection) -> Result<CampaignRows> {
             (None, Some(site_uid), _) => FlagTarget::Logger(LoggerKey {
                 site_uid,
                 sensor_id: r.get(3)?,
-                time: r.get(4)?,
+                time: time_text(r.get(4)?),
             }),
             (None, None, Some(id)) => {
                 FlagTarget::Conductivity(must(&cond_uids, id, "conductivity reading")?)
@@ -399,8 +401,8 @@ fn collect<T>(
     Ok(out)
 }
 
-/// Logger records sensor by sensor, in (site uid, sensor id, time) order: one pass over the
-/// table's unique index per site.
+/// Logger records sensor by sensor, in (site uid, sensor id, time) order: per site, its
+/// sensors by id, each sensor's records by the key index `(logger_sensor_id, time_s)`.
 fn read_logger(
     conn: &Connection,
     site_uids: &Uids,
@@ -409,15 +411,17 @@ fn read_logger(
     let mut sites: Vec<(&String, i64)> = site_uids.iter().map(|(id, uid)| (uid, *id)).collect();
     sites.sort();
     let mut stmt = conn.prepare(
-        "SELECT sensor_id, time, depth_cm, sensor, value, batch_id, source_line
-         FROM logger_record WHERE site_id = ?1 ORDER BY sensor_id, time",
+        "SELECT k.sensor_id, r.time_s, coalesce(r.depth_cm, k.depth_cm),
+                coalesce(r.sensor, k.sensor), r.value, r.batch_id, r.source_line
+         FROM logger_sensor k JOIN logger_record r ON r.logger_sensor_id = k.id
+         WHERE k.site_id = ?1 ORDER BY k.sensor_id, r.time_s",
     )?;
     let mut out: Vec<LoggerSeries> = Vec::new();
     for (site_uid, site_id) in sites {
         let mut rows = stmt.query([site_id])?;
         let mut batch_index: HashMap<Option<i64>, u32> = HashMap::new();
         while let Some(r) = rows.next()? {
-            let sensor_id: String = r.get(0)?;
+            let sensor_id = r.get_ref(0)?.as_str().map_err(rusqlite::Error::from)?;
             let fresh = out
                 .last()
                 .is_none_or(|s| s.site_uid != *site_uid || s.sensor_id != sensor_id);
@@ -425,7 +429,7 @@ fn read_logger(
                 batch_index.clear();
                 out.push(LoggerSeries {
                     site_uid: site_uid.clone(),
-                    sensor_id,
+                    sensor_id: sensor_id.to_string(),
                     batch_uids: Vec::new(),
                     points: Vec::new(),
                 });
@@ -445,7 +449,7 @@ fn read_logger(
                 i
             };
             series.points.push(LoggerPoint {
-                time: r.get(1)?,
+                time: time_text(r.get(1)?),
                 depth_cm: r.get(2)?,
                 sensor: r.get(3)?,
                 value: r.get(4)?,

@@ -367,12 +367,12 @@ mod tests {
         c.connection()
             .execute_batch(
                 "INSERT INTO site (id, uid, code) VALUES (1, '00000000-0000-4000-8000-000000000001', 'S');
-                 INSERT INTO logger_record (id, site_id, depth_cm, sensor, sensor_id, time, value) VALUES
-                     (1, 1, 30, 'tensiometer', 'T30', '1970-01-01T00:00:00Z', 10),
-                     (2, 1, 30, 'tensiometer', 'T30', '1970-01-01T01:00:00Z', 900),
-                     (3, 1, 30, 'tensiometer', 'T30', '1970-01-01T02:00:00Z', 12),
-                     (4, 1, 30, 'water_content', 'W30', '1970-01-01T01:00:00Z', 0.3),
-                     (5, 1, 60, 'water_content', 'W60', '1970-01-01T01:00:00Z', 0.2);
+                 INSERT INTO logger_sensor (id, site_id, sensor_id, depth_cm, sensor) VALUES
+                     (1, 1, 'T30', 30, 'tensiometer'), (2, 1, 'W30', 30, 'water_content'),
+                     (3, 1, 'W60', 60, 'water_content');
+                 INSERT INTO logger_record (id, logger_sensor_id, time_s, value) VALUES
+                     (1, 1, 0, 10), (2, 1, 3600, 900), (3, 1, 7200, 12), (4, 2, 3600, 0.3),
+                     (5, 3, 3600, 0.2);
                  INSERT INTO flag (logger_record_id, reason, origin, status, created_at)
                      VALUES (2, 'spike', 'auto', 'suggested', '2026-01-01T00:00:00Z');",
             )
