@@ -658,25 +658,8 @@ where
         stepbound: 100.0,
         patience: 100,
     });
-    let q0 = OVector::<f64, Const<2>>::from_iterator(spec.q0.iter().copied());
-    let problem = Projected::<M, Const<2>>::new(
-        spec.model,
-        spec.data,
-        rows,
-        spec.shape,
-        spec.transforms,
-        spec.linear,
-        spec.kernel,
-        spec.full,
-        q0,
-        spec.watch,
-    );
-    let (problem, report) = super::lm2::minimize(&settings, problem);
-    Outcome {
-        solution: problem.solution(),
-        saturated: problem.saturated(),
-        report,
-    }
+    let (problem, report) = super::lm2::minimize(&settings, problem_of(spec, rows, Const::<2>));
+    outcome(&problem, report)
 }
 
 fn run<M, N>(spec: Spec<'_>, lm: &LevenbergMarquardt<f64>, rows: M, cols: N) -> Outcome
@@ -686,8 +669,17 @@ where
     DefaultAllocator:
         Allocator<M> + Allocator<N> + Allocator<M, N> + Reallocator<f64, M, N, DimMaximum<M, N>, N>,
 {
+    let (problem, report) = lm.minimize(problem_of(spec, rows, cols));
+    outcome(&problem, report)
+}
+
+/// The projected problem of `spec` with `rows` residual rows and `cols` shape parameters.
+fn problem_of<M: Dim, N: Dim>(spec: Spec<'_>, rows: M, cols: N) -> Projected<'_, M, N>
+where
+    DefaultAllocator: Allocator<M> + Allocator<N> + Allocator<M, N>,
+{
     let q0 = OVector::<f64, N>::from_iterator_generic(cols, U1, spec.q0.iter().copied());
-    let problem = Projected::new(
+    Projected::new(
         spec.model,
         spec.data,
         rows,
@@ -698,8 +690,17 @@ where
         spec.full,
         q0,
         spec.watch,
-    );
-    let (problem, report) = lm.minimize(problem);
+    )
+}
+
+/// What a finished run reports.
+fn outcome<M: Dim, N: Dim>(
+    problem: &Projected<'_, M, N>,
+    report: MinimizationReport<f64>,
+) -> Outcome
+where
+    DefaultAllocator: Allocator<M> + Allocator<N> + Allocator<M, N>,
+{
     Outcome {
         solution: problem.solution(),
         saturated: problem.saturated(),
