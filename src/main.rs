@@ -4,8 +4,10 @@ use std::process::ExitCode;
 
 use clap::Parser;
 
-/// mimalloc instead of the C library's allocator: a fit builds many small vectors, and the
-/// fit benchmark spends about 5 % fewer instructions with it (benches/fit.rs uses it too).
+/// mimalloc instead of the C library's allocator: a fit builds many small vectors. Measured
+/// (benches/fit.rs uses it too): 5 % fewer instructions per fit, about 10 % less time on one
+/// core and 25 % on two threads; the price is a higher peak on the largest in-memory work
+/// (archive push and pull of 2,000,000 logger records: 1.19 GB against 1.01 GB).
 #[global_allocator]
 static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
 
