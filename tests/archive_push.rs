@@ -285,6 +285,98 @@ fn a_conflicting_push_is_refused_whole_until_a_preference_resolves_it() {
 }
 
 #[test]
+fn a_dry_run_says_what_a_push_would_write_and_writes_nothing() {
+    let Some((url, _)) = pg::fresh_schema("dry_run") else {
+        return;
+    };
+    let dir = tempfile::tempdir().expect("temp dir");
+    let db = demo(dir.path());
+    let uid = campaign_uid(&db);
+    let in_archive = |uid: &str| -> i64 {
+        pg::client(&url)
+            .query_one("SELECT count(*) FROM campaign WHERE uid = $1", &[&uid])
+            .expect("count")
+            .get(0)
+    };
+
+    // A campaign new to the archive: the rows it would add, and no campaign afterwards.
+    let out = stdout(
+        &porewise()
+            .arg("push")
+            .arg(&db)
+            .arg(&url)
+            .arg("--dry-run")
+            .assert()
+            .success(),
+    );
+    assert!(out.contains("dry run: would push"), "{out}");
+    assert!(out.contains("nothing was written"), "{out}");
+    assert_eq!(in_archive(&uid), 0, "{out}");
+
+    // A campaign the archive has, with a new site: the plan and the fingerprint a push would
+    // record, while the archive keeps its content and its recorded fingerprint.
+    porewise().arg("push").arg(&db).arg(&url).assert().success();
+    let before = server_fingerprints(&url, &uid);
+    let copy = dir.path().join("copy.sqlite");
+    std::fs::copy(&db, &copy).expect("copy");
+    Connection::open(&copy)
+        .expect("open")
+        .execute(
+            "INSERT INTO site (uid, code, name) VALUES ('0f0f0f0f-0000-4000-8000-00000000dcba', 'NEW2', 'added')",
+            [],
+        )
+        .expect("edit");
+    let out = stdout(
+        &porewise()
+            .arg("push")
+            .arg(&copy)
+            .arg(&url)
+            .arg("--dry-run")
+            .assert()
+            .success(),
+    );
+    assert!(out.contains("dry run: would push 1 row of"), "{out}");
+    assert_eq!(server_fingerprints(&url, &uid), before, "nothing written");
+    // The fingerprint it announced is the one the real push then records.
+    let announced = out
+        .split("fingerprint then ")
+        .nth(1)
+        .and_then(|rest| rest.split(')').next())
+        .expect("announced fingerprint")
+        .to_string();
+    porewise()
+        .arg("push")
+        .arg(&copy)
+        .arg(&url)
+        .assert()
+        .success();
+    let (now, stored) = server_fingerprints(&url, &uid);
+    assert_eq!(stored, announced);
+    assert_eq!(now, announced);
+
+    // A conflict refuses the dry run as it refuses a push.
+    Connection::open(&db)
+        .expect("open")
+        .execute(
+            "UPDATE site SET name = 'Levee crest, renamed' WHERE code = 'LEV1'",
+            [],
+        )
+        .expect("edit");
+    let err = stderr(
+        &porewise()
+            .arg("push")
+            .arg(&db)
+            .arg(&url)
+            .arg("--dry-run")
+            .assert()
+            .code(1),
+    );
+    assert!(err.contains("push would be refused"), "{err}");
+    assert!(err.contains("Levee crest, renamed"), "{err}");
+    assert_eq!(server_fingerprints(&url, &uid).0, now);
+}
+
+#[test]
 fn concurrent_pushes_of_edited_copies_lose_nothing() {
     let Some((url, _)) = pg::fresh_schema("concurrent") else {
         return;

@@ -37,6 +37,10 @@ pub struct Pushed {
     pub fingerprint: String,
     /// Tries it took (1 unless the server asked for a retry).
     pub attempts: u32,
+    /// A dry run: everything was planned (and, for a campaign the archive has, written inside
+    /// the push's transaction), then rolled back; `written` and `fingerprint` are what a push
+    /// would give.
+    pub dry_run: bool,
 }
 
 /// Why a push wrote nothing although it ran.
@@ -71,6 +75,31 @@ pub fn push_waiting(
     prefs: &Preferences,
     wait: Duration,
 ) -> Result<PushOutcome> {
+    attempt(client, local, prefs, wait, false)
+}
+
+/// What [`push`] would do, with nothing written: the same plan (conflicts refuse it the
+/// same way); a campaign the archive already has is written inside the push's transaction,
+/// which is then rolled back, so the counts and the fingerprint are exactly a push's.
+///
+/// # Errors
+/// As [`push`].
+pub fn preview(
+    client: &mut Client,
+    local: &CampaignRows,
+    prefs: &Preferences,
+) -> Result<PushOutcome> {
+    attempt(client, local, prefs, LOCK_WAIT, true)
+}
+
+/// [`push_waiting`], or its dry run.
+fn attempt(
+    client: &mut Client,
+    local: &CampaignRows,
+    prefs: &Preferences,
+    wait: Duration,
+    dry_run: bool,
+) -> Result<PushOutcome> {
     let local_fingerprint = fingerprint(local);
     let mut attempt = 0;
     loop {
@@ -78,7 +107,7 @@ pub fn push_waiting(
         let tx = client
             .transaction()
             .map_err(server("cannot start the push"))?;
-        match push_once(tx, local, &local_fingerprint, prefs, wait) {
+        match push_once(tx, local, &local_fingerprint, prefs, wait, dry_run) {
             Ok(PushOutcome::Done(mut done)) => {
                 done.attempts = attempt;
                 return Ok(PushOutcome::Done(done));
@@ -115,6 +144,7 @@ fn push_once(
     local_fingerprint: &str,
     prefs: &Preferences,
     wait: Duration,
+    dry_run: bool,
 ) -> Result<PushOutcome> {
     tx.batch_execute(&format!(
         "SET CONSTRAINTS ALL DEFERRED; SET LOCAL lock_timeout = {}",
@@ -158,6 +188,21 @@ fn push_once(
             created: false,
             fingerprint: local_fingerprint.to_string(),
             attempts: 1,
+            dry_run,
+        }));
+    }
+    if created && dry_run {
+        // New to the archive: every row would be written; nothing to compare.
+        tx.rollback().map_err(server("cannot end the push"))?;
+        let rows = NewRows::all(local).len();
+        return Ok(PushOutcome::Done(Pushed {
+            report: format!("new campaign for the archive: {rows} rows\n"),
+            written: rows,
+            unchanged: false,
+            created: true,
+            fingerprint: local_fingerprint.to_string(),
+            attempts: 1,
+            dry_run,
         }));
     }
     if created {
@@ -182,6 +227,7 @@ fn push_once(
             created: true,
             fingerprint: local_fingerprint.to_string(),
             attempts: 1,
+            dry_run,
         }));
     }
     let on_server = read_campaign(&mut tx, uid)?.ok_or_else(|| {
@@ -201,7 +247,11 @@ fn push_once(
     let written = apply(&mut tx, &on_server, &plan, &after, &settled)?;
     let print = fingerprint(&after);
     record(&mut tx, uid, &print)?;
-    tx.commit().map_err(server("cannot commit the push"))?;
+    if dry_run {
+        tx.rollback().map_err(server("cannot end the push"))?;
+    } else {
+        tx.commit().map_err(server("cannot commit the push"))?;
+    }
     Ok(PushOutcome::Done(Pushed {
         report: plan.render(),
         written,
@@ -209,6 +259,7 @@ fn push_once(
         created: false,
         fingerprint: print,
         attempts: 1,
+        dry_run,
     }))
 }
 

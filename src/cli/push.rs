@@ -8,9 +8,10 @@ use clap::Args;
 use crate::archive::connect;
 use crate::archive::migrate::ensure;
 use crate::archive::pull::pull;
-use crate::archive::push::{PushOutcome, push};
+use crate::archive::push::{PushOutcome, preview, push};
 use crate::cli::archive::ServerArgs;
 use crate::error::Outcome;
+use crate::model::number::plural;
 use crate::model::text::shown;
 use crate::store::Campaign;
 use crate::store::exchange::{self, Preferences};
@@ -18,7 +19,7 @@ use crate::store::exchange::{self, Preferences};
 /// Arguments of `porewise push`.
 #[derive(Debug, Args)]
 #[command(
-    after_help = "Examples:\n  porewise push spring.sqlite postgres://ana@db.example/soils\n  porewise push spring.sqlite postgres://ana@db.example/soils --prefer flags=newer --prefer fits=local"
+    after_help = "Examples:\n  porewise push spring.sqlite postgres://ana@db.example/soils\n  porewise push spring.sqlite postgres://ana@db.example/soils --dry-run\n  porewise push spring.sqlite postgres://ana@db.example/soils --prefer flags=newer --prefer fits=local"
 )]
 pub struct PushArgs {
     /// The campaign file to push.
@@ -30,6 +31,10 @@ pub struct PushArgs {
     /// server's; also `into`). Without it a conflict refuses the whole push.
     #[arg(long, value_name = "[KIND=]WAY")]
     pub prefer: Vec<String>,
+    /// Say what the push would write and write nothing (the archive's transaction is rolled
+    /// back); conflicts are listed as a push would list them.
+    #[arg(long)]
+    pub dry_run: bool,
 }
 
 /// Arguments of `porewise pull`.
@@ -81,7 +86,24 @@ pub fn run_push(args: &PushArgs) -> anyhow::Result<Outcome> {
     let mut client = connect(&target)?;
     ensure(&mut client, &target)
         .with_context(|| format!("cannot set up the archive on {}", target.shown()))?;
-    match push(&mut client, &local, &prefs)? {
+    let outcome = if args.dry_run {
+        preview(&mut client, &local, &prefs)?
+    } else {
+        push(&mut client, &local, &prefs)?
+    };
+    match outcome {
+        PushOutcome::Done(done) if done.dry_run && !done.unchanged && done.written > 0 => {
+            print!("{}", done.report);
+            println!(
+                "dry run: would push {} of campaign {:?} ({}) to {} (fingerprint then {}); nothing was written",
+                plural(done.written as u64, "row"),
+                shown(&local.campaign.name),
+                local.campaign.uid,
+                target.shown(),
+                done.fingerprint
+            );
+            Ok(Outcome::Success)
+        }
         PushOutcome::Done(done) => {
             print!("{}", done.report);
             let (verb, place) = if done.unchanged {
@@ -107,7 +129,12 @@ pub fn run_push(args: &PushArgs) -> anyhow::Result<Outcome> {
         PushOutcome::Refused(plan) => {
             eprint!("{}", plan.render());
             bail!(
-                "push refused: {} conflicts unresolved and {} code collisions between the archive (INTO) and {} (FROM); nothing was written (resolve with --prefer)",
+                "{}: {} conflicts unresolved and {} code collisions between the archive (INTO) and {} (FROM); nothing was written (resolve with --prefer)",
+                if args.dry_run {
+                    "push would be refused"
+                } else {
+                    "push refused"
+                },
                 plan.unresolved(),
                 plan.collisions.len(),
                 args.file.display()
