@@ -286,12 +286,35 @@ fn a_conflicting_push_is_refused_whole_until_a_preference_resolves_it() {
 
 #[test]
 fn a_dry_run_says_what_a_push_would_write_and_writes_nothing() {
-    let Some((url, _)) = pg::fresh_schema("dry_run") else {
+    let Some((url, schema)) = pg::fresh_schema("dry_run") else {
         return;
     };
     let dir = tempfile::tempdir().expect("temp dir");
     let db = demo(dir.path());
     let uid = campaign_uid(&db);
+    // Not even the archive's tables: a dry run against a fresh schema says to set it up.
+    let err = stderr(
+        &porewise()
+            .arg("push")
+            .arg(&db)
+            .arg(&url)
+            .arg("--dry-run")
+            .assert()
+            .code(1),
+    );
+    assert!(err.contains("archive init"), "{err}");
+    let tables: i64 = pg::client(&url)
+        .query_one(
+            "SELECT count(*) FROM information_schema.tables WHERE table_schema = $1",
+            &[&schema],
+        )
+        .expect("tables")
+        .get(0);
+    assert_eq!(tables, 0, "{err}");
+    porewise()
+        .args(["archive", "init", &url])
+        .assert()
+        .success();
     let in_archive = |uid: &str| -> i64 {
         pg::client(&url)
             .query_one("SELECT count(*) FROM campaign WHERE uid = $1", &[&uid])

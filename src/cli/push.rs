@@ -6,7 +6,7 @@ use anyhow::{Context, bail};
 use clap::Args;
 
 use crate::archive::connect;
-use crate::archive::migrate::ensure;
+use crate::archive::migrate::{check, ensure};
 use crate::archive::pull::pull;
 use crate::archive::push::{PushOutcome, preview, push};
 use crate::cli::archive::ServerArgs;
@@ -32,7 +32,8 @@ pub struct PushArgs {
     #[arg(long, value_name = "[KIND=]WAY")]
     pub prefer: Vec<String>,
     /// Say what the push would write and write nothing (the archive's transaction is rolled
-    /// back); conflicts are listed as a push would list them.
+    /// back; an archive not set up is reported, not created); conflicts are listed as a push
+    /// would list them.
     #[arg(long)]
     pub dry_run: bool,
 }
@@ -84,8 +85,13 @@ pub fn run_push(args: &PushArgs) -> anyhow::Result<Outcome> {
     drop(campaign);
     let target = args.server.target()?;
     let mut client = connect(&target)?;
-    ensure(&mut client, &target)
-        .with_context(|| format!("cannot set up the archive on {}", target.shown()))?;
+    if args.dry_run {
+        // A dry run writes nothing, not even the archive's tables.
+        check(&mut client, &target)?;
+    } else {
+        ensure(&mut client, &target)
+            .with_context(|| format!("cannot set up the archive on {}", target.shown()))?;
+    }
     let outcome = if args.dry_run {
         preview(&mut client, &local, &prefs)?
     } else {
