@@ -284,6 +284,13 @@ fn a_conflicting_push_is_refused_whole_until_a_preference_resolves_it() {
     assert_eq!(now, fingerprint_of(&copy));
 }
 
+/// `porewise push FILE URL --dry-run`.
+fn dry_run(url: &str, file: &Path) -> assert_cmd::Command {
+    let mut cmd = porewise();
+    cmd.arg("push").arg(file).arg(url).arg("--dry-run");
+    cmd
+}
+
 #[test]
 fn a_dry_run_says_what_a_push_would_write_and_writes_nothing() {
     let Some((url, schema)) = pg::fresh_schema("dry_run") else {
@@ -293,15 +300,7 @@ fn a_dry_run_says_what_a_push_would_write_and_writes_nothing() {
     let db = demo(dir.path());
     let uid = campaign_uid(&db);
     // Not even the archive's tables: a dry run against a fresh schema says to set it up.
-    let err = stderr(
-        &porewise()
-            .arg("push")
-            .arg(&db)
-            .arg(&url)
-            .arg("--dry-run")
-            .assert()
-            .code(1),
-    );
+    let err = stderr(&dry_run(&url, &db).assert().code(1));
     assert!(err.contains("archive init"), "{err}");
     let tables: i64 = pg::client(&url)
         .query_one(
@@ -323,15 +322,7 @@ fn a_dry_run_says_what_a_push_would_write_and_writes_nothing() {
     };
 
     // A campaign new to the archive: the rows it would add, and no campaign afterwards.
-    let out = stdout(
-        &porewise()
-            .arg("push")
-            .arg(&db)
-            .arg(&url)
-            .arg("--dry-run")
-            .assert()
-            .success(),
-    );
+    let out = stdout(&dry_run(&url, &db).assert().success());
     assert!(out.contains("dry run: would push"), "{out}");
     assert!(out.contains("nothing was written"), "{out}");
     assert_eq!(in_archive(&uid), 0, "{out}");
@@ -349,15 +340,7 @@ fn a_dry_run_says_what_a_push_would_write_and_writes_nothing() {
             [],
         )
         .expect("edit");
-    let out = stdout(
-        &porewise()
-            .arg("push")
-            .arg(&copy)
-            .arg(&url)
-            .arg("--dry-run")
-            .assert()
-            .success(),
-    );
+    let out = stdout(&dry_run(&url, &copy).assert().success());
     assert!(out.contains("dry run: would push 1 row of"), "{out}");
     assert_eq!(server_fingerprints(&url, &uid), before, "nothing written");
     // The fingerprint it announced is the one the real push then records.
@@ -385,15 +368,7 @@ fn a_dry_run_says_what_a_push_would_write_and_writes_nothing() {
             [],
         )
         .expect("edit");
-    let err = stderr(
-        &porewise()
-            .arg("push")
-            .arg(&db)
-            .arg(&url)
-            .arg("--dry-run")
-            .assert()
-            .code(1),
-    );
+    let err = stderr(&dry_run(&url, &db).assert().code(1));
     assert!(err.contains("push would be refused"), "{err}");
     assert!(err.contains("Levee crest, renamed"), "{err}");
     assert_eq!(server_fingerprints(&url, &uid).0, now);

@@ -621,15 +621,19 @@ pub(crate) fn minimize(spec: Spec<'_>, lm: &LevenbergMarquardt<f64>) -> Outcome 
     let m = spec.data.x.len();
     if m <= FIXED_ROWS {
         let (r16, r12, r8) = (Const::<FIXED_ROWS>, Const::<12>, Const::<8>);
+        // The two-parameter solver's settings where it runs (the van Genuchten kernel).
+        let fast = spec
+            .fast
+            .filter(|_| spec.kernel == Some(Kernel::VanGenuchten));
         match (spec.shape.len(), m) {
             (1, 0..=8) => return run(spec, lm, r8, Const::<1>),
             (1, 9..=12) => return run(spec, lm, r12, Const::<1>),
             (1, _) => return run(spec, lm, r16, Const::<1>),
-            (2, _) if spec.fast.is_some() && spec.kernel == Some(Kernel::VanGenuchten) => {
+            (2, _) if let Some(settings) = fast => {
                 return match m {
-                    0..=8 => run_two(spec, r8),
-                    9..=12 => run_two(spec, r12),
-                    _ => run_two(spec, r16),
+                    0..=8 => run_two(spec, &settings, r8),
+                    9..=12 => run_two(spec, &settings, r12),
+                    _ => run_two(spec, &settings, r16),
                 };
             }
             (2, 0..=8) => return run(spec, lm, r8, Const::<2>),
@@ -646,19 +650,12 @@ pub(crate) fn minimize(spec: Spec<'_>, lm: &LevenbergMarquardt<f64>) -> Outcome 
 }
 
 /// A two-parameter projected problem through [`super::lm2`].
-fn run_two<M>(spec: Spec<'_>, rows: M) -> Outcome
+fn run_two<M>(spec: Spec<'_>, settings: &super::lm2::Settings, rows: M) -> Outcome
 where
     M: Dim,
     DefaultAllocator: Allocator<M> + Allocator<Const<2>> + Allocator<M, Const<2>>,
 {
-    let settings = spec.fast.unwrap_or(super::lm2::Settings {
-        ftol: 1e-10,
-        xtol: 1e-10,
-        gtol: 1e-10,
-        stepbound: 100.0,
-        patience: 100,
-    });
-    let (problem, report) = super::lm2::minimize(&settings, problem_of(spec, rows, Const::<2>));
+    let (problem, report) = super::lm2::minimize(settings, problem_of(spec, rows, Const::<2>));
     outcome(&problem, report)
 }
 
